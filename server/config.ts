@@ -1,0 +1,72 @@
+import path from 'node:path';
+import { z } from 'zod';
+
+/**
+ * The only place that reads process.env (house rule 8). Validated with zod so a bad value
+ * fails at start with a readable list instead of somewhere deep inside.
+ */
+const port = z.coerce.number().int().min(1).max(65535);
+const envSchema = z.object({
+  PORT: port.default(3000),
+  HOST: z.string().default('127.0.0.1'),
+  FLOCSTREAM_DATA_DIR: z.string().default('.data'),
+  FLOCSTREAM_PG_PORT: port.default(54329),
+  DATABASE_URL: z.url().optional(),
+  FLOCSTREAM_ADMIN_EMAIL: z.email().optional(),
+  FLOCSTREAM_ADMIN_PASSWORD: z.string().min(12, 'must be at least 12 characters').optional(),
+  FLOCSTREAM_SESSION_SECRET: z.string().min(32, 'must be at least 32 characters').optional(),
+  FLOCSTREAM_DEMO: z.enum(['0', '1']).default('1'),
+  MQTT_URL: z.url().optional(),
+  FLOCSTREAM_MQTT_PORT: port.default(18830),
+  REDIS_URL: z.url().optional(),
+  SMTP_URL: z.url().optional(),
+  LOG_LEVEL: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
+  NODE_ENV: z.string().default('production'),
+});
+
+export type Config = {
+  port: number;
+  host: string;
+  dataDir: string;
+  pgPort: number;
+  databaseUrl: string | undefined;
+  adminEmail: string | undefined;
+  adminPassword: string | undefined;
+  sessionSecret: string | undefined;
+  demo: boolean;
+  mqttUrl: string | undefined;
+  mqttPort: number;
+  redisUrl: string | undefined;
+  smtpUrl: string | undefined;
+  logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
+  secureCookies: boolean;
+};
+
+export class ConfigError extends Error {}
+
+export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
+  const parsed = envSchema.safeParse(env);
+  if (!parsed.success) {
+    const lines = parsed.error.issues.map((i) => `  ${i.path.join('.')}: ${i.message}`);
+    throw new ConfigError(`invalid environment:\n${lines.join('\n')}`);
+  }
+  const e = parsed.data;
+  return {
+    port: e.PORT,
+    host: e.HOST,
+    dataDir: path.resolve(e.FLOCSTREAM_DATA_DIR),
+    pgPort: e.FLOCSTREAM_PG_PORT,
+    databaseUrl: e.DATABASE_URL,
+    adminEmail: e.FLOCSTREAM_ADMIN_EMAIL,
+    adminPassword: e.FLOCSTREAM_ADMIN_PASSWORD,
+    sessionSecret: e.FLOCSTREAM_SESSION_SECRET,
+    demo: e.FLOCSTREAM_DEMO === '1',
+    mqttUrl: e.MQTT_URL,
+    mqttPort: e.FLOCSTREAM_MQTT_PORT,
+    redisUrl: e.REDIS_URL,
+    smtpUrl: e.SMTP_URL,
+    logLevel: e.LOG_LEVEL,
+    // The product binds to 127.0.0.1 over plain HTTP by default; behind TLS set NODE_ENV=production-tls.
+    secureCookies: e.NODE_ENV === 'production-tls',
+  };
+}

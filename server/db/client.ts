@@ -1,0 +1,22 @@
+import { drizzle, type NodePgDatabase } from 'drizzle-orm/node-postgres';
+import pg from 'pg';
+import * as schema from './schema/index.ts';
+
+export type Db = NodePgDatabase<typeof schema>;
+
+export interface Database {
+  pool: pg.Pool;
+  db: Db;
+  close(): Promise<void>;
+}
+
+// timestamptz as JS Date (default), bigint counts as numbers (they stay well below 2^53).
+pg.types.setTypeParser(20, (v) => Number(v));
+
+export function openDatabase(url: string, opts: { max?: number } = {}): Database {
+  const pool = new pg.Pool({ connectionString: url, max: opts.max ?? 10, idleTimeoutMillis: 30_000 });
+  // An idle client losing its connection (database restart) must not crash the process.
+  pool.on('error', () => {});
+  const db = drizzle(pool, { schema });
+  return { pool, db, close: () => pool.end() };
+}

@@ -1,0 +1,5 @@
+export * from './auth.ts';
+export * from './plant.ts';
+export * from './wiring.ts';
+export * from './process.ts';
+export * from './samples.ts';

@@ -1,0 +1,90 @@
+import { boolean, doublePrecision, index, integer, jsonb, pgTable, serial, text, timestamp, uniqueIndex } from 'drizzle-orm/pg-core';
+import { plants } from './plant.ts';
+
+/** An MQTT broker or OPC UA endpoint. Credentials stay on the server: never returned by the API. */
+export const sources = pgTable(
+  'sources',
+  {
+    id: serial('id').primaryKey(),
+    plantId: integer('plant_id')
+      .notNull()
+      .references(() => plants.id, { onDelete: 'cascade' }),
+    name: text('name').notNull(),
+    kind: text('kind', { enum: ['mqtt', 'opcua'] }).notNull(),
+    url: text('url').notNull(),
+    username: text('username'),
+    secret: text('secret'),
+    options: jsonb('options').notNull().default({}),
+    enabled: boolean('enabled').notNull().default(true),
+    createdAt: timestamp('created_at', { withTimezone: true }).notNull().defaultNow(),
+  },
+  (t) => [uniqueIndex('sources_plant_name_uq').on(t.plantId, t.name)],
+);
+
+export const tags = pgTable(
+  'tags',
+  {
+    id: serial('id').primaryKey(),
+    plantId: integer('plant_id')
+      .notNull()
+      .references(() => plants.id, { onDelete: 'cascade' }),
+    sourceId: integer('source_id')
+      .notNull()
+      .references(() => sources.id, { onDelete: 'cascade' }),
+    name: text('name').notNull(),
+    description: text('description').notNull().default(''),
+    /** MQTT topic (exact, or a pattern with + and #) or OPC UA NodeId. */
+    address: text('address').notNull(),
+    unit: text('unit').notNull(),
+    /** Engineering value = raw × scaleGain + scaleOffset. */
+    scaleGain: doublePrecision('scale_gain').notNull().default(1),
+    scaleOffset: doublePrecision('scale_offset').notNull().default(0),
+    deadband: doublePrecision('deadband').notNull().default(0),
+    expectedPeriod_s: doublePrecision('expected_period_s').notNull().default(10),
+    rangeLow: doublePrecision('range_low'),
+    rangeHigh: doublePrecision('range_high'),
+    samplingInterval_ms: integer('sampling_interval_ms'),
+    enabled: boolean('enabled').notNull().default(true),
+    createdAt: timestamp('created_at', { withTimezone: true }).notNull().defaultNow(),
+  },
+  (t) => [
+    uniqueIndex('tags_plant_name_uq').on(t.plantId, t.name),
+    uniqueIndex('tags_source_address_uq').on(t.sourceId, t.address),
+  ],
+);
+
+/** Which tag is which process signal of which basin, clarifier, pump or the plant itself. */
+export const signalMap = pgTable(
+  'signal_map',
+  {
+    id: serial('id').primaryKey(),
+    plantId: integer('plant_id')
+      .notNull()
+      .references(() => plants.id, { onDelete: 'cascade' }),
+    signal: text('signal').notNull(),
+    targetType: text('target_type', { enum: ['plant', 'train', 'basin', 'clarifier', 'pump'] }).notNull(),
+    targetId: integer('target_id').notNull(),
+    tagId: integer('tag_id')
+      .notNull()
+      .references(() => tags.id, { onDelete: 'cascade' }),
+  },
+  (t) => [
+    uniqueIndex('signal_map_target_uq').on(t.plantId, t.signal, t.targetType, t.targetId),
+    index('signal_map_tag_idx').on(t.tagId),
+  ],
+);
+
+/** Messages the ingest pipeline could not decode or map, with the reason (nothing is dropped silently). */
+export const deadLetters = pgTable(
+  'dead_letters',
+  {
+    id: serial('id').primaryKey(),
+    ts: timestamp('ts', { withTimezone: true }).notNull().defaultNow(),
+    sourceId: integer('source_id'),
+    address: text('address'),
+    payload: text('payload'),
+    payloadBytes: integer('payload_bytes').notNull().default(0),
+    reason: text('reason').notNull(),
+  },
+  (t) => [index('dead_letters_ts_idx').on(t.ts)],
+);
