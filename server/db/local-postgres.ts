@@ -182,6 +182,8 @@ export async function startLocalPostgres(opts: StartOptions): Promise<LocalPostg
     stop() {
       if (stopped || !startedHere) return;
       stopped = true;
+      // A Ctrl-C in the terminal reaches postgres too and it may already be shutting down.
+      if (!running(bin, pgData)) return;
       asPostgres(path.join(bin, 'pg_ctl'), ['-D', pgData, '-m', 'fast', '-w', 'stop']);
     },
   };

@@ -1,0 +1,79 @@
+import fs from 'node:fs';
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import cookieParser from 'cookie-parser';
+import express, { type Express, Router } from 'express';
+import helmet from 'helmet';
+import { pinoHttp } from 'pino-http';
+import type { AppContext } from './app-context.ts';
+import { authenticate } from './auth/middleware.ts';
+import { errorMiddleware } from './http/error-middleware.ts';
+import { NotFoundError } from './http/errors.ts';
+import { buildOpenApi } from './http/openapi.ts';
+import { mount, type RouteDef } from './http/route.ts';
+import { authRoutes } from './routes/auth.routes.ts';
+import { tokensRoutes } from './routes/tokens.routes.ts';
+import { usersRoutes } from './routes/users.routes.ts';
+
+export const VERSION = '0.1.0';
+const DIST = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../dist');
+
+/** Every /api/v1 route of the product, in one list (mounted, documented and role-tested from it). */
+export function apiRoutes(ctx: AppContext): RouteDef[] {
+  const defs: RouteDef[] = [...authRoutes(ctx), ...usersRoutes(ctx), ...tokensRoutes(ctx)];
+  const doc = () => buildOpenApi(defs, VERSION);
+  let cached: object | undefined;
+  defs.push({
+    method: 'get',
+    path: '/openapi.json',
+    role: 'public',
+    tag: 'meta',
+    summary: 'This OpenAPI document',
+    handler: () => (cached ??= doc()),
+  });
+  return defs;
+}
+
+export function createApp(ctx: AppContext, opts: { serveMonitor?: boolean } = {}): Express {
+  const app = express();
+  app.disable('x-powered-by');
+  app.set('trust proxy', 'loopback');
+  app.use(
+    helmet({
+      contentSecurityPolicy: {
+        directives: { defaultSrc: ["'self'"], imgSrc: ["'self'", 'data:', 'blob:'], styleSrc: ["'self'", "'unsafe-inline'"], connectSrc: ["'self'"], upgradeInsecureRequests: null },
+      },
+      strictTransportSecurity: false,
+    }),
+  );
+  app.use(pinoHttp({ logger: ctx.log, autoLogging: { ignore: (req) => req.url === '/api/health' } }));
+  app.use(express.json({ limit: '256kb' }));
+  app.use(cookieParser());
+
+  app.get('/api/health', async (_req, res) => {
+    const t0 = performance.now();
+    let database: { ok: boolean; latency_ms?: number; error?: string };
+    try {
+      await ctx.db.pool.query('SELECT 1');
+      database = { ok: true, latency_ms: Math.round((performance.now() - t0) * 10) / 10 };
+    } catch {
+      database = { ok: false, error: 'database unreachable' };
+    }
+    res.status(database.ok ? 200 : 503).json({ status: database.ok ? 'ok' : 'degraded', version: VERSION, database });
+  });
+
+  const api = Router();
+  api.use(authenticate(ctx));
+  mount(api, apiRoutes(ctx));
+  api.use((_req, _res, next) => next(new NotFoundError('no such API route')));
+  app.use('/api/v1', api);
+  app.use('/api', (_req, _res, next) => next(new NotFoundError('no such API route')));
+
+  if (opts.serveMonitor !== false && fs.existsSync(path.join(DIST, 'index.html'))) {
+    app.use(express.static(DIST, { index: false, maxAge: '1h' }));
+    // Client-side routes: every other GET is the monitor.
+    app.get(/.*/, (_req, res) => res.sendFile(path.join(DIST, 'index.html')));
+  }
+  app.use(errorMiddleware(ctx.log));
+  return app;
+}

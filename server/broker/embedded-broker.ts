@@ -1,0 +1,54 @@
+/**
+ * Embedded MQTT broker for one-machine installs and tests: aedes 1.2 (ESM, created with
+ * `await Aedes.createBroker()`; the old default-export factory throws) on a plain TCP server,
+ * in-memory persistence (aedes' default). aedes accepts MQTT 3.1.1 and 5 clients.
+ *
+ * close() closes the broker (which disconnects every client) and then the listener, so the
+ * port is free for an immediate restart on the same port.
+ */
+import net from 'node:net';
+import { Aedes } from 'aedes';
+
+export interface EmbeddedBroker {
+  url: string;
+  port: number;
+  close(): Promise<void>;
+}
+
+export async function startEmbeddedBroker(opts: { host?: string; port: number }): Promise<EmbeddedBroker> {
+  const host = opts.host ?? '127.0.0.1';
+  const broker = await Aedes.createBroker();
+  // A misbehaving client must never take the process down: aedes reports per-client errors
+  // as events; without a listener Node would throw them.
+  broker.on('clientError', () => {});
+  broker.on('connectionError', () => {});
+  const server = net.createServer(broker.handle);
+  const sockets = new Set<net.Socket>();
+  server.on('connection', (s) => {
+    sockets.add(s);
+    s.on('close', () => sockets.delete(s));
+  });
+  await new Promise<void>((resolve, reject) => {
+    server.once('error', reject);
+    server.listen(opts.port, host, () => {
+      server.off('error', reject);
+      resolve();
+    });
+  });
+  const addr = server.address();
+  const port = typeof addr === 'object' && addr ? addr.port : opts.port;
+  let closed: Promise<void> | null = null;
+  return {
+    url: `mqtt://${host.includes(':') ? `[${host}]` : host}:${port}`,
+    port,
+    close() {
+      closed ??= (async () => {
+        await new Promise<void>((resolve) => broker.close(() => resolve()));
+        // Half-open sockets that never completed CONNECT are not aedes clients yet.
+        for (const s of sockets) s.destroy();
+        await new Promise<void>((resolve) => server.close(() => resolve()));
+      })();
+      return closed;
+    },
+  };
+}

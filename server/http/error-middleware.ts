@@ -1,0 +1,37 @@
+import type { NextFunction, Request, Response } from 'express';
+import type { Logger } from 'pino';
+import { HttpError, TooManyRequestsError } from './errors.ts';
+
+/**
+ * The one error funnel: typed errors become their status and body; body-parser's errors
+ * (malformed JSON, too large) become 400/413; anything else is a 500 with a generic message.
+ * Stack traces go to the log, never to the client.
+ */
+export function errorMiddleware(log: Logger) {
+  return (err: unknown, req: Request, res: Response, _next: NextFunction) => {
+    if (res.headersSent) {
+      req.socket.destroy();
+      return;
+    }
+    if (err instanceof HttpError) {
+      if (err instanceof TooManyRequestsError) res.setHeader('Retry-After', String(err.retryAfter_s));
+      res.status(err.status).json({ error: { code: err.code, message: err.message, ...(err.fields ? { fields: err.fields } : {}) } });
+      return;
+    }
+    const e = err as { type?: string; status?: number; message?: string };
+    if (e?.type === 'entity.parse.failed') {
+      res.status(400).json({ error: { code: 'malformed_json', message: 'the request body is not valid JSON' } });
+      return;
+    }
+    if (e?.type === 'entity.too.large') {
+      res.status(413).json({ error: { code: 'too_large', message: 'the request body is too large' } });
+      return;
+    }
+    if (typeof e?.status === 'number' && e.status >= 400 && e.status < 500) {
+      res.status(e.status).json({ error: { code: 'bad_request', message: 'the request could not be read' } });
+      return;
+    }
+    log.error({ err, path: req.path }, 'unhandled error');
+    res.status(500).json({ error: { code: 'internal', message: 'internal error; the server log has the details' } });
+  };
+}

@@ -1,0 +1,80 @@
+import fs from 'node:fs';
+import type { Server } from 'node:http';
+import path from 'node:path';
+import type { Logger } from 'pino';
+import { createApp } from './app.ts';
+import type { AppContext } from './app-context.ts';
+import { loadSessionKey } from './auth/session.ts';
+import type { Config } from './config.ts';
+import { openDatabase } from './db/client.ts';
+import { startLocalPostgres, type LocalPostgres } from './db/local-postgres.ts';
+import { runMigrations } from './db/migrate.ts';
+import { createLogger } from './logger.ts';
+import { bootstrapUsers, type Credential } from './services/bootstrap.service.ts';
+
+export interface RunningServer {
+  url: string;
+  ctx: AppContext;
+  databaseUrl: string;
+  credentials: Credential[];
+  close(): Promise<void>;
+}
+
+/**
+ * Starts the API and monitor: the private PostgreSQL (unless DATABASE_URL is set), migrations,
+ * first users, then HTTP on 127.0.0.1. `close()` stops them in reverse order.
+ */
+export async function startServer(config: Config, opts: { log?: Logger; say?: (m: string) => void } = {}): Promise<RunningServer> {
+  const say = opts.say ?? (() => {});
+  const log = opts.log ?? createLogger('server', config.logLevel, config.dataDir);
+  let pgLocal: LocalPostgres | undefined;
+  let databaseUrl = config.databaseUrl;
+  if (!databaseUrl) {
+    pgLocal = await startLocalPostgres({ dataDir: config.dataDir, port: config.pgPort, log: say });
+    databaseUrl = pgLocal.url;
+  }
+  try {
+    await runMigrations(databaseUrl);
+    const db = openDatabase(databaseUrl);
+    const ctx: AppContext = { db, config, log, sessionKey: loadSessionKey(config.dataDir, config.sessionSecret) };
+    const credentials = await bootstrapUsers(ctx, config.demo);
+    if (config.demo) rememberDemoCredentials(config.dataDir, credentials);
+    const app = createApp(ctx);
+    const server: Server = await new Promise((resolve, reject) => {
+      const s = app.listen(config.port, config.host, () => resolve(s));
+      s.once('error', (err: NodeJS.ErrnoException) =>
+        reject(err.code === 'EADDRINUSE' ? new Error(`port ${config.port} on ${config.host} is already in use; set PORT to a free port`) : err),
+      );
+    });
+    const addr = server.address();
+    const port = typeof addr === 'object' && addr ? addr.port : config.port;
+    return {
+      url: `http://${config.host}:${port}`,
+      ctx,
+      databaseUrl,
+      credentials,
+      async close() {
+        server.closeAllConnections();
+        await new Promise<void>((r) => server.close(() => r()));
+        await db.close();
+        pgLocal?.stop();
+      },
+    };
+  } catch (err) {
+    pgLocal?.stop();
+    throw err;
+  }
+}
+
+/** Demo credentials are random; keep them (mode 600) in the data folder so a restart can show them again. */
+function rememberDemoCredentials(dataDir: string, created: Credential[]): void {
+  const file = path.join(dataDir, 'demo-credentials.json');
+  const known: Credential[] = fs.existsSync(file) ? JSON.parse(fs.readFileSync(file, 'utf8')) : [];
+  const merged = [...known.filter((k) => !created.some((c) => c.email === k.email)), ...created].filter((c) => c.email.startsWith('demo-'));
+  fs.writeFileSync(file, JSON.stringify(merged, null, 2), { mode: 0o600 });
+}
+
+export function demoCredentials(dataDir: string): Credential[] {
+  const file = path.join(dataDir, 'demo-credentials.json');
+  return fs.existsSync(file) ? JSON.parse(fs.readFileSync(file, 'utf8')) : [];
+}

@@ -1,0 +1,22 @@
+import { lazy } from 'react';
+import { createBrowserRouter, Navigate } from 'react-router';
+import { LoginPage } from '../features/auth/components/login-page.tsx';
+import { AppLayout } from './layout.tsx';
+
+// Views are code-split: each route loads its own chunk.
+const AccessPage = lazy(() => import('../features/access/components/access-page.tsx'));
+const WhatIfPage = lazy(() => import('../features/what-if/components/what-if-page.tsx'));
+
+export const router = createBrowserRouter([
+  { path: '/login', element: <LoginPage /> },
+  {
+    path: '/',
+    element: <AppLayout />,
+    children: [
+      { index: true, element: <Navigate to="/what-if" replace /> },
+      { path: 'what-if', element: <WhatIfPage /> },
+      { path: 'access', element: <AccessPage /> },
+      { path: '*', element: <p className="p-2">No such view.</p> },
+    ],
+  },
+]);

@@ -1,0 +1,39 @@
+/**
+ * The one fetch client: JSON in and out, the session cookie rides along (same origin), and
+ * a non-2xx answer becomes an ApiError carrying the server's `{ error: { code, message, fields } }`.
+ */
+export class ApiError extends Error {
+  constructor(
+    public readonly status: number,
+    public readonly code: string,
+    message: string,
+    public readonly fields?: Record<string, string[]>,
+  ) {
+    super(message);
+  }
+}
+
+export async function api<T>(url: string, init: { method?: string; body?: unknown; signal?: AbortSignal } = {}): Promise<T> {
+  const res = await fetch(url, {
+    method: init.method ?? (init.body === undefined ? 'GET' : 'POST'),
+    headers: init.body === undefined ? { Accept: 'application/json' } : { Accept: 'application/json', 'Content-Type': 'application/json' },
+    body: init.body === undefined ? undefined : JSON.stringify(init.body),
+    credentials: 'same-origin',
+    signal: init.signal,
+  });
+  const text = await res.text();
+  const data = text ? safeJson(text) : undefined;
+  if (!res.ok) {
+    const e = (data as { error?: { code?: string; message?: string; fields?: Record<string, string[]> } } | undefined)?.error;
+    throw new ApiError(res.status, e?.code ?? 'http_error', e?.message ?? `${res.status} ${res.statusText}`, e?.fields);
+  }
+  return data as T;
+}
+
+function safeJson(text: string): unknown {
+  try {
+    return JSON.parse(text);
+  } catch {
+    return { error: { code: 'bad_response', message: 'the server answered with something that is not JSON' } };
+  }
+}

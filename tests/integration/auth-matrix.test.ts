@@ -1,0 +1,161 @@
+import request from 'supertest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { ROLES, roleAtLeast, type Role } from '../../shared/contracts/roles.ts';
+import { apiRoutes } from '../../server/app.ts';
+import { hashToken } from '../../server/auth/api-tokens.ts';
+import { createTestApp, type TestApp } from '../helpers/app.ts';
+
+/** Fill Express path parameters with an id that exists in no table (routes answer 404 or 422, never 500). */
+function concrete(path: string): string {
+  return path.replace(/:[A-Za-z_]+/g, '999999');
+}
+
+describe('role matrix over every /api/v1 route', () => {
+  let h: TestApp;
+  const agents = {} as Record<Role, Awaited<ReturnType<TestApp['agent']>>>;
+  beforeAll(async () => {
+    h = await createTestApp();
+    for (const r of ROLES) agents[r] = await h.agent(r);
+  });
+  afterAll(async () => h.close());
+
+  it('every protected route: no credentials → 401, lower role → 403, enough role → neither', async () => {
+    const defs = apiRoutes(h.ctx).filter((d) => d.role !== 'public' && d.path !== '/auth/login');
+    expect(defs.length).toBeGreaterThan(5);
+    for (const d of defs) {
+      const url = `/api/v1${concrete(d.path)}`;
+      const anon = await request(h.app)[d.method](url).send({});
+      expect(anon.status, `${d.method} ${d.path} anonymous`).toBe(401);
+      for (const role of ROLES) {
+        const r = await agents[role][d.method](url).send({});
+        const allowed = roleAtLeast(role, d.role as Role);
+        if (allowed) expect([401, 403], `${d.method} ${d.path} as ${role}`).not.toContain(r.status);
+        else expect(r.status, `${d.method} ${d.path} as ${role}`).toBe(403);
+        expect(r.status, `${d.method} ${d.path} as ${role} never 500`).toBeLessThan(500);
+      }
+    }
+  });
+
+  it('route groups give their designed 2xx to the roles allowed', async () => {
+    for (const role of ROLES) {
+      expect((await agents[role].get('/api/v1/auth/me')).status).toBe(200);
+      expect((await agents[role].get('/api/v1/tokens')).status).toBe(200);
+      expect((await agents[role].get('/api/v1/users')).status).toBe(role === 'admin' ? 200 : 403);
+    }
+    const created = await agents.admin.post('/api/v1/users').send({ email: 'New.Person@Test.invalid', name: 'New Person', role: 'operator', password: 'a-long-password-1' });
+    expect(created.status).toBe(201);
+    expect(created.body.email).toBe('new.person@test.invalid');
+    expect(created.body).not.toHaveProperty('passwordHash');
+    const patched = await agents.admin.patch(`/api/v1/users/${created.body.id}`).send({ role: 'analyst' });
+    expect(patched.status).toBe(200);
+    expect(patched.body.role).toBe('analyst');
+    expect((await agents.admin.delete(`/api/v1/users/${created.body.id}`)).status).toBe(200);
+    const dup = await agents.admin.post('/api/v1/users').send({ email: h.users.operator.email, name: 'x', role: 'operator', password: 'a-long-password-1' });
+    expect(dup.status).toBe(409);
+  });
+
+  it('tokens: role no higher than the owner, shown once, stored hashed, revocable, expiring', async () => {
+    const tooHigh = await agents.operator.post('/api/v1/tokens').send({ name: 't', role: 'admin', expiresInDays: 5 });
+    expect(tooHigh.status).toBe(403);
+    const made = await agents.operator.post('/api/v1/tokens').send({ name: 'report', role: 'analyst', expiresInDays: 5 });
+    expect(made.status).toBe(201);
+    const secret: string = made.body.token;
+    expect(secret).toMatch(/^fst_/);
+    const stored = await h.ctx.db.pool.query('SELECT token_hash FROM api_tokens WHERE id = $1', [made.body.id]);
+    expect(stored.rows[0].token_hash).toBe(hashToken(secret));
+    expect(stored.rows[0].token_hash).not.toContain(secret);
+    const list = await agents.operator.get('/api/v1/tokens');
+    expect(JSON.stringify(list.body)).not.toContain(secret);
+
+    const me = await request(h.app).get('/api/v1/auth/me').set('Authorization', `Bearer ${secret}`);
+    expect(me.status).toBe(200);
+    expect(me.body.role).toBe('analyst');
+    expect(me.body.viaToken).toBe(true);
+    // A token may not manage tokens or users (session only).
+    expect((await request(h.app).post('/api/v1/tokens').set('Authorization', `Bearer ${secret}`).send({ name: 'x', role: 'analyst', expiresInDays: 1 })).status).toBe(403);
+
+    expect((await agents.operator.delete(`/api/v1/tokens/${made.body.id}`)).status).toBe(200);
+    expect((await request(h.app).get('/api/v1/auth/me').set('Authorization', `Bearer ${secret}`)).status).toBe(401);
+    // Another user's token cannot be revoked by me.
+    const mine = await agents.analyst.post('/api/v1/tokens').send({ name: 'mine', role: 'analyst', expiresInDays: 1 });
+    expect((await agents.operator.delete(`/api/v1/tokens/${mine.body.id}`)).status).toBe(404);
+
+    // Expired: move the expiry into the past.
+    await h.ctx.db.pool.query(`UPDATE api_tokens SET expires_at = now() - interval '1 second' WHERE id = $1`, [mine.body.id]);
+    expect((await request(h.app).get('/api/v1/auth/me').set('Authorization', `Bearer ${mine.body.token}`)).status).toBe(401);
+    expect((await request(h.app).get('/api/v1/auth/me').set('Authorization', 'Bearer fst_nonsense')).status).toBe(401);
+  });
+
+  it('every write is in the audit log with who and what', async () => {
+    const before = await h.ctx.db.pool.query(`SELECT count(*)::int n FROM audit_log WHERE action = 'token.create'`);
+    await agents.integrator.post('/api/v1/tokens').send({ name: 'audit-me', role: 'operator', expiresInDays: 2 });
+    const rows = await h.ctx.db.pool.query(`SELECT actor, action, target, details, ts FROM audit_log WHERE action = 'token.create' ORDER BY id DESC LIMIT 1`);
+    const after = await h.ctx.db.pool.query(`SELECT count(*)::int n FROM audit_log WHERE action = 'token.create'`);
+    expect(after.rows[0].n).toBe(before.rows[0].n + 1);
+    expect(rows.rows[0].actor).toBe(h.users.integrator.email);
+    expect(rows.rows[0].details.name).toBe('audit-me');
+    expect(JSON.stringify(rows.rows[0].details)).not.toMatch(/fst_/);
+  });
+
+  it('bad input: malformed JSON → 400, wrong types and missing fields → 422 with field names, never 500', async () => {
+    const malformed = await agents.admin.post('/api/v1/users').set('Content-Type', 'application/json').send('{"email": ');
+    expect(malformed.status).toBe(400);
+    expect(malformed.body.error.code).toBe('malformed_json');
+    const wrong = await agents.admin.post('/api/v1/users').send({ email: 42, name: ['x'], role: 'chief', password: 'short' });
+    expect(wrong.status).toBe(422);
+    expect(Object.keys(wrong.body.error.fields).sort()).toEqual(['email', 'name', 'password', 'role']);
+    const missing = await agents.analyst.post('/api/v1/tokens').send({});
+    expect(missing.status).toBe(422);
+    expect(Object.keys(missing.body.error.fields).sort()).toEqual(['expiresInDays', 'name', 'role']);
+    const extra = await agents.analyst.post('/api/v1/tokens').send({ name: 'a', role: 'analyst', expiresInDays: 1, admin: true });
+    expect(extra.status).toBe(422);
+    const badId = await agents.admin.patch('/api/v1/users/abc').send({ name: 'x' });
+    expect(badId.status).toBe(422);
+    expect(badId.body.error.fields).toHaveProperty('id');
+    const big = await agents.admin.post('/api/v1/users').send({ name: 'x'.repeat(300_000) });
+    expect(big.status).toBe(413);
+    expect(JSON.stringify([malformed.body, wrong.body, big.body])).not.toMatch(/at .*\.ts:\d+/);
+  });
+
+  it('five wrong passwords → 429, even for the right password afterwards', async () => {
+    const email = h.users.analyst.email;
+    for (let i = 0; i < 5; i++) {
+      const r = await request(h.app).post('/api/v1/auth/login').send({ email, password: `wrong-${i}` });
+      expect(r.status).toBe(401);
+    }
+    const locked = await request(h.app).post('/api/v1/auth/login').send({ email, password: h.users.analyst.password });
+    expect(locked.status).toBe(429);
+    expect(Number(locked.headers['retry-after'])).toBeGreaterThan(0);
+  });
+
+  it('session cookie is httpOnly and SameSite=Strict; sign-out clears it; a forged cookie is 401', async () => {
+    const r = await request(h.app).post('/api/v1/auth/login').send({ email: h.users.operator.email, password: h.users.operator.password });
+    const cookie = String(r.headers['set-cookie']);
+    expect(cookie).toMatch(/HttpOnly/);
+    expect(cookie).toMatch(/SameSite=Strict/);
+    const out = await request(h.app).post('/api/v1/auth/logout').set('Cookie', cookie.split(';')[0]!);
+    expect(String(out.headers['set-cookie'])).toMatch(/flocstream_session=;/);
+    const forged = await request(h.app).get('/api/v1/auth/me').set('Cookie', 'flocstream_session=eyJhbGciOiJIUzI1NiJ9.eyJzdWIiOiIxIn0.AAAA');
+    expect(forged.status).toBe(401);
+  });
+
+  it('a disabled user loses access at once', async () => {
+    const a = await h.agent('integrator');
+    expect((await a.get('/api/v1/auth/me')).status).toBe(200);
+    await agents.admin.patch(`/api/v1/users/${h.users.integrator.id}`).send({ disabled: true });
+    expect((await a.get('/api/v1/auth/me')).status).toBe(401);
+    await agents.admin.patch(`/api/v1/users/${h.users.integrator.id}`).send({ disabled: false });
+  });
+
+  it('health needs no credentials and reports the database; OpenAPI covers every route', async () => {
+    const health = await request(h.app).get('/api/health');
+    expect(health.status).toBe(200);
+    expect(health.body.database.ok).toBe(true);
+    const doc = await request(h.app).get('/api/v1/openapi.json');
+    expect(doc.status).toBe(200);
+    for (const d of apiRoutes(h.ctx)) {
+      const p = '/api/v1' + d.path.replace(/:([A-Za-z_]+)/g, '{$1}');
+      expect(doc.body.paths[p]?.[d.method], `${d.method} ${p}`).toBeDefined();
+    }
+  });
+});
