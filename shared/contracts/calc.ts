@@ -31,6 +31,9 @@ import { settleabilityIssues } from '../domain/settleability.js';
 
 const num = (description: string) => z.number().meta({ description });
 const flow = (what: string) => num(`${what} [m³/h]`).min(0).max(1_000_000);
+// Cross-field refinements also run when a field already failed; they stay silent then, so each
+// problem is reported once, under its own field.
+const validFlows = (...xs: unknown[]): boolean => xs.every((x) => typeof x === 'number' && Number.isFinite(x) && x >= 0);
 const nullableNum = (description: string) => z.number().nullable().meta({ description });
 
 export const qualityEnum = z.enum(['good', 'estimated', 'unavailable']).meta({ description: 'worst quality over the response figures' });
@@ -108,7 +111,7 @@ export const statePointRequest = z
     settling: z.union([settlingVesilind, settlingCorrelation]).meta({ description: 'Vesilind parameters, given or from a correlation' }),
   })
   .strict()
-  .refine((r) => (r.wasFlow_m3h ?? 0) <= r.influentFlow_m3h, { message: 'waste flow cannot exceed influent flow', path: ['wasFlow_m3h'] })
+  .refine((r) => !validFlows(r.influentFlow_m3h, r.wasFlow_m3h ?? 0) || (r.wasFlow_m3h ?? 0) <= r.influentFlow_m3h, { message: 'waste flow cannot exceed influent flow', path: ['wasFlow_m3h'] })
   .meta({ id: 'StatePointRequest' });
 
 export const statePointResponse = z
@@ -158,8 +161,8 @@ export const settlerRequest = z
     takacs: takacsSchema.optional().meta({ description: 'Takács parameters; default BSM1' }),
   })
   .strict()
-  .refine((r) => r.underflowFlow_m3h <= r.feedFlow_m3h, { message: 'underflow cannot exceed the feed flow', path: ['underflowFlow_m3h'] })
-  .refine((r) => (r.feedLayer ?? 5) <= (r.layers ?? 10), { message: 'feed layer must not exceed the number of layers', path: ['feedLayer'] })
+  .refine((r) => !validFlows(r.underflowFlow_m3h, r.feedFlow_m3h) || r.underflowFlow_m3h <= r.feedFlow_m3h, { message: 'underflow cannot exceed the feed flow', path: ['underflowFlow_m3h'] })
+  .refine((r) => !Number.isInteger(r.feedLayer ?? 5) || !Number.isInteger(r.layers ?? 10) || (r.feedLayer ?? 5) <= (r.layers ?? 10), { message: 'feed layer must not exceed the number of layers', path: ['feedLayer'] })
   .meta({ id: 'SettlerRequest' });
 
 export const settlerResponse = z

@@ -1,0 +1,124 @@
+import { describe, expect, it } from 'vitest';
+import { dynamicSrt, rollingSrt, srt, wasFlowForTargetSrt_m3h, type TimedSample } from '../../../shared/domain/srt.js';
+
+const H = 3_600_000;
+
+describe('steady-state SRT and WAS advisor', () => {
+  // Worked example of the SRT definition (Metcalf & Eddy 5th ed. 2014, ch. 7 definition; numbers our own, by hand):
+  // M = 36 000 + 6 000 kg; losses 15·8 + 1000·0.01 = 130 kg/h → total 42 000/130/24 = 13.4615 d, aeration 36 000/130/24 = 11.5385 d.
+  it('total and aeration-only SRT by hand', () => {
+    const s = srt({ aerationMass_kg: 36000, clarifierMass_kg: 6000, wasFlow_m3h: 15, wasTss_gL: 8, effluentFlow_m3h: 1000, effluentTss_gL: 0.01 });
+    expect(s.total_d.value).toBeCloseTo(13.4615, 4);
+    expect(s.aeration_d.value).toBeCloseTo(11.5385, 4);
+  });
+
+  it('WAS advisor by hand: target 10 d on 42 000 kg → 175 kg/h; (175 − 10)/8 = 20.625 m³/h', () => {
+    expect(wasFlowForTargetSrt_m3h(42000, 10, 1000, 0.01, 8).value).toBeCloseTo(20.625, 10);
+    const neg = wasFlowForTargetSrt_m3h(42000, 10, 1000, 0.5, 8);
+    expect(neg.quality).toBe('unavailable');
+    expect(neg.reasons[0]).toMatch(/effluent solids alone/);
+    expect(wasFlowForTargetSrt_m3h(42000, 10, 1000, 0.01, 0).value).toBeNull();
+  });
+
+  it('unbounded SRT is unavailable, not Infinity', () => {
+    const s = srt({ aerationMass_kg: 36000, clarifierMass_kg: 0, wasFlow_m3h: 0, wasTss_gL: 8, effluentFlow_m3h: 0, effluentTss_gL: 0 });
+    expect(s.total_d).toMatchObject({ value: null, quality: 'unavailable' });
+  });
+});
+
+function series(fn: (t_h: number) => number, hours: number, step_h = 0.25, start_ms = 0): TimedSample[] {
+  const out: TimedSample[] = [];
+  for (let t = 0; t <= hours + 1e-9; t += step_h) out.push({ ts_ms: start_ms + t * H, value: fn(t) });
+  return out;
+}
+
+describe('rolling SRT (flow-weighted wasting over a window)', () => {
+  it('constant inputs reproduce the steady-state SRT', () => {
+    const r = rollingSrt({
+      aerationMass_kg: series(() => 36000, 24),
+      clarifierMass_kg: series(() => 6000, 24),
+      wasFlow_m3h: series(() => 15, 24),
+      wasTss_gL: series(() => 8, 24),
+      effluentFlow_m3h: series(() => 1000, 24),
+      effluentTss_gL: series(() => 0.01, 24),
+      end_ms: 24 * H,
+    });
+    expect(r.coverage).toBeCloseTo(1, 12);
+    expect(r.total_d.quality).toBe('good');
+    expect(r.total_d.value).toBeCloseTo(42000 / 130 / 24, 9);
+    expect(r.aeration_d.value).toBeCloseTo(36000 / 130 / 24, 9);
+  });
+
+  it('flow-weights the wasting: WAS only 6 h of 24 at 60 m³/h equals 15 m³/h continuous', () => {
+    // WAS on from 6 h to 12 h (step edges sampled 1 ms apart so the interpolation keeps them sharp)
+    const was: TimedSample[] = [
+      ...series(() => 0, 5),
+      { ts_ms: 6 * H - 1, value: 0 },
+      ...series(() => 60, 6, 1, 6 * H),
+      { ts_ms: 12 * H + 1, value: 0 },
+      ...series(() => 0, 11, 1, 13 * H),
+    ];
+    const r = rollingSrt({
+      aerationMass_kg: series(() => 36000, 24),
+      wasFlow_m3h: was,
+      wasTss_gL: series(() => 8, 24),
+      effluentFlow_m3h: series(() => 1000, 24),
+      effluentTss_gL: series(() => 0.01, 24),
+      end_ms: 24 * H,
+    });
+    // mean loss = (60·8·6 h + tiny ramps)/24 + 10 = 130 kg/h (ramps of 1 ms add < 1e-6)
+    expect(r.total_d.value).toBeCloseTo(36000 / 130 / 24, 4);
+  });
+
+  it('gaps, bad samples and short coverage downgrade the quality', () => {
+    const base = {
+      aerationMass_kg: series(() => 36000, 24),
+      wasFlow_m3h: series(() => 15, 24),
+      wasTss_gL: series(() => 8, 24),
+      effluentFlow_m3h: series(() => 1000, 24),
+      effluentTss_gL: series(() => 0.01, 24),
+      end_ms: 24 * H,
+    };
+    const half = rollingSrt({ ...base, wasFlow_m3h: series(() => 15, 16) });
+    expect(half.total_d.quality).toBe('estimated');
+    expect(half.coverage).toBeCloseTo(16 / 24, 9);
+    expect(half.total_d.value).toBeCloseTo(36000 / 130 / 24, 9);
+    const sparse = rollingSrt({ ...base, wasFlow_m3h: series(() => 15, 6) });
+    expect(sparse.total_d).toMatchObject({ value: null, quality: 'unavailable' });
+    const withBad = rollingSrt({ ...base, wasTss_gL: [...series(() => 8, 24), { ts_ms: 5 * H + 1, value: null }] });
+    expect(withBad.total_d.quality).toBe('estimated');
+    expect(withBad.total_d.reasons.join(' ')).toMatch(/dropped/);
+    const gap = rollingSrt({ ...base, effluentTss_gL: [{ ts_ms: 0, value: 0.01 }, { ts_ms: 24 * H, value: 0.01 }] });
+    expect(gap.total_d.value).toBeNull(); // one 24 h gap > 2 h maxGap: nothing covered
+    const empty = rollingSrt({ ...base, aerationMass_kg: [] });
+    expect(empty.total_d.value).toBeNull();
+  });
+});
+
+describe('dynamic SRT, Takács et al. 2008 (dθ/dt = 1 − θ·P/M, reconstruction [M])', () => {
+  it('stays at M/P at steady state', () => {
+    const s = Array.from({ length: 49 }, (_, i) => ({ ts_ms: i * H, mass_kg: 42000, production_kgh: 130 }));
+    const r = dynamicSrt(s);
+    expect(r.quality).toBe('good');
+    for (const p of r.value!) expect(p.srt_d).toBeCloseTo(42000 / 130 / 24, 9);
+  });
+
+  it('matches the analytic solution after a step in P: θ(t) = θ∞ + (θ0 − θ∞)·e^(−t·P/M)', () => {
+    const theta0_d = 20;
+    const s = Array.from({ length: 241 }, (_, i) => ({ ts_ms: i * H, mass_kg: 42000, production_kgh: 175 }));
+    const r = dynamicSrt(s, theta0_d).value!;
+    const inf_h = 42000 / 175;
+    for (const t_h of [0, 24, 120, 240]) {
+      const expected_d = (inf_h + (theta0_d * 24 - inf_h) * Math.exp((-t_h * 175) / 42000)) / 24;
+      expect(r[t_h]!.srt_d).toBeCloseTo(expected_d, 9);
+    }
+    // with no wasting the age grows one day per day
+    const aging = dynamicSrt([{ ts_ms: 0, mass_kg: 42000, production_kgh: 0 }, { ts_ms: 48 * H, mass_kg: 42000, production_kgh: 0 }], 10).value!;
+    expect(aging[1]!.srt_d).toBeCloseTo(12, 12);
+  });
+
+  it('is unavailable without a starting age it can derive', () => {
+    expect(dynamicSrt([]).quality).toBe('unavailable');
+    expect(dynamicSrt([{ ts_ms: 0, mass_kg: 1000, production_kgh: 0 }]).value).toBeNull();
+  });
+});
