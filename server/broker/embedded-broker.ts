@@ -1,7 +1,12 @@
 /**
  * Embedded MQTT broker for one-machine installs and tests: aedes 1.2 (ESM, created with
  * `await Aedes.createBroker()`; the old default-export factory throws) on a plain TCP server,
- * in-memory persistence (aedes' default). aedes accepts MQTT 3.1.1 and 5 clients.
+ * in-memory persistence (aedes' default).
+ *
+ * Protocol versions: aedes 1.2 speaks MQTT 3.1 and 3.1.1 only; an MQTT 5 CONNECT is refused
+ * with CONNACK return code 1, "unacceptable protocol version" (aedes README: "MQTT 5.0 — not
+ * supported yet"; lib/handlers/connect.js). Clients of the embedded broker must connect with
+ * protocolVersion 4; MQTT 5 features (shared subscriptions) need an external broker.
  *
  * close() closes the broker (which disconnects every client) and then the listener, so the
  * port is free for an immediate restart on the same port.

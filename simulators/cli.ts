@@ -1,0 +1,81 @@
+/**
+ * npm run sim -- --scenario storm --speed 60 [--seed N] [--mqtt-url URL | --no-mqtt]
+ *                [--opcua-port P | --no-opcua] [--batch] [--data-dir D] [--list]
+ *
+ * Prints one line with the MQTT and OPC UA endpoints, then runs until SIGINT/SIGTERM.
+ * The simulator publishes to a broker; it does not start one (the product's launcher starts
+ * the embedded broker, or point --mqtt-url at any MQTT 3.1.1/5 broker).
+ */
+import { parseArgs } from 'node:util';
+import { z } from 'zod';
+import { DEFAULT_MQTT_URL, DEFAULT_OPCUA_PORT, startSimulator } from './simulator.js';
+import { listScenarios, ScenarioError } from './scenarios/load-scenario.js';
+
+const argsSchema = z.object({
+  scenario: z.string().min(1),
+  speed: z.coerce.number().min(1).max(3600).optional(),
+  seed: z.coerce.number().int().min(0).max(0xffffffff).default(1),
+  'mqtt-url': z.string().regex(/^mqtts?:\/\/|^wss?:\/\//, 'must be an mqtt://, mqtts://, ws:// or wss:// URL').default(DEFAULT_MQTT_URL),
+  'no-mqtt': z.boolean().default(false),
+  'opcua-port': z.coerce.number().int().min(1).max(65535).default(DEFAULT_OPCUA_PORT),
+  'no-opcua': z.boolean().default(false),
+  batch: z.boolean().default(false),
+  'data-dir': z.string().min(1).default('.data'),
+});
+
+async function main(): Promise<number> {
+  const { values } = parseArgs({
+    options: {
+      scenario: { type: 'string', default: 'demo' },
+      speed: { type: 'string' },
+      seed: { type: 'string' },
+      'mqtt-url': { type: 'string' },
+      'no-mqtt': { type: 'boolean' },
+      'opcua-port': { type: 'string' },
+      'no-opcua': { type: 'boolean' },
+      batch: { type: 'boolean' },
+      'data-dir': { type: 'string' },
+      list: { type: 'boolean' },
+      help: { type: 'boolean', short: 'h' },
+    },
+    strict: true,
+  });
+  if (values.help) {
+    console.log('usage: npm run sim -- --scenario <name> [--speed 1..3600] [--seed N] [--mqtt-url URL|--no-mqtt] [--opcua-port P|--no-opcua] [--batch] [--data-dir D] [--list]');
+    return 0;
+  }
+  if (values.list) {
+    console.log(listScenarios().join('\n'));
+    return 0;
+  }
+  const parsed = argsSchema.safeParse(values);
+  if (!parsed.success) {
+    for (const i of parsed.error.issues) console.error(`--${i.path.join('.')}: ${i.message}`);
+    return 2;
+  }
+  const a = parsed.data;
+  const sim = await startSimulator({
+    scenario: a.scenario,
+    ...(a.speed !== undefined ? { speed: a.speed } : {}),
+    seed: a.seed,
+    mqttUrl: a['no-mqtt'] ? null : a['mqtt-url'],
+    opcuaPort: a['no-opcua'] ? null : a['opcua-port'],
+    batch: a.batch,
+    dataDir: a['data-dir'],
+    log: (line) => console.log(line),
+  });
+  await new Promise<void>((resolve) => {
+    process.once('SIGINT', resolve);
+    process.once('SIGTERM', resolve);
+  });
+  await sim.stop();
+  return 0;
+}
+
+main().then(
+  (code) => process.exit(code),
+  (e: unknown) => {
+    console.error(e instanceof ScenarioError ? e.message : `simulator failed: ${(e as Error).stack ?? String(e)}`);
+    process.exit(1);
+  },
+);
