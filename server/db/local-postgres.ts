@@ -45,6 +45,8 @@ function ensureBinaries(log: (m: string) => void): string {
     throw new LocalPostgresError(`PostgreSQL server binaries not found; install them with: sudo ${cmd}`);
   }
   log(`PostgreSQL not found; installing Debian's package: ${cmd}`);
+  // Passing the caller's environment through to apt-get is not reading configuration.
+  // eslint-disable-next-line no-restricted-syntax
   const env = { ...process.env, DEBIAN_FRONTEND: 'noninteractive' };
   for (const args of [['update'], ['install', '-y', '--no-install-recommends', 'postgresql']]) {
     const r = spawnSync('apt-get', args, { stdio: 'inherit', env });

@@ -125,7 +125,7 @@ function UsersPanel({ myId }: { myId: number }) {
             ))}
           </Select>
         </Field>
-        <Field label="Initial password" error={fe.password} hint="at least 12 characters">
+        <Field label="Initial password (≥ 12 characters)" error={fe.password}>
           <TextInput name="userPassword" type="password" autoComplete="new-password" required value={form.password} onChange={(e) => setForm({ ...form, password: e.target.value })} />
         </Field>
         <Button kind="primary" type="submit" disabled={create.isPending}>
@@ -158,16 +158,16 @@ function UsersPanel({ myId }: { myId: number }) {
                 </Select>
               </td>
               <td className={td}>{u.disabled ? 'disabled' : 'active'}</td>
-              <td className={`${td} flex gap-1`}>
+              <td className={td}>
                 {u.id !== myId ? (
-                  <>
+                  <div className="flex gap-1">
                     <Button kind="quiet" onClick={() => update.mutate({ id: u.id, disabled: !u.disabled })}>
                       {u.disabled ? 'Enable' : 'Disable'}
                     </Button>
                     <Button kind="quiet" onClick={() => window.confirm(`Delete ${u.email} and all its tokens?`) && del.mutate(u.id)}>
                       Delete
                     </Button>
-                  </>
+                  </div>
                 ) : (
                   <span className="text-ink-3">you</span>
                 )}
