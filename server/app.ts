@@ -12,6 +12,7 @@ import { NotFoundError } from './http/errors.ts';
 import { buildOpenApi } from './http/openapi.ts';
 import { mount, type RouteDef } from './http/route.ts';
 import { authRoutes } from './routes/auth.routes.ts';
+import { calcRoutes } from './routes/calc.routes.ts';
 import { tokensRoutes } from './routes/tokens.routes.ts';
 import { usersRoutes } from './routes/users.routes.ts';
 
@@ -20,7 +21,7 @@ const DIST = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../dist
 
 /** Every /api/v1 route of the product, in one list (mounted, documented and role-tested from it). */
 export function apiRoutes(ctx: AppContext): RouteDef[] {
-  const defs: RouteDef[] = [...authRoutes(ctx), ...usersRoutes(ctx), ...tokensRoutes(ctx)];
+  const defs: RouteDef[] = [...authRoutes(ctx), ...usersRoutes(ctx), ...tokensRoutes(ctx), ...calcRoutes(ctx)];
   const doc = () => buildOpenApi(defs, VERSION);
   let cached: object | undefined;
   defs.push({

@@ -1,5 +1,6 @@
 import type { NextFunction, Request, Response } from 'express';
 import type { Logger } from 'pino';
+import { isDomainValidationError } from '../../shared/domain/errors.ts';
 import { HttpError, TooManyRequestsError } from './errors.ts';
 
 /**
@@ -16,6 +17,10 @@ export function errorMiddleware(log: Logger) {
     if (err instanceof HttpError) {
       if (err instanceof TooManyRequestsError) res.setHeader('Retry-After', String(err.retryAfter_s));
       res.status(err.status).json({ error: { code: err.code, message: err.message, ...(err.fields ? { fields: err.fields } : {}) } });
+      return;
+    }
+    if (isDomainValidationError(err)) {
+      res.status(422).json({ error: { code: 'validation_failed', message: err.message, fields: { [err.field]: [err.message] } } });
       return;
     }
     const e = err as { type?: string; status?: number; message?: string };

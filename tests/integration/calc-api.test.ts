@@ -1,0 +1,85 @@
+import request from 'supertest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { stormResponse, statePointResponse, settlerResponse, srtResponse, sviResponse } from '../../shared/contracts/calc.ts';
+import { createTestApp, type TestApp } from '../helpers/app.ts';
+
+const storm = { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, svi_mLg: 120, aerationVolume_m3: 12000, clarifierArea_m2: 1400, stormFlow_m3h: 3000 };
+
+function noNaN(body: unknown): void {
+  expect(JSON.stringify(body)).not.toMatch(/NaN|Infinity/);
+}
+
+describe('calculator API', () => {
+  let h: TestApp;
+  let token: string;
+  beforeAll(async () => {
+    h = await createTestApp();
+    const a = await h.agent('analyst');
+    token = (await a.post('/api/v1/tokens').send({ name: 'calc', role: 'analyst', expiresInDays: 1 })).body.token;
+  });
+  afterAll(async () => h.close());
+  const post = (path: string, body: unknown) => request(h.app).post(`/api/v1/calc/${path}`).set('Authorization', `Bearer ${token}`).send(body as object);
+
+  it('storm: hand-checked against DESIGN §3 items 1–4 (rule of thumb 1200/SVI, common practice)', async () => {
+    const r = await post('storm', storm);
+    expect(r.status).toBe(200);
+    expect(stormResponse.parse(r.body)).toBeTruthy();
+    // X_R = X(Q+QR)/QR = 3.2·2400/900 = 8.533 g/L; X_R,max = 1200/120 = 10 g/L.
+    expect(r.body.rasConcRequired_gL).toBeCloseTo((3.2 * 2400) / 900, 6);
+    expect(r.body.rasConcMax_gL).toBeCloseTo(10, 9);
+    // Storm: X' = X_R,max·QR/(Q_storm+QR) = 10·900/3900 = 2.3077 g/L; moved (3.2 − X')·V.
+    expect(r.body.equilibriumMlss_gL).toBeCloseTo(9000 / 3900, 6);
+    expect(r.body.sludgeToClarifiers_kg).toBeCloseTo((3.2 - 9000 / 3900) * 12000, 3);
+    expect(r.body.blanketVolume_m3).toBeCloseTo(r.body.sludgeToClarifiers_kg * 0.12, 3);
+    expect(r.body.blanketRise_m).toBeCloseTo(r.body.blanketVolume_m3 / 1400, 6);
+    expect(r.body.checks.map((c: { rule: string }) => c.rule).length).toBeGreaterThanOrEqual(3);
+    noNaN(r.body);
+  });
+
+  it('state point, settler, SRT, SVI answer with their response schemas', async () => {
+    const sp = await post('state-point', { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, clarifierArea_m2: 1400, settling: { svi_mLg: 120, correlation: 'haertel-poepel-1992' } });
+    expect(sp.status).toBe(200);
+    statePointResponse.parse(sp.body);
+    expect(sp.body.overflowRate_mh).toBeCloseTo(1500 / 1400, 9);
+    const st = await post('settler', { feedFlow_m3h: 36892 / 24, feedTss_gL: 3.26984, underflowFlow_m3h: 18831 / 24, area_m2: 1500, depth_m: 4 });
+    expect(st.status).toBe(200);
+    settlerResponse.parse(st.body);
+    // BSM1 open-loop steady state, layer 1 = 12.4969 g/m³ (Alex et al. 2008, BSM1 technical report).
+    expect(st.body.effluentTss_gL).toBeCloseTo(0.0124969, 4);
+    const srt = await post('srt', { aerationMass_kg: 38400, clarifierMass_kg: 6000, wasFlow_m3h: 20, wasTss_gL: 8, effluentFlow_m3h: 1480, effluentTss_gL: 0.01, targetSrt_d: 12 });
+    expect(srt.status).toBe(200);
+    srtResponse.parse(srt.body);
+    // (38400+6000) kg / (20·8 + 1480·0.01) kg/h = 44400/174.8 h = 10.58 d
+    expect(srt.body.srtTotal_d).toBeCloseTo(44400 / 174.8 / 24, 6);
+    const svi = await post('svi', { settledVolume_mLL: 240, mlss_gL: 3 });
+    expect(svi.status).toBe(200);
+    sviResponse.parse(svi.body);
+    expect(svi.body).toMatchObject({ svi_mLg: 80, kind: 'SVI' });
+  });
+
+  it('invalid inputs → 422 with the field named, never 500 or NaN', async () => {
+    const cases: Array<[string, unknown, string]> = [
+      ['storm', { ...storm, influentFlow_m3h: -1 }, 'influentFlow_m3h'],
+      ['storm', { ...storm, clarifierArea_m2: 0 }, 'clarifierArea_m2'],
+      ['storm', { ...storm, svi_mLg: 0 }, 'svi_mLg'],
+      ['storm', { ...storm, mlss_gL: '3.2' }, 'mlss_gL'],
+      ['storm', { ...storm, stormFlow_m3h: undefined }, 'stormFlow_m3h'],
+      ['storm', { ...storm, mlss_gL: 3200 }, 'mlss_gL'],
+      ['state-point', { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, clarifierArea_m2: 1400, settling: { v0_mh: -2, k_Lg: 0.4 } }, 'settling.v0_mh'],
+      ['svi', { settledVolume_mLL: 400, mlss_gL: 3 }, 'settledVolume_mLL'],
+      ['srt', { aerationMass_kg: 'lots' }, 'aerationMass_kg'],
+    ];
+    for (const [path, body, field] of cases) {
+      const r = await post(path, body);
+      expect(r.status, `${path} ${field}`).toBe(422);
+      expect(Object.keys(r.body.error.fields), `${path} ${field}`).toContain(field);
+      noNaN(r.body);
+    }
+    const dilute = await post('svi', { settledVolume_mLL: 400, mlss_gL: 3 });
+    expect(dilute.body.error.fields.settledVolume_mLL.join(' ')).toMatch(/dilute and repeat/);
+  });
+
+  it('needs credentials', async () => {
+    expect((await request(h.app).post('/api/v1/calc/storm').send(storm)).status).toBe(401);
+  });
+});
