@@ -21,6 +21,14 @@ export const CORRELATION_INDEX: Record<SettlingCorrelationId, 'SVI' | 'SSVI'> = 
   'wahlberg-keinath-1988': 'SSVI',
 };
 
+/**
+ * Range of the stirred SSVI3.5 [mL/g] over which Flocstream uses the Wahlberg & Keinath (1988)
+ * correlation without an extrapolation warning. Our choice, not the paper's stated data range
+ * (not recalled): from the minimum of k (≈ 35.4 mL/g, below which k would fall as sludge worsens)
+ * to 220 mL/g, where v0 = 1.77 m/h still lies clear of its zero at ≈ 248.8 mL/g.
+ */
+export const WAHLBERG_KEINATH_RANGE_mLg = Object.freeze({ min: 35, max: 220 });
+
 /** Vesilind (1968) hindered settling velocity vs = v0·exp(−k·X) [m/h]. */
 export function vesilindVelocity_mh(x_gL: number, p: VesilindParams): number {
   return p.v0_mh * Math.exp(-p.k_Lg * x_gL);
@@ -36,8 +44,14 @@ export function vesilindVelocity_mh(x_gL: number, p: VesilindParams): number {
  * - 'daigger-1995' (Daigger 1995, WER 67:95): ln vs = 1.871 − (0.1646 + 0.001586·SVI)·X, i.e.
  *   v0 = e^1.871 m/h, k = 0.1646 + 0.001586·SVI — coefficients recalled from memory [M].
  * - 'wahlberg-keinath-1988' (Wahlberg & Keinath 1988, JWPCF 60:2095), input is the stirred
- *   SSVI3.5: v0 = 15.3 − 0.0615·SSVI, k = 0.426 + 0.00384·SSVI − 0.0000543·SSVI² — recalled
- *   from memory [M]; as recalled, k turns negative above SSVI ≈ 131 mL/g and v0 above ≈ 249.
+ *   SSVI3.5: v0 = 15.3 − 0.0615·SSVI [m/h], k = 0.426 − 0.00384·SSVI + 0.0000543·SSVI² [L/g] —
+ *   recalled from memory [M] by the project lead, not checked against the paper. An earlier
+ *   version (also [M]) had the signs of both SSVI terms of k swapped, which made k fall and
+ *   settling improve as the sludge worsened — physically wrong, hence this form. k has its
+ *   minimum at SSVI = 0.00384/(2·0.0000543) ≈ 35.4 mL/g and rises above it; v0 reaches zero
+ *   at SSVI = 15.3/0.0615 ≈ 248.8 mL/g. Its validity range is
+ *   {@link WAHLBERG_KEINATH_RANGE_mLg} (35–220 mL/g, our choice: k rising, v0 ≥ 1.77 m/h);
+ *   outside it the result carries an 'extrapolated' reason, and where v0 ≤ 0 it is unavailable.
  * Coefficients marked [M] make the result 'estimated'. A correlation that yields v0 ≤ 0 or
  * k ≤ 0 at the given index is outside its range and the result is unavailable.
  */
@@ -63,8 +77,13 @@ export function vesilindFromIndex(index_mLg: number, correlation: SettlingCorrel
       break;
     case 'wahlberg-keinath-1988':
       v0 = 15.3 - 0.0615 * index_mLg;
-      k = 0.426 + 0.00384 * index_mLg - 0.0000543 * index_mLg * index_mLg;
+      k = 0.426 - 0.00384 * index_mLg + 0.0000543 * index_mLg * index_mLg;
       memo.push('Wahlberg & Keinath (1988) coefficients recalled from memory, not verified');
+      if (index_mLg < WAHLBERG_KEINATH_RANGE_mLg.min || index_mLg > WAHLBERG_KEINATH_RANGE_mLg.max) {
+        memo.push(
+          `SSVI ${index_mLg} mL/g is outside the range ${WAHLBERG_KEINATH_RANGE_mLg.min}–${WAHLBERG_KEINATH_RANGE_mLg.max} mL/g used for Wahlberg & Keinath (1988): extrapolated`,
+        );
+      }
       break;
   }
   if (!(v0 > 0) || !(k > 0)) {

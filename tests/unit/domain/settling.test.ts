@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { fitVesilind, vesilindFromIndex, vesilindVelocity_mh } from '../../../shared/domain/settling.js';
+import { fitVesilind, vesilindFromIndex, vesilindVelocity_mh, WAHLBERG_KEINATH_RANGE_mLg } from '../../../shared/domain/settling.js';
 import { mulberry32, uniform } from './prng.js';
 
 describe('Vesilind fit from a settling-test series (least squares of ln v on X)', () => {
@@ -45,7 +45,7 @@ describe('Vesilind fit from a settling-test series (least squares of ln v on X)'
   });
 });
 
-describe('SVI / SSVI correlations (coefficients as in REFERENCES.md)', () => {
+describe('SVI / SSVI correlations (coefficients as documented in settling.ts; [M] where marked)', () => {
   it('Härtel & Pöpel 1992 at SVI 100 (Modelica WasteWater Haertel.mo form) [V]', () => {
     // v0 = 17.4·e^(−1.13) + 3.931 = 17.4·0.323033 + 3.931 = 9.5518; k = 1.043 − 0.9834·e^(−0.581) = 1.043 − 0.9834·0.559339 = 0.49294
     const r = vesilindFromIndex(100, 'haertel-poepel-1992');
@@ -69,15 +69,47 @@ describe('SVI / SSVI correlations (coefficients as in REFERENCES.md)', () => {
     expect(r.quality).toBe('estimated');
   });
 
-  it('Wahlberg & Keinath 1988 at SSVI 80: v0 = 15.3 − 4.92 = 10.38, k = 0.426 + 0.3072 − 0.34752 = 0.38568 [M]', () => {
+  // Wahlberg & Keinath (1988) in the form recalled from memory [M] (settling.ts): v0 = 15.3 − 0.0615·SSVI,
+  // k = 0.426 − 0.00384·SSVI + 0.0000543·SSVI². Hand values are ours.
+  it('Wahlberg & Keinath 1988 at SSVI 80: v0 = 15.3 − 4.92 = 10.38, k = 0.426 − 0.3072 + 0.34752 = 0.46632 [M]', () => {
     const r = vesilindFromIndex(80, 'wahlberg-keinath-1988');
     expect(r.value!.v0_mh).toBeCloseTo(10.38, 10);
-    expect(r.value!.k_Lg).toBeCloseTo(0.38568, 10);
+    expect(r.value!.k_Lg).toBeCloseTo(0.46632, 10);
     expect(r.quality).toBe('estimated');
+    expect(r.reasons.join(' ')).not.toMatch(/extrapolated/);
+  });
+
+  it('Wahlberg & Keinath 1988: k rises and v0 falls with SSVI across the validity range 35–220 mL/g', () => {
+    expect(WAHLBERG_KEINATH_RANGE_mLg).toEqual({ min: 35, max: 220 });
+    let prev = vesilindFromIndex(35.5, 'wahlberg-keinath-1988').value!;
+    for (let s = 36; s <= 220; s += 1) {
+      const cur = vesilindFromIndex(s, 'wahlberg-keinath-1988').value!;
+      expect(cur.k_Lg, `k at SSVI ${s}`).toBeGreaterThan(prev.k_Lg);
+      expect(cur.v0_mh, `v0 at SSVI ${s}`).toBeLessThan(prev.v0_mh);
+      prev = cur;
+    }
+    // at SSVI 200 by hand: v0 = 15.3 − 12.3 = 3.0 m/h, k = 0.426 − 0.768 + 2.172 = 1.830 L/g
+    const r200 = vesilindFromIndex(200, 'wahlberg-keinath-1988');
+    expect(r200.value!.v0_mh).toBeCloseTo(3.0, 10);
+    expect(r200.value!.k_Lg).toBeCloseTo(1.83, 10);
+  });
+
+  it('Wahlberg & Keinath 1988 outside 35–220 mL/g: estimated and marked extrapolated; unavailable once v0 ≤ 0', () => {
+    for (const s of [25, 230, 245]) {
+      const r = vesilindFromIndex(s, 'wahlberg-keinath-1988');
+      expect(r.quality).toBe('estimated');
+      expect(r.value).not.toBeNull();
+      expect(r.reasons.join(' ')).toMatch(/outside the range 35–220 mL\/g.*extrapolated/);
+    }
+    // v0 = 15.3 − 0.0615·250 = −0.075 m/h
+    const r250 = vesilindFromIndex(250, 'wahlberg-keinath-1988');
+    expect(r250.quality).toBe('unavailable');
+    expect(r250.value).toBeNull();
+    expect(r250.reasons.join(' ')).toMatch(/v0 = -0\.075/);
   });
 
   it('is unavailable (not NaN) outside a correlation’s range', () => {
-    const r = vesilindFromIndex(200, 'wahlberg-keinath-1988'); // k < 0 as recalled
+    const r = vesilindFromIndex(300, 'wahlberg-keinath-1988'); // v0 = 15.3 − 18.45 < 0
     expect(r.quality).toBe('unavailable');
     expect(r.value).toBeNull();
     expect(vesilindFromIndex(0, 'daigger-1995').quality).toBe('unavailable');
