@@ -1,28 +1,31 @@
 /**
  * `npm start`: the whole product on embedded defaults, in one terminal.
- * Builds the monitor when needed, starts the private PostgreSQL, migrates, seeds the demo
- * plant and users, then serves API + monitor on 127.0.0.1:3000. Ctrl-C stops everything.
+ * Builds the monitor when needed, starts the private PostgreSQL, migrates, creates the users,
+ * starts the embedded MQTT broker, seeds the invented demo plant and runs its simulator, starts
+ * ingest, and serves API + monitor on 127.0.0.1:3000. Ctrl-C stops everything.
  */
+import fs from 'node:fs';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { startEmbeddedBroker } from '../server/broker/embedded-broker.ts';
 import { loadConfig } from '../server/config.ts';
 import { demoCredentials, startServer } from '../server/main.ts';
+import { seedPlant, updateSeedEndpoints } from '../server/services/plant-seed.service.ts';
+import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
 import { buildMonitorIfNeeded } from './build-if-needed.ts';
+import { spawnTs } from './children.ts';
 
 const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
 const say = (m: string) => console.log(`[flocstream] ${m}`);
 
 async function main(): Promise<void> {
   const config = loadConfig();
-  buildMonitorIfNeeded(root, say);
-  const server = await startServer(config, { say });
-  const stops: Array<() => Promise<void> | void> = [() => server.close()];
-
+  const stops: Array<() => Promise<void> | void> = [];
   let stopping = false;
-  const stop = async (signal: string) => {
+  const stop = async (why: string, code = 0) => {
     if (stopping) return;
     stopping = true;
-    say(`${signal}: stopping…`);
+    say(`${why}: stopping…`);
     for (const s of stops.reverse()) {
       try {
         await s();
@@ -31,23 +34,57 @@ async function main(): Promise<void> {
       }
     }
     say('stopped; PostgreSQL is down and no process is left behind');
-    process.exit(0);
+    process.exit(code);
   };
   process.on('SIGINT', () => void stop('SIGINT'));
   process.on('SIGTERM', () => void stop('SIGTERM'));
 
-  say(`monitor and API at ${server.url}  (OpenAPI: ${server.url}/api/v1/openapi.json)`);
-  for (const c of server.credentials.filter((c) => !c.email.startsWith('demo-'))) {
-    say(`first admin: ${c.email}  password: ${c.password}  (shown once)`);
+  try {
+    buildMonitorIfNeeded(root, say);
+    const server = await startServer(config, { say });
+    stops.push(() => server.close());
+
+    let mqttUrl = config.mqttUrl;
+    if (!mqttUrl) {
+      const broker = await startEmbeddedBroker({ host: '127.0.0.1', port: config.mqttPort });
+      stops.push(() => broker.close());
+      mqttUrl = broker.url;
+      say(`embedded MQTT broker at ${mqttUrl}`);
+    }
+
+    if (config.demo) {
+      const opcuaUrl = `opc.tcp://127.0.0.1:${config.simOpcuaPort}/flocstream-sim`;
+      const seeded = await seedPlant(server.ctx, DEMO_PLANT, { mqttUrl, opcuaUrl });
+      if (!seeded.created) await updateSeedEndpoints(server.ctx, seeded.plantId, DEMO_PLANT.code, { mqttUrl, opcuaUrl });
+      say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
+      const simArgs = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir];
+      if (config.simSpeed) simArgs.push('--speed', String(config.simSpeed));
+      const sim = spawnTs(root, 'simulator', 'simulators/cli.ts', simArgs, {}, (code) => {
+        if (!stopping) void stop(`the simulator exited (code ${code})`, 1);
+      });
+      stops.push(() => sim.stop());
+    }
+
+    if (fs.existsSync(path.join(root, 'ingest/main.ts'))) {
+      const ingest = spawnTs(root, 'ingest', 'ingest/main.ts', [], { DATABASE_URL: server.databaseUrl, FLOCSTREAM_DATA_DIR: config.dataDir }, (code) => {
+        if (!stopping) void stop(`ingest exited (code ${code})`, 1);
+      });
+      stops.push(() => ingest.stop());
+    }
+
+    say(`monitor and API at ${server.url}  (OpenAPI: ${server.url}/api/v1/openapi.json)`);
+    for (const c of server.credentials.filter((c) => !c.email.startsWith('demo-'))) {
+      say(`first admin: ${c.email}  password: ${c.password}  (shown once)`);
+    }
+    if (config.demo) {
+      say('demo users (random passwords, kept in .data/demo-credentials.json):');
+      for (const c of demoCredentials(config.dataDir)) say(`  ${c.role.padEnd(10)} ${c.email}  ${c.password}`);
+    }
+    say('advisory only: Flocstream never writes to the control system. Press Ctrl-C to stop.');
+  } catch (err) {
+    console.error(`[flocstream] cannot start: ${(err as Error).message}`);
+    await stop('start-up failed', 1);
   }
-  if (config.demo) {
-    say('demo users (random passwords, kept in .data/demo-credentials.json):');
-    for (const c of demoCredentials(config.dataDir)) say(`  ${c.role.padEnd(10)} ${c.email}  ${c.password}`);
-  }
-  say('advisory only: Flocstream never writes to the control system. Press Ctrl-C to stop.');
 }
 
-main().catch((err: Error) => {
-  console.error(`[flocstream] cannot start: ${err.message}`);
-  process.exit(1);
-});
+void main();

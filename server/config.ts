@@ -18,6 +18,9 @@ const envSchema = z.object({
   FLOCSTREAM_DEMO: z.enum(['0', '1']).default('1'),
   MQTT_URL: z.url().optional(),
   FLOCSTREAM_MQTT_PORT: port.default(18830),
+  FLOCSTREAM_SIM_OPCUA_PORT: port.default(48410),
+  FLOCSTREAM_SIM_SCENARIO: z.string().regex(/^[a-z0-9-]+$/).default('demo'),
+  FLOCSTREAM_SIM_SPEED: z.coerce.number().min(1).max(3600).optional(),
   REDIS_URL: z.url().optional(),
   SMTP_URL: z.url().optional(),
   LOG_LEVEL: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
@@ -36,6 +39,9 @@ export type Config = {
   demo: boolean;
   mqttUrl: string | undefined;
   mqttPort: number;
+  simOpcuaPort: number;
+  simScenario: string;
+  simSpeed: number | undefined;
   redisUrl: string | undefined;
   smtpUrl: string | undefined;
   logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
@@ -63,6 +69,9 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     demo: e.FLOCSTREAM_DEMO === '1',
     mqttUrl: e.MQTT_URL,
     mqttPort: e.FLOCSTREAM_MQTT_PORT,
+    simOpcuaPort: e.FLOCSTREAM_SIM_OPCUA_PORT,
+    simScenario: e.FLOCSTREAM_SIM_SCENARIO,
+    simSpeed: e.FLOCSTREAM_SIM_SPEED,
     redisUrl: e.REDIS_URL,
     smtpUrl: e.SMTP_URL,
     logLevel: e.LOG_LEVEL,

@@ -1,0 +1,68 @@
+import { spawn, type ChildProcess } from 'node:child_process';
+import path from 'node:path';
+import readline from 'node:readline';
+
+/**
+ * The terminal shows what a person starting the product needs: pino lines below warn stay in
+ * the child's own log file, and node-opcua's notice about Node 20's RSA PKCS#1 v1.5 revert flag
+ * (NODE-OPCUA-W27; we use no PKCS#1 v1.5 padding) is dropped.
+ */
+let skipNext = false;
+function keepLine(line: string): boolean {
+  if (skipNext) {
+    skipNext = false;
+    if (line.includes('--security-revert')) return false;
+  }
+  if (line.includes('NODE-OPCUA-W27')) {
+    skipNext = true;
+    return false;
+  }
+  if (line.startsWith('{"level":')) {
+    const level = Number(/^\{"level":(\d+)/.exec(line)?.[1] ?? 50);
+    return level >= 40;
+  }
+  return true;
+}
+
+export interface Child {
+  name: string;
+  proc: ChildProcess;
+  stop(): Promise<void>;
+}
+
+/**
+ * Runs a TypeScript entry point as its own Node process (`node --import tsx`, one process, so a
+ * stop reaches it directly), prefixing its output lines with its name. stop() sends SIGTERM,
+ * waits up to `grace_ms` for a clean exit (ingest flushes), then SIGKILL.
+ */
+export function spawnTs(root: string, name: string, entry: string, args: string[], env: Record<string, string>, onExit?: (code: number | null) => void): Child {
+  const proc = spawn(process.execPath, ['--import', 'tsx', path.join(root, entry), ...args], {
+    cwd: root,
+    // The launcher passes its environment on, with the child's own settings over it.
+    // eslint-disable-next-line no-restricted-syntax
+    env: { ...process.env, ...env },
+    stdio: ['ignore', 'pipe', 'pipe'],
+  });
+  for (const stream of [proc.stdout, proc.stderr]) {
+    if (stream) readline.createInterface({ input: stream }).on('line', (l) => keepLine(l) && console.log(`[${name}] ${l}`));
+  }
+  let exited = false;
+  const done = new Promise<void>((resolve) =>
+    proc.once('exit', (code) => {
+      exited = true;
+      onExit?.(code);
+      resolve();
+    }),
+  );
+  return {
+    name,
+    proc,
+    async stop(grace_ms = 10_000) {
+      if (exited) return;
+      proc.kill('SIGTERM');
+      const t = setTimeout(() => proc.kill('SIGKILL'), grace_ms);
+      await done;
+      clearTimeout(t);
+    },
+  };
+}
