@@ -3,3 +3,4 @@ export * from './plant.ts';
 export * from './wiring.ts';
 export * from './process.ts';
 export * from './samples.ts';
+export * from './mail.ts';
