@@ -1,0 +1,69 @@
+import path from 'node:path';
+import { z } from 'zod';
+
+/**
+ * The only place in ingest/ that reads process.env (house rule 8). The launcher spawns
+ * `tsx ingest/main.ts` with DATABASE_URL and FLOCSTREAM_DATA_DIR; everything else has a default.
+ */
+const positiveInt = z.coerce.number().int().positive();
+const envSchema = z.object({
+  DATABASE_URL: z.url(),
+  FLOCSTREAM_DATA_DIR: z.string().default('.data'),
+  LOG_LEVEL: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
+  /** Flush a batch once it holds this many samples … */
+  INGEST_BATCH_ROWS: positiveInt.default(20_000),
+  /** … or once its oldest sample has waited this long [ms]. */
+  INGEST_FLUSH_MS: positiveInt.default(200),
+  /** Day partitions ending before now − retention are dropped [days]. */
+  INGEST_RETENTION_DAYS: positiveInt.default(400),
+  /** How often sources and tags are re-read from the database [ms]. */
+  INGEST_RELOAD_MS: positiveInt.default(3_000),
+  /** How often the status file is rewritten [ms]. */
+  INGEST_STATUS_MS: positiveInt.default(2_000),
+  /** MQTT client identifier prefix; the source id is appended so each session is stable across restarts. */
+  INGEST_MQTT_CLIENT_ID: z.string().min(1).max(16).default('flocstream-ingest'),
+});
+
+export interface IngestConfig {
+  databaseUrl: string;
+  dataDir: string;
+  logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
+  batchRows: number;
+  flushMs: number;
+  retentionDays: number;
+  reloadMs: number;
+  statusMs: number;
+  mqttClientIdPrefix: string;
+}
+
+export class IngestConfigError extends Error {}
+
+export function loadIngestConfig(env: NodeJS.ProcessEnv = process.env): IngestConfig {
+  const parsed = envSchema.safeParse(env);
+  if (!parsed.success) {
+    const lines = parsed.error.issues.map((i) => `  ${i.path.join('.')}: ${i.message}`);
+    throw new IngestConfigError(`invalid ingest environment:\n${lines.join('\n')}`);
+  }
+  const e = parsed.data;
+  return {
+    databaseUrl: e.DATABASE_URL,
+    dataDir: path.resolve(e.FLOCSTREAM_DATA_DIR),
+    logLevel: e.LOG_LEVEL,
+    batchRows: e.INGEST_BATCH_ROWS,
+    flushMs: e.INGEST_FLUSH_MS,
+    retentionDays: e.INGEST_RETENTION_DAYS,
+    reloadMs: e.INGEST_RELOAD_MS,
+    statusMs: e.INGEST_STATUS_MS,
+    mqttClientIdPrefix: e.INGEST_MQTT_CLIENT_ID,
+  };
+}
+
+/** Where ingest keeps its files under the data folder. */
+export function ingestPaths(dataDir: string) {
+  return {
+    spoolDir: path.join(dataDir, 'spool'),
+    statusFile: path.join(dataDir, 'ingest-status.json'),
+    discoveryDir: path.join(dataDir, 'ingest-discovery'),
+    pkiDir: path.join(dataDir, 'pki', 'ingest-client'),
+  };
+}

@@ -1,0 +1,258 @@
+import mqtt, { type IClientOptions, type MqttClient, type Packet } from 'mqtt';
+import type { Logger } from 'pino';
+import { z } from 'zod';
+import type { Connector, ConnectorStatus, ConnectionState, SourceConfig } from '../connector.ts';
+import { TagSet } from '../pipeline/tag-set.ts';
+import type { TagConfig } from '../pipeline/types.ts';
+import type { BatchWriter } from '../sink/batch-writer.ts';
+import { MqttMessageHandler } from './message-handler.ts';
+
+/** `sources.options` for an MQTT source, validated (house rule 3). */
+export const mqttSourceOptions = z
+  .object({
+    /** Topic filters to subscribe to; `#` lets discovery list everything the broker carries. */
+    topics: z.array(z.string().min(1)).min(1).default(['#']),
+    /** 5 = MQTT 5.0, 4 = MQTT 3.1.1, 'auto' = try 5.0 and fall back to 3.1.1 if the broker refuses it. */
+    protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).default('auto'),
+    /** Overrides the generated client identifier (it must be stable for the session to persist). */
+    clientId: z.string().min(1).max(128).optional(),
+    keepalive_s: z.number().int().min(5).max(3600).default(30),
+  })
+  .strip();
+export type MqttSourceOptions = z.infer<typeof mqttSourceOptions>;
+
+/** MQTT 3.1.1 CONNACK return code 1 and MQTT 5.0 reason code 0x84: protocol version refused. */
+const UNSUPPORTED_PROTOCOL = new Set([1, 0x84]);
+
+interface HeldAck {
+  messageId: number;
+  generation: number;
+}
+
+/** The mqtt.js 5.16 internal every outgoing packet goes through (private in its typings). */
+interface PacketSender {
+  _sendPacket(packet: Packet, cb?: (err?: Error) => void, cbStorePut?: () => void, noStore?: boolean): void;
+}
+type AckingClient = MqttClient;
+function sender(c: MqttClient): PacketSender {
+  return c as unknown as PacketSender;
+}
+
+/**
+ * One MQTT source: a persistent session and QoS 1 subscriptions, acknowledging each PUBLISH only
+ * after its samples are committed to PostgreSQL or fsync'd to the spool.
+ *
+ * - Session: Clean Start = 0 with a fixed Client Identifier (MQTT 5.0 §3.1.2.4, §3.1.3.1) and,
+ *   on 5.0, Session Expiry Interval = 0xFFFFFFFF (§3.1.2.11.2) so the broker keeps the
+ *   subscriptions and queued QoS 1 messages while ingest is away; on reconnect it resends every
+ *   PUBLISH that was not acknowledged (§4.4).
+ * - Acknowledgement: mqtt.js 5.16 handles incoming packets one at a time and only moves on once
+ *   the handler of the current one completes, so delaying its `customHandleAcks` callback until
+ *   a batch commits would admit one message per batch (and that option is ignored on MQTT
+ *   3.1.1 anyway). Instead the message is taken from the 'message' event, which mqtt.js emits
+ *   synchronously before it sends the PUBACK; the PUBACK is then intercepted and held, and
+ *   written when the batch writer acknowledges the message. Acks are released in the order messages arrived, as
+ *   required for QoS 1 (§4.6). PUBACKs held for a connection that has since closed are dropped:
+ *   the broker will resend those messages and the primary key turns the copy into a no-op.
+ * - Flow control: Receive Maximum (§3.1.2.11.3) is set to the maximum so a batch of held acks
+ *   does not stall delivery; the writer's time-based flush bounds how long any ack is held.
+ * - Reconnect: exponential back-off from 1 s to 30 s.
+ */
+export class MqttConnector implements Connector {
+  readonly sourceId: number;
+  private client: AckingClient | null = null;
+  private tags = new TagSet();
+  private handler: MqttMessageHandler;
+  private opts: MqttSourceOptions;
+  private generation = 0;
+  private held = new Map<number, HeldAck>();
+  private protocol: 4 | 5;
+  private state: ConnectionState = 'connecting';
+  private lastError: string | null = null;
+  private connectedAt: number | null = null;
+  private lastMessageAt: number | null = null;
+  private counters = { messages: 0, samples: 0, unmapped: 0, deadLetters: 0, suppressed: 0, reconnects: 0, outstanding: 0 };
+  private closing = false;
+
+  constructor(
+    private source: SourceConfig,
+    tags: readonly TagConfig[],
+    private writer: BatchWriter,
+    private ctx: { clientIdPrefix: string; log: Logger },
+  ) {
+    this.sourceId = source.id;
+    const parsed = mqttSourceOptions.safeParse(source.options ?? {});
+    this.opts = parsed.success ? parsed.data : mqttSourceOptions.parse({});
+    if (!parsed.success) this.lastError = `invalid source options, using defaults: ${parsed.error.issues.map((i) => i.message).join('; ')}`;
+    this.protocol = this.opts.protocolVersion === 4 ? 4 : 5;
+    this.tags.update(tags);
+    this.handler = new MqttMessageHandler(source.id, this.tags);
+    this.connect();
+  }
+
+  get clientId(): string {
+    return this.opts.clientId ?? `${this.ctx.clientIdPrefix}-${this.source.id}`;
+  }
+
+  private connect(): void {
+    const options: IClientOptions = {
+      clientId: this.clientId,
+      clean: false,
+      protocolVersion: this.protocol,
+      keepalive: this.opts.keepalive_s,
+      reconnectPeriod: 1_000,
+      connectTimeout: 10_000,
+      resubscribe: false,
+      queueQoSZero: false,
+      ...(this.source.username ? { username: this.source.username } : {}),
+      ...(this.source.secret ? { password: this.source.secret } : {}),
+      ...(this.protocol === 5 ? { properties: { sessionExpiryInterval: 0xffffffff, receiveMaximum: 65535 } } : {}),
+    };
+    const client = mqtt.connect(this.source.url, options);
+    this.client = client;
+    const internals = sender(client);
+    const send = internals._sendPacket.bind(client);
+    internals._sendPacket = (packet, cb, cbStorePut, noStore) => {
+      if (packet.cmd === 'puback' && packet.messageId !== undefined && this.held.has(packet.messageId)) {
+        cb?.();
+        return;
+      }
+      send(packet, cb, cbStorePut, noStore);
+    };
+    client.on('connect', (connack) => {
+      this.state = 'connected';
+      this.lastError = null;
+      this.connectedAt = Date.now();
+      client.options.reconnectPeriod = 1_000;
+      this.ctx.log.info({ source: this.source.id, sessionPresent: connack.sessionPresent, protocol: this.protocol }, 'mqtt connected');
+      // Subscribing again on every connect is harmless (MQTT 5.0 §3.8.4: an identical filter replaces the subscription).
+      client.subscribe(
+        this.opts.topics.map((t) => t),
+        { qos: 1 },
+        (err) => {
+          if (err) this.lastError = `subscribe failed: ${err.message}`;
+        },
+      );
+    });
+    client.on('close', () => {
+      // Held PUBACKs belong to the connection that just ended (see the class comment).
+      this.generation++;
+      this.held.clear();
+      if (this.closing) return;
+      if (this.state === 'connected') this.counters.reconnects++;
+      this.state = 'reconnecting';
+    });
+    client.on('reconnect', () => {
+      client.options.reconnectPeriod = Math.min((client.options.reconnectPeriod ?? 1_000) * 2, 30_000);
+    });
+    client.on('error', (err) => {
+      this.lastError = err.message;
+      const code = (err as { code?: number }).code;
+      if (this.opts.protocolVersion === 'auto' && this.protocol === 5 && typeof code === 'number' && UNSUPPORTED_PROTOCOL.has(code)) {
+        this.ctx.log.info({ source: this.source.id }, 'broker refused MQTT 5.0; using MQTT 3.1.1');
+        this.protocol = 4;
+        client.end(true);
+        this.connect();
+        return;
+      }
+      this.state = 'error';
+    });
+    client.on('message', (_topic, payload, packet) => {
+      if (packet.qos === 1 && packet.messageId !== undefined) {
+        // Registered before mqtt.js sends the PUBACK, which the _sendPacket wrapper then holds.
+        const h: HeldAck = { messageId: packet.messageId, generation: this.generation };
+        this.held.set(packet.messageId, h);
+        this.process(packet.topic, payload, h);
+      } else {
+        // QoS 0 has no acknowledgement (we subscribe with QoS 1, so the broker downgrades QoS 2 to 1).
+        this.process(packet.topic, payload, undefined);
+      }
+    });
+  }
+
+  private process(topic: string, payload: Buffer, held: HeldAck | undefined): void {
+    const now = Date.now();
+    this.lastMessageAt = now;
+    this.counters.messages++;
+    let r;
+    try {
+      r = this.handler.handle(topic, payload, now);
+    } catch (err) {
+      // One error funnel: a defect in decoding one message must not take the connection down.
+      r = { samples: [], deadLetters: [], unmapped: 0, suppressed: 0 };
+      this.ctx.log.error({ err, topic }, 'message handler failed');
+    }
+    this.counters.samples += r.samples.length;
+    this.counters.unmapped += r.unmapped;
+    this.counters.deadLetters += r.deadLetters.length;
+    this.counters.suppressed += r.suppressed;
+    if (!held) {
+      if (r.samples.length || r.deadLetters.length) this.writer.enqueue(r.samples, r.deadLetters);
+      return;
+    }
+    if (r.samples.length === 0 && r.deadLetters.length === 0) {
+      this.release(held);
+      return;
+    }
+    this.counters.outstanding++;
+    this.writer.enqueue(r.samples, r.deadLetters, () => {
+      this.counters.outstanding--;
+      this.release(held);
+    });
+  }
+
+  /** Sends a held PUBACK if its connection is still the current one. */
+  private release(h: HeldAck): void {
+    const client = this.client;
+    if (this.held.get(h.messageId) !== h) return;
+    this.held.delete(h.messageId);
+    if (!client || h.generation !== this.generation || !client.connected) return;
+    sender(client)._sendPacket({ cmd: 'puback', messageId: h.messageId, reasonCode: 0 } as Packet);
+  }
+
+  updateTags(tags: readonly TagConfig[]): void {
+    if (this.tags.update(tags)) this.handler.rebuild();
+  }
+
+  discovery() {
+    return this.handler.discovery.list();
+  }
+
+  status(now: number): ConnectorStatus {
+    let stale = 0;
+    for (const p of this.tags.all()) if (p.isStale(now)) stale++;
+    return {
+      sourceId: this.source.id,
+      name: this.source.name,
+      kind: 'mqtt',
+      state: this.state,
+      lastError: this.lastError,
+      connectedAt: this.connectedAt ? new Date(this.connectedAt).toISOString() : null,
+      lastMessageAt: this.lastMessageAt ? new Date(this.lastMessageAt).toISOString() : null,
+      messages: this.counters.messages,
+      samples: this.counters.samples,
+      unmapped: this.counters.unmapped,
+      deadLetters: this.counters.deadLetters,
+      suppressed: this.counters.suppressed,
+      unacknowledged: this.counters.outstanding,
+      tags: this.tags.size,
+      staleTags: stale,
+      reconnects: this.counters.reconnects,
+      details: {
+        clientId: this.clientId,
+        protocolVersion: this.protocol === 5 ? '5.0' : '3.1.1',
+        topics: this.opts.topics,
+        discoveredTopics: this.handler.discovery.size,
+        invalidFilters: this.handler.invalidFilters,
+      },
+    };
+  }
+
+  async close(): Promise<void> {
+    this.closing = true;
+    this.state = 'disconnected';
+    const c = this.client;
+    this.client = null;
+    if (c) await c.endAsync(false).catch(() => {});
+  }
+}

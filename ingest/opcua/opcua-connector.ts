@@ -1,0 +1,293 @@
+import fs from 'node:fs';
+import path from 'node:path';
+import {
+  AttributeIds,
+  ClientMonitoredItem,
+  ClientSubscription,
+  DataType,
+  MessageSecurityMode,
+  OPCUACertificateManager,
+  OPCUAClient,
+  SecurityPolicy,
+  TimestampsToReturn,
+  UserTokenType,
+  type ClientSession,
+  type DataValue,
+  type UserIdentityInfo,
+} from 'node-opcua';
+import type { Logger } from 'pino';
+import type { Connector, ConnectorStatus, ConnectionState, SourceConfig } from '../connector.ts';
+import { isSample } from '../pipeline/quality.ts';
+import { TagSet } from '../pipeline/tag-set.ts';
+import { deadLetter, type TagConfig } from '../pipeline/types.ts';
+import type { BatchWriter } from '../sink/batch-writer.ts';
+import { opcuaSourceOptions, type OpcuaSourceOptions } from './opcua-options.ts';
+import { gradeOfStatusCode, numericValue } from './status-quality.ts';
+
+/**
+ * Client certificate manager rooted under the data folder (never the home folder: STACK.md).
+ * One per PKI folder per process; node-opcua locks the folder while it is initialised.
+ */
+const managers = new Map<string, OPCUACertificateManager>();
+export function clientCertificateManager(pkiDir: string, acceptUnknown: boolean): OPCUACertificateManager {
+  const key = `${pkiDir}|${acceptUnknown}`;
+  let m = managers.get(key);
+  if (!m) {
+    fs.mkdirSync(pkiDir, { recursive: true });
+    m = new OPCUACertificateManager({ rootFolder: pkiDir, automaticallyAcceptUnknownCertificate: acceptUnknown });
+    managers.set(key, m);
+  }
+  return m;
+}
+
+export function createOpcuaClient(opts: OpcuaSourceOptions, pkiDir: string, name: string): OPCUAClient {
+  return OPCUAClient.create({
+    applicationName: 'Flocstream ingest',
+    applicationUri: `urn:flocstream:ingest:${name}`,
+    clientName: name,
+    endpointMustExist: false,
+    securityMode: MessageSecurityMode[opts.securityMode],
+    securityPolicy: SecurityPolicy[opts.securityPolicy],
+    clientCertificateManager: clientCertificateManager(pkiDir, opts.acceptUnknownServerCertificate),
+    certificateFile: path.join(pkiDir, 'own', 'certs', 'client_certificate.pem'),
+    privateKeyFile: path.join(pkiDir, 'own', 'private', 'private_key.pem'),
+    keepSessionAlive: true,
+    requestedSessionTimeout: 60_000,
+    // node-opcua re-establishes the secure channel with this back-off, then reactivates the
+    // session or creates a new one and transfers/recreates its subscriptions (OPC 10000-4 §6.7).
+    connectionStrategy: { initialDelay: 1_000, maxDelay: 30_000, maxRetry: 1_000_000, randomisationFactor: 0.2 },
+  });
+}
+
+export function userIdentity(source: Pick<SourceConfig, 'username' | 'secret'>): UserIdentityInfo {
+  return source.username
+    ? { type: UserTokenType.UserName, userName: source.username, password: source.secret ?? '' }
+    : { type: UserTokenType.Anonymous };
+}
+
+/**
+ * One OPC UA source: a session with one subscription and a monitored item per tag (sampling
+ * interval per tag, OPC 10000-4 §5.12), source timestamps and StatusCodes turned into sample
+ * quality. A bad StatusCode is stored as a Bad sample with a null value — the reading happened
+ * and said "no valid value", which the balance engine must see.
+ *
+ * Reconnection: node-opcua's connection strategy handles a lost channel. If the session is
+ * lost for good (server restarted, session closed), this connector tears the client down and
+ * starts again with exponential back-off, re-creating session, subscription and items.
+ *
+ * OPC UA subscriptions have no per-notification acknowledgement toward the server that would
+ * let us hold data there until it is committed (the Publish acknowledgement only releases the
+ * server's retransmission queue, OPC 10000-4 §5.13.5), so samples between receipt and the next
+ * flush (≤ INGEST_FLUSH_MS) are lost if ingest is killed; everything flushed is committed or
+ * spooled.
+ */
+export class OpcuaConnector implements Connector {
+  readonly sourceId: number;
+  private tags = new TagSet();
+  private opts: OpcuaSourceOptions;
+  private client: OPCUAClient | null = null;
+  private session: ClientSession | null = null;
+  private subscription: ClientSubscription | null = null;
+  private items = new Map<number, { item: ClientMonitoredItem; address: string; interval: number }>();
+  private state: ConnectionState = 'connecting';
+  private lastError: string | null = null;
+  private connectedAt: number | null = null;
+  private lastMessageAt: number | null = null;
+  private itemErrors = new Map<number, string>();
+  private counters = { messages: 0, samples: 0, deadLetters: 0, suppressed: 0, reconnects: 0 };
+  private closing = false;
+  private retryMs = 1_000;
+  private retryTimer: NodeJS.Timeout | null = null;
+  private run = 0;
+
+  constructor(
+    private source: SourceConfig,
+    tags: readonly TagConfig[],
+    private writer: BatchWriter,
+    private ctx: { pkiDir: string; log: Logger },
+  ) {
+    this.sourceId = source.id;
+    const parsed = opcuaSourceOptions.safeParse(source.options ?? {});
+    this.opts = parsed.success ? parsed.data : opcuaSourceOptions.parse({});
+    if (!parsed.success) this.lastError = `invalid source options, using defaults: ${parsed.error.issues.map((i) => i.message).join('; ')}`;
+    this.tags.update(tags);
+    void this.start();
+  }
+
+  private async start(): Promise<void> {
+    const run = ++this.run;
+    this.state = this.connectedAt ? 'reconnecting' : 'connecting';
+    const client = createOpcuaClient(this.opts, this.ctx.pkiDir, `source-${this.source.id}`);
+    this.client = client;
+    try {
+      // The first connection is tried once here; our own back-off below repeats it.
+      await client.connect(this.source.url);
+      if (run !== this.run) return void client.disconnect().catch(() => {});
+      const session = await client.createSession(userIdentity(this.source));
+      this.session = session;
+      session.on('session_closed', () => this.lost('session closed by the server', run));
+      client.on('connection_lost', () => {
+        if (run === this.run) this.state = 'reconnecting';
+      });
+      client.on('connection_reestablished', () => {
+        if (run === this.run) {
+          this.state = 'connected';
+          this.counters.reconnects++;
+        }
+      });
+      const sub = ClientSubscription.create(session, {
+        requestedPublishingInterval: this.opts.publishingInterval_ms,
+        requestedLifetimeCount: 600,
+        requestedMaxKeepAliveCount: 20,
+        maxNotificationsPerPublish: 0,
+        publishingEnabled: true,
+        priority: 1,
+      });
+      this.subscription = sub;
+      sub.on('terminated', () => this.lost('subscription terminated', run));
+      this.items.clear();
+      this.syncItems();
+      this.state = 'connected';
+      this.lastError = null;
+      this.connectedAt = Date.now();
+      this.retryMs = 1_000;
+      this.ctx.log.info({ source: this.source.id, url: this.source.url, securityMode: this.opts.securityMode }, 'opcua connected');
+    } catch (err) {
+      this.lost((err as Error).message, run);
+    }
+  }
+
+  private lost(reason: string, run: number): void {
+    if (this.closing || run !== this.run) return;
+    this.lastError = reason;
+    this.state = 'error';
+    this.run++;
+    const client = this.client;
+    this.client = null;
+    this.session = null;
+    this.subscription = null;
+    this.items.clear();
+    void client?.disconnect().catch(() => {});
+    if (this.retryTimer) clearTimeout(this.retryTimer);
+    this.retryTimer = setTimeout(() => {
+      this.retryTimer = null;
+      this.counters.reconnects++;
+      void this.start();
+    }, this.retryMs);
+    this.retryMs = Math.min(this.retryMs * 2, 30_000);
+  }
+
+  /** Brings the monitored items in line with the tag list (added, removed, changed interval or address). */
+  private syncItems(): void {
+    const sub = this.subscription;
+    if (!sub) return;
+    const wanted = new Map<number, TagConfig>();
+    for (const p of this.tags.all()) wanted.set(p.tag.id, p.tag);
+    for (const [id, cur] of this.items) {
+      const t = wanted.get(id);
+      if (!t || t.address !== cur.address || (t.samplingInterval_ms ?? this.opts.samplingInterval_ms) !== cur.interval) {
+        void cur.item.terminate().catch(() => {});
+        this.items.delete(id);
+      }
+    }
+    for (const t of wanted.values()) {
+      if (this.items.has(t.id)) continue;
+      const interval = t.samplingInterval_ms ?? this.opts.samplingInterval_ms;
+      // Enough queue for every sample of one publishing interval (OPC 10000-4 §5.12.1.5).
+      const queueSize = Math.min(1000, Math.max(1, Math.ceil(this.opts.publishingInterval_ms / Math.max(interval, 1)) * 2));
+      let item: ClientMonitoredItem;
+      try {
+        item = ClientMonitoredItem.create(
+          sub,
+          { nodeId: t.address, attributeId: AttributeIds.Value },
+          { samplingInterval: interval, discardOldest: true, queueSize },
+          TimestampsToReturn.Both,
+        );
+      } catch (err) {
+        this.itemErrors.set(t.id, (err as Error).message);
+        continue;
+      }
+      item.on('changed', (dv: DataValue) => this.onValue(t.id, dv));
+      item.on('err', (msg: string) => this.itemErrors.set(t.id, String(msg)));
+      this.items.set(t.id, { item, address: t.address, interval });
+    }
+  }
+
+  private onValue(tagId: number, dv: DataValue): void {
+    const now = Date.now();
+    this.lastMessageAt = now;
+    this.counters.messages++;
+    const proc = this.tags.get(tagId);
+    if (!proc) return;
+    const grade = gradeOfStatusCode(dv.statusCode.value);
+    const ts = (dv.sourceTimestamp ?? dv.serverTimestamp)?.getTime() ?? now;
+    let raw: number | null = null;
+    if (grade !== 'bad') {
+      const v = dv.value;
+      const n = numericValue(DataType[v.dataType] ?? String(v.dataType), v.value, v.arrayType !== undefined && v.arrayType !== 0);
+      if (typeof n !== 'number') {
+        this.counters.deadLetters++;
+        this.writer.enqueue([], [deadLetter(this.source.id, proc.tag.address, `${dv.toString().slice(0, 2000)}`, n.error, now)]);
+        return;
+      }
+      raw = n;
+    }
+    const r = proc.process(raw, ts, grade, now);
+    if (r === null) {
+      this.counters.suppressed++;
+    } else if (isSample(r)) {
+      this.counters.samples++;
+      this.writer.enqueue([r], []);
+    } else {
+      this.counters.deadLetters++;
+      this.writer.enqueue([], [deadLetter(this.source.id, proc.tag.address, dv.toString().slice(0, 2000), r.reason, now)]);
+    }
+  }
+
+  updateTags(tags: readonly TagConfig[]): void {
+    if (this.tags.update(tags)) this.syncItems();
+  }
+
+  status(now: number): ConnectorStatus {
+    let stale = 0;
+    for (const p of this.tags.all()) if (p.isStale(now)) stale++;
+    return {
+      sourceId: this.source.id,
+      name: this.source.name,
+      kind: 'opcua',
+      state: this.state,
+      lastError: this.lastError,
+      connectedAt: this.connectedAt ? new Date(this.connectedAt).toISOString() : null,
+      lastMessageAt: this.lastMessageAt ? new Date(this.lastMessageAt).toISOString() : null,
+      messages: this.counters.messages,
+      samples: this.counters.samples,
+      unmapped: 0,
+      deadLetters: this.counters.deadLetters,
+      suppressed: this.counters.suppressed,
+      unacknowledged: 0,
+      tags: this.tags.size,
+      staleTags: stale,
+      reconnects: this.counters.reconnects,
+      details: {
+        securityMode: this.opts.securityMode,
+        securityPolicy: this.opts.securityPolicy,
+        monitoredItems: this.items.size,
+        itemErrors: Object.fromEntries(this.itemErrors),
+      },
+    };
+  }
+
+  async close(): Promise<void> {
+    this.closing = true;
+    this.run++;
+    this.state = 'disconnected';
+    if (this.retryTimer) clearTimeout(this.retryTimer);
+    const { subscription, session, client } = this;
+    this.subscription = null;
+    this.session = null;
+    this.client = null;
+    await subscription?.terminate().catch(() => {});
+    await session?.close().catch(() => {});
+    await client?.disconnect().catch(() => {});
+  }
+}

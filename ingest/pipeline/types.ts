@@ -1,0 +1,42 @@
+/** One stored sample: tag, epoch milliseconds (UTC), engineering value (null when bad), quality code. */
+export interface Sample {
+  tagId: number;
+  ts: number;
+  value: number | null;
+  quality: number;
+}
+
+/** A message the pipeline could not decode, kept with the reason (never dropped silently). */
+export interface DeadLetter {
+  ts: number;
+  sourceId: number | null;
+  address: string | null;
+  /** The payload as text, truncated to DEAD_LETTER_PAYLOAD_MAX characters. */
+  payload: string;
+  /** Size of the original payload in bytes. */
+  payloadBytes: number;
+  reason: string;
+}
+
+/** Per-tag settings the pipeline needs (a projection of the `tags` row). */
+export interface TagConfig {
+  id: number;
+  sourceId: number;
+  address: string;
+  scaleGain: number;
+  scaleOffset: number;
+  deadband: number;
+  expectedPeriod_s: number;
+  rangeLow: number | null;
+  rangeHigh: number | null;
+  samplingInterval_ms: number | null;
+}
+
+export const DEAD_LETTER_PAYLOAD_MAX = 4096;
+
+export function deadLetter(sourceId: number | null, address: string | null, payload: Buffer | string, reason: string, now = Date.now()): DeadLetter {
+  const bytes = typeof payload === 'string' ? Buffer.byteLength(payload) : payload.length;
+  const head = typeof payload === 'string' ? payload.slice(0, DEAD_LETTER_PAYLOAD_MAX) : payload.subarray(0, DEAD_LETTER_PAYLOAD_MAX).toString('utf8');
+  // PostgreSQL text cannot hold NUL; keep the rest of the bytes readable.
+  return { ts: now, sourceId, address, payload: head.replaceAll('\u0000', '\\0'), payloadBytes: bytes, reason: reason.slice(0, 1000) };
+}

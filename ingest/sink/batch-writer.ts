@@ -1,0 +1,229 @@
+import type { Logger } from 'pino';
+import type { DeadLetter, Sample } from '../pipeline/types.ts';
+import { isTransientDbError, type SampleStore } from './sample-store.ts';
+import type { Spool, SpoolRecord } from './spool.ts';
+
+/** Called once the items it was enqueued with are committed or durably spooled. */
+export type Ack = () => void;
+
+export interface WriterStats {
+  committedSamples: number;
+  committedDeadLetters: number;
+  duplicateSamples: number;
+  spooledSamples: number;
+  replayedSamples: number;
+  flushes: number;
+  stagedFlushes: number;
+  pendingSamples: number;
+  dbState: 'up' | 'down';
+  lastError: string | null;
+  /** Receive → commit (or spool) delay of the oldest item of the last flush [ms]. */
+  lastLagMs: number;
+  rejectedSpoolFiles: number;
+}
+
+interface Pending {
+  samples: Sample[];
+  deadLetters: DeadLetter[];
+  acks: Ack[];
+  since: number;
+}
+
+function empty(): Pending {
+  return { samples: [], deadLetters: [], acks: [], since: 0 };
+}
+
+/**
+ * Buffers samples and dead letters and writes them in batches, flushed by size or by age.
+ * Flushes run one at a time in arrival order, and acks are called in that order after commit
+ * — which is what lets the MQTT connector send PUBACKs in the order the PUBLISH packets were
+ * received (MQTT 5.0 §4.6, message ordering).
+ *
+ * When the database fails with a transient error the batch is appended to the spool (fsync'd)
+ * and then acknowledged; while the spool holds anything, every flush first tries to replay it,
+ * so replayed batches always precede newer ones. Database attempts back off while it is down.
+ */
+export class BatchWriter {
+  private pending = empty();
+  private timer: NodeJS.Timeout | null = null;
+  private chain: Promise<void> = Promise.resolve();
+  private retryAt = 0;
+  private backoffMs = 250;
+  private closed = false;
+  private replayTimer: NodeJS.Timeout;
+  readonly stats: WriterStats = {
+    committedSamples: 0,
+    committedDeadLetters: 0,
+    duplicateSamples: 0,
+    spooledSamples: 0,
+    replayedSamples: 0,
+    flushes: 0,
+    stagedFlushes: 0,
+    pendingSamples: 0,
+    dbState: 'up',
+    lastError: null,
+    lastLagMs: 0,
+    rejectedSpoolFiles: 0,
+  };
+  /** Called after each commit with the samples committed (for rates in the status file). */
+  onCommit: ((n: number) => void) | null = null;
+
+  constructor(
+    private store: SampleStore,
+    private spool: Spool,
+    private opts: { batchRows: number; flushMs: number; log: Logger },
+  ) {
+    // Without new traffic nothing would flush: retry a non-empty spool by itself.
+    this.replayTimer = setInterval(() => {
+      if (!this.spool.isEmpty && Date.now() >= this.retryAt) void this.flush();
+    }, 1_000);
+    this.replayTimer.unref();
+  }
+
+  get spoolBytes(): number {
+    return this.spool.sizeBytes;
+  }
+
+  get spoolFiles(): number {
+    return this.spool.fileCount;
+  }
+
+  enqueue(samples: readonly Sample[], deadLetters: readonly DeadLetter[], ack?: Ack): void {
+    const p = this.pending;
+    if (p.samples.length === 0 && p.deadLetters.length === 0 && p.acks.length === 0) p.since = Date.now();
+    for (const s of samples) p.samples.push(s);
+    for (const d of deadLetters) p.deadLetters.push(d);
+    if (ack) p.acks.push(ack);
+    this.stats.pendingSamples = p.samples.length;
+    if (p.samples.length + p.deadLetters.length >= this.opts.batchRows) this.flushSoon(0);
+    else if (!this.timer) this.flushSoon(this.opts.flushMs);
+  }
+
+  private flushSoon(delay: number): void {
+    if (this.timer) clearTimeout(this.timer);
+    this.timer = setTimeout(() => {
+      this.timer = null;
+      void this.flush();
+    }, delay);
+  }
+
+  /** Flushes what is pending now; resolves when it is committed or spooled. */
+  flush(): Promise<void> {
+    const batch = this.pending;
+    this.pending = empty();
+    this.stats.pendingSamples = 0;
+    if (this.timer) {
+      clearTimeout(this.timer);
+      this.timer = null;
+    }
+    this.chain = this.chain.then(() => this.write(batch));
+    return this.chain;
+  }
+
+  private async write(b: Pending): Promise<void> {
+    const hasData = b.samples.length > 0 || b.deadLetters.length > 0;
+    try {
+      if (!this.spool.isEmpty && Date.now() >= this.retryAt) await this.replaySpool();
+      if (hasData) {
+        if (!this.spool.isEmpty || Date.now() < this.retryAt) {
+          await this.toSpool(b);
+        } else {
+          try {
+            await this.commit(b.samples, b.deadLetters);
+            this.markUp();
+          } catch (err) {
+            this.markDown(err);
+            await this.toSpool(b);
+          }
+        }
+      }
+      this.stats.flushes++;
+      if (b.since) this.stats.lastLagMs = Date.now() - b.since;
+      for (const a of b.acks) a();
+    } catch (err) {
+      // Neither the database nor the spool took the batch: do not acknowledge it. The source
+      // keeps it (MQTT redelivers unacknowledged QoS 1 messages on reconnect, MQTT 5.0 §4.4).
+      this.stats.lastError = `spool write failed: ${(err as Error).message}`;
+      this.opts.log.error({ err }, 'batch could be neither committed nor spooled; not acknowledged');
+    }
+    // If more accumulated meanwhile and is already due, keep going.
+    if (this.pending.samples.length + this.pending.deadLetters.length >= this.opts.batchRows) this.flushSoon(0);
+  }
+
+  private async commit(samples: Sample[], deadLetters: DeadLetter[]): Promise<void> {
+    let lastErr: unknown;
+    for (let attempt = 0; attempt < 2; attempt++) {
+      try {
+        const r = await this.store.write(samples, deadLetters);
+        this.stats.committedSamples += r.inserted;
+        this.stats.duplicateSamples += r.duplicates;
+        this.stats.committedDeadLetters += r.deadLetters;
+        if (r.staged) this.stats.stagedFlushes++;
+        this.onCommit?.(r.inserted);
+        return;
+      } catch (err) {
+        lastErr = err;
+        // A transient error is handled by the spool; a non-transient one gets one more try
+        // (e.g. a tag deleted between the checks of one batch) before it is treated the same.
+        if (isTransientDbError(err)) break;
+      }
+    }
+    throw lastErr;
+  }
+
+  private async toSpool(b: Pending): Promise<void> {
+    await this.spool.append({ samples: b.samples, deadLetters: b.deadLetters });
+    this.stats.spooledSamples += b.samples.length;
+  }
+
+  private async replaySpool(): Promise<void> {
+    try {
+      const before = this.stats.committedSamples;
+      const n = await this.spool.replay(async (recs: SpoolRecord[]) => {
+        await this.commit(
+          recs.flatMap((r) => r.samples),
+          recs.flatMap((r) => r.deadLetters),
+        );
+      });
+      this.stats.replayedSamples += this.stats.committedSamples - before;
+      if (n) this.opts.log.info({ records: n }, 'spool replayed');
+      this.markUp();
+    } catch (err) {
+      if (isTransientDbError(err)) {
+        this.markDown(err);
+        return;
+      }
+      const moved = await this.spool.quarantineOldest();
+      this.stats.rejectedSpoolFiles++;
+      this.stats.lastError = `spool file rejected by the database: ${(err as Error).message}`;
+      this.opts.log.error({ err, moved }, 'spool file could not be applied; moved aside');
+    }
+  }
+
+  private markUp(): void {
+    if (this.stats.dbState === 'down') this.opts.log.info('database reachable again');
+    this.stats.dbState = 'up';
+    this.backoffMs = 250;
+    this.retryAt = 0;
+  }
+
+  private markDown(err: unknown): void {
+    if (this.stats.dbState === 'up') this.opts.log.warn({ err: (err as Error).message }, 'database write failed; spooling');
+    this.stats.dbState = 'down';
+    this.stats.lastError = (err as Error).message;
+    this.retryAt = Date.now() + this.backoffMs;
+    this.backoffMs = Math.min(this.backoffMs * 2, 5_000);
+  }
+
+  /** Writes everything pending (SIGTERM path) and stops the timer. */
+  async close(): Promise<void> {
+    this.closed = true;
+    clearInterval(this.replayTimer);
+    await this.flush();
+    await this.spool.close();
+  }
+
+  get isClosed(): boolean {
+    return this.closed;
+  }
+}

@@ -1,0 +1,217 @@
+import { pipeline } from 'node:stream/promises';
+import { Readable } from 'node:stream';
+import pg from 'pg';
+import { from as copyFrom } from 'pg-copy-streams';
+import type { DeadLetter, Sample } from '../pipeline/types.ts';
+import { encodeSamplesBinary } from './copy-binary.ts';
+import { aggregate, latestPerTag, type RollupRow } from './rollup.ts';
+
+/** What one committed write did. */
+export interface WriteResult {
+  inserted: number;
+  duplicates: number;
+  deadLetters: number;
+  /** True when the fast path hit a duplicate key and the batch went through the staging table. */
+  staged: boolean;
+}
+
+const DAY_MS = 86_400_000;
+
+/**
+ * Error classes after which the connection is gone or the server is not accepting work, so the
+ * batch goes to the spool and is retried; anything else is a defect in the batch or the schema.
+ * SQLSTATE classes from PostgreSQL's Appendix A: 08 connection exception, 57P0x operator
+ * intervention (admin shutdown, crash shutdown, cannot connect now), 53 insufficient resources.
+ */
+export function isTransientDbError(err: unknown): boolean {
+  const e = err as { code?: string; message?: string };
+  const code = e?.code ?? '';
+  if (/^(08|53|57P0)/.test(code)) return true;
+  if (['ECONNREFUSED', 'ECONNRESET', 'EPIPE', 'ETIMEDOUT', 'ENOTFOUND', 'EHOSTUNREACH', 'ENOENT'].includes(code)) return true;
+  return /Connection terminated|not queryable|Client has encountered a connection error|connection is closed|timeout exceeded/i.test(e?.message ?? '');
+}
+
+function rollupSql(table: 'rollup_1m' | 'rollup_1h'): string {
+  return `INSERT INTO ${table} AS r (tag_id, bucket, min, max, sum, count, last, last_ts, quality)
+    SELECT * FROM unnest($1::int[], $2::timestamptz[], $3::float8[], $4::float8[], $5::float8[], $6::bigint[], $7::float8[], $8::timestamptz[], $9::int2[])
+    ON CONFLICT (tag_id, bucket) DO UPDATE SET
+      min = least(r.min, excluded.min),
+      max = greatest(r.max, excluded.max),
+      sum = r.sum + excluded.sum,
+      count = r.count + excluded.count,
+      last = CASE WHEN excluded.last_ts >= r.last_ts THEN excluded.last ELSE r.last END,
+      last_ts = greatest(r.last_ts, excluded.last_ts),
+      quality = ((r.quality | excluded.quality) & ~3) | greatest(r.quality & 3, excluded.quality & 3)`;
+}
+
+function rollupParams(rows: RollupRow[]): unknown[] {
+  return [
+    rows.map((r) => r.tagId),
+    rows.map((r) => new Date(r.bucket)),
+    rows.map((r) => r.min),
+    rows.map((r) => r.max),
+    rows.map((r) => r.sum),
+    rows.map((r) => r.count),
+    rows.map((r) => r.last),
+    rows.map((r) => new Date(r.lastTs)),
+    rows.map((r) => r.quality),
+  ];
+}
+
+/**
+ * The database side of the batch writer: one connection of its own (the staging table is a
+ * temporary table of that session), one transaction per batch.
+ *
+ * Write path, chosen by measurement (see tests/bench/ingest.bench.ts and STACK.md): binary COPY
+ * straight into `samples` inside the transaction. A replay (spool, broker redelivery) can carry
+ * rows that are already stored; the primary key (tag_id, ts) then fails the COPY, the
+ * transaction is rolled back and the batch is retried through a session temp table:
+ * COPY into it, then `INSERT INTO samples SELECT … ON CONFLICT (tag_id, ts) DO NOTHING RETURNING`.
+ * Either way rollups and tag_latest are computed from exactly the rows that were inserted, so a
+ * replay never counts a sample twice. Duplicates are rare, so the common path pays nothing.
+ */
+export class SampleStore {
+  private client: pg.Client | null = null;
+  private knownDays = new Set<number>();
+
+  constructor(
+    private url: string,
+    private opts: { retentionDays: number },
+  ) {}
+
+  private async connect(): Promise<pg.Client> {
+    if (this.client) return this.client;
+    const c = new pg.Client({ connectionString: this.url, connectionTimeoutMillis: 5_000, application_name: 'flocstream-ingest' });
+    c.on('error', () => {
+      if (this.client === c) this.client = null;
+    });
+    try {
+      await c.connect();
+      await c.query(`CREATE TEMP TABLE IF NOT EXISTS ingest_stage (tag_id int NOT NULL, ts timestamptz NOT NULL, value float8, quality int2 NOT NULL) ON COMMIT DELETE ROWS`);
+    } catch (err) {
+      c.end().catch(() => {});
+      throw err;
+    }
+    this.client = c;
+    return c;
+  }
+
+  /** Drops the connection after an error so the next write starts clean. */
+  reset(): void {
+    const c = this.client;
+    this.client = null;
+    c?.end().catch(() => {});
+  }
+
+  async close(): Promise<void> {
+    const c = this.client;
+    this.client = null;
+    await c?.end().catch(() => {});
+  }
+
+  /**
+   * Creates the day partitions a batch needs (within retention and up to a week ahead; anything
+   * else lands in the DEFAULT partition, see drizzle/0001_samples_partitioned.sql).
+   */
+  private async ensurePartitions(c: pg.Client, samples: readonly Sample[]): Promise<void> {
+    const now = Date.now();
+    const lo = Math.floor((now - this.opts.retentionDays * DAY_MS) / DAY_MS);
+    const hi = Math.floor(now / DAY_MS) + 7;
+    let missing: Set<number> | null = null;
+    let prev = NaN;
+    for (const s of samples) {
+      const d = Math.floor(s.ts / DAY_MS);
+      if (d === prev) continue;
+      prev = d;
+      if (!this.knownDays.has(d) && d >= lo && d <= hi) (missing ??= new Set()).add(d);
+    }
+    if (!missing) return;
+    for (const d of missing) {
+      await c.query('SELECT flocstream_ensure_day_partition($1)', [new Date(d * DAY_MS)]);
+      this.knownDays.add(d);
+    }
+  }
+
+  /** Partition upkeep: the next days ahead, and drop the ones past retention. Returns how many were dropped. */
+  async maintainPartitions(now = Date.now()): Promise<number> {
+    const c = await this.connect();
+    for (let k = 0; k <= 2; k++) await c.query('SELECT flocstream_ensure_day_partition($1)', [new Date(now + k * DAY_MS)]);
+    const r = await c.query<{ n: number }>('SELECT flocstream_drop_partitions_before($1) AS n', [new Date(now - this.opts.retentionDays * DAY_MS)]);
+    return r.rows[0]?.n ?? 0;
+  }
+
+  async write(samples: readonly Sample[], deadLetters: readonly DeadLetter[]): Promise<WriteResult> {
+    const c = await this.connect();
+    try {
+      if (samples.length) await this.ensurePartitions(c, samples);
+      await c.query('BEGIN');
+      let inserted: readonly Sample[] = samples;
+      let staged = false;
+      if (samples.length) {
+        try {
+          await this.copy(c, 'samples', samples);
+        } catch (err) {
+          if ((err as { code?: string }).code !== '23505') throw err;
+          await c.query('ROLLBACK');
+          await c.query('BEGIN');
+          staged = true;
+          inserted = await this.stagedInsert(c, samples);
+        }
+      }
+      if (inserted.length) {
+        for (const [table, bucket] of [['rollup_1m', 60_000], ['rollup_1h', 3_600_000]] as const) {
+          const rows = aggregate(inserted, bucket);
+          if (rows.length) await c.query({ name: `ingest_${table}`, text: rollupSql(table), values: rollupParams(rows) });
+        }
+        const latest = latestPerTag(inserted);
+        await c.query({
+          name: 'ingest_tag_latest',
+          // Only tags that still exist: tag_latest references tags, a deleted tag must not fail the batch.
+          text: `INSERT INTO tag_latest AS l (tag_id, ts, value, quality, received_at)
+            SELECT u.tag_id, u.ts, u.value, u.quality, now()
+            FROM unnest($1::int[], $2::timestamptz[], $3::float8[], $4::int2[]) AS u(tag_id, ts, value, quality)
+            WHERE EXISTS (SELECT 1 FROM tags t WHERE t.id = u.tag_id)
+            ON CONFLICT (tag_id) DO UPDATE SET ts = excluded.ts, value = excluded.value, quality = excluded.quality, received_at = excluded.received_at
+            WHERE excluded.ts >= l.ts`,
+          values: [latest.map((s) => s.tagId), latest.map((s) => new Date(s.ts)), latest.map((s) => s.value), latest.map((s) => s.quality)],
+        });
+      }
+      if (deadLetters.length) {
+        await c.query({
+          name: 'ingest_dead_letters',
+          text: `INSERT INTO dead_letters (ts, source_id, address, payload, payload_bytes, reason)
+            SELECT * FROM unnest($1::timestamptz[], $2::int[], $3::text[], $4::text[], $5::int[], $6::text[])`,
+          values: [
+            deadLetters.map((d) => new Date(d.ts)),
+            deadLetters.map((d) => d.sourceId),
+            deadLetters.map((d) => d.address),
+            deadLetters.map((d) => d.payload),
+            deadLetters.map((d) => d.payloadBytes),
+            deadLetters.map((d) => d.reason),
+          ],
+        });
+      }
+      await c.query('COMMIT');
+      return { inserted: inserted.length, duplicates: samples.length - inserted.length, deadLetters: deadLetters.length, staged };
+    } catch (err) {
+      // Whatever failed, the transaction is not committed; a fresh connection avoids half states.
+      this.reset();
+      throw err;
+    }
+  }
+
+  private async copy(c: pg.Client, table: string, samples: readonly Sample[]): Promise<void> {
+    const stream = c.query(copyFrom(`COPY ${table} (tag_id, ts, value, quality) FROM STDIN (FORMAT binary)`));
+    await pipeline(Readable.from([encodeSamplesBinary(samples)]), stream);
+  }
+
+  private async stagedInsert(c: pg.Client, samples: readonly Sample[]): Promise<Sample[]> {
+    await this.copy(c, 'ingest_stage', samples);
+    const r = await c.query<{ tag_id: number; ms: number; value: number | null; quality: number }>(
+      `INSERT INTO samples (tag_id, ts, value, quality) SELECT tag_id, ts, value, quality FROM ingest_stage
+       ON CONFLICT (tag_id, ts) DO NOTHING
+       RETURNING tag_id, (extract(epoch FROM ts) * 1000)::float8 AS ms, value, quality`,
+    );
+    return r.rows.map((x) => ({ tagId: x.tag_id, ts: x.ms, value: x.value, quality: x.quality }));
+  }
+}

@@ -1,0 +1,131 @@
+import fs from 'node:fs';
+import net from 'node:net';
+import os from 'node:os';
+import path from 'node:path';
+import { Aedes } from 'aedes';
+import pg from 'pg';
+import pino from 'pino';
+import type { IngestConfig } from '../../../ingest/config.ts';
+
+export const silentLog = pino({ level: 'silent' });
+
+export function tempDir(prefix: string): string {
+  return fs.mkdtempSync(path.join(os.tmpdir(), `flocstream-${prefix}-`));
+}
+
+export function freePort(): Promise<number> {
+  return new Promise((resolve, reject) => {
+    const s = net.createServer();
+    s.listen(0, '127.0.0.1', () => {
+      const a = s.address();
+      s.close(() => (typeof a === 'object' && a ? resolve(a.port) : reject(new Error('no port'))));
+    });
+  });
+}
+
+export function ingestConfig(databaseUrl: string, dataDir: string, over: Partial<IngestConfig> = {}): IngestConfig {
+  return { databaseUrl, dataDir, logLevel: 'silent', batchRows: 5_000, flushMs: 100, retentionDays: 400, reloadMs: 500, statusMs: 500, mqttClientIdPrefix: 'it-ingest', ...over };
+}
+
+/**
+ * An aedes broker whose persistence (sessions, subscriptions, queued QoS 1 messages) outlives
+ * `restart()`, like a broker with durable storage. aedes' default persistence is in memory, so
+ * a plain restart of the embedded broker would lose messages it had already acknowledged to
+ * the publisher; this keeps the test about ingest, not about broker storage.
+ */
+export interface TestBroker {
+  url: string;
+  port: number;
+  broker: Aedes;
+  stop(): Promise<void>;
+  restart(downMs?: number): Promise<void>;
+  close(): Promise<void>;
+}
+
+export async function startTestBroker(port: number): Promise<TestBroker> {
+  let broker = await Aedes.createBroker();
+  // Not in aedes' typings, but the documented `persistence` option takes the same object.
+  const persistence: unknown = (broker as unknown as { persistence: unknown }).persistence;
+  let server: net.Server | null = null;
+  const sockets = new Set<net.Socket>();
+  const listen = async () => {
+    server = net.createServer(broker.handle);
+    server.on('connection', (s) => {
+      sockets.add(s);
+      s.on('close', () => sockets.delete(s));
+    });
+    await new Promise<void>((r) => server!.listen(port, '127.0.0.1', () => r()));
+  };
+  const stop = async () => {
+    await new Promise<void>((r) => broker.close(() => r()));
+    for (const s of sockets) s.destroy();
+    await new Promise<void>((r) => (server ? server.close(() => r()) : r()));
+    server = null;
+  };
+  await listen();
+  const tb: TestBroker = {
+    url: `mqtt://127.0.0.1:${port}`,
+    port,
+    get broker() {
+      return broker;
+    },
+    stop,
+    async restart(downMs = 500) {
+      await stop();
+      await new Promise((r) => setTimeout(r, downMs));
+      broker = await Aedes.createBroker({ persistence } as Parameters<typeof Aedes.createBroker>[0]);
+      await listen();
+    },
+    close: stop,
+  };
+  return tb;
+}
+
+export async function seedWiring(url: string, opts: { kind: 'mqtt' | 'opcua'; sourceUrl: string; options?: object; addresses: string[]; tag?: Partial<Record<string, unknown>> }): Promise<{ sourceId: number; tagIds: number[] }> {
+  const c = new pg.Client({ connectionString: url });
+  await c.connect();
+  try {
+    const p = await c.query(`INSERT INTO plants (code, name) VALUES ('it', 'Integration plant') ON CONFLICT (code) DO UPDATE SET name = excluded.name RETURNING id`);
+    const plantId = p.rows[0].id as number;
+    const s = await c.query(`INSERT INTO sources (plant_id, name, kind, url, options) VALUES ($1, $2, $3, $4, $5) RETURNING id`, [
+      plantId,
+      `${opts.kind}-${Math.random().toString(36).slice(2, 8)}`,
+      opts.kind,
+      opts.sourceUrl,
+      JSON.stringify(opts.options ?? {}),
+    ]);
+    const sourceId = s.rows[0].id as number;
+    const tagIds: number[] = [];
+    for (const [i, a] of opts.addresses.entries()) {
+      const t = await c.query(
+        `INSERT INTO tags (plant_id, source_id, name, address, unit, scale_gain, scale_offset, range_low, range_high, sampling_interval_ms)
+         VALUES ($1, $2, $3, $4, 'g/L', $5, $6, $7, $8, $9) RETURNING id`,
+        [plantId, sourceId, `S${sourceId}-T${i}`, a, opts.tag?.scaleGain ?? 1, opts.tag?.scaleOffset ?? 0, opts.tag?.rangeLow ?? null, opts.tag?.rangeHigh ?? null, opts.tag?.samplingInterval_ms ?? null],
+      );
+      tagIds.push(t.rows[0].id as number);
+    }
+    return { sourceId, tagIds };
+  } finally {
+    await c.end();
+  }
+}
+
+export async function waitFor<T>(what: string, fn: () => Promise<T>, ok: (v: T) => boolean, timeoutMs = 30_000, everyMs = 100): Promise<T> {
+  const end = Date.now() + timeoutMs;
+  let last: T | undefined;
+  for (;;) {
+    try {
+      last = await fn();
+      if (ok(last)) return last;
+    } catch {
+      // the database may be down on purpose; keep polling
+    }
+    if (Date.now() > end) throw new Error(`timed out waiting for ${what}; last value ${JSON.stringify(last)}`);
+    await new Promise((r) => setTimeout(r, everyMs));
+  }
+}
+
+export async function scalar(pool: pg.Pool, sql: string, params: unknown[] = []): Promise<number> {
+  const r = await pool.query(sql, params);
+  return Number(Object.values(r.rows[0] ?? { n: 0 })[0]);
+}

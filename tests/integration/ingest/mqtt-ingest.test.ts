@@ -1,0 +1,196 @@
+import mqtt, { type MqttClient } from 'mqtt';
+import pg from 'pg';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { IngestService } from '../../../ingest/ingest-service.ts';
+import { createTestDatabase, type TestDatabase } from '../../helpers/db.ts';
+import { freePort, ingestConfig, scalar, seedWiring, silentLog, startTestBroker, tempDir, waitFor, type TestBroker } from './helpers.ts';
+
+const TAGS = 20;
+
+async function publisher(url: string, clientId: string): Promise<MqttClient> {
+  // Clean Session 0 and a fixed id: unacknowledged QoS 1 publishes are resent after a reconnect.
+  return mqtt.connectAsync(url, { clientId, clean: false, protocolVersion: 4, reconnectPeriod: 200 });
+}
+
+/** Publishes `n` single-value messages, QoS 1, one unique timestamp per message; `onProgress` after each window. */
+async function publishSeries(c: MqttClient, n: number, t0: number, onProgress?: (sent: number) => Promise<void> | void): Promise<void> {
+  const window = 500;
+  for (let i = 0; i < n; i += window) {
+    const ps: Promise<unknown>[] = [];
+    for (let k = i; k < Math.min(n, i + window); k++) {
+      const tag = k % TAGS;
+      const ts = new Date(t0 + Math.floor(k / TAGS) * 10).toISOString();
+      ps.push(c.publishAsync(`t/tag${tag}`, JSON.stringify({ v: k, ts }), { qos: 1 }));
+    }
+    await Promise.all(ps);
+    await onProgress?.(Math.min(n, i + window));
+  }
+}
+
+describe('MQTT → PostgreSQL', () => {
+  let t: TestDatabase;
+  let pool: pg.Pool;
+  let broker: TestBroker;
+  let svc: IngestService;
+  let pub: MqttClient;
+  let tagIds: number[];
+  const dataDir = tempDir('mqtt-it');
+
+  beforeAll(async () => {
+    t = await createTestDatabase();
+    pool = new pg.Pool({ connectionString: t.url, max: 3 });
+    broker = await startTestBroker(await freePort());
+    const seeded = await seedWiring(t.url, {
+      kind: 'mqtt',
+      sourceUrl: broker.url,
+      options: { topics: ['t/#', 'p/#', 'junk/#', 'bad/#'] },
+      addresses: [...Array.from({ length: TAGS }, (_, i) => `t/tag${i}`), 'p/+/flow', 'bad/value'],
+    });
+    tagIds = seeded.tagIds;
+    svc = await IngestService.start(ingestConfig(t.url, dataDir), silentLog);
+    await waitFor('ingest connected', async () => svc.status().sources[0]?.state, (s) => s === 'connected');
+    pub = await publisher(broker.url, 'it-publisher');
+  });
+
+  afterAll(async () => {
+    await pub?.endAsync().catch(() => {});
+    await svc?.stop();
+    await broker?.close();
+    await pool?.end();
+    await t?.drop();
+  });
+
+  it('stores exactly N rows for N published messages, with rollups and tag_latest consistent', async () => {
+    const N = 20_000;
+    const t0 = Date.UTC(2026, 0, 10, 0, 0, 0);
+    await publishSeries(pub, N, t0);
+    const ids = tagIds.slice(0, TAGS);
+    const q = `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`;
+    const range = [ids, new Date(t0), new Date(t0 + 86_400_000)];
+    await waitFor('N rows', () => scalar(pool, q, range), (n) => n >= N);
+    await new Promise((r) => setTimeout(r, 500));
+    expect(await scalar(pool, q, range)).toBe(N);
+    // Rollups count each inserted sample once.
+    expect(await scalar(pool, `SELECT sum(count) FROM rollup_1m WHERE tag_id = ANY($1) AND bucket >= $2 AND bucket < $3`, range)).toBe(N);
+    expect(await scalar(pool, `SELECT sum(count) FROM rollup_1h WHERE tag_id = ANY($1) AND bucket >= $2 AND bucket < $3`, range)).toBe(N);
+    // Value k was published at tag k % TAGS; the sum over all is 0 + … + N−1.
+    expect(await scalar(pool, `SELECT sum(sum) FROM rollup_1m WHERE tag_id = ANY($1) AND bucket >= $2 AND bucket < $3`, range)).toBe((N * (N - 1)) / 2);
+    const latest = await pool.query(`SELECT tag_id, value FROM tag_latest WHERE tag_id = ANY($1) ORDER BY tag_id`, [ids]);
+    expect(latest.rows).toHaveLength(TAGS);
+    expect(latest.rows[0].value).toBe(N - TAGS);
+    // Rows went into their day partition, not the default one.
+    const parts = await pool.query(`SELECT DISTINCT tableoid::regclass::text p FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range);
+    expect(parts.rows.map((r) => r.p)).toEqual(['samples_20260110']);
+  });
+
+  it('holds the PUBACK until the row is committed', async () => {
+    const ingestId = 'it-ingest-' + (svc.status().sources[0]?.sourceId ?? 0);
+    const acks: number[] = [];
+    const onAck = (packet: { messageId?: number } | undefined, client: { id: string } | undefined) => {
+      if (client?.id === ingestId && packet) acks.push(Date.now());
+    };
+    broker.broker.on('ack', onAck);
+    const locker = await pool.connect();
+    try {
+      await locker.query('BEGIN');
+      await locker.query('LOCK TABLE samples IN ACCESS EXCLUSIVE MODE');
+      const ts = new Date(Date.UTC(2026, 0, 11)).toISOString();
+      await pub.publishAsync('t/tag0', JSON.stringify({ v: 42, ts }), { qos: 1 });
+      await new Promise((r) => setTimeout(r, 1_500));
+      expect(acks).toHaveLength(0);
+      await locker.query('COMMIT');
+      await waitFor('PUBACK after commit', async () => acks.length, (n) => n === 1, 10_000);
+      expect(await scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = $1 AND ts = $2`, [tagIds[0], ts])).toBe(1);
+    } finally {
+      await locker.query('ROLLBACK').catch(() => {});
+      locker.release();
+      broker.broker.removeListener('ack', onAck);
+    }
+  });
+
+  it('still stores exactly N when the broker restarts mid-stream', async () => {
+    const N = 20_000;
+    const t0 = Date.UTC(2026, 0, 12, 0, 0, 0);
+    let restarted = false;
+    await publishSeries(pub, N, t0, async (sent) => {
+      if (!restarted && sent >= 6_000) {
+        restarted = true;
+        await broker.restart(700);
+      }
+    });
+    expect(restarted).toBe(true);
+    const ids = tagIds.slice(0, TAGS);
+    const q = `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`;
+    const range = [ids, new Date(t0), new Date(t0 + 86_400_000)];
+    await waitFor('N rows after broker restart', () => scalar(pool, q, range), (n) => n >= N, 20_000).catch(async (e) => {
+      const r = await pool.query(`SELECT k FROM generate_series(0, $1 - 1) k WHERE NOT EXISTS (SELECT 1 FROM samples WHERE tag_id = ANY($2) AND ts >= $3 AND ts < $4 AND value = k)`, [N, ids, range[1], range[2]]);
+      console.log('MISSING', r.rows.length, r.rows.slice(0, 5), r.rows.slice(-5));
+      throw e;
+    });
+    await new Promise((r) => setTimeout(r, 500));
+    expect(await scalar(pool, q, range)).toBe(N);
+    expect(await scalar(pool, `SELECT sum(count) FROM rollup_1m WHERE tag_id = ANY($1) AND bucket >= $2 AND bucket < $3`, range)).toBe(N);
+    expect(svc.status().sources[0]?.reconnects).toBeGreaterThanOrEqual(1);
+  });
+
+  it('accounts for 10 000 malformed payloads in dead_letters or as unmapped, and keeps good data flowing', async () => {
+    const before = svc.status().sources[0]!;
+    const dlBefore = await scalar(pool, `SELECT count(*) FROM dead_letters`);
+    const big = 'x'.repeat(1024 * 1024);
+    const bad: [string, string][] = [];
+    let unknown = 0;
+    for (let i = 0; i < 10_000; i++) {
+      switch (i % 10) {
+        case 0: bad.push(['bad/value', '{"v": 1.5, "ts": ']); break; // broken JSON
+        case 1: bad.push(['bad/value', '{"v": "1.5"}']); break; // wrong type
+        case 2: bad.push(['bad/value', 'NaN']); break;
+        case 3: bad.push(['bad/value', 'Infinity']); break;
+        case 4: bad.push(['bad/value', '{"v": 1e999}']); break; // JSON overflows to Infinity
+        case 5: bad.push(['bad/value', i % 1000 === 5 ? `{"v": "${big}"}` : '{"v": null}']); break; // 1 MB string / null without bad quality
+        case 6: bad.push(['bad/value', '{"v": 2, "ts": "yesterday"}']); break;
+        case 7: bad.push(['bad/value', '{"samples": []}']); break; // empty batch
+        case 8: bad.push([`junk/${i}`, '{"not": "ours"}']); unknown++; break; // unknown topic
+        case 9: bad.push(['bad/value', '\u0000\u0001garbage']); break;
+      }
+    }
+    const deadExpected = bad.length - unknown;
+    const t0 = Date.UTC(2026, 0, 13);
+    const good = 2_000;
+    let g = 0;
+    for (let i = 0; i < bad.length; i += 250) {
+      const ps = bad.slice(i, i + 250).map(([topic, p]) => pub.publishAsync(topic, p, { qos: 1 }));
+      for (let k = 0; k < 50 && g < good; k++, g++) {
+        ps.push(pub.publishAsync(`t/tag${g % TAGS}`, JSON.stringify({ v: g, ts: new Date(t0 + Math.floor(g / TAGS) * 1000).toISOString() }), { qos: 1 }));
+      }
+      await Promise.all(ps);
+    }
+    expect(g).toBe(good);
+    await waitFor('dead letters', () => scalar(pool, `SELECT count(*) FROM dead_letters`), (n) => n >= dlBefore + deadExpected, 30_000);
+    const range = [tagIds.slice(0, TAGS), new Date(t0), new Date(t0 + 86_400_000)];
+    await waitFor('good rows', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range), (n) => n >= good);
+    await new Promise((r) => setTimeout(r, 300));
+    expect(await scalar(pool, `SELECT count(*) FROM dead_letters`)).toBe(dlBefore + deadExpected);
+    expect(await scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range)).toBe(good);
+    const after = svc.status().sources[0]!;
+    expect(after.unmapped - before.unmapped).toBe(unknown);
+    expect(after.state).toBe('connected');
+    // Large payloads are truncated but keep their size.
+    const large = await pool.query(`SELECT length(payload) len, payload_bytes FROM dead_letters WHERE payload_bytes > 1000000 LIMIT 1`);
+    expect(large.rows[0].len).toBeLessThanOrEqual(4096);
+    expect(large.rows[0].payload_bytes).toBeGreaterThan(1024 * 1024);
+    const reasons = await pool.query(`SELECT DISTINCT split_part(reason, ':', 1) r FROM dead_letters`);
+    expect(reasons.rows.map((r) => r.r).sort()).toEqual(['invalid JSON', 'invalid batch', 'invalid value', 'not JSON and not a plain number'].sort());
+    // Unknown topics are listed for the wiring view, not dead-lettered.
+    const junk = await scalar(pool, `SELECT count(*) FROM dead_letters WHERE address LIKE 'junk/%'`);
+    expect(junk).toBe(0);
+  });
+
+  it('maps pattern topics and batches, and applies scaling', async () => {
+    const t0 = Date.UTC(2026, 0, 14);
+    const samples = Array.from({ length: 300 }, (_, i) => ({ topic: `p/ab${i % 3}/flow`, v: i, ts: new Date(t0 + i * 1000).toISOString() }));
+    samples.push({ topic: 'nobody/maps/this', v: 1, ts: new Date(t0).toISOString() });
+    await pub.publishAsync('p/batch', JSON.stringify({ samples }), { qos: 1 });
+    const patternTag = tagIds[TAGS]!;
+    await waitFor('batched rows', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = $1 AND ts >= $2`, [patternTag, new Date(t0)]), (n) => n === 300);
+  });
+});
