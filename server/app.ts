@@ -10,9 +10,13 @@ import { authenticate } from './auth/middleware.ts';
 import { errorMiddleware } from './http/error-middleware.ts';
 import { NotFoundError } from './http/errors.ts';
 import { buildOpenApi } from './http/openapi.ts';
+import { rateLimit } from './http/rate-limit.ts';
 import { mount, type RouteDef } from './http/route.ts';
 import { authRoutes } from './routes/auth.routes.ts';
 import { calcRoutes } from './routes/calc.routes.ts';
+import { labRoutes } from './routes/lab.routes.ts';
+import { plantsRoutes } from './routes/plants.routes.ts';
+import { streamRoutes } from './routes/stream.routes.ts';
 import { tokensRoutes } from './routes/tokens.routes.ts';
 import { usersRoutes } from './routes/users.routes.ts';
 
@@ -21,7 +25,7 @@ const DIST = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../dist
 
 /** Every /api/v1 route of the product, in one list (mounted, documented and role-tested from it). */
 export function apiRoutes(ctx: AppContext): RouteDef[] {
-  const defs: RouteDef[] = [...authRoutes(ctx), ...usersRoutes(ctx), ...tokensRoutes(ctx), ...calcRoutes(ctx)];
+  const defs: RouteDef[] = [...authRoutes(ctx), ...usersRoutes(ctx), ...tokensRoutes(ctx), ...calcRoutes(ctx), ...plantsRoutes(ctx), ...labRoutes(ctx), ...streamRoutes(ctx)];
   const doc = () => buildOpenApi(defs, VERSION);
   let cached: object | undefined;
   defs.push({
@@ -65,6 +69,7 @@ export function createApp(ctx: AppContext, opts: { serveMonitor?: boolean } = {}
 
   const api = Router();
   api.use(authenticate(ctx));
+  api.use(rateLimit());
   mount(api, apiRoutes(ctx));
   api.use((_req, _res, next) => next(new NotFoundError('no such API route')));
   app.use('/api/v1', api);

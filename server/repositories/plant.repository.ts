@@ -1,0 +1,135 @@
+import { and, asc, desc, eq, getTableColumns, gte, inArray, lt, sql, type SQL } from 'drizzle-orm';
+import type pg from 'pg';
+import type { Db } from '../db/client.ts';
+import { alarms, balances, basins, clarifiers, plants, pumps, signalMap, sources, tagLatest, tags, trains } from '../db/schema/index.ts';
+
+export type PlantRow = typeof plants.$inferSelect;
+export type AlarmRow = typeof alarms.$inferSelect;
+export type BalanceRow = typeof balances.$inferSelect;
+
+export interface LiveTagRow {
+  id: number;
+  name: string;
+  description: string;
+  unit: string;
+  enabled: boolean;
+  expectedPeriod_s: number;
+  sourceId: number;
+  sourceName: string;
+  sourceKind: 'mqtt' | 'opcua';
+  ts: Date | null;
+  value: number | null;
+  quality: number | null;
+}
+
+export interface BalanceBucketRow {
+  bucket: Date;
+  id: number;
+  ts: Date;
+  quality: 'good' | 'estimated' | 'unavailable';
+  data: Record<string, unknown>;
+  computations: number;
+  worst: number;
+}
+
+const BALANCE_BUCKETS = `WITH x AS (
+    SELECT date_bin(make_interval(secs => $4::float8), ts, timestamptz 'epoch') AS bucket, id, ts, quality, data
+    FROM balances WHERE plant_id = $1 AND ts >= $2 AND ts < $3
+  )
+  SELECT DISTINCT ON (bucket) bucket, id, ts, quality, data,
+    count(*) OVER w AS computations,
+    max(CASE quality WHEN 'good' THEN 0 WHEN 'estimated' THEN 1 ELSE 2 END) OVER w AS worst
+  FROM x WINDOW w AS (PARTITION BY bucket)
+  ORDER BY bucket, ts DESC, id DESC
+  LIMIT $5`;
+
+/** Plants, their layout, live tag values, balances and alarms (reads only). */
+export function plantRepository(db: Db, pool: pg.Pool) {
+  return {
+    list(scope: number[] | null): Promise<PlantRow[]> {
+      const q = db.select().from(plants);
+      return (scope ? q.where(inArray(plants.id, scope)) : q).orderBy(asc(plants.id));
+    },
+    async byId(id: number): Promise<PlantRow | undefined> {
+      const [p] = await db.select().from(plants).where(eq(plants.id, id));
+      return p;
+    },
+    async layout(plantId: number) {
+      const tr = await db.select().from(trains).where(eq(trains.plantId, plantId)).orderBy(asc(trains.code));
+      const ids = tr.map((t) => t.id);
+      if (!ids.length) return { trains: tr, basins: [], clarifiers: [], pumps: [] };
+      const [b, c, p] = await Promise.all([
+        db.select().from(basins).where(inArray(basins.trainId, ids)).orderBy(asc(basins.code)),
+        db.select().from(clarifiers).where(inArray(clarifiers.trainId, ids)).orderBy(asc(clarifiers.code)),
+        db.select().from(pumps).where(inArray(pumps.trainId, ids)).orderBy(asc(pumps.code)),
+      ]);
+      return { trains: tr, basins: b, clarifiers: c, pumps: p };
+    },
+    liveTags(plantId: number): Promise<LiveTagRow[]> {
+      return db
+        .select({
+          id: tags.id,
+          name: tags.name,
+          description: tags.description,
+          unit: tags.unit,
+          enabled: tags.enabled,
+          expectedPeriod_s: tags.expectedPeriod_s,
+          sourceId: sources.id,
+          sourceName: sources.name,
+          sourceKind: sources.kind,
+          ts: tagLatest.ts,
+          value: tagLatest.value,
+          quality: tagLatest.quality,
+        })
+        .from(tags)
+        .innerJoin(sources, eq(sources.id, tags.sourceId))
+        .leftJoin(tagLatest, eq(tagLatest.tagId, tags.id))
+        .where(eq(tags.plantId, plantId))
+        .orderBy(asc(tags.name));
+    },
+    signals(plantId: number) {
+      return db.select({ tagId: signalMap.tagId, signal: signalMap.signal, targetType: signalMap.targetType, targetId: signalMap.targetId }).from(signalMap).where(eq(signalMap.plantId, plantId)).orderBy(asc(signalMap.signal));
+    },
+    async tag(plantId: number, tagId: number): Promise<{ id: number; unit: string; expectedPeriod_s: number } | undefined> {
+      const [t] = await db.select({ id: tags.id, unit: tags.unit, expectedPeriod_s: tags.expectedPeriod_s }).from(tags).where(and(eq(tags.id, tagId), eq(tags.plantId, plantId)));
+      return t;
+    },
+    /** Latest values changed since `sinceMs` (by received time), for the stream's poll of tag_latest. */
+    async latestChangedSince(plantId: number, since: Date): Promise<Array<{ tagId: number; ts: Date; value: number | null; quality: number; receivedAt: Date }>> {
+      const r = await pool.query({
+        name: 'stream_tag_latest_since',
+        text: `SELECT l.tag_id AS "tagId", l.ts, l.value, l.quality, l.received_at AS "receivedAt"
+          FROM tag_latest l JOIN tags t ON t.id = l.tag_id
+          WHERE t.plant_id = $1 AND l.received_at > $2 ORDER BY l.received_at`,
+        values: [plantId, since],
+      });
+      return r.rows;
+    },
+    async latestBalance(plantId: number): Promise<BalanceRow | undefined> {
+      const [b] = await db.select().from(balances).where(eq(balances.plantId, plantId)).orderBy(desc(balances.ts), desc(balances.id)).limit(1);
+      return b;
+    },
+    async balanceBuckets(plantId: number, from: Date, to: Date, step_s: number, limit: number): Promise<BalanceBucketRow[]> {
+      const r = await pool.query<BalanceBucketRow>({ name: 'balance_buckets', text: BALANCE_BUCKETS, values: [plantId, from, to, step_s, limit] });
+      return r.rows;
+    },
+    /**
+     * Alarms newest raised first; `before` = (raisedAt, id) of the last row of the previous page,
+     * raisedAt as PostgreSQL's own text (`cursorTs`) so microseconds survive the round trip.
+     */
+    alarms(plantId: number, f: { state?: AlarmRow['state']; from?: Date; to?: Date; before?: { ts: string; id: number } }, limit: number): Promise<Array<AlarmRow & { cursorTs: string }>> {
+      const conds: SQL[] = [eq(alarms.plantId, plantId)];
+      if (f.state) conds.push(eq(alarms.state, f.state));
+      if (f.from) conds.push(gte(alarms.raisedAt, f.from));
+      if (f.to) conds.push(lt(alarms.raisedAt, f.to));
+      if (f.before) conds.push(sql`(${alarms.raisedAt}, ${alarms.id}) < (${f.before.ts}::timestamptz, ${f.before.id}::int)`);
+      return db
+        .select({ ...getTableColumns(alarms), cursorTs: sql<string>`${alarms.raisedAt}::text` })
+        .from(alarms)
+        .where(and(...conds))
+        .orderBy(desc(alarms.raisedAt), desc(alarms.id))
+        .limit(limit);
+    },
+  };
+}
+export type PlantRepository = ReturnType<typeof plantRepository>;

@@ -1,0 +1,157 @@
+import type { Request, Response } from 'express';
+import { z } from 'zod';
+import {
+  alarmsQuery,
+  alarmsResponse,
+  balanceHistoryQuery,
+  balanceHistoryResponse,
+  balanceLiveResponse,
+  plantLayoutOut,
+  plantParams,
+  plantSummary,
+  samplesQuery,
+  samplesResponse,
+  tableQuery,
+  tagParams,
+  tagsResponse,
+  type AlarmsQuery,
+  type BalanceHistoryQuery,
+  type PlantParams,
+  type SamplesQuery,
+  type TagParams,
+} from '../../shared/contracts/plant-api.ts';
+import type { AppContext } from '../app-context.ts';
+import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
+import type { RouteDef } from '../http/route.ts';
+import { flattenRows } from '../services/csv.service.ts';
+import { ALARM_CSV_COLUMNS, plantService } from '../services/plant.service.ts';
+import { SAMPLE_CSV_COLUMNS, sampleCsvRows, seriesService } from '../services/series.service.ts';
+
+const DEFAULT_LIST_LIMIT = 500;
+const DEFAULT_HISTORY_LIMIT = 5000;
+
+/**
+ * Read API of a plant: layout, live tags, tag history, balances, alarms. Any signed-in role or
+ * token (analyst and up); a plant-scoped token gets 403 for other plants, an unknown plant is 404.
+ * Table routes answer CSV too (`?format=csv` or `Accept: text/csv`); list routes page with
+ * `cursor` + `limit` (nextCursor in the JSON body, `Link: rel="next"` and `X-Next-Cursor` headers).
+ */
+export function plantsRoutes(ctx: AppContext): RouteDef[] {
+  const plants = plantService(ctx);
+  const series = seriesService(ctx);
+  const common = { role: 'analyst' as const, tag: 'plants' };
+  const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
+  return [
+    {
+      ...common,
+      method: 'get',
+      path: '/plants',
+      summary: 'Plants the caller may read (a plant-scoped token sees its plants only)',
+      query: tableQuery,
+      csv: true,
+      response: z.array(plantSummary),
+      handler: async (req: Request, res: Response) => {
+        const list = await plants.list(req);
+        if (!wantsCsv(req)) return list;
+        sendCsv(res, 'plants.csv', ['id', 'code', 'name', 'timezone', 'peakFlow_m3h', 'createdAt'], list.map((p) => [p.id, p.code, p.name, p.timezone, p.peakFlow_m3h, p.createdAt]));
+      },
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/plants/:plantId',
+      summary: 'A plant and its layout: trains with basins, clarifiers and pumps; peak flow',
+      params: plantParams,
+      response: plantLayoutOut,
+      handler: (req: Request) => plants.layout(req, pid(req)),
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/plants/:plantId/tags',
+      summary: 'Tags with their latest value, quality (grade and flags), age, unit, source kind and signal mapping; stale = older than 3 expected periods',
+      params: plantParams,
+      query: tableQuery,
+      csv: true,
+      response: tagsResponse,
+      handler: async (req: Request, res: Response) => {
+        const out = await plants.tags(req, pid(req));
+        if (!wantsCsv(req)) return out;
+        const cols = ['id', 'name', 'unit', 'value', 'ts', 'age_s', 'stale', 'quality', 'qualityCode', 'qualityFlags', 'sourceKind', 'sourceName', 'signals', 'expectedPeriod_s', 'enabled', 'description'];
+        sendCsv(
+          res,
+          `plant-${out.plantId}-tags.csv`,
+          cols,
+          out.tags.map((t) => [
+            t.id, t.name, t.unit, t.value, t.ts, t.age_s, t.stale, t.quality?.grade, t.quality?.code, t.quality?.flags.join(';'), t.source.kind, t.source.name,
+            t.signals.map((s) => `${s.signal}@${s.targetCode ?? `${s.targetType}:${s.targetId}`}`).join(';'), t.expectedPeriod_s, t.enabled, t.description,
+          ]),
+        );
+      },
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/plants/:plantId/tags/:tagId/samples',
+      summary:
+        'Tag history over [from, to) (default the last hour): raw samples, or buckets from raw, rollup_1m or rollup_1h chosen so that at most ~2000 points return; agg mean|min|max|last; empty buckets are left out (gaps stay gaps); bad or value-less samples are not aggregated (as in the rollups)',
+      params: tagParams,
+      query: samplesQuery,
+      csv: true,
+      response: samplesResponse,
+      handler: async (req: Request, res: Response) => {
+        const { plantId, tagId } = req.valid.params as TagParams;
+        await plants.requirePlant(req, plantId);
+        const out = await series.samples(plantId, tagId, req.valid.query as SamplesQuery);
+        setNextPage(req, res, out.nextCursor);
+        res.setHeader('X-Resolution', out.resolution);
+        if (!wantsCsv(req)) return out;
+        sendCsv(res, `tag-${tagId}-samples.csv`, SAMPLE_CSV_COLUMNS, sampleCsvRows(out.points));
+      },
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/plants/:plantId/balance/live',
+      summary: 'The latest balance computation; 200 with balance: null and a reason when none has been computed yet (404 only for an unknown plant)',
+      params: plantParams,
+      response: balanceLiveResponse,
+      handler: (req: Request) => plants.balanceLive(req, pid(req)),
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/plants/:plantId/balance/history',
+      summary: 'Balances over [from, to) (default the last 24 h) bucketed by step (raised so there are ≤ 2000 buckets); each bucket gives its last computation, their count and the worst quality',
+      params: plantParams,
+      query: balanceHistoryQuery,
+      csv: true,
+      response: balanceHistoryResponse,
+      handler: async (req: Request, res: Response) => {
+        const q = req.valid.query as BalanceHistoryQuery;
+        const out = await plants.balanceHistory(req, pid(req), q, q.limit ?? DEFAULT_HISTORY_LIMIT);
+        setNextPage(req, res, out.nextCursor);
+        if (!wantsCsv(req)) return out;
+        const flat = flattenRows(out.rows);
+        sendCsv(res, `plant-${out.plantId}-balances.csv`, flat.columns, flat.cells);
+      },
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/plants/:plantId/alarms',
+      summary: 'Alarms, newest raised first; filter by state and by raise time [from, to)',
+      params: plantParams,
+      query: alarmsQuery,
+      csv: true,
+      response: alarmsResponse,
+      handler: async (req: Request, res: Response) => {
+        const q = req.valid.query as AlarmsQuery;
+        const out = await plants.alarms(req, pid(req), q, q.limit ?? DEFAULT_LIST_LIMIT);
+        setNextPage(req, res, out.nextCursor);
+        if (!wantsCsv(req)) return out;
+        sendCsv(res, `plant-${out.plantId}-alarms.csv`, ALARM_CSV_COLUMNS, out.alarms.map((a) => ALARM_CSV_COLUMNS.map((c) => a[c])));
+      },
+    },
+  ];
+}

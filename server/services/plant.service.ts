@@ -1,0 +1,187 @@
+import type { Request } from 'express';
+import type {
+  AlarmOut,
+  AlarmsQuery,
+  BalanceHistoryQuery,
+  BalanceHistoryRow,
+  BalanceOut,
+  PlantLayoutOut,
+  PlantSummary,
+  TagLive,
+} from '../../shared/contracts/plant-api.ts';
+import { MAX_POINTS } from '../../shared/contracts/plant-api.ts';
+import { qualityFlags, qualityGrade } from '../../shared/contracts/sample-quality.ts';
+import type { AppContext } from '../app-context.ts';
+import { assertPlantAccess } from '../auth/middleware.ts';
+import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
+import { BadRequestError, NotFoundError } from '../http/errors.ts';
+import { plantRepository, type AlarmRow, type BalanceRow, type PlantRow } from '../repositories/plant.repository.ts';
+
+const DAY_MS = 86_400_000;
+/** A tag is stale when its latest value is older than this many expected periods. */
+export const STALE_PERIODS = 3;
+const QUALITY_NAMES = ['good', 'estimated', 'unavailable'] as const;
+
+function summary(p: PlantRow): PlantSummary {
+  return { id: p.id, code: p.code, name: p.name, timezone: p.timezone, peakFlow_m3h: p.peakFlow_m3h, createdAt: p.createdAt.toISOString() };
+}
+
+function balanceOut(b: BalanceRow): BalanceOut {
+  return { id: b.id, ts: b.ts.toISOString(), quality: b.quality, data: b.data as Record<string, unknown>, inputs: b.inputs as Record<string, unknown> };
+}
+
+export function alarmOut(a: AlarmRow): AlarmOut {
+  return {
+    id: a.id,
+    rule: a.rule,
+    target: a.target,
+    priority: a.priority,
+    state: a.state,
+    message: a.message,
+    value: a.value,
+    limit: a.limit,
+    raisedAt: a.raisedAt.toISOString(),
+    acknowledgedAt: a.acknowledgedAt?.toISOString() ?? null,
+    acknowledgedBy: a.acknowledgedBy,
+    clearedAt: a.clearedAt?.toISOString() ?? null,
+  };
+}
+
+const isTsIdCursor = (o: Record<string, unknown>): o is { ts: string; id: number; p: number } => isStr(o.ts) && isNum(o.id) && isNum(o.p);
+const isBalanceCursor = (o: Record<string, unknown>): o is { p: number; f: number; t: number; s: number; a: number } => isNum(o.p) && isNum(o.f) && isNum(o.t) && isNum(o.s) && isNum(o.a);
+
+/** Plants, layout, live tags, balances, alarms. Every plant read goes through `requirePlant`. */
+export function plantService(ctx: AppContext) {
+  const repo = plantRepository(ctx.db.db, ctx.db.pool);
+
+  /** 403 for a plant outside a scoped token (before existence, so scopes do not reveal plants), then 404. */
+  async function requirePlant(req: Request, plantId: number): Promise<PlantRow> {
+    assertPlantAccess(req, plantId);
+    const p = await repo.byId(plantId);
+    if (!p) throw new NotFoundError(`no plant ${plantId}`);
+    return p;
+  }
+
+  return {
+    requirePlant,
+
+    async list(req: Request): Promise<PlantSummary[]> {
+      return (await repo.list(req.principal?.plantIds ?? null)).map(summary);
+    },
+
+    async layout(req: Request, plantId: number): Promise<PlantLayoutOut> {
+      const p = await requirePlant(req, plantId);
+      const l = await repo.layout(plantId);
+      return {
+        ...summary(p),
+        trains: l.trains.map((t) => ({
+          id: t.id,
+          code: t.code,
+          name: t.name,
+          basins: l.basins.filter((b) => b.trainId === t.id).map(({ id, code, name, volume_m3, aerobic }) => ({ id, code, name, volume_m3, aerobic })),
+          clarifiers: l.clarifiers.filter((c) => c.trainId === t.id).map(({ id, code, name, area_m2, sideWaterDepth_m, count }) => ({ id, code, name, area_m2, sideWaterDepth_m, count })),
+          pumps: l.pumps.filter((x) => x.trainId === t.id).map(({ id, code, name, kind, capacity_m3h }) => ({ id, code, name, kind, capacity_m3h })),
+        })),
+      };
+    },
+
+    async tags(req: Request, plantId: number): Promise<{ plantId: number; asOf: string; tags: TagLive[] }> {
+      const p = await requirePlant(req, plantId);
+      const [rows, signals, layout] = await Promise.all([repo.liveTags(plantId), repo.signals(plantId), repo.layout(plantId)]);
+      const codes = new Map<string, string>([[`plant:${p.id}`, p.code]]);
+      for (const t of layout.trains) codes.set(`train:${t.id}`, t.code);
+      for (const b of layout.basins) codes.set(`basin:${b.id}`, b.code);
+      for (const c of layout.clarifiers) codes.set(`clarifier:${c.id}`, c.code);
+      for (const x of layout.pumps) codes.set(`pump:${x.id}`, x.code);
+      const byTag = new Map<number, TagLive['signals']>();
+      for (const s of signals) {
+        const list = byTag.get(s.tagId) ?? [];
+        list.push({ signal: s.signal, targetType: s.targetType, targetId: s.targetId, targetCode: codes.get(`${s.targetType}:${s.targetId}`) ?? null });
+        byTag.set(s.tagId, list);
+      }
+      const now = Date.now();
+      return {
+        plantId,
+        asOf: new Date(now).toISOString(),
+        tags: rows.map((r) => {
+          const age_s = r.ts ? (now - r.ts.getTime()) / 1000 : null;
+          return {
+            id: r.id,
+            name: r.name,
+            description: r.description,
+            unit: r.unit,
+            enabled: r.enabled,
+            expectedPeriod_s: r.expectedPeriod_s,
+            source: { id: r.sourceId, name: r.sourceName, kind: r.sourceKind },
+            signals: byTag.get(r.id) ?? [],
+            value: r.value,
+            ts: r.ts?.toISOString() ?? null,
+            age_s,
+            stale: age_s === null || age_s > STALE_PERIODS * r.expectedPeriod_s,
+            quality: r.quality === null ? null : { code: r.quality, grade: qualityGrade(r.quality), flags: qualityFlags(r.quality) },
+          };
+        }),
+      };
+    },
+
+    /** The latest balance; `balance: null` with a reason (still 200) when the engine has not computed one yet. */
+    async balanceLive(req: Request, plantId: number) {
+      await requirePlant(req, plantId);
+      const b = await repo.latestBalance(plantId);
+      if (!b) return { plantId, balance: null, age_s: null, reason: 'no balance has been computed for this plant yet' };
+      return { plantId, balance: balanceOut(b), age_s: (Date.now() - b.ts.getTime()) / 1000 };
+    },
+
+    /**
+     * Balances bucketed by step (each bucket reports its last computation, how many there were and
+     * the worst quality among them), ascending. The step is raised so the window has ≤ 2000 buckets.
+     */
+    async balanceHistory(req: Request, plantId: number, q: BalanceHistoryQuery, limit: number) {
+      await requirePlant(req, plantId);
+      let from: number, to: number, step_s: number, after: number | null;
+      if (q.cursor) {
+        const c = decodeCursor('balance-history', q.cursor, isBalanceCursor);
+        if (c.p !== plantId) throw new BadRequestError('the cursor belongs to another plant');
+        if ((q.from && Date.parse(q.from) !== c.f) || (q.to && Date.parse(q.to) !== c.t)) throw new BadRequestError('from and to must be those of the query the cursor came from (or be left out)');
+        ({ f: from, t: to, s: step_s, a: after } = c);
+      } else {
+        to = q.to ? Date.parse(q.to) : Date.now();
+        from = q.from ? Date.parse(q.from) : to - DAY_MS;
+        step_s = Math.max(q.step ?? 1, Math.ceil((to - from) / 1000 / MAX_POINTS));
+        after = null;
+      }
+      const stepMs = step_s * 1000;
+      const lo = Math.floor(from / stepMs) * stepMs;
+      const hi = Math.ceil(to / stepMs) * stepMs;
+      const rows = await repo.balanceBuckets(plantId, new Date(after ?? lo), new Date(hi), step_s, limit + 1);
+      const more = rows.length > limit;
+      const page = more ? rows.slice(0, limit) : rows;
+      const out: BalanceHistoryRow[] = page.map((r) => ({
+        bucket: r.bucket.toISOString(),
+        id: r.id,
+        ts: r.ts.toISOString(),
+        quality: r.quality,
+        worstQuality: QUALITY_NAMES[r.worst] ?? 'unavailable',
+        computations: r.computations,
+        data: r.data,
+      }));
+      const last = page[page.length - 1];
+      const nextCursor = more && last ? encodeCursor('balance-history', { p: plantId, f: from, t: to, s: step_s, a: last.bucket.getTime() + stepMs }) : null;
+      return { plantId, from: new Date(lo).toISOString(), to: new Date(hi).toISOString(), step_s, rows: out, nextCursor };
+    },
+
+    async alarms(req: Request, plantId: number, q: AlarmsQuery, limit: number) {
+      await requirePlant(req, plantId);
+      const before = q.cursor ? decodeCursor('alarms', q.cursor, isTsIdCursor) : undefined;
+      if (before && before.p !== plantId) throw new BadRequestError('the cursor belongs to another plant');
+      const rows = await repo.alarms(plantId, { state: q.state, from: q.from ? new Date(q.from) : undefined, to: q.to ? new Date(q.to) : undefined, before }, limit + 1);
+      const more = rows.length > limit;
+      const page = more ? rows.slice(0, limit) : rows;
+      const last = page[page.length - 1];
+      return { plantId, alarms: page.map(alarmOut), nextCursor: more && last ? encodeCursor('alarms', { p: plantId, ts: last.cursorTs, id: last.id }) : null };
+    },
+  };
+}
+export type PlantService = ReturnType<typeof plantService>;
+
+export const ALARM_CSV_COLUMNS = ['id', 'rule', 'target', 'priority', 'state', 'message', 'value', 'limit', 'raisedAt', 'acknowledgedAt', 'acknowledgedBy', 'clearedAt'] as const;

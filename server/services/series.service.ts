@@ -1,0 +1,127 @@
+import { MAX_POINTS, type Agg, type Resolution, type SamplePoint, type SamplesQuery, type SamplesResponse } from '../../shared/contracts/plant-api.ts';
+import { qualityFlags, qualityGrade } from '../../shared/contracts/sample-quality.ts';
+import type { AppContext } from '../app-context.ts';
+import { BadRequestError, NotFoundError } from '../http/errors.ts';
+import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
+import { plantRepository } from '../repositories/plant.repository.ts';
+import { seriesRepository, type BucketRow, type RawRow } from '../repositories/series.repository.ts';
+
+const HOUR_MS = 3_600_000;
+const STEP_ALLOWED: Record<Resolution, number> = { raw: 1, '1m': 60, '1h': 3600 };
+/** Rows per page when the caller gives no limit: a whole window fits (≤ ~2000 points, plus slack for raw tags faster than expected). */
+export const DEFAULT_SAMPLES_LIMIT = 5000;
+
+export interface ResolutionChoice {
+  resolution: Resolution;
+  /** Bucket width [s]; null = raw samples, one point each. */
+  step_s: number | null;
+}
+
+/**
+ * Which table answers a history query, and with which bucket width, so that at most ~2000
+ * points come back (DESIGN §5). Pure.
+ *
+ * - No step asked and the raw samples fit (expected by the tag's period *and* counted, up to
+ *   2000): raw samples, one point each.
+ * - Otherwise the bucket is the larger of the asked step and span/2000, rounded up to what the
+ *   resolution allows: below 60 s raw samples bucketed by the second, below 1 h rollup_1m
+ *   (multiples of 60 s), else rollup_1h (multiples of 3600 s).
+ *
+ * `rawCount` is the counted number of raw samples, capped at MAX_POINTS + 1.
+ */
+export function chooseResolution(span_ms: number, expectedPeriod_s: number, requestedStep_s: number | undefined, rawCount: number): ResolutionChoice {
+  const span_s = span_ms / 1000;
+  const expected = span_s / Math.max(expectedPeriod_s, 1e-3);
+  if (requestedStep_s === undefined && expected <= MAX_POINTS && rawCount <= MAX_POINTS) return { resolution: 'raw', step_s: null };
+  const step = Math.max(requestedStep_s ?? 1, Math.ceil(span_s / MAX_POINTS), 1);
+  const resolution: Resolution = step < 60 ? 'raw' : step < 3600 ? '1m' : '1h';
+  const unit = STEP_ALLOWED[resolution];
+  return { resolution, step_s: Math.ceil(step / unit) * unit };
+}
+
+/** The value of a bucket for an aggregate. */
+function aggValue(b: BucketRow, agg: Agg): number {
+  return agg === 'mean' ? b.mean : agg === 'min' ? b.min : agg === 'max' ? b.max : b.last;
+}
+
+function qualityOf(code: number): Pick<SamplePoint, 'quality' | 'flags'> {
+  const flags = qualityFlags(code);
+  return flags.length ? { quality: qualityGrade(code), flags } : { quality: qualityGrade(code) };
+}
+
+interface SamplesCursor extends Record<string, unknown> {
+  tag: number;
+  f: number;
+  t: number;
+  r: Resolution;
+  s: number | null;
+  rs: number | null;
+  a: Agg;
+  p: number;
+}
+const isSamplesCursor = (o: Record<string, unknown>): o is SamplesCursor =>
+  isNum(o.tag) && isNum(o.f) && isNum(o.t) && isStr(o.r) && ['raw', '1m', '1h'].includes(o.r) && (o.s === null || isNum(o.s)) && (o.rs === null || isNum(o.rs)) && isStr(o.a) && isNum(o.p);
+
+/**
+ * Tag history: picks the resolution, reads one page, and writes the cursor of the next page.
+ * A cursor carries the window, resolution and step of the first page, so every page of one
+ * query is cut the same way; query parameters given beside a cursor must agree with it.
+ */
+export function seriesService(ctx: AppContext) {
+  const series = seriesRepository(ctx.db.pool);
+  const plants = plantRepository(ctx.db.db, ctx.db.pool);
+  return {
+    async samples(plantId: number, tagId: number, q: SamplesQuery): Promise<SamplesResponse> {
+      const tag = await plants.tag(plantId, tagId);
+      if (!tag) throw new NotFoundError(`plant ${plantId} has no tag ${tagId}`);
+      const limit = q.limit ?? DEFAULT_SAMPLES_LIMIT;
+      const agg: Agg = q.agg ?? 'mean';
+
+      let from: number, to: number, choice: ResolutionChoice, requestedStep: number | null, after: number | null;
+      if (q.cursor) {
+        const c = decodeCursor('samples', q.cursor, isSamplesCursor);
+        if (c.tag !== tagId) throw new BadRequestError('the cursor belongs to another tag');
+        if ((q.from && Date.parse(q.from) !== c.f) || (q.to && Date.parse(q.to) !== c.t) || (q.step !== undefined && q.step !== c.rs) || (q.agg && q.agg !== c.a)) {
+          throw new BadRequestError('from, to, step and agg must be those of the query the cursor came from (or be left out)');
+        }
+        ({ f: from, t: to, rs: requestedStep, p: after } = c);
+        choice = { resolution: c.r, step_s: c.s };
+        return this.page(tagId, tag.unit, from, to, choice, requestedStep, c.a, limit, after);
+      }
+      to = q.to ? Date.parse(q.to) : Date.now();
+      from = q.from ? Date.parse(q.from) : to - HOUR_MS;
+      requestedStep = q.step ?? null;
+      const rawCount = q.step === undefined && (to - from) / 1000 / Math.max(tag.expectedPeriod_s, 1e-3) <= MAX_POINTS ? await series.rawCountUpTo(tagId, new Date(from), new Date(to), MAX_POINTS + 1) : MAX_POINTS + 1;
+      choice = chooseResolution(to - from, tag.expectedPeriod_s, q.step, rawCount);
+      return this.page(tagId, tag.unit, from, to, choice, requestedStep, agg, limit, null);
+    },
+
+    /** One page of a query whose window and resolution are settled; `after` = position after the previous page (ms). */
+    async page(tagId: number, unit: string, from: number, to: number, choice: ResolutionChoice, requestedStep: number | null, agg: Agg, limit: number, after: number | null): Promise<SamplesResponse> {
+      const base = { tagId, unit, resolution: choice.resolution, step_s: choice.step_s, agg };
+      const cursorOf = (p: number) => encodeCursor('samples', { tag: tagId, f: from, t: to, r: choice.resolution, s: choice.step_s, rs: requestedStep, a: agg, p });
+      if (choice.step_s === null) {
+        // Raw samples: [from, to), a next page strictly after the last timestamp sent.
+        const rows: RawRow[] = await series.raw(tagId, new Date(after ?? from), new Date(to), limit + 1, after !== null);
+        const more = rows.length > limit;
+        const page = more ? rows.slice(0, limit) : rows;
+        const points = page.map((r) => ({ ts: r.ts.toISOString(), value: r.value, ...qualityOf(r.quality) }));
+        return { ...base, from: new Date(from).toISOString(), to: new Date(to).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]!.ts.getTime()) : null };
+      }
+      // Buckets: the window widened to whole buckets, so the first and last bucket are complete.
+      const stepMs = choice.step_s * 1000;
+      const lo = Math.floor(from / stepMs) * stepMs;
+      const hi = Math.ceil(to / stepMs) * stepMs;
+      const rows = await series.buckets(choice.resolution, tagId, new Date(after ?? lo), new Date(hi), choice.step_s, limit + 1);
+      const more = rows.length > limit;
+      const page = more ? rows.slice(0, limit) : rows;
+      const points = page.map((b) => ({ ts: b.ts.toISOString(), value: aggValue(b, agg), min: b.min, max: b.max, count: b.count, ...qualityOf(b.quality) }));
+      return { ...base, from: new Date(lo).toISOString(), to: new Date(hi).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]!.ts.getTime() + stepMs) : null };
+    },
+  };
+}
+
+export const SAMPLE_CSV_COLUMNS = ['ts', 'value', 'min', 'max', 'count', 'quality', 'flags'] as const;
+export function sampleCsvRows(points: SamplePoint[]) {
+  return points.map((p) => [p.ts, p.value, p.min, p.max, p.count, p.quality, p.flags?.join(';')]);
+}
