@@ -1,0 +1,96 @@
+import fs from 'node:fs';
+import path from 'node:path';
+import { DataType, OPCUACertificateManager, OPCUAServer, StatusCodes, type StatusCode, type UAVariable } from 'node-opcua';
+import pg from 'pg';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { IngestService } from '../../../ingest/ingest-service.ts';
+import { QUALITY_FLAG, qualityFlags, qualityGrade } from '../../../shared/contracts/sample-quality.ts';
+import { createTestDatabase, type TestDatabase } from '../../helpers/db.ts';
+import { freePort, ingestConfig, scalar, seedWiring, silentLog, tempDir, waitFor } from './helpers.ts';
+
+describe('OPC UA → PostgreSQL', () => {
+  let t: TestDatabase;
+  let pool: pg.Pool;
+  let server: OPCUAServer;
+  let svc: IngestService;
+  let level: UAVariable;
+  let flow: UAVariable;
+  let tagIds: number[];
+  let endpoint: string;
+  const dataDir = tempDir('opcua-it');
+
+  beforeAll(async () => {
+    t = await createTestDatabase();
+    pool = new pg.Pool({ connectionString: t.url, max: 2 });
+    const port = await freePort();
+    const pki = path.join(dataDir, 'pki', 'test-server');
+    server = new OPCUAServer({
+      port,
+      host: '127.0.0.1',
+      hostname: '127.0.0.1',
+      resourcePath: '/it',
+      serverCertificateManager: new OPCUACertificateManager({ rootFolder: path.join(pki, 'server'), automaticallyAcceptUnknownCertificate: true }),
+      userCertificateManager: new OPCUACertificateManager({ rootFolder: path.join(pki, 'user'), automaticallyAcceptUnknownCertificate: true }),
+    });
+    await server.initialize();
+    const ns = server.engine.addressSpace!.getOwnNamespace();
+    const folder = ns.addFolder(server.engine.addressSpace!.rootFolder.objects, { browseName: 'IT' });
+    level = ns.addVariable({ componentOf: folder, browseName: 'Level', nodeId: 's=IT.Level', dataType: 'Double', minimumSamplingInterval: 50 });
+    flow = ns.addVariable({ componentOf: folder, browseName: 'Flow', nodeId: 's=IT.Flow', dataType: 'Double', minimumSamplingInterval: 50 });
+    level.setValueFromSource({ dataType: DataType.Double, value: 1 }, StatusCodes.Good, new Date(Date.UTC(2026, 2, 1, 0, 0, 0)));
+    flow.setValueFromSource({ dataType: DataType.Double, value: 10 }, StatusCodes.Good, new Date(Date.UTC(2026, 2, 1, 0, 0, 0)));
+    await server.start();
+    endpoint = `opc.tcp://127.0.0.1:${port}/it`;
+    const seeded = await seedWiring(t.url, {
+      kind: 'opcua',
+      sourceUrl: endpoint,
+      options: { securityMode: 'SignAndEncrypt', securityPolicy: 'Basic256Sha256', acceptUnknownServerCertificate: true, publishingInterval_ms: 100 },
+      addresses: ['ns=1;s=IT.Level', 'ns=1;s=IT.Flow'],
+      tag: { scaleGain: 2, scaleOffset: 0.5, rangeLow: 0, rangeHigh: 100, samplingInterval_ms: 50 },
+    });
+    tagIds = seeded.tagIds;
+    svc = await IngestService.start(ingestConfig(t.url, dataDir), silentLog);
+  });
+
+  afterAll(async () => {
+    await svc?.stop();
+    await server?.shutdown(0);
+    await pool?.end();
+    await t?.drop();
+  });
+
+  it('stores values with their source timestamps and maps StatusCodes to quality (SignAndEncrypt)', async () => {
+    await waitFor('opcua connected', async () => svc.status().sources[0]?.state, (s) => s === 'connected', 30_000);
+    await waitFor('initial values', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1)`, [tagIds]), (n) => n >= 2, 15_000);
+    const base = Date.UTC(2026, 2, 1, 1, 0, 0);
+    const steps: [number, number, StatusCode][] = [
+      [base + 1_000, 3, StatusCodes.Good],
+      [base + 2_000, 4, StatusCodes.UncertainLastUsableValue],
+      [base + 3_000, 5, StatusCodes.BadSensorFailure],
+      [base + 4_000, 70, StatusCodes.Good], // 70 × 2 + 0.5 = 140.5 > rangeHigh 100
+    ];
+    for (const [ts, v, sc] of steps) {
+      level.setValueFromSource({ dataType: DataType.Double, value: v }, sc, new Date(ts));
+      await new Promise((r) => setTimeout(r, 250));
+    }
+    const q = `SELECT (extract(epoch FROM ts) * 1000)::float8 ms, value, quality FROM samples WHERE tag_id = $1 AND ts >= $2 ORDER BY ts`;
+    const rows = await waitFor('four samples', async () => (await pool.query(q, [tagIds[0], new Date(base)])).rows, (r) => r.length === 4, 15_000);
+    expect(rows.map((r) => r.ms)).toEqual(steps.map((s) => s[0]));
+    expect(rows[0]).toMatchObject({ value: 6.5, quality: 0 });
+    expect(qualityGrade(rows[1].quality)).toBe('uncertain');
+    expect(rows[1].quality & QUALITY_FLAG.sourceStatus).not.toBe(0);
+    expect(rows[1].value).toBe(8.5);
+    expect(qualityGrade(rows[2].quality)).toBe('bad');
+    expect(rows[2].value).toBeNull();
+    expect(qualityGrade(rows[3].quality)).toBe('uncertain');
+    expect(qualityFlags(rows[3].quality)).toEqual(['outOfRange']);
+    // The Bad sample is not in the rollup; tag_latest has the newest.
+    expect(await scalar(pool, `SELECT sum(count) FROM rollup_1m WHERE tag_id = $1 AND bucket >= $2`, [tagIds[0], new Date(base)])).toBe(3);
+    const latest = await pool.query(`SELECT value FROM tag_latest WHERE tag_id = $1`, [tagIds[0]]);
+    expect(latest.rows[0].value).toBe(140.5);
+    const st = svc.status().sources[0]!;
+    expect(st.details.securityMode).toBe('SignAndEncrypt');
+    // The client's PKI is under the data folder, not the home folder.
+    expect(fs.readdirSync(path.join(dataDir, 'pki', 'ingest-client', 'own', 'certs')).length).toBeGreaterThan(0);
+  });
+});
