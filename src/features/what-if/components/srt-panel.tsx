@@ -1,0 +1,61 @@
+import type { FormEvent } from 'react';
+import { srtRequest } from '../../../../shared/contracts/calc.ts';
+import { Button, Panel } from '../../../components/ui/controls.tsx';
+import { useSrtCalc } from '../api/srt.ts';
+import { KESTREL_BEND } from '../defaults.ts';
+import { useCalcForm } from '../hooks/use-calc-form.ts';
+import { Caution, mergeErrors, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+
+const FIELDS: { key: keyof typeof KESTREL_BEND.srt; label: string; unit: string; hint?: string }[] = [
+  { key: 'aerationMass_kg', label: 'Aeration mass', unit: 'kg' },
+  { key: 'clarifierMass_kg', label: 'Clarifier mass', unit: 'kg' },
+  { key: 'wasFlow_m3h', label: 'WAS flow', unit: 'm³/h' },
+  { key: 'wasTss_gL', label: 'WAS TSS', unit: 'g/L' },
+  { key: 'effluentFlow_m3h', label: 'Effluent flow', unit: 'm³/h' },
+  { key: 'effluentTss_gL', label: 'Effluent TSS', unit: 'g/L' },
+  { key: 'targetSrt_d', label: 'Target SRT', unit: 'd', hint: 'optional' },
+];
+
+export function SrtPanel() {
+  const form = useCalcForm(srtRequest, KESTREL_BEND.srt, { optionalKeys: ['targetSrt_d'] });
+  const calc = useSrtCalc();
+  const { fe, general } = mergeErrors(form.errors, calc.error);
+  const submit = (e: FormEvent) => {
+    e.preventDefault();
+    const body = form.submit();
+    if (body) calc.mutate(body);
+    else calc.reset();
+  };
+  const r = calc.data;
+  return (
+    <Panel title="Sludge age (SRT)">
+      <form onSubmit={submit} aria-label="Sludge age inputs" noValidate>
+        <div className="grid grid-cols-3 gap-x-3 gap-y-1.5">
+          {FIELDS.map((f) => (
+            <NumField key={f.key} name={`srt.${f.key}`} label={f.label} unit={f.unit} hint={f.hint} width="w-24" value={form.values[f.key] ?? ''} onChange={(v) => form.set(f.key, v)} error={fe[f.key]} />
+          ))}
+        </div>
+        <div className="mt-2">
+          <Button kind="primary" type="submit" disabled={calc.isPending}>
+            Calculate SRT
+          </Button>
+        </div>
+      </form>
+      {general}
+      {r ? (
+        <div data-testid="srt-result">
+          <ResultHeader stale={form.stale} />
+          <Readouts
+            rows={[
+              { label: 'Total SRT', value: r.srtTotal_d, unit: 'd' },
+              { label: 'Aeration-only SRT', value: r.srtAeration_d, unit: 'd' },
+              ...(r.wasFlowForTarget_m3h !== undefined ? [{ label: 'WAS flow for the target SRT', value: r.wasFlowForTarget_m3h, unit: 'm³/h', digits: 1 }] : []),
+            ]}
+          />
+          <QualityLine quality={r.quality} reasons={r.reasons} />
+          <Caution />
+        </div>
+      ) : null}
+    </Panel>
+  );
+}

@@ -1,0 +1,55 @@
+import type { FormEvent } from 'react';
+import { sviRequest } from '../../../../shared/contracts/calc.ts';
+import { Button, Field, Panel, Select } from '../../../components/ui/controls.tsx';
+import { useSviCalc } from '../api/svi.ts';
+import { KESTREL_BEND } from '../defaults.ts';
+import { useCalcForm } from '../hooks/use-calc-form.ts';
+import { mergeErrors, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+
+export function SviPanel() {
+  const form = useCalcForm(sviRequest, KESTREL_BEND.svi, { textKeys: ['kind'], optionalKeys: ['dilutionFactor', 'kind'] });
+  const calc = useSviCalc();
+  const { fe, general } = mergeErrors(form.errors, calc.error);
+  const submit = (e: FormEvent) => {
+    e.preventDefault();
+    const body = form.submit();
+    if (body) calc.mutate(body);
+    else calc.reset();
+  };
+  const r = calc.data;
+  const num = (key: keyof typeof KESTREL_BEND.svi, label: string, unit: string, hint?: string) => (
+    <NumField name={`svi.${key}`} label={label} unit={unit} hint={hint} width="w-20" value={form.values[key] ?? ''} onChange={(v) => form.set(key, v)} error={fe[key]} />
+  );
+  return (
+    <Panel title="Settleability index">
+      <form onSubmit={submit} aria-label="Settleability inputs" noValidate>
+        <div className="grid grid-cols-2 gap-x-3 gap-y-1.5">
+          {num('settledVolume_mLL', 'Settled volume', 'mL/L', 'after 30 min; of the diluted sample for a DSVI')}
+          {num('mlss_gL', 'MLSS (undiluted)', 'g/L')}
+          {num('dilutionFactor', 'Dilution factor', '–', 'blank or 1: undiluted')}
+          <Field label="Test kind" error={fe.kind}>
+            <Select className="w-full" name="svi.kind" value={form.values.kind ?? ''} onChange={(e) => form.set('kind', e.target.value)}>
+              <option value="">infer from dilution</option>
+              <option value="SVI">SVI</option>
+              <option value="DSVI">DSVI</option>
+              <option value="SSVI">SSVI3.5 (stirred)</option>
+            </Select>
+          </Field>
+        </div>
+        <div className="mt-2">
+          <Button kind="primary" type="submit" disabled={calc.isPending}>
+            Calculate index
+          </Button>
+        </div>
+      </form>
+      {general}
+      {r ? (
+        <div data-testid="svi-result">
+          <ResultHeader stale={form.stale} />
+          <Readouts rows={[{ label: `${r.kind}`, value: r.svi_mLg, unit: 'mL/g', digits: 0 }]} />
+          <QualityLine quality={r.quality} reasons={r.reasons} />
+        </div>
+      ) : null}
+    </Panel>
+  );
+}
