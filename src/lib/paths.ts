@@ -9,5 +9,26 @@ export const paths = {
   user: (id: number) => `${v1}/users/${id}`,
   tokens: `${v1}/tokens`,
   token: (id: number) => `${v1}/tokens/${id}`,
+  plants: `${v1}/plants`,
+  plant: (id: number) => `${v1}/plants/${id}`,
+  plantTags: (id: number) => `${v1}/plants/${id}/tags`,
+  tagSamples: (plantId: number, tagId: number) => `${v1}/plants/${plantId}/tags/${tagId}/samples`,
+  balanceLive: (id: number) => `${v1}/plants/${id}/balance/live`,
+  balanceHistory: (id: number) => `${v1}/plants/${id}/balance/history`,
+  alarms: (id: number) => `${v1}/plants/${id}/alarms`,
+  alarmAck: (plantId: number, alarmId: number) => `${v1}/plants/${plantId}/alarms/${alarmId}/ack`,
+  labResults: (id: number) => `${v1}/plants/${id}/lab-results`,
+  labImport: (id: number) => `${v1}/plants/${id}/lab-results/import`,
+  stream: (id: number) => `${v1}/plants/${id}/stream`,
+  settings: `${v1}/settings`,
+  outbox: `${v1}/outbox`,
+  outboxMessage: (id: number) => `${v1}/outbox/${id}`,
+  /** Adds a query string, leaving out undefined values. */
+  withQuery: (url: string, q: Record<string, string | number | undefined>) => {
+    const sp = new URLSearchParams();
+    for (const [k, v] of Object.entries(q)) if (v !== undefined) sp.set(k, String(v));
+    const s = sp.toString();
+    return s ? `${url}?${s}` : url;
+  },
   calc: (name: 'storm' | 'state-point' | 'settler' | 'srt' | 'svi') => `${v1}/calc/${name}`,
 };
