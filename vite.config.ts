@@ -7,7 +7,7 @@ const apiPort = Number(process.env.PORT ?? 3000);
 
 export default defineConfig({
   plugins: [react(), tailwindcss()],
-  build: { outDir: 'dist', sourcemap: false, chunkSizeWarningLimit: 900 },
+  build: { outDir: 'dist', sourcemap: false, manifest: true, chunkSizeWarningLimit: 900 },
   server: {
     host: '127.0.0.1',
     port: 5173,
