@@ -1,0 +1,128 @@
+import { z } from 'zod';
+
+/**
+ * One live solids balance of a plant, as the balance engine stores it (`balances.data` and
+ * `balances.inputs`) and publishes it. Every number is a figure with its unit, quality and the
+ * reasons for any downgrade (shared/domain/quality.ts): a missing, stale or bad input makes a
+ * figure `estimated` or `unavailable` (value null), never a silent zero.
+ */
+export const figureQuality = z.enum(['good', 'estimated', 'unavailable']);
+export const figureOut = z.object({
+  value: z.number().nullable(),
+  quality: figureQuality,
+  reasons: z.array(z.string()),
+  unit: z.string(),
+});
+export type FigureOut = z.infer<typeof figureOut>;
+
+export const stormCheckOut = z.object({ rule: z.enum(['min-mlss', 'max-stored-fraction', 'max-blanket-rise']), ok: z.boolean(), value: z.number(), limit: z.number() });
+
+export const balanceBasinOut = z.object({ code: z.string(), train: z.string(), volume_m3: z.number(), mlss_gL: figureOut, mass_kg: figureOut });
+export const balanceClarifierOut = z.object({
+  code: z.string(),
+  train: z.string(),
+  area_m2: z.number(),
+  sideWaterDepth_m: z.number(),
+  blanketLevel_m: figureOut,
+  /** Slope of the blanket level over the rate window (least squares) [m/h]. */
+  blanketRate_m_h: figureOut,
+  underflowTss_gL: figureOut,
+  effluentTss_gL: figureOut,
+  blanketConc_gL: figureOut,
+  blanketMass_kg: figureOut,
+  /** Mass from integrating the clarifier balance over the integral window, from the blanket mass at its start. */
+  integratedMass_kg: figureOut,
+  integralDiscrepancy_kg: figureOut,
+});
+export const balanceTrainOut = z.object({
+  code: z.string(),
+  influentFlow_m3h: figureOut,
+  rasFlow_m3h: figureOut,
+  wasFlow_m3h: figureOut,
+  mlss_gL: figureOut,
+  rasPumpCapacity_m3h: z.number(),
+  ras: z.object({
+    rasConcMax_gL: figureOut,
+    requiredRasConc_gL: figureOut,
+    concentrationMargin: figureOut,
+    minRecycleRatio: figureOut,
+    minRasFlow_m3h: figureOut,
+    pumpMargin: figureOut,
+    concentrationLimitFlow_m3h: figureOut,
+    pumpLimitFlow_m3h: figureOut,
+  }),
+  storm: z.object({
+    stormFlow_m3h: figureOut,
+    equilibriumMlss_gL: figureOut,
+    sludgeToClarifiers_kg: figureOut,
+    blanketRise_m: figureOut,
+    storedFraction: figureOut,
+    checks: z.array(stormCheckOut),
+  }),
+});
+
+export const balanceDataOut = z.object({
+  inventory: z.object({ aerationMass_kg: figureOut, clarifierMass_kg: figureOut, totalMass_kg: figureOut, storedFraction: figureOut }),
+  basins: z.array(balanceBasinOut),
+  clarifiers: z.array(balanceClarifierOut),
+  trains: z.array(balanceTrainOut),
+  settleability: z.object({ svi_mLg: figureOut, kind: z.enum(['SVI', 'DSVI']).nullable(), sampledAt: z.iso.datetime().nullable() }),
+  storm: z.object({ peakFlow_m3h: figureOut, source: z.enum(['plant', 'setting', 'none']) }),
+  srt: z.object({
+    total_d: figureOut,
+    aeration_d: figureOut,
+    coverage: z.number(),
+    dynamic_d: figureOut,
+    target_d: z.number(),
+    wasAdvice_m3h: figureOut,
+    wasFlow_m3h: figureOut,
+  }),
+  /** Operator caution carried with every balance (the figures are advisory). */
+  caution: z.string(),
+});
+export type BalanceData = z.infer<typeof balanceDataOut>;
+
+export const balanceInputOut = z.object({
+  tagId: z.number().int(),
+  tag: z.string(),
+  signal: z.string(),
+  target: z.string(),
+  value: z.number().nullable(),
+  unit: z.string(),
+  quality: figureQuality,
+  reasons: z.array(z.string()),
+  /** Null: nothing received for this tag yet. */
+  ts: z.iso.datetime().nullable(),
+  receivedAt: z.iso.datetime().nullable(),
+  /** Wall-clock seconds since ingest received the value. */
+  age_s: z.number().nullable(),
+  /** Sample-time seconds the value lags behind the newest sample of the plant. */
+  lag_s: z.number().nullable(),
+  expectedPeriod_s: z.number(),
+  stale: z.boolean(),
+  /** The source or ingest graded the value bad (or its unit does not fit the signal). */
+  bad: z.boolean(),
+});
+export const balanceInputsOut = z.object({
+  signals: z.array(balanceInputOut),
+  plantClock: z.iso.datetime().nullable(),
+  lastReceivedAt: z.iso.datetime().nullable(),
+  /** Wall-clock seconds since any tag of the plant was received (null: never). */
+  ingestAge_s: z.number().nullable(),
+  svi: z.object({ kind: z.enum(['SVI', 'DSVI']), value_mLg: z.number(), sampledAt: z.iso.datetime() }).nullable(),
+});
+export type BalanceInputs = z.infer<typeof balanceInputsOut>;
+
+export const balanceOut = z.object({
+  id: z.number().int().optional(),
+  plantId: z.number().int(),
+  ts: z.iso.datetime(),
+  quality: figureQuality,
+  data: balanceDataOut,
+  inputs: balanceInputsOut,
+});
+export type Balance = z.infer<typeof balanceOut>;
+
+/** The caution every advisory output carries (design: the licensed operator decides). */
+export const OPERATOR_CAUTION =
+  'Advisory figures computed from live signals and rules of thumb; the licensed operator decides on any operating change.';

@@ -1,0 +1,163 @@
+import { describe, expect, it } from 'vitest';
+import { balanceOut } from '../../../shared/contracts/balance.ts';
+import { computeBalance, unitFactor } from '../../../server/services/balance.service.ts';
+import { fixtureInputs, NOW, settings } from './balance-fixture.ts';
+
+/**
+ * Hand computations for the fixture plant (tests/unit/server/balance-fixture.ts), each from the
+ * design §3 formula named beside it:
+ *   basin mass     X·V = 3.0 g/L × 6000 m³                         = 18 000 kg      (item 7/inventory)
+ *   blanket mass   level × area × X_R = 1.0 × 1500 × 8.0            = 12 000 kg      (item 7, 'ras' method)
+ *   stored frac.   12 000 / 30 000                                  = 0.4
+ *   X_R,max        1200 / SVI = 1200 / 120                          = 10 g/L         (item 2, [CP])
+ *   X_R required   X·(Q+Q_R)/Q_R = 3 × 1400 / 600                   = 7.0 g/L        (item 1)
+ *   conc. margin   1 − 7/10                                         = 0.3            (item 3)
+ *   R_min          X/(X_R,max − X) = 3/7                            = 0.428571…
+ *   Q_R,min        800 × 3/7                                        = 342.857… m³/h
+ *   pump margin    1 − 342.857/850                                  = 0.596639…
+ *   solids loss    Q_W·X_W + Q_e·X_e = 20×8 + 780×0.010             = 167.8 kg/h     (item 5)
+ *   SRT total      30 000 / 167.8 / 24                              = 7.44934 d
+ *   SRT aeration   18 000 / 167.8 / 24                              = 4.46961 d
+ *   WAS advice     (30 000/(10×24) − 7.8)/8                         = 14.65 m³/h
+ *   storm X'       X_R,max·Q_R/(Q_s+Q_R) = 10×600/2200              = 2.72727 g/L    (item 4)
+ *   moved          (3 − 2.72727)×6000                               = 1636.36 kg
+ *   blanket rise   1636.36 kg × 0.120 m³/kg / 1500 m²               = 0.130909 m
+ *   stored after   (12 000 + 1636.36)/30 000                        = 0.454545 (fails the 0.30 rule)
+ *   clarifier balance residual (Q+Q_R)X − (Q_R+Q_W)X_R − Q_e·X_e
+ *                  = 4200 − 4960 − 7.8 = −767.8 kg/h; over the 1 h integral window
+ *                  12 000 − 767.8                                   = 11 232.2 kg, discrepancy −767.8 kg
+ */
+describe('computeBalance: fixture signals against a hand computation', () => {
+  const b = computeBalance(fixtureInputs(), settings());
+  const d = b.data;
+  const t = d.trains[0]!;
+
+  it('matches the contract', () => {
+    expect(balanceOut.safeParse(b).success).toBe(true);
+  });
+  it('inventory', () => {
+    expect(d.basins[0]!.mass_kg).toMatchObject({ value: 18_000, quality: 'good', unit: 'kg' });
+    expect(d.clarifiers[0]!.blanketMass_kg.value).toBeCloseTo(12_000, 6);
+    expect(d.inventory.totalMass_kg.value).toBeCloseTo(30_000, 6);
+    expect(d.inventory.storedFraction.value).toBeCloseTo(0.4, 9);
+    expect(d.clarifiers[0]!.effluentTss_gL.value).toBeCloseTo(0.01, 12);
+  });
+  it('RAS margins', () => {
+    expect(t.ras.rasConcMax_gL.value).toBeCloseTo(10, 9);
+    expect(t.ras.requiredRasConc_gL.value).toBeCloseTo(7, 9);
+    expect(t.ras.concentrationMargin).toMatchObject({ quality: 'good' });
+    expect(t.ras.concentrationMargin.value).toBeCloseTo(0.3, 9);
+    expect(t.ras.minRecycleRatio.value).toBeCloseTo(3 / 7, 9);
+    expect(t.ras.minRasFlow_m3h.value).toBeCloseTo(342.857142857, 6);
+    expect(t.ras.pumpMargin.value).toBeCloseTo(1 - 342.857142857 / 850, 6);
+  });
+  it('SRT and WAS advice', () => {
+    expect(d.srt.total_d.quality).toBe('good');
+    expect(d.srt.total_d.value).toBeCloseTo(7.44934, 4);
+    expect(d.srt.aeration_d.value).toBeCloseTo(4.46961, 4);
+    expect(d.srt.dynamic_d.value).toBeCloseTo(7.44934, 3);
+    expect(d.srt.wasAdvice_m3h.value).toBeCloseTo(14.65, 6);
+    expect(d.srt.wasFlow_m3h.value).toBe(20);
+  });
+  it('storm projection at the plant peak flow', () => {
+    expect(d.storm).toMatchObject({ source: 'plant', peakFlow_m3h: { value: 1600, quality: 'good' } });
+    expect(t.storm.equilibriumMlss_gL.value).toBeCloseTo(2.727272727, 6);
+    expect(t.storm.sludgeToClarifiers_kg.value).toBeCloseTo(1636.3636, 3);
+    expect(t.storm.blanketRise_m.value).toBeCloseTo(0.130909, 5);
+    expect(t.storm.storedFraction.value).toBeCloseTo(0.454545, 5);
+    expect(t.storm.checks.map((c) => [c.rule, c.ok])).toEqual([
+      ['min-mlss', true],
+      ['max-stored-fraction', false],
+      ['max-blanket-rise', true],
+    ]);
+  });
+  it('clarifier balance integral beside the blanket mass', () => {
+    expect(d.clarifiers[0]!.integratedMass_kg.value).toBeCloseTo(11_232.2, 3);
+    expect(d.clarifiers[0]!.integralDiscrepancy_kg.value).toBeCloseTo(-767.8, 3);
+    expect(d.clarifiers[0]!.blanketRate_m_h.value).toBeCloseTo(0, 9);
+  });
+  it('every figure carries unit and quality; inputs carry age', () => {
+    expect(b.quality).toBe('good');
+    expect(b.inputs.signals).toHaveLength(7);
+    for (const i of b.inputs.signals) expect(i).toMatchObject({ quality: 'good', stale: false, bad: false, age_s: 1 });
+    expect(d.caution).toMatch(/licensed operator decides/);
+  });
+});
+
+describe('computeBalance: missing, stale and bad inputs', () => {
+  it('a stale MLSS (received 100 s ago, period 10 s) is used but estimated, with the reason', () => {
+    const b = computeBalance(fixtureInputs({ override: { x: { receivedAt_ms: NOW - 100_000, ts_ms: NOW - 100_000 } } }), settings());
+    const input = b.inputs.signals.find((i) => i.tag === 'AIT-111')!;
+    expect(input).toMatchObject({ stale: true, quality: 'estimated', value: 3 });
+    expect(b.data.basins[0]!.mass_kg).toMatchObject({ value: 18_000, quality: 'estimated' });
+    expect(b.data.basins[0]!.mass_kg.reasons.join()).toMatch(/AIT-111: stale: last value 100 s old \(> 3 × 10 s/);
+    expect(b.data.trains[0]!.ras.concentrationMargin.quality).toBe('estimated');
+    expect(b.quality).toBe('estimated');
+  });
+  it('staleness by receive time even when the sample time is recent (simulated clock ahead)', () => {
+    const b = computeBalance(fixtureInputs({ override: { x: { receivedAt_ms: NOW - 100_000 } } }), settings());
+    expect(b.inputs.signals.find((i) => i.tag === 'AIT-111')).toMatchObject({ stale: true, lag_s: 0, age_s: 100 });
+  });
+  it('staleness by lag behind the plant clock even when just received (a source replaying an old value)', () => {
+    const b = computeBalance(fixtureInputs({ override: { x: { ts_ms: NOW - 200_000 } } }), settings());
+    expect(b.inputs.signals.find((i) => i.tag === 'AIT-111')).toMatchObject({ stale: true, lag_s: 199, age_s: 1 });
+  });
+  it('an MLSS older than inputs.max_age_s is unavailable, and so is everything built on it — no zero', () => {
+    const b = computeBalance(fixtureInputs({ override: { x: { receivedAt_ms: NOW - 1_000_000, ts_ms: NOW - 1_000_000 } } }), settings());
+    expect(b.data.basins[0]!.mlss_gL).toMatchObject({ value: null, quality: 'unavailable' });
+    expect(b.data.inventory.totalMass_kg).toMatchObject({ value: null, quality: 'unavailable' });
+    expect(b.data.trains[0]!.ras.concentrationMargin.value).toBeNull();
+    expect(b.data.trains[0]!.ras.concentrationMargin.reasons.join()).toMatch(/AIT-111: stale.*beyond the 900 s/);
+    expect(b.quality).toBe('unavailable');
+  });
+  it('a bad sample or an unmapped signal is unavailable with the reason', () => {
+    const bad = computeBalance(fixtureInputs({ override: { xr: { qualityCode: 2 | 8 } } }), settings());
+    expect(bad.data.clarifiers[0]!.blanketMass_kg).toMatchObject({ value: null, quality: 'unavailable' });
+    expect(bad.data.clarifiers[0]!.blanketMass_kg.reasons.join()).toMatch(/AIT-221: bad quality \(outOfRange\)/);
+    expect(bad.inputs.signals.find((i) => i.tag === 'AIT-221')).toMatchObject({ bad: true });
+    const missing = computeBalance(fixtureInputs({ override: { qr: null } }), settings());
+    expect(missing.data.trains[0]!.rasFlow_m3h.reasons.join()).toMatch(/no tag mapped for pump.flow of ras1/);
+    expect(missing.data.trains[0]!.ras.pumpMargin.value).toBeNull();
+  });
+  it('an uncertain sample makes its figures estimated', () => {
+    const b = computeBalance(fixtureInputs({ override: { q: { qualityCode: 1 | 16 } } }), settings());
+    expect(b.data.trains[0]!.influentFlow_m3h).toMatchObject({ value: 800, quality: 'estimated' });
+    expect(b.data.trains[0]!.ras.requiredRasConc_gL.reasons.join()).toMatch(/FIT-111: uncertain quality \(flatLine\)/);
+  });
+  it('no SVI: RAS concentration limit, margins and storm unavailable with the reason; inventory still good', () => {
+    const b = computeBalance(fixtureInputs({ svi: null }), settings());
+    const t = b.data.trains[0]!;
+    for (const f of [t.ras.rasConcMax_gL, t.ras.concentrationMargin, t.ras.pumpMargin, t.storm.equilibriumMlss_gL]) {
+      expect(f.value).toBeNull();
+      expect(f.reasons.join()).toMatch(/no SVI or DSVI/);
+    }
+    expect(b.data.inventory.totalMass_kg.quality).toBe('good');
+  });
+  it('no peak flow on the plant: 2 × the 24 h mean influent, estimated, and said so', () => {
+    const b = computeBalance(fixtureInputs({ peakFlow_m3h: null }), settings());
+    expect(b.data.storm.source).toBe('setting');
+    expect(b.data.storm.peakFlow_m3h).toMatchObject({ value: 1600, quality: 'estimated' });
+    expect(b.data.storm.peakFlow_m3h.reasons[0]).toMatch(/storm flow taken as 2 × the 24 h mean influent 800 m3\/h/);
+    expect(b.data.trains[0]!.storm.equilibriumMlss_gL.quality).toBe('estimated');
+  });
+  it('no effluent TSS: SRT estimated with effluent solids taken as 0 (overstated), said so', () => {
+    const b = computeBalance(fixtureInputs({ override: { xe: null } }), settings());
+    // 30 000 / (20 × 8) / 24 = 7.8125 d
+    expect(b.data.srt.total_d.value).toBeCloseTo(7.8125, 4);
+    expect(b.data.srt.total_d.quality).toBe('estimated');
+    expect(b.data.srt.total_d.reasons.join()).toMatch(/effluent solids taken as 0/);
+  });
+  it('a short history makes the rolling SRT estimated or unavailable by coverage', () => {
+    expect(computeBalance(fixtureInputs({ hours: 18 }), settings()).data.srt.total_d.quality).toBe('estimated');
+    const short = computeBalance(fixtureInputs({ hours: 6 }), settings()).data.srt.total_d;
+    expect(short.value).toBeNull();
+    expect(short.reasons.join()).toMatch(/cover only 25 %/);
+  });
+  it('units: known equivalents convert, a unit of the wrong dimension is refused', () => {
+    expect(unitFactor('clarifier.effluentTss', 'mg/L')).toBe(1e-3);
+    expect(unitFactor('pump.flow', 'L/s')).toBe(3.6);
+    expect(unitFactor('basin.mlss', 'm')).toBeNull();
+    const b = computeBalance(fixtureInputs({ override: { x: { unit: 'm' } } }), settings());
+    expect(b.data.basins[0]!.mlss_gL.reasons.join()).toMatch(/unit 'm' does not fit signal basin.mlss/);
+  });
+});
