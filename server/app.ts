@@ -15,7 +15,10 @@ import { mount, type RouteDef } from './http/route.ts';
 import { authRoutes } from './routes/auth.routes.ts';
 import { calcRoutes } from './routes/calc.routes.ts';
 import { labRoutes } from './routes/lab.routes.ts';
+import { alarmsRoutes } from './routes/alarms.routes.ts';
+import { outboxRoutes } from './routes/outbox.routes.ts';
 import { plantsRoutes } from './routes/plants.routes.ts';
+import { settingsRoutes } from './routes/settings.routes.ts';
 import { streamRoutes } from './routes/stream.routes.ts';
 import { tokensRoutes } from './routes/tokens.routes.ts';
 import { usersRoutes } from './routes/users.routes.ts';
@@ -26,6 +29,9 @@ const DIST = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../dist
 /** Every /api/v1 route of the product, in one list (mounted, documented and role-tested from it). */
 export function apiRoutes(ctx: AppContext): RouteDef[] {
   const defs: RouteDef[] = [...authRoutes(ctx), ...usersRoutes(ctx), ...tokensRoutes(ctx), ...calcRoutes(ctx), ...plantsRoutes(ctx), ...labRoutes(ctx), ...streamRoutes(ctx)];
+  defs.push(...alarmsRoutes(ctx));
+  defs.push(...settingsRoutes(ctx));
+  defs.push(...outboxRoutes(ctx));
   const doc = () => buildOpenApi(defs, VERSION);
   let cached: object | undefined;
   defs.push({

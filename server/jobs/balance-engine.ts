@@ -1,0 +1,209 @@
+import { Queue, Worker, createPostgresBackend, type Job } from 'bullmq';
+import type { AlarmOut } from '../../shared/contracts/alarm.ts';
+import type { Balance } from '../../shared/contracts/balance.ts';
+import type { AppContext } from '../app-context.ts';
+import { NotFoundError } from '../http/errors.ts';
+import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
+import { balanceRepository } from '../repositories/balance.repository.ts';
+import { alarmService } from '../services/alarm.service.ts';
+import { readBalanceInputs } from '../services/balance-inputs.service.ts';
+import { computeBalance } from '../services/balance.service.ts';
+import { mailService } from '../services/mail.service.ts';
+import { settingsService } from '../services/settings.service.ts';
+import { notifyStream } from '../services/stream.service.ts';
+
+export const BALANCE_QUEUE = 'flocstream-balance';
+/** How often the plant list and the intervals/cron settings are re-read into job schedulers [ms]. */
+const SYNC_EVERY_MS = 15_000;
+
+export interface BalanceEngineOptions {
+  /** Database URL for the PostgreSQL queue backend (default ctx.config.databaseUrl). */
+  databaseUrl?: string;
+  /** Schedule repeatable jobs and run a worker (default true); false: runOnce only. */
+  schedule?: boolean;
+  /** Start the built-in SMTP catcher when SMTP_URL is not set (default true). */
+  mailCatcher?: boolean;
+  /** Catcher port; default the global setting mail.catcher_port (0 = any free port). */
+  catcherPort?: number;
+  /** Wall clock (tests); default Date.now. */
+  now?: () => number;
+}
+
+export interface BalanceEngine {
+  stop(): Promise<void>;
+  runOnce(plantId: number): Promise<Balance>;
+  /** Sends the shift summary of the 24 h before now for one plant (what the daily job does). */
+  shiftSummary(plantId: number): Promise<boolean>;
+  /** The catcher's SMTP URL when it runs. */
+  catcherUrl: string | null;
+}
+
+type JobData = { plantId?: number };
+
+/** The part of a BullMQ Queue the engine uses (the same for the Redis and PostgreSQL backends). */
+interface SchedulingQueue {
+  upsertJobScheduler(id: string, repeat: { every?: number; pattern?: string; tz?: string }, template: { name: string; data: JobData }): Promise<unknown>;
+  getJobSchedulers(): Promise<{ key: string }[]>;
+  removeJobScheduler(id: string): Promise<boolean>;
+  close(): Promise<void>;
+}
+interface ClosableWorker {
+  on(event: 'failed', fn: (job: Job | undefined, err: Error) => void): unknown;
+  on(event: 'error', fn: (err: Error) => void): unknown;
+  close(): Promise<void>;
+}
+type Processor = (j: Job<JobData>) => Promise<unknown>;
+
+/** BullMQ connection: PostgreSQL by default (STACK.md "BullMQ without Redis"), Redis when REDIS_URL is set. */
+function queueBackend(ctx: AppContext, databaseUrl: string) {
+  if (ctx.config.redisUrl) {
+    const u = new URL(ctx.config.redisUrl);
+    const connection = {
+      host: u.hostname,
+      port: Number(u.port || 6379),
+      ...(u.password ? { password: decodeURIComponent(u.password) } : {}),
+      ...(u.username ? { username: decodeURIComponent(u.username) } : {}),
+      ...(u.pathname.length > 1 ? { db: Number(u.pathname.slice(1)) } : {}),
+      maxRetriesPerRequest: null,
+    };
+    return {
+      queue: (): SchedulingQueue => new Queue(BALANCE_QUEUE, { connection }) as unknown as SchedulingQueue,
+      worker: (fn: Processor): ClosableWorker => new Worker(BALANCE_QUEUE, fn, { connection, concurrency: 1 }) as unknown as ClosableWorker,
+    };
+  }
+  const connection = { connectionString: databaseUrl, schema: 'bullmq', migrate: true, max: 3 };
+  return {
+    queue: (): SchedulingQueue => new Queue(BALANCE_QUEUE, { connection }, createPostgresBackend) as unknown as SchedulingQueue,
+    worker: (fn: Processor): ClosableWorker => new Worker(BALANCE_QUEUE, fn as never, { connection, concurrency: 1 }, createPostgresBackend) as unknown as ClosableWorker,
+  };
+}
+
+/** A small headline of a balance for the stream (a pg_notify payload is limited to 8000 bytes). */
+function balanceHeadline(id: number, b: Balance) {
+  const v = (f: { value: number | null; quality: string }) => ({ value: f.value, quality: f.quality });
+  return {
+    id,
+    plantId: b.plantId,
+    ts: b.ts,
+    quality: b.quality,
+    totalMass_kg: v(b.data.inventory.totalMass_kg),
+    storedFraction: v(b.data.inventory.storedFraction),
+    srt_d: v(b.data.srt.total_d),
+    wasAdvice_m3h: v(b.data.srt.wasAdvice_m3h),
+    trains: b.data.trains.map((t) => ({ code: t.code, concentrationMargin: v(t.ras.concentrationMargin), pumpMargin: v(t.ras.pumpMargin) })),
+  };
+}
+
+/**
+ * The live balance engine (design §3, §4): one repeatable BullMQ job per plant every
+ * `balance.interval_s` computes the balance, stores it in `balances`, evaluates the alarms and
+ * publishes both on the cross-process stream (pg_notify 'flocstream_stream'); one daily job per
+ * plant mails the shift summary (`mail.summary_cron`, plant time zone). Plants added later and
+ * changed intervals are picked up every 15 s. Mail goes to SMTP_URL, else to the built-in
+ * catcher (stored in mail_outbox).
+ */
+export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOptions = {}): Promise<BalanceEngine> {
+  const now = opts.now ?? Date.now;
+  const settings = settingsService(ctx);
+  const repo = balanceRepository(ctx.db);
+  let catcher: MailCatcher | null = null;
+  if (!ctx.config.smtpUrl && opts.mailCatcher !== false) {
+    const port = opts.catcherPort ?? (await settings.effective(0))['mail.catcher_port'];
+    catcher = await startMailCatcher(ctx.db, ctx.log, port);
+    ctx.log.info({ url: catcher.url }, 'mail catcher listening (messages stored in mail_outbox)');
+  }
+  const mailUrl = ctx.config.smtpUrl ?? catcher?.url ?? null;
+  const mail = mailUrl ? mailService(ctx, mailUrl, { catcher: !ctx.config.smtpUrl }) : null;
+
+  const onAlarm = async (a: AlarmOut, change: 'raised' | 'acknowledged' | 'cleared') => {
+    await notifyStream(ctx.db.pool, a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed'));
+    if (change === 'raised' && mail) await mail.alarm(a);
+  };
+  const alarms = alarmService(ctx, { changed: onAlarm });
+
+  async function runOnce(plantId: number): Promise<Balance> {
+    const s = await settings.effective(plantId);
+    const t = now();
+    const inputs = await readBalanceInputs(repo, plantId, s, t);
+    if (!inputs) throw new NotFoundError(`no plant ${plantId}`);
+    const b = computeBalance(inputs, s);
+    const id = await repo.insert(b);
+    await notifyStream(ctx.db.pool, plantId, 'balance', balanceHeadline(id, b)).catch((err) => ctx.log.warn({ err }, 'balance notify failed'));
+    await alarms.evaluate(b, s, t);
+    return { ...b, id };
+  }
+  const shiftSummary = async (plantId: number) => (mail ? mail.shiftSummary(plantId, new Date(now())) : false);
+
+  let queue: SchedulingQueue | null = null;
+  let worker: ClosableWorker | null = null;
+  if (opts.schedule !== false) {
+    const url = opts.databaseUrl ?? ctx.config.databaseUrl;
+    if (!url && !ctx.config.redisUrl) throw new Error('balance engine: no database URL for the job queue');
+    const backend = queueBackend(ctx, url ?? '');
+    const q0 = backend.queue();
+    queue = q0;
+    const applied = new Map<string, string>();
+    const sync = async () => {
+      const q = q0;
+      const ids = await repo.plantIds();
+      const want = new Set<string>();
+      for (const plantId of ids) {
+        const s = await settings.effective(plantId);
+        const plant = await repo.plant(plantId);
+        const every = s['balance.interval_s'] * 1000;
+        const bid = `balance:${plantId}`;
+        const sid = `summary:${plantId}`;
+        want.add(bid).add(sid);
+        const bKey = String(every);
+        if (applied.get(bid) !== bKey) {
+          await q.upsertJobScheduler(bid, { every }, { name: 'balance', data: { plantId } });
+          applied.set(bid, bKey);
+        }
+        const sKey = `${s['mail.summary_cron']}|${plant?.timezone ?? 'UTC'}`;
+        if (applied.get(sid) !== sKey) {
+          await q.upsertJobScheduler(sid, { pattern: s['mail.summary_cron'], tz: plant?.timezone ?? 'UTC' }, { name: 'shift-summary', data: { plantId } });
+          applied.set(sid, sKey);
+        }
+      }
+      for (const js of await q.getJobSchedulers()) {
+        if (js.key.startsWith('balance:') || js.key.startsWith('summary:')) {
+          if (!want.has(js.key)) {
+            await q.removeJobScheduler(js.key);
+            applied.delete(js.key);
+          }
+        }
+      }
+    };
+    worker = backend.worker(async (job) => {
+      if (job.name === 'sync') return sync();
+      const plantId = Number(job.data.plantId);
+      if (job.name === 'balance') {
+        try {
+          const b = await runOnce(plantId);
+          return { id: b.id, quality: b.quality };
+        } catch (err) {
+          if (err instanceof NotFoundError) return { skipped: 'plant gone' };
+          throw err;
+        }
+      }
+      if (job.name === 'shift-summary') return { sent: await shiftSummary(plantId) };
+      throw new Error(`unknown job ${job.name}`);
+    });
+    worker.on('failed', (job, err) => ctx.log.warn({ err, job: job?.name, data: job?.data }, 'balance engine job failed'));
+    worker.on('error', (err) => ctx.log.warn({ err }, 'balance engine worker error'));
+    await sync();
+    await q0.upsertJobScheduler('sync', { every: SYNC_EVERY_MS }, { name: 'sync', data: {} });
+  }
+
+  return {
+    runOnce,
+    shiftSummary,
+    catcherUrl: catcher?.url ?? null,
+    async stop() {
+      await worker?.close();
+      await queue?.close();
+      mail?.close();
+      await catcher?.close();
+    },
+  };
+}

@@ -1,0 +1,32 @@
+import type { Request } from 'express';
+import type { z } from 'zod';
+import { alarmAckParams, alarmAckRequest, alarmOut } from '../../shared/contracts/alarm.ts';
+import type { AppContext } from '../app-context.ts';
+import { assertPlantAccess } from '../auth/middleware.ts';
+import type { RouteDef } from '../http/route.ts';
+import { alarmService } from '../services/alarm.service.ts';
+import { notifyStream } from '../services/stream.service.ts';
+
+/** Alarm actions (the alarm list is GET /plants/:plantId/alarms in plants.routes.ts). */
+export function alarmsRoutes(ctx: AppContext): RouteDef[] {
+  const svc = alarmService(ctx, {
+    changed: (a, change) => notifyStream(ctx.db.pool, a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
+  });
+  return [
+    {
+      method: 'post',
+      path: '/plants/:plantId/alarms/:alarmId/ack',
+      role: 'operator',
+      tag: 'alarms',
+      summary: 'Acknowledge an alarm (ISA-18.2): records who and when; a cleared, unacknowledged alarm can be acknowledged too; audited',
+      params: alarmAckParams,
+      body: alarmAckRequest,
+      response: alarmOut,
+      handler: (req: Request) => {
+        const p = req.valid.params as z.infer<typeof alarmAckParams>;
+        assertPlantAccess(req, p.plantId);
+        return svc.acknowledge(req, p.plantId, p.alarmId, (req.valid.body as z.infer<typeof alarmAckRequest>).comment);
+      },
+    },
+  ];
+}

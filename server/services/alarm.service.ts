@@ -1,0 +1,217 @@
+/**
+ * Alarms from the live balance. Conditions are evaluated purely from a Balance (figures and
+ * input ages) and the settings; raising and clearing follow ISA-18.2 (ANSI/ISA-18.2-2016):
+ * - on-delay: a condition must hold for `alarm.on_delay_s` before the alarm is raised, against
+ *   chatter from noise around a limit;
+ * - deadband: once raised, an analogue alarm returns to normal only when the value is back
+ *   beyond the limit by the rule's deadband;
+ * - states raised → acknowledged → cleared, with who and when (alarm.repository.ts);
+ * - designed suppression: while ingest is down, no new tag-stale alarm is raised for each tag
+ *   (they would only repeat the one ingest-down alarm).
+ * A condition whose figure is unavailable is *unknown*: it neither raises nor clears (the
+ * tag-stale / tag-bad alarms report the missing input), and it restarts the on-delay.
+ * Process alarms carry the operator caution: the figures are advisory, the licensed operator decides.
+ */
+import type { Request } from 'express';
+import { ALARM_PRIORITY, type AlarmOut, type AlarmRule } from '../../shared/contracts/alarm.ts';
+import { OPERATOR_CAUTION, type Balance, type FigureOut } from '../../shared/contracts/balance.ts';
+import type { EffectiveSettings } from '../../shared/contracts/settings.ts';
+import type { AppContext } from '../app-context.ts';
+import { ConflictError, NotFoundError } from '../http/errors.ts';
+import { alarmRepository, type AlarmRow } from '../repositories/alarm.repository.ts';
+import { audit } from './audit.service.ts';
+
+export interface AlarmCondition {
+  rule: AlarmRule;
+  target: string;
+  priority: number;
+  /** true: in alarm; false: normal; null: unknown (figure unavailable, or suppressed). */
+  active: boolean | null;
+  value: number | null;
+  limit: number | null;
+  message: string;
+}
+
+const key = (rule: string, target: string) => `${rule}|${target}`;
+const f3 = (v: number) => (Math.abs(v) >= 100 ? v.toFixed(0) : v.toPrecision(3));
+
+/**
+ * ISA-18.2 deadband for a limit alarm: a high alarm is raised above `limit` and returns to
+ * normal only at or below `limit − deadband` (mirrored for a low alarm). `wasActive` is whether
+ * the alarm is active now; null value → unknown.
+ */
+export function limitState(value: number | null, limit: number, deadband: number, dir: 'high' | 'low', wasActive: boolean): boolean | null {
+  if (value === null || !Number.isFinite(value)) return null;
+  if (dir === 'high') return wasActive ? value > limit - deadband : value > limit;
+  return wasActive ? value < limit + deadband : value < limit;
+}
+
+/** Every alarm condition of a balance (pure). `isActive(rule, target)` says which alarms are active now (for the deadband). */
+export function alarmConditions(b: Balance, s: EffectiveSettings, isActive: (rule: AlarmRule, target: string) => boolean): AlarmCondition[] {
+  const out: AlarmCondition[] = [];
+  const caution = ` ${OPERATOR_CAUTION}`;
+  const add = (rule: AlarmRule, target: string, active: boolean | null, value: number | null, limit: number | null, message: string) =>
+    out.push({ rule, target, priority: ALARM_PRIORITY[rule], active, value, limit, message });
+  const analog = (rule: AlarmRule, target: string, fig: FigureOut, limit: number, deadband: number, dir: 'high' | 'low', text: (v: number) => string) => {
+    const active = limitState(fig.quality === 'unavailable' ? null : fig.value, limit, deadband, dir, isActive(rule, target));
+    const est = fig.quality === 'estimated' ? ` (estimated: ${fig.reasons.join('; ')})` : '';
+    add(rule, target, active, fig.value, limit, fig.value === null ? '' : text(fig.value) + est + '.' + caution);
+  };
+
+  // Ingest down: nothing received from any source of the plant for too long.
+  const ingestLimit = s['alarm.ingest_down_s'];
+  const hasTags = b.inputs.signals.length > 0;
+  const age = b.inputs.ingestAge_s;
+  const ingestDown = hasTags ? age === null || age > ingestLimit : null;
+  add(
+    'ingest-down',
+    'plant',
+    ingestDown,
+    age,
+    ingestLimit,
+    age === null ? 'No value has ever been received for this plant: check the ingest process and its sources.' : `No tag of this plant received for ${Math.round(age)} s (limit ${ingestLimit} s): check the ingest process and its sources; all live figures are stale.`,
+  );
+
+  for (const i of b.inputs.signals) {
+    const staleLike = i.stale || i.ts === null;
+    add('tag-stale', i.tag, ingestDown ? null : staleLike && !i.bad, i.age_s, null, i.ts === null ? `${i.tag} (${i.signal} of ${i.target}): no value received yet.` : `${i.tag} (${i.signal} of ${i.target}) is stale: ${i.reasons.join('; ')}.`);
+    add('tag-bad', i.tag, i.bad, i.value, null, `${i.tag} (${i.signal} of ${i.target}) is bad: ${i.reasons.join('; ')}.`);
+  }
+
+  const d = b.data;
+  for (const basin of d.basins) {
+    analog('mlss-low', basin.code, basin.mlss_gL, s['alarm.mlss_floor_gL'], s['alarm.mlss_deadband_gL'], 'low', (v) => `MLSS in ${basin.code} is ${f3(v)} g/L, below the floor of ${s['alarm.mlss_floor_gL']} g/L`);
+  }
+  analog('stored-fraction-high', 'plant', d.inventory.storedFraction, s['alarm.stored_fraction_max'], s['alarm.stored_fraction_deadband'], 'high', (v) =>
+    `${(v * 100).toFixed(0)} % of the sludge inventory is in the clarifiers (limit ${(s['alarm.stored_fraction_max'] * 100).toFixed(0)} %)`,
+  );
+  for (const c of d.clarifiers) {
+    const lim = s['alarm.blanket_max_fraction_swd'] * c.sideWaterDepth_m;
+    analog('blanket-high', c.code, c.blanketLevel_m, lim, s['alarm.blanket_deadband_m'], 'high', (v) => `Sludge blanket in ${c.code} at ${f3(v)} m above the floor (limit ${f3(lim)} m)`);
+    analog('blanket-rising', c.code, c.blanketRate_m_h, s['alarm.blanket_rate_max_m_h'], s['alarm.blanket_rate_deadband_m_h'], 'high', (v) =>
+      `Sludge blanket in ${c.code} rising at ${f3(v)} m/h over the last ${s['alarm.blanket_rate_window_min']} min (limit ${s['alarm.blanket_rate_max_m_h']} m/h)`,
+    );
+  }
+  for (const t of d.trains) {
+    const lim = s['alarm.ras_margin_min'];
+    analog('ras-concentration-margin-low', t.code, t.ras.concentrationMargin, lim, s['alarm.ras_margin_deadband'], 'low', (v) =>
+      `RAS concentration margin of ${t.code} is ${(v * 100).toFixed(0)} % (threshold ${(lim * 100).toFixed(0)} %): the underflow needed ${t.ras.requiredRasConc_gL.value?.toFixed(2) ?? '?'} g/L against a limit of ${t.ras.rasConcMax_gL.value?.toFixed(2) ?? '?'} g/L from the latest SVI`,
+    );
+    analog('ras-pump-margin-low', t.code, t.ras.pumpMargin, lim, s['alarm.ras_margin_deadband'], 'low', (v) =>
+      `RAS pump margin of ${t.code} is ${(v * 100).toFixed(0)} % (threshold ${(lim * 100).toFixed(0)} %): minimum return flow ${t.ras.minRasFlow_m3h.value?.toFixed(0) ?? '?'} m3/h against ${t.rasPumpCapacity_m3h} m3/h installed`,
+    );
+  }
+  // SRT off target: |SRT − target| against tolerance × target, deadband a fraction of the target.
+  const target = d.srt.target_d;
+  const srtFig = d.srt.total_d;
+  const dev: FigureOut = { ...srtFig, value: srtFig.value === null ? null : Math.abs(srtFig.value - target) / target };
+  const tol = s['alarm.srt_tolerance'];
+  analog('srt-off-target', 'plant', dev, tol, s['alarm.srt_deadband'], 'high', () =>
+    `Rolling SRT ${srtFig.value!.toFixed(1)} d is off the ${target} d target by more than ${(tol * 100).toFixed(0)} %; WAS flow for the target: ${d.srt.wasAdvice_m3h.value === null ? 'unavailable' : `${d.srt.wasAdvice_m3h.value.toFixed(1)} m3/h`}`,
+  );
+  return out;
+}
+
+export type AlarmAction =
+  | { kind: 'raise'; condition: AlarmCondition }
+  | { kind: 'clear'; alarmId: number; condition: AlarmCondition };
+
+/**
+ * One evaluation step (pure): from the conditions, the open alarms and the on-delay timers,
+ * which alarms to raise and which to clear. `pending` (key → since epoch ms) is updated in
+ * place: a condition that turns true starts its timer, one that is false or unknown drops it.
+ */
+export function stepAlarms(conds: AlarmCondition[], open: Map<string, { id: number }>, pending: Map<string, number>, now_ms: number, onDelay_s: number): AlarmAction[] {
+  const actions: AlarmAction[] = [];
+  const seen = new Set<string>();
+  for (const c of conds) {
+    const k = key(c.rule, c.target);
+    seen.add(k);
+    const openAlarm = open.get(k);
+    if (c.active === true) {
+      if (openAlarm) continue;
+      const since = pending.get(k) ?? now_ms;
+      pending.set(k, since);
+      if (now_ms - since >= onDelay_s * 1000) {
+        actions.push({ kind: 'raise', condition: c });
+        pending.delete(k);
+      }
+    } else {
+      pending.delete(k);
+      if (c.active === false && openAlarm) actions.push({ kind: 'clear', alarmId: openAlarm.id, condition: c });
+    }
+  }
+  // Alarms whose target left the layout (a tag unmapped) return to normal.
+  for (const [k, a] of open) if (!seen.has(k)) actions.push({ kind: 'clear', alarmId: a.id, condition: { rule: k.split('|')[0] as AlarmRule, target: k.slice(k.indexOf('|') + 1), priority: 4, active: false, value: null, limit: null, message: 'no longer evaluated' } });
+  for (const k of [...pending.keys()]) if (!seen.has(k)) pending.delete(k);
+  return actions;
+}
+
+export function toAlarmOut(r: AlarmRow): AlarmOut {
+  return {
+    id: r.id,
+    plantId: r.plantId,
+    rule: r.rule,
+    target: r.target,
+    priority: r.priority,
+    state: r.state,
+    message: r.message,
+    value: r.value,
+    limit: r.limit,
+    raisedAt: r.raisedAt.toISOString(),
+    acknowledgedAt: r.acknowledgedAt?.toISOString() ?? null,
+    acknowledgedBy: r.acknowledgedBy,
+    clearedAt: r.clearedAt?.toISOString() ?? null,
+  };
+}
+
+export interface AlarmHooks {
+  /** Called for every state change (raise, ack, clear) after it is stored. */
+  changed?: (a: AlarmOut, change: 'raised' | 'acknowledged' | 'cleared') => Promise<void> | void;
+}
+
+/** Evaluates and stores alarms for balances; acknowledges on request. Holds the on-delay timers of this process. */
+export function alarmService(ctx: AppContext, hooks: AlarmHooks = {}) {
+  const repo = alarmRepository(ctx.db.db);
+  const pending = new Map<number, Map<string, number>>();
+  return {
+    /** Applies one balance: raises and clears alarms; returns the changes. */
+    async evaluate(b: Balance, s: EffectiveSettings, now_ms: number): Promise<{ raised: AlarmOut[]; cleared: AlarmOut[] }> {
+      const openRows = await repo.open(b.plantId);
+      const open = new Map(openRows.map((r) => [key(r.rule, r.target), r]));
+      const conds = alarmConditions(b, s, (rule, target) => open.has(key(rule, target)));
+      let p = pending.get(b.plantId);
+      if (!p) pending.set(b.plantId, (p = new Map()));
+      const actions = stepAlarms(conds, open, p, now_ms, s['alarm.on_delay_s']);
+      const raised: AlarmOut[] = [];
+      const cleared: AlarmOut[] = [];
+      for (const a of actions) {
+        if (a.kind === 'raise') {
+          const c = a.condition;
+          const row = await repo.raise({ plantId: b.plantId, rule: c.rule, target: c.target, priority: c.priority, message: c.message, value: c.value, limit: c.limit, raisedAt: new Date(now_ms) });
+          if (!row) continue; // another process raised it first (unique open alarm per rule and target)
+          raised.push(toAlarmOut(row));
+        } else {
+          const row = await repo.clear(a.alarmId, new Date(now_ms));
+          if (row) cleared.push(toAlarmOut(row));
+        }
+      }
+      for (const a of raised) await hooks.changed?.(a, 'raised');
+      for (const a of cleared) await hooks.changed?.(a, 'cleared');
+      return { raised, cleared };
+    },
+    /** ISA-18.2 acknowledge by an operator (audited). A cleared, unacknowledged alarm can be acknowledged too. */
+    async acknowledge(req: Request, plantId: number, alarmId: number, comment?: string): Promise<AlarmOut> {
+      const existing = await repo.get(plantId, alarmId);
+      if (!existing) throw new NotFoundError(`no alarm ${alarmId} at plant ${plantId}`);
+      if (existing.acknowledgedAt) throw new ConflictError(`alarm ${alarmId} was already acknowledged at ${existing.acknowledgedAt.toISOString()}`);
+      const row = await repo.acknowledge(plantId, alarmId, req.principal!.userId, new Date());
+      if (!row) throw new ConflictError(`alarm ${alarmId} was acknowledged meanwhile`);
+      await audit(ctx, req, 'alarm.acknowledge', `alarm:${alarmId}`, { plantId, rule: row.rule, target: row.target, state: row.state, ...(comment ? { comment } : {}) });
+      const out = toAlarmOut(row);
+      await hooks.changed?.(out, 'acknowledged');
+      return out;
+    },
+  };
+}
+export type AlarmService = ReturnType<typeof alarmService>;
