@@ -39,7 +39,6 @@ export function spawnTs(root: string, name: string, entry: string, args: string[
   const proc = spawn(process.execPath, ['--import', 'tsx', path.join(root, entry), ...args], {
     cwd: root,
     // The launcher passes its environment on, with the child's own settings over it.
-    // eslint-disable-next-line no-restricted-syntax
     env: { ...process.env, ...env },
     stdio: ['ignore', 'pipe', 'pipe'],
   });

@@ -1,5 +1,5 @@
-import { spawnSync } from 'node:child_process';
 import fs from 'node:fs';
+import { aptGet } from '../server/db/apt.ts';
 import { findPgBinDir } from '../server/db/local-postgres.ts';
 
 /** Debian packages the tests need, with how to tell each is there. */
@@ -22,7 +22,7 @@ export function ensureSystemDeps(say: (m: string) => void): void {
   say(`installing Debian packages: ${missing.join(', ')}`);
   const env = { ...process.env, DEBIAN_FRONTEND: 'noninteractive' };
   for (const args of [['update'], ['install', '-y', '--no-install-recommends', ...missing]]) {
-    const r = spawnSync('apt-get', args, { stdio: 'inherit', env });
+    const r = aptGet(args, env);
     if (r.status !== 0) throw new Error(`apt-get ${args.join(' ')} failed (exit ${r.status})`);
   }
 }

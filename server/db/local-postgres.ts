@@ -1,5 +1,6 @@
 import { execFileSync, spawnSync } from 'node:child_process';
 import { randomBytes } from 'node:crypto';
+import { aptGet } from './apt.ts';
 import fs from 'node:fs';
 import net from 'node:net';
 import path from 'node:path';
@@ -49,7 +50,7 @@ function ensureBinaries(log: (m: string) => void): string {
   // eslint-disable-next-line no-restricted-syntax
   const env = { ...process.env, DEBIAN_FRONTEND: 'noninteractive' };
   for (const args of [['update'], ['install', '-y', '--no-install-recommends', 'postgresql']]) {
-    const r = spawnSync('apt-get', args, { stdio: 'inherit', env });
+    const r = aptGet(args, env);
     if (r.status !== 0) throw new LocalPostgresError(`apt-get ${args.join(' ')} failed (exit ${r.status})`);
   }
   const after = findPgBinDir();
