@@ -69,10 +69,14 @@ export const settingsQuery = z.strictObject({ plantId: z.coerce.number().int().m
 export const putSettingsRequest = z
   .strictObject({
     plantId: z.number().int().min(0).default(0),
-    values: z.record(settingKey, z.unknown()),
+    values: z.record(z.string(), z.unknown()),
   })
   .superRefine((v, ctx) => {
     for (const [k, val] of Object.entries(v.values)) {
+      if (!(k in SETTINGS)) {
+        ctx.addIssue({ code: 'custom', path: ['values', k], message: 'no such setting' });
+        continue;
+      }
       if (val === null) continue;
       const r = SETTINGS[k as SettingKey].schema.safeParse(val);
       if (!r.success) ctx.addIssue({ code: 'custom', path: ['values', k], message: r.error.issues.map((i) => i.message).join('; ') });
