@@ -27,7 +27,8 @@ const env = {
 delete (env as Record<string, string | undefined>).DATABASE_URL;
 
 async function runUntilReady(): Promise<{ out: string[]; stop(): Promise<number | null> }> {
-  const proc = spawn(process.execPath, ['--import', 'tsx', 'scripts/start.ts'], { cwd: root, env, detached: true, stdio: ['ignore', 'pipe', 'pipe'] });
+  // `npm start` itself, in its own process group like a terminal's foreground job.
+  const proc = spawn('npm', ['start'], { cwd: root, env, detached: true, stdio: ['ignore', 'pipe', 'pipe'] });
   const out: string[] = [];
   const exited = new Promise<number | null>((r) => proc.once('exit', (c) => r(c)));
   await new Promise<void>((resolve, reject) => {
