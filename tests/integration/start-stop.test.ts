@@ -26,11 +26,12 @@ const env = {
 };
 delete (env as Record<string, string | undefined>).DATABASE_URL;
 
-async function runUntilReady(): Promise<{ out: string[]; stop(): Promise<number | null> }> {
+async function runUntilReady(): Promise<{ out: string[]; stop(): Promise<string> }> {
   // `npm start` itself, in its own process group like a terminal's foreground job.
   const proc = spawn('npm', ['start'], { cwd: root, env, detached: true, stdio: ['ignore', 'pipe', 'pipe'] });
   const out: string[] = [];
-  const exited = new Promise<number | null>((r) => proc.once('exit', (c) => r(c)));
+  // npm re-raises the SIGINT after its script ends, so the launcher's own last line is the check.
+  const exited = new Promise<string>((r) => proc.once('exit', () => r(out.join(''))));
   await new Promise<void>((resolve, reject) => {
     const t = setTimeout(() => reject(new Error(`no banner in 90 s:\n${out.join('')}`)), 90_000);
     const on = (b: Buffer) => {
@@ -74,7 +75,7 @@ describe('npm start and Ctrl-C', () => {
     const health = await fetch(`http://127.0.0.1:${base}/api/health`).then((r) => r.json());
     expect(health.database.ok).toBe(true);
     expect(pgRunning()).toBe(true);
-    expect(await first.stop()).toBe(0);
+    expect(await first.stop()).toContain('stopped; PostgreSQL is down');
     expect(pgRunning()).toBe(false);
     for (const p of [base, base + 1, base + 2, base + 3]) expect(await portInUse(p), `port ${p}`).toBe(false);
     expect(leftovers()).toEqual([]);
@@ -90,7 +91,7 @@ describe('npm start and Ctrl-C', () => {
       body: JSON.stringify({ email: 'start-test@kestrel.invalid', password: 'start-test-password' }),
     });
     expect(login.status).toBe(200);
-    expect(await second.stop()).toBe(0);
+    expect(await second.stop()).toContain('stopped; PostgreSQL is down');
     expect(pgRunning()).toBe(false);
     expect(leftovers()).toEqual([]);
   }, 240_000);
