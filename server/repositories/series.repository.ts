@@ -9,6 +9,12 @@ import type pg from 'pg';
  * Bucketed raw reads leave out samples without a value or with a Bad grade, exactly as ingest's
  * rollups do (ingest/sink/rollup.ts), so every resolution aggregates the same samples. A bucket
  * with nothing in it is no row: gaps stay gaps.
+ *
+ * Measured (tests/bench/api.bench.ts): grouping 30 days of rollup_1m (43 200 rows) sorts on the
+ * bucket expression, which spills to disk under the default 4 MB work_mem; the bucket queries
+ * therefore run in a read-only transaction with `SET LOCAL work_mem` (never leaking into the
+ * pooled session). The bucket's `last` needs an ordered aggregate per bucket, the costliest part
+ * of the query, so it is computed only when asked for (agg=last).
  */
 export interface RawRow {
   ts: Date;
@@ -21,28 +27,37 @@ export interface BucketRow {
   min: number;
   max: number;
   count: number;
-  last: number;
+  /** null unless asked for (`withLast`). */
+  last: number | null;
   quality: number;
 }
+
+/** Sort memory for one bucket query: 30 days of rollup_1m sort in well under this. */
+const BUCKET_WORK_MEM = '16MB';
 
 const RAW = `SELECT ts, value, quality FROM samples WHERE tag_id = $1 AND ts > $2 AND ts < $3 ORDER BY ts LIMIT $4`;
 const RAW_FIRST = `SELECT ts, value, quality FROM samples WHERE tag_id = $1 AND ts >= $2 AND ts < $3 ORDER BY ts LIMIT $4`;
 const RAW_COUNT = `SELECT count(*)::int AS n FROM (SELECT 1 FROM samples WHERE tag_id = $1 AND ts >= $2 AND ts < $3 LIMIT $4) s`;
-const RAW_BUCKETS = `SELECT date_bin(make_interval(secs => $4::float8), ts, timestamptz 'epoch') AS ts,
+const lastOf = (col: string, ts: string, withLast: boolean) => (withLast ? `(array_agg(${col} ORDER BY ${ts} DESC))[1]` : 'NULL::float8');
+const rawBuckets = (withLast: boolean) => `SELECT date_bin(make_interval(secs => $4::float8), ts, timestamptz 'epoch') AS ts,
     avg(value) AS mean, min(value) AS min, max(value) AS max, count(*)::int AS count,
-    (array_agg(value ORDER BY ts DESC))[1] AS last,
+    ${lastOf('value', 'ts', withLast)} AS last,
     (bit_or(quality & ~3) | max(quality & 3))::int AS quality
   FROM samples
   WHERE tag_id = $1 AND ts >= $2 AND ts < $3 AND value IS NOT NULL AND (quality & 3) < 2
   GROUP BY 1 ORDER BY 1 LIMIT $5`;
-const rollupBuckets = (table: 'rollup_1m' | 'rollup_1h') => `SELECT date_bin(make_interval(secs => $4::float8), bucket, timestamptz 'epoch') AS ts,
+const rollupBuckets = (table: 'rollup_1m' | 'rollup_1h', withLast: boolean) => `SELECT date_bin(make_interval(secs => $4::float8), bucket, timestamptz 'epoch') AS ts,
     sum(sum) / sum(count) AS mean, min(min) AS min, max(max) AS max, sum(count)::bigint AS count,
-    (array_agg(last ORDER BY last_ts DESC))[1] AS last,
+    ${lastOf('last', 'last_ts', withLast)} AS last,
     (bit_or(quality & ~3) | max(quality & 3))::int AS quality
   FROM ${table}
   WHERE tag_id = $1 AND bucket >= $2 AND bucket < $3
   GROUP BY 1 ORDER BY 1 LIMIT $5`;
-const ROLLUP = { '1m': rollupBuckets('rollup_1m'), '1h': rollupBuckets('rollup_1h') } as const;
+const BUCKETS = {
+  raw: [rawBuckets(false), rawBuckets(true)],
+  '1m': [rollupBuckets('rollup_1m', false), rollupBuckets('rollup_1m', true)],
+  '1h': [rollupBuckets('rollup_1h', false), rollupBuckets('rollup_1h', true)],
+} as const;
 
 export function seriesRepository(pool: pg.Pool) {
   return {
@@ -57,10 +72,20 @@ export function seriesRepository(pool: pg.Pool) {
       return r.rows[0]?.n ?? 0;
     },
     /** Buckets of `step_s` seconds over [from, to) from raw samples or a rollup table, ascending. */
-    async buckets(source: 'raw' | '1m' | '1h', tagId: number, from: Date, to: Date, step_s: number, limit: number): Promise<BucketRow[]> {
-      const text = source === 'raw' ? RAW_BUCKETS : ROLLUP[source];
-      const r = await pool.query<BucketRow>({ name: `series_buckets_${source}`, text, values: [tagId, from, to, step_s, limit] });
-      return r.rows;
+    async buckets(source: 'raw' | '1m' | '1h', tagId: number, from: Date, to: Date, step_s: number, limit: number, withLast: boolean): Promise<BucketRow[]> {
+      const c = await pool.connect();
+      try {
+        await c.query('BEGIN READ ONLY');
+        await c.query(`SET LOCAL work_mem = '${BUCKET_WORK_MEM}'`);
+        const r = await c.query<BucketRow>({ name: `series_buckets_${source}_${withLast ? 'last' : 'nolast'}`, text: BUCKETS[source][withLast ? 1 : 0], values: [tagId, from, to, step_s, limit] });
+        await c.query('COMMIT');
+        c.release();
+        return r.rows;
+      } catch (err) {
+        // A connection in an unknown transaction state is not given back to the pool.
+        c.release(true);
+        throw err;
+      }
     },
   };
 }

@@ -40,7 +40,7 @@ export function chooseResolution(span_ms: number, expectedPeriod_s: number, requ
 }
 
 /** The value of a bucket for an aggregate. */
-function aggValue(b: BucketRow, agg: Agg): number {
+function aggValue(b: BucketRow, agg: Agg): number | null {
   return agg === 'mean' ? b.mean : agg === 'min' ? b.min : agg === 'max' ? b.max : b.last;
 }
 
@@ -112,7 +112,7 @@ export function seriesService(ctx: AppContext) {
       const stepMs = choice.step_s * 1000;
       const lo = Math.floor(from / stepMs) * stepMs;
       const hi = Math.ceil(to / stepMs) * stepMs;
-      const rows = await series.buckets(choice.resolution, tagId, new Date(after ?? lo), new Date(hi), choice.step_s, limit + 1);
+      const rows = await series.buckets(choice.resolution, tagId, new Date(after ?? lo), new Date(hi), choice.step_s, limit + 1, agg === 'last');
       const more = rows.length > limit;
       const page = more ? rows.slice(0, limit) : rows;
       const points = page.map((b) => ({ ts: b.ts.toISOString(), value: aggValue(b, agg), min: b.min, max: b.max, count: b.count, ...qualityOf(b.quality) }));
