@@ -244,7 +244,7 @@ describe('read API', () => {
       pages++;
       if (r.body.nextCursor) {
         expect(r.headers['x-next-cursor']).toBe(r.body.nextCursor);
-        const link = /^<([^>]+)>; rel="next"$/.exec(r.headers.link);
+        const link = /^<([^>]+)>; rel="next"$/.exec(String(r.headers.link));
         expect(link).not.toBeNull();
         url = link![1]!;
       } else {

@@ -1,0 +1,280 @@
+/**
+ * Read-API benchmark (`npm run bench:api`): a throwaway PostgreSQL cluster of its own and the
+ * API in a child process, both on 127.0.0.1. Prints a table and writes `.data/bench/api.json`.
+ * Every figure is measured in this run.
+ *
+ * Data, generated in SQL: one tag with 30 days of 1-second samples (2 592 000 raw rows in day
+ * partitions), its rollup_1m and rollup_1h computed from them the way ingest aggregates (no bad
+ * or null samples), 335 more days of rollup_1h before that (a year in all), 300 more tags with a
+ * latest value, and 30 days of balances every 30 s.
+ *
+ * (a) sequential latency, 200 requests each after a warm-up: balance/live, the 30-day samples
+ *     query (must go through rollup_1m), the one-year query (rollup_1h);
+ * (b) load: autocannon, 50 connections for 10 s over a mix of those and the live tag list.
+ *
+ * The monitor's session cookie is used: the per-token rate limit applies to Bearer callers only.
+ * Exit code 1 when a target is missed or any request failed.
+ */
+import { spawn, type ChildProcess } from 'node:child_process';
+import { randomBytes } from 'node:crypto';
+import fs from 'node:fs';
+import { createRequire } from 'node:module';
+import net from 'node:net';
+import os from 'node:os';
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import pg from 'pg';
+import pino from 'pino';
+import { createApp } from '../../server/app.ts';
+import type { AppContext } from '../../server/app-context.ts';
+import { hashPassword } from '../../server/auth/passwords.ts';
+import { loadConfig } from '../../server/config.ts';
+import { openDatabase } from '../../server/db/client.ts';
+import { startLocalPostgres } from '../../server/db/local-postgres.ts';
+import { runMigrations } from '../../server/db/migrate.ts';
+
+const ROOT = path.resolve(import.meta.dirname, '../..');
+const SELF = fileURLToPath(import.meta.url);
+const H = 3_600_000;
+const DAY = 24 * H;
+const RAW_DAYS = 30;
+const SEQ_N = 200;
+const WARMUP = 10;
+
+interface AutocannonResult {
+  errors: number;
+  timeouts: number;
+  non2xx: number;
+  requests: { average: number; total: number };
+  latency: { p50: number; p90: number; p97_5: number; p99: number; max: number };
+  duration: number;
+}
+type Autocannon = (opts: Record<string, unknown>) => Promise<AutocannonResult>;
+
+function freePort(): Promise<number> {
+  return new Promise((resolve) => {
+    const s = net.createServer();
+    s.listen(0, '127.0.0.1', () => {
+      const a = s.address() as net.AddressInfo;
+      s.close(() => resolve(a.port));
+    });
+  });
+}
+
+function pct(sorted: number[], p: number): number {
+  return sorted[Math.min(sorted.length - 1, Math.floor((p / 100) * sorted.length))] ?? NaN;
+}
+const round = (x: number, d = 1) => Math.round(x * 10 ** d) / 10 ** d;
+
+async function generate(pool: pg.Pool, end: number): Promise<{ plantId: number; tagId: number; rawRows: number }> {
+  const q = (text: string, values: unknown[] = []) => pool.query(text, values);
+  const plantId = (await q(`INSERT INTO plants (code, name, peak_flow_m3h) VALUES ('bench', 'Bench', 5000) RETURNING id`)).rows[0].id;
+  const src = (await q(`INSERT INTO sources (plant_id, name, kind, url) VALUES ($1, 'bench', 'mqtt', 'mqtt://127.0.0.1:1') RETURNING id`, [plantId])).rows[0].id;
+  const tagId = (await q(`INSERT INTO tags (plant_id, source_id, name, address, unit, expected_period_s) VALUES ($1, $2, 'AB1_MLSS', 'b/ab1/mlss', 'g/L', 1) RETURNING id`, [plantId, src])).rows[0].id;
+  await q(`INSERT INTO tags (plant_id, source_id, name, address, unit) SELECT $1, $2, 'T' || i, 'b/t' || i, 'm3/h' FROM generate_series(1, 300) i`, [plantId, src]);
+  await q(`INSERT INTO tag_latest (tag_id, ts, value, quality) SELECT id, now() - (id % 20) * interval '1 s', id * 1.5, 0 FROM tags`);
+
+  const start = end - RAW_DAYS * DAY;
+  for (let d = Math.floor(start / DAY) * DAY; d < end; d += DAY) await q('SELECT flocstream_ensure_day_partition($1)', [new Date(d)]);
+  // One day per statement, two at a time (the machine may have two cores).
+  const days = Array.from({ length: RAW_DAYS }, (_, k) => start + k * DAY);
+  const insertDay = async (d0: number) => {
+    await q(
+      `INSERT INTO samples (tag_id, ts, value, quality)
+       SELECT $1, to_timestamp($2::float8 / 1000 + i), 3 + 0.5 * sin(($2::float8 / 1000 + i) / 600) + (i % 17) * 0.01, CASE WHEN i % 5000 = 0 THEN 5 ELSE 0 END
+       FROM generate_series(0, 86399) i`,
+      [tagId, d0],
+    );
+  };
+  for (let k = 0; k < days.length; k += 2) await Promise.all(days.slice(k, k + 2).map(insertDay));
+  const rawRows = Number((await q(`SELECT count(*) n FROM samples WHERE tag_id = $1`, [tagId])).rows[0].n);
+  // Rollups as ingest computes them (ingest/sink/rollup.ts): good and uncertain samples with a value.
+  await q(
+    `INSERT INTO rollup_1m (tag_id, bucket, min, max, sum, count, last, last_ts, quality)
+     SELECT tag_id, date_trunc('minute', ts), min(value), max(value), sum(value), count(*), (array_agg(value ORDER BY ts DESC))[1], max(ts), (bit_or(quality & ~3) | max(quality & 3))
+     FROM samples WHERE tag_id = $1 AND value IS NOT NULL AND (quality & 3) < 2 GROUP BY 1, 2`,
+    [tagId],
+  );
+  await q(
+    `INSERT INTO rollup_1h (tag_id, bucket, min, max, sum, count, last, last_ts, quality)
+     SELECT tag_id, date_trunc('hour', bucket), min(min), max(max), sum(sum), sum(count), (array_agg(last ORDER BY last_ts DESC))[1], max(last_ts), (bit_or(quality & ~3) | max(quality & 3))
+     FROM rollup_1m WHERE tag_id = $1 GROUP BY 1, 2`,
+    [tagId],
+  );
+  await q(
+    `INSERT INTO rollup_1h (tag_id, bucket, min, max, sum, count, last, last_ts, quality)
+     SELECT $1, b, v - 0.5, v + 0.5, v * 3600, 3600, v, b + interval '3599 s', 0
+     FROM (SELECT b, 3 + 0.5 * sin(extract(epoch FROM b) / 600) AS v
+           FROM generate_series(to_timestamp($2::float8 / 1000), to_timestamp($3::float8 / 1000) - interval '1 hour', interval '1 hour') b) x`,
+    [tagId, end - 365 * DAY, start],
+  );
+  await q(
+    `INSERT INTO balances (plant_id, ts, quality, data, inputs)
+     SELECT $1, to_timestamp($2::float8 / 1000) + i * interval '30 s', CASE WHEN i % 97 = 0 THEN 'estimated' ELSE 'good' END,
+       jsonb_build_object('aerationMass_kg', 48000 + 500 * sin(i / 120.0), 'clarifierMass_kg', 9000 + 300 * cos(i / 90.0), 'rasMargin', 0.2 + 0.05 * sin(i / 60.0),
+                          'srtTotal_d', 11 + sin(i / 2880.0), 'srtAeration_d', 9.2 + sin(i / 2880.0), 'storm', jsonb_build_object('blanketRise_m', 0.12, 'storedFraction', 0.18)),
+       jsonb_build_object('mlss_gL', 3.2, 'influentFlow_m3h', 2400, 'quality', 'good')
+     FROM generate_series(0, $3::int - 1) i`,
+    [plantId, start, (RAW_DAYS * DAY) / 30_000],
+  );
+  await q('ANALYZE');
+  return { plantId, tagId, rawRows };
+}
+
+async function startApi(url: string, dataDir: string): Promise<{ child: ChildProcess; base: string }> {
+  const child = spawn(process.execPath, ['--import', 'tsx', SELF, '--serve', url, dataDir], { stdio: ['ignore', 'pipe', 'inherit'], cwd: ROOT });
+  const port = await new Promise<number>((resolve, reject) => {
+    let buf = '';
+    child.stdout!.on('data', (c: Buffer) => {
+      buf += c.toString();
+      const line = buf.split('\n')[0];
+      if (buf.includes('\n') && line) resolve(JSON.parse(line).port);
+    });
+    child.once('exit', (code) => reject(new Error(`API process exited (${code}) before listening`)));
+  });
+  return { child, base: `http://127.0.0.1:${port}` };
+}
+
+async function main(): Promise<void> {
+  const t0 = performance.now();
+  const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-apibench-'));
+  const cleanup: Array<() => void | Promise<void>> = [];
+  const results: Record<string, unknown> = {};
+  const failures: string[] = [];
+  try {
+    const cluster = await startLocalPostgres({ dataDir: tmp, port: await freePort(), dbName: 'bench' });
+    cleanup.push(() => cluster.stop());
+    await runMigrations(cluster.url);
+    const pool = new pg.Pool({ connectionString: cluster.url, max: 3 });
+    cleanup.push(() => pool.end());
+
+    const end = Math.floor(Date.now() / H) * H;
+    const tg = performance.now();
+    const { plantId, tagId, rawRows } = await generate(pool, end);
+    const generate_s = round((performance.now() - tg) / 1000);
+    const password = randomBytes(12).toString('hex');
+    await pool.query(`INSERT INTO users (email, name, role, password_hash) VALUES ('bench@bench.invalid', 'Bench', 'analyst', $1)`, [await hashPassword(password)]);
+    console.log(`data: ${rawRows.toLocaleString('en-US')} raw samples, rollups, a year of rollup_1h, balances — ${generate_s} s`);
+
+    const { child, base } = await startApi(cluster.url, tmp);
+    cleanup.push(
+      () =>
+        new Promise<void>((r) => {
+          child.once('exit', () => r());
+          child.kill('SIGTERM');
+        }),
+    );
+    const login = await fetch(`${base}/api/v1/auth/login`, { method: 'POST', headers: { 'Content-Type': 'application/json' }, body: JSON.stringify({ email: 'bench@bench.invalid', password }) });
+    if (login.status !== 200) throw new Error(`login failed: ${login.status}`);
+    const cookie = (login.headers.get('set-cookie') ?? '').split(';')[0]!;
+
+    const iso = (ms: number) => new Date(ms).toISOString();
+    const paths = {
+      balanceLive: `/api/v1/plants/${plantId}/balance/live`,
+      samples30d: `/api/v1/plants/${plantId}/tags/${tagId}/samples?from=${iso(end - RAW_DAYS * DAY)}&to=${iso(end)}`,
+      samples1y: `/api/v1/plants/${plantId}/tags/${tagId}/samples?from=${iso(end - 365 * DAY)}&to=${iso(end)}`,
+      tags: `/api/v1/plants/${plantId}/tags`,
+    };
+
+    // ---- (a) sequential ----
+    const seq: Record<string, { p50_ms: number; p95_ms: number; max_ms: number; n: number; resolution?: string; points?: number }> = {};
+    for (const [name, p] of Object.entries(paths).filter(([n]) => n !== 'tags')) {
+      const times: number[] = [];
+      let info: { resolution?: string; points?: number } = {};
+      for (let i = 0; i < WARMUP + SEQ_N; i++) {
+        const s = performance.now();
+        const r = await fetch(base + p, { headers: { Cookie: cookie } });
+        const body = (await r.json()) as { resolution?: string; points?: unknown[]; balance?: unknown };
+        const ms = performance.now() - s;
+        if (r.status !== 200) throw new Error(`${name}: HTTP ${r.status}`);
+        if (i >= WARMUP) times.push(ms);
+        if (body.points) info = { resolution: body.resolution, points: body.points.length };
+      }
+      times.sort((a, b) => a - b);
+      seq[name] = { n: SEQ_N, p50_ms: round(pct(times, 50), 2), p95_ms: round(pct(times, 95), 2), max_ms: round(times[times.length - 1]!, 2), ...info };
+    }
+    results.sequential = seq;
+    if (seq.samples30d?.resolution !== '1m') failures.push(`30-day query used ${seq.samples30d?.resolution}, expected the rollup_1m`);
+    if (seq.samples1y?.resolution !== '1h') failures.push(`one-year query used ${seq.samples1y?.resolution}, expected the rollup_1h`);
+    for (const s of Object.values(seq)) if (s.points !== undefined && s.points > 2001) failures.push(`a history answer had ${s.points} points`);
+
+    // ---- (b) load ----
+    const autocannon = createRequire(import.meta.url)('autocannon') as Autocannon;
+    const order = [paths.balanceLive, paths.samples30d, paths.balanceLive, paths.tags, paths.samples1y, paths.balanceLive];
+    const load = await autocannon({
+      url: base,
+      connections: 50,
+      duration: 10,
+      headers: { Cookie: cookie },
+      requests: order.map((p) => ({ method: 'GET', path: p })),
+    });
+    results.load = {
+      connections: 50,
+      duration_s: load.duration,
+      requests: load.requests.total,
+      requestsPerSec: round(load.requests.average),
+      p50_ms: load.latency.p50,
+      p90_ms: load.latency.p90,
+      p97_5_ms: load.latency.p97_5,
+      p99_ms: load.latency.p99,
+      max_ms: load.latency.max,
+      errors: load.errors,
+      timeouts: load.timeouts,
+      non2xx: load.non2xx,
+      mix: 'balance/live ×3, 30-day samples, one-year samples, live tags (301) per cycle',
+    };
+    if (load.errors || load.timeouts || load.non2xx) failures.push(`load run: ${load.errors} errors, ${load.timeouts} timeouts, ${load.non2xx} non-2xx`);
+    results.data = { rawSamples: rawRows, generate_s };
+
+    const targets: Array<[string, number, number]> = [
+      ['balance/live p95', seq.balanceLive!.p95_ms, 50],
+      ['30-day samples p95', seq.samples30d!.p95_ms, 300],
+      ['one-year samples p95', seq.samples1y!.p95_ms, 300],
+    ];
+    for (const [name, v, limit] of targets) if (!(v < limit)) failures.push(`${name} ${v} ms ≥ ${limit} ms`);
+    results.targets = targets.map(([name, v, limit]) => ({ name, measured_ms: v, target_ms: limit, ok: v < limit }));
+
+    console.log(`\nFlocstream read-API benchmark — ${os.cpus().length} CPUs, ${os.cpus()[0]?.model ?? ''}`);
+    console.log('query'.padEnd(22) + 'p50 ms'.padStart(9) + 'p95 ms'.padStart(9) + 'max ms'.padStart(9) + '  resolution  points   target p95');
+    const tgt: Record<string, string> = { balanceLive: '< 50', samples30d: '< 300', samples1y: '< 300' };
+    for (const [k, s] of Object.entries(seq)) {
+      console.log(k.padEnd(22) + String(s.p50_ms).padStart(9) + String(s.p95_ms).padStart(9) + String(s.max_ms).padStart(9) + '  ' + (s.resolution ?? '-').padEnd(10) + String(s.points ?? '-').padStart(8) + '   ' + (tgt[k] ?? ''));
+    }
+    const l = results.load as Record<string, number>;
+    console.log(`load: ${l.connections} connections, ${l.duration_s} s: ${l.requests} requests, ${l.requestsPerSec} req/s, p50 ${l.p50_ms} ms, p97.5 ${l.p97_5_ms} ms, p99 ${l.p99_ms} ms, errors ${l.errors}, timeouts ${l.timeouts}, non-2xx ${l.non2xx}`);
+  } finally {
+    for (const f of cleanup.reverse()) {
+      try {
+        await f();
+      } catch {
+        // best effort
+      }
+    }
+    fs.rmSync(tmp, { recursive: true, force: true });
+  }
+  results.total_s = round((performance.now() - t0) / 1000);
+  results.failures = failures;
+  const out = path.join(ROOT, '.data', 'bench', 'api.json');
+  fs.mkdirSync(path.dirname(out), { recursive: true });
+  fs.writeFileSync(out, JSON.stringify({ measuredAt: new Date().toISOString(), cpus: os.cpus().length, ...results }, null, 2));
+  console.log(`total ${results.total_s} s; written ${path.relative(ROOT, out)}`);
+  for (const f of failures) console.log(`MISSED: ${f}`);
+  process.exit(failures.length ? 1 : 0);
+}
+
+// ---- child mode: the API server alone in its own process ----------------------------------
+if (process.argv[2] === '--serve') {
+  const url = process.argv[3]!;
+  const dataDir = process.argv[4]!;
+  const db = openDatabase(url, { max: 20 });
+  const ctx: AppContext = { db, config: { ...loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: url, FLOCSTREAM_DEMO: '0' }), databaseUrl: url }, log: pino({ level: 'silent' }), sessionKey: randomBytes(32) };
+  const server = createApp(ctx, { serveMonitor: false }).listen(0, '127.0.0.1', () => {
+    process.stdout.write(JSON.stringify({ port: (server.address() as net.AddressInfo).port }) + '\n');
+  });
+  process.on('SIGTERM', () => {
+    server.closeAllConnections();
+    server.close(() => void db.close().then(() => process.exit(0)));
+  });
+} else {
+  await main();
+}
