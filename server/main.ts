@@ -9,6 +9,7 @@ import type { Config } from './config.ts';
 import { openDatabase } from './db/client.ts';
 import { startLocalPostgres, type LocalPostgres } from './db/local-postgres.ts';
 import { runMigrations } from './db/migrate.ts';
+import { startBalanceEngine, type BalanceEngine } from './jobs/balance-engine.ts';
 import { createLogger } from './logger.ts';
 import { bootstrapUsers, type Credential } from './services/bootstrap.service.ts';
 
@@ -24,7 +25,7 @@ export interface RunningServer {
  * Starts the API and monitor: the private PostgreSQL (unless DATABASE_URL is set), migrations,
  * first users, then HTTP on 127.0.0.1. `close()` stops them in reverse order.
  */
-export async function startServer(config: Config, opts: { log?: Logger; say?: (m: string) => void } = {}): Promise<RunningServer> {
+export async function startServer(config: Config, opts: { log?: Logger; say?: (m: string) => void; jobs?: boolean } = {}): Promise<RunningServer> {
   const say = opts.say ?? (() => {});
   const log = opts.log ?? createLogger('server', config.logLevel, config.dataDir);
   let pgLocal: LocalPostgres | undefined;
@@ -33,12 +34,19 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
     pgLocal = await startLocalPostgres({ dataDir: config.dataDir, port: config.pgPort, log: say });
     databaseUrl = pgLocal.url;
   }
+  let engine: BalanceEngine | undefined;
   try {
     await runMigrations(databaseUrl);
     const db = openDatabase(databaseUrl);
     const ctx: AppContext = { db, config, log, sessionKey: loadSessionKey(config.dataDir, config.sessionSecret) };
     const credentials = await bootstrapUsers(ctx, config.demo);
     if (config.demo) rememberDemoCredentials(config.dataDir, credentials);
+    // The balance engine (repeatable jobs, alarms, mail catcher) unless told not to (jobs: false).
+    if (opts.jobs !== false) {
+      // An ephemeral HTTP port (tests) gets an ephemeral catcher port too, so runs never collide.
+      engine = await startBalanceEngine(ctx, { databaseUrl, ...(config.port === 0 ? { catcherPort: 0 } : {}) });
+      if (engine.catcherUrl) say(`mail catcher at ${engine.catcherUrl} (admins read it at /api/v1/outbox)`);
+    }
     const app = createApp(ctx);
     const server: Server = await new Promise((resolve, reject) => {
       const s = app.listen(config.port, config.host, () => resolve(s));
@@ -56,11 +64,13 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
       async close() {
         server.closeAllConnections();
         await new Promise<void>((r) => server.close(() => r()));
+        await engine?.stop();
         await db.close();
         pgLocal?.stop();
       },
     };
   } catch (err) {
+    await engine?.stop().catch(() => {});
     pgLocal?.stop();
     throw err;
   }
