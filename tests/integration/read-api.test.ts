@@ -410,7 +410,7 @@ describe('per-token rate limit', () => {
       });
       try {
         const url = `http://127.0.0.1:${(server.address() as AddressInfo).port}/api/v1/plants`;
-        const statuses = await Promise.all(Array.from({ length: 160 }, () => fetch(url, { headers: { Authorization: `Bearer ${token}` } }).then((r) => r.status)));
+        const statuses = await Promise.all(Array.from({ length: 300 }, () => fetch(url, { headers: { Authorization: `Bearer ${token}` } }).then((r) => r.status)));
         expect(statuses.filter((s) => s === 200).length).toBeGreaterThanOrEqual(100);
         expect(statuses.filter((s) => s === 429).length).toBeGreaterThan(0);
         expect(statuses.every((s) => s === 200 || s === 429)).toBe(true);
