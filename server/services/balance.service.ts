@@ -10,11 +10,14 @@
  * - the *plant clock* is the newest sample `ts` of the plant; rolling windows (SRT, the
  *   clarifier integral, the blanket rate) end there, so they hold the same amount of process
  *   time whatever the simulation speed;
- * - *staleness* is judged twice: by the wall-clock age of `tag_latest.received_at` (did ingest
- *   hear from the tag lately?) and by the tag's lag behind the plant clock (is the tag falling
- *   behind the others, e.g. a frozen source replaying an old value?). Either above
- *   `inputs.stale_factor` × the tag's expected period makes it stale. Expected periods are in
- *   process time, so a sped-up simulator makes the wall-clock test more lenient, never stricter.
+ * - *staleness* is judged by the wall-clock age of `tag_latest.received_at` (did ingest hear
+ *   from the tag lately?) against `inputs.stale_factor` × the tag's expected period. Sample time
+ *   cannot be used for it: against the wall clock a sped-up simulator is always "in the future",
+ *   and against the plant clock a tag polled once a wall second (OPC UA sampling) lags 60 process
+ *   seconds at 60× although nothing is wrong. The lag behind the plant clock is still reported
+ *   per input (`lag_s`) for the operator to see; a source sending old timestamps is graded by
+ *   ingest (clock-skew flag). Expected periods are in process time, so a sped-up simulator makes
+ *   the wall-clock test more lenient, never stricter.
  * A stale value is used (estimated, with the reason) until `inputs.max_age_s`, then unavailable.
  */
 import { OPERATOR_CAUTION, type Balance, type BalanceData, type BalanceInputs, type FigureOut } from '../../shared/contracts/balance.ts';
@@ -193,7 +196,7 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
     const age_s = never ? Infinity : Math.max(0, (now_ms - r.receivedAt_ms!) / 1000);
     const lag_s = never ? Infinity : Math.max(0, (clock - r.ts_ms!) / 1000);
     const staleAfter_s = staleFactor * r.expectedPeriod_s;
-    const stale = age_s > staleAfter_s || lag_s > staleAfter_s;
+    const stale = age_s > staleAfter_s;
     const grade = qualityGrade(r.qualityCode);
     const flags = qualityFlags(r.qualityCode);
     const why = (m: string) => `${r.tag}: ${m}`;
@@ -202,11 +205,11 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
     else if (factor === null) fig = unavailable(why(`unit '${r.unit}' does not fit signal ${r.signal} (expected ${SI_UNIT[SIGNAL_DIM[r.signal]]} or a known equivalent)`));
     else if (r.value === null || !Number.isFinite(r.value)) fig = unavailable(why('no value'));
     else if (grade === 'bad') fig = unavailable(why(`bad quality${flags.length ? ` (${flags.join(', ')})` : ''}`));
-    else if (Math.max(age_s, lag_s) > maxAge_s) fig = unavailable(why(`stale: last value ${Math.round(Math.max(age_s, lag_s))} s old, beyond the ${maxAge_s} s it may be used`));
+    else if (age_s > maxAge_s) fig = unavailable(why(`stale: last value received ${Math.round(age_s)} s ago, beyond the ${maxAge_s} s it may be used`));
     else {
       const reasons: string[] = [];
       if (grade === 'uncertain') reasons.push(why(`uncertain quality${flags.length ? ` (${flags.join(', ')})` : ''}`));
-      if (stale) reasons.push(why(`stale: last value ${Math.round(Math.max(age_s, lag_s))} s old (> ${staleFactor} × ${r.expectedPeriod_s} s expected period); last value used`));
+      if (stale) reasons.push(why(`stale: last value received ${Math.round(age_s)} s ago (> ${staleFactor} × ${r.expectedPeriod_s} s expected period); last value used`));
       fig = reasons.length ? estimated(r.value * factor, ...reasons) : good(r.value * factor);
     }
     latest.set(`${r.signal}|${r.targetType}:${r.targetId}`, { fig, reading: r, factor });

@@ -6,6 +6,8 @@ import { AppLayout } from './layout.tsx';
 // Views are code-split: each route loads its own chunk.
 const AccessPage = lazy(() => import('../features/access/components/access-page.tsx'));
 const WhatIfPage = lazy(() => import('../features/what-if/components/what-if-page.tsx'));
+const SignalsPage = lazy(() => import('../features/signals/components/signals-page.tsx'));
+const TrendsPage = lazy(() => import('../features/trends/components/trends-page.tsx'));
 
 export const router = createBrowserRouter([
   { path: '/login', element: <LoginPage /> },
@@ -16,6 +18,8 @@ export const router = createBrowserRouter([
       { index: true, element: <Navigate to="/what-if" replace /> },
       { path: 'what-if', element: <WhatIfPage /> },
       { path: 'access', element: <AccessPage /> },
+      { path: 'signals', element: <SignalsPage /> },
+      { path: 'trends', element: <TrendsPage /> },
       { path: '*', element: <p className="p-2">No such view.</p> },
     ],
   },
