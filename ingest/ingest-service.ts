@@ -5,7 +5,6 @@ import type { Logger } from 'pino';
 import { ingestPaths, type IngestConfig } from './config.ts';
 import type { Connector, ConnectorStatus, SourceConfig } from './connector.ts';
 import { MqttConnector } from './mqtt/mqtt-connector.ts';
-import { OpcuaConnector } from './opcua/opcua-connector.ts';
 import type { TagConfig } from './pipeline/types.ts';
 import { loadWiring } from './source-repository.ts';
 import { BatchWriter, type WriterStats } from './sink/batch-writer.ts';
@@ -122,7 +121,7 @@ export class IngestService {
         continue;
       }
       if (cur) await cur.c.close();
-      this.connectors.set(s.id, { key, c: this.create(s, tags) });
+      this.connectors.set(s.id, { key, c: await this.create(s, tags) });
       this.log.info({ source: s.id, kind: s.kind, tags: tags.length }, cur ? 'source changed; reconnecting' : 'source started');
     }
     for (const [id, cur] of this.connectors) {
@@ -134,8 +133,10 @@ export class IngestService {
     }
   }
 
-  private create(s: SourceConfig, tags: TagConfig[]): Connector {
+  private async create(s: SourceConfig, tags: TagConfig[]): Promise<Connector> {
     if (s.kind === 'mqtt') return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log });
+    // node-opcua is large (≈ 100 MB resident once loaded): only load it when a source needs it.
+    const { OpcuaConnector } = await import('./opcua/opcua-connector.ts');
     return new OpcuaConnector(s, tags, this.writer, { pkiDir: ingestPaths(this.cfg.dataDir).pkiDir, log: this.log });
   }
 

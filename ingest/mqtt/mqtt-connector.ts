@@ -120,6 +120,7 @@ export class MqttConnector implements Connector {
       send(packet, cb, cbStorePut, noStore);
     };
     client.on('connect', (connack) => {
+      if (this.connectedAt !== null) this.counters.reconnects++;
       this.state = 'connected';
       this.lastError = null;
       this.connectedAt = Date.now();
@@ -139,7 +140,6 @@ export class MqttConnector implements Connector {
       this.generation++;
       this.held.clear();
       if (this.closing) return;
-      if (this.state === 'connected') this.counters.reconnects++;
       this.state = 'reconnecting';
     });
     client.on('reconnect', () => {

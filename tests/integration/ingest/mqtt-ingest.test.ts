@@ -111,10 +111,17 @@ describe('MQTT → PostgreSQL', () => {
   it('still stores exactly N when the broker restarts mid-stream', async () => {
     const N = 20_000;
     const t0 = Date.UTC(2026, 0, 12, 0, 0, 0);
+    const sentBefore = svc.status().sources[0]!.messages;
     let restarted = false;
     await publishSeries(pub, N, t0, async (sent) => {
       if (!restarted && sent >= 6_000) {
         restarted = true;
+        // Restart once the broker has handed every acknowledged publish to ingest. aedes keeps
+        // messages between its publisher PUBACK and the subscriber write in its in-memory
+        // emitter (not in the persistence), so restarting inside that window loses them at the
+        // broker — observed as exactly 100 (mqemitter's default concurrency) missing rows.
+        // Ingest still holds PUBACKs of its unflushed batch here, so the broker redelivers those.
+        await waitFor('broker drained to ingest', async () => svc.status().sources[0]!.messages, (m) => m >= sentBefore + sent, 10_000);
         await broker.restart(700);
       }
     });
@@ -173,7 +180,11 @@ describe('MQTT → PostgreSQL', () => {
     expect(await scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range)).toBe(good);
     const after = svc.status().sources[0]!;
     expect(after.unmapped - before.unmapped).toBe(unknown);
-    expect(after.state).toBe('connected');
+    // Alive: connected (again) and still storing good data after the flood.
+    await waitFor('connected after the flood', async () => svc.status().sources[0]?.state, (st) => st === 'connected', 15_000);
+    const probeTs = new Date(t0 + 3_600_000).toISOString();
+    await pub.publishAsync('t/tag1', JSON.stringify({ v: 1, ts: probeTs }), { qos: 1 });
+    await waitFor('probe stored', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = $1 AND ts = $2`, [tagIds[1], probeTs]), (n) => n === 1, 15_000);
     // Large payloads are truncated but keep their size.
     const large = await pool.query(`SELECT length(payload) len, payload_bytes FROM dead_letters WHERE payload_bytes > 1000000 LIMIT 1`);
     expect(large.rows[0].len).toBeLessThanOrEqual(4096);
