@@ -57,7 +57,9 @@ async function main(): Promise<void> {
       const seeded = await seedPlant(server.ctx, DEMO_PLANT, { mqttUrl, opcuaUrl });
       if (!seeded.created) await updateSeedEndpoints(server.ctx, seeded.plantId, DEMO_PLANT.code, { mqttUrl, opcuaUrl });
       say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
-      const simArgs = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir];
+      // Two simulated hours of history replayed fast (the demo storm starts half an hour in),
+      // then real time: the board shows a storm within minutes and no timestamp is in the future.
+      const simArgs = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir, '--catch-up-h', '2'];
       if (config.simSpeed) simArgs.push('--speed', String(config.simSpeed));
       const sim = spawnTs(root, 'simulator', 'simulators/cli.ts', simArgs, {}, (code) => {
         if (!stopping) void stop(`the simulator exited (code ${code})`, 1);

@@ -1,6 +1,9 @@
 /**
  * npm run sim -- --scenario storm --speed 60 [--seed N] [--mqtt-url URL | --no-mqtt]
- *                [--opcua-port P | --no-opcua] [--batch] [--data-dir D] [--list]
+ *                [--opcua-port P | --no-opcua] [--batch] [--data-dir D] [--catch-up-h H] [--list]
+ *
+ * --catch-up-h H starts the simulated clock H hours ago and runs at --speed until it meets the
+ * wall clock, then in real time (timestamps never lie in the future).
  *
  * Prints one line with the MQTT and OPC UA endpoints, then runs until SIGINT/SIGTERM.
  * The simulator publishes to a broker; it does not start one (the product's launcher starts
@@ -21,6 +24,7 @@ const argsSchema = z.object({
   'no-opcua': z.boolean().default(false),
   batch: z.boolean().default(false),
   'data-dir': z.string().min(1).default('.data'),
+  'catch-up-h': z.coerce.number().positive().max(720).optional(),
 });
 
 async function main(): Promise<number> {
@@ -35,13 +39,14 @@ async function main(): Promise<number> {
       'no-opcua': { type: 'boolean' },
       batch: { type: 'boolean' },
       'data-dir': { type: 'string' },
+      'catch-up-h': { type: 'string' },
       list: { type: 'boolean' },
       help: { type: 'boolean', short: 'h' },
     },
     strict: true,
   });
   if (values.help) {
-    console.log('usage: npm run sim -- --scenario <name> [--speed 1..3600] [--seed N] [--mqtt-url URL|--no-mqtt] [--opcua-port P|--no-opcua] [--batch] [--data-dir D] [--list]');
+    console.log('usage: npm run sim -- --scenario <name> [--speed 1..3600] [--seed N] [--mqtt-url URL|--no-mqtt] [--opcua-port P|--no-opcua] [--batch] [--data-dir D] [--catch-up-h H] [--list]');
     return 0;
   }
   if (values.list) {
@@ -62,6 +67,7 @@ async function main(): Promise<number> {
     opcuaPort: a['no-opcua'] ? null : a['opcua-port'],
     batch: a.batch,
     dataDir: a['data-dir'],
+    ...(a['catch-up-h'] !== undefined ? { catchUp_h: a['catch-up-h'] } : {}),
     log: (line) => console.log(line),
   });
   await new Promise<void>((resolve) => {

@@ -34,8 +34,15 @@ export interface SimulatorOptions {
   /** Data folder (OPC UA PKI goes to <dataDir>/pki/sim-server). Default ".data". */
   dataDir?: string;
   plant?: DemoPlant;
-  /** Simulated time zero; default the real now. */
+  /** Simulated time zero; default the real now (or now − catchUp_h). */
   startTime?: Date;
+  /**
+   * Start the simulated clock this many hours in the past and run at `speed` only until it
+   * reaches the wall clock, then in real time: the data then never carries timestamps from the
+   * future (which ingest rightly flags as clock skew), and a demo still shows hours of plant
+   * behaviour within minutes.
+   */
+  catchUp_h?: number;
   /** Real-time period of the simulation loop [ms]; default 100. */
   tick_ms?: number;
   /** Fixed model step [s]; default 5. */
@@ -61,7 +68,9 @@ export async function startSimulator(opts: SimulatorOptions): Promise<RunningSim
   const speed = opts.speed ?? scenario.recommendedSpeed;
   if (!(speed >= 1 && speed <= 3600)) throw new RangeError(`speed must be between 1 and 3600, got ${speed}`);
   const seed = opts.seed ?? 1;
-  const start = opts.startTime ?? new Date();
+  const catchUp = opts.catchUp_h !== undefined;
+  if (catchUp && !(opts.catchUp_h! > 0 && opts.catchUp_h! <= 24 * 30)) throw new RangeError(`catch-up must be between 0 and 720 h, got ${opts.catchUp_h}`);
+  const start = opts.startTime ?? new Date(Date.now() - (opts.catchUp_h ?? 0) * 3_600_000);
   const epoch0 = start.getTime();
   const startHourOfDay = start.getUTCHours() + start.getUTCMinutes() / 60;
   const model = new PlantModel(plant, scenario, { seed, startHourOfDay, ...(opts.modelStep_s ? { step_s: opts.modelStep_s } : {}) });
@@ -94,7 +103,9 @@ export async function startSimulator(opts: SimulatorOptions): Promise<RunningSim
   const maxStepsPerTick = Math.ceil((10 * tick_ms * speed) / 1000 / (model.step_h * 3600)) + 10;
   let lag_h = 0;
   const tick = () => {
-    const target_h = ((performance.now() - realStart) * speed) / 3_600_000 - lag_h;
+    const fast_h = ((performance.now() - realStart) * speed) / 3_600_000 - lag_h;
+    // In catch-up mode the simulated clock never passes the wall clock.
+    const target_h = catchUp ? Math.min(fast_h, (Date.now() - epoch0) / 3_600_000) : fast_h;
     const readings: Reading[] = [];
     let steps = 0;
     while (model.time_h + model.step_h <= target_h + 1e-12) {
