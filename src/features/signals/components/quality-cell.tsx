@@ -13,7 +13,7 @@ const FLAG_TEXT: Record<string, string> = {
  * bordered mark in their abnormal colour, followed by the reasons (flags).
  */
 export function QualityCell({ code, stale }: { code: number | null; stale: boolean }) {
-  if (code === null) return <span className="text-ink-3">no value</span>;
+  if (code === null) return <Mark cls="border-unavailable text-unavailable">NO VALUE</Mark>;
   const grade = qualityGrade(code);
   const flags = qualityFlags(code).map((f) => FLAG_TEXT[f] ?? f);
   const mark =

@@ -151,17 +151,9 @@ function TrendView({ plantId }: { plantId: number }) {
         <span className="num text-[12px] text-ink-2" data-testid="trend-window">
           {formatUtc(from).slice(0, 16)}Z → {formatUtc(to).slice(0, 16)}Z
         </span>
-        <div className="ml-auto flex gap-1">
-          <Button onClick={exportCsv} disabled={!pens.some((p) => p.data)}>
-            Export CSV
-          </Button>
-          <Button onClick={() => void exportPng()} disabled={!pens.length}>
-            Export PNG
-          </Button>
-        </div>
       </div>
-      {pens.length ? (
-        <ul aria-label="Pens" className="flex flex-wrap gap-1 px-2 pt-1.5">
+      <div className="flex flex-wrap items-center gap-1 px-2 pt-1.5">
+        <ul aria-label="Pens" className="flex flex-wrap gap-1">
           {pens.map((p) => (
             <li key={p.tagId} className="flex items-center gap-1 border border-edge bg-panel-2 rounded-sm pl-1.5 text-[12px]">
               <span>{p.name}</span>
@@ -172,7 +164,15 @@ function TrendView({ plantId }: { plantId: number }) {
             </li>
           ))}
         </ul>
-      ) : null}
+        <div className="ml-auto flex gap-1">
+          <Button onClick={exportCsv} disabled={!pens.some((p) => p.data)}>
+            Export CSV
+          </Button>
+          <Button onClick={() => void exportPng()} disabled={!pens.length}>
+            Export PNG
+          </Button>
+        </div>
+      </div>
       <div className="p-2">
         <ErrorNote error={firstError ?? tags.error ?? exportError} />
         <div ref={boxRef} className="w-full">
