@@ -8,6 +8,10 @@ const AccessPage = lazy(() => import('../features/access/components/access-page.
 const WhatIfPage = lazy(() => import('../features/what-if/components/what-if-page.tsx'));
 const SignalsPage = lazy(() => import('../features/signals/components/signals-page.tsx'));
 const TrendsPage = lazy(() => import('../features/trends/components/trends-page.tsx'));
+const BoardPage = lazy(() => import('../features/board/components/board-page.tsx'));
+const AlarmsPage = lazy(() => import('../features/alarms/components/alarms-page.tsx'));
+const LabPage = lazy(() => import('../features/lab/components/lab-page.tsx'));
+const OutboxPage = lazy(() => import('../features/outbox/components/outbox-page.tsx'));
 
 export const router = createBrowserRouter([
   { path: '/login', element: <LoginPage /> },
@@ -15,7 +19,11 @@ export const router = createBrowserRouter([
     path: '/',
     element: <AppLayout />,
     children: [
-      { index: true, element: <Navigate to="/what-if" replace /> },
+      { index: true, element: <Navigate to="/board" replace /> },
+      { path: 'board', element: <BoardPage /> },
+      { path: 'alarms', element: <AlarmsPage /> },
+      { path: 'lab', element: <LabPage /> },
+      { path: 'outbox', element: <OutboxPage /> },
       { path: 'what-if', element: <WhatIfPage /> },
       { path: 'access', element: <AccessPage /> },
       { path: 'signals', element: <SignalsPage /> },

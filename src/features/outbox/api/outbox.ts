@@ -1,0 +1,32 @@
+import { queryOptions, useQuery } from '@tanstack/react-query';
+import { api } from '../../../lib/api-client.ts';
+import { paths } from '../../../lib/paths.ts';
+
+/** A message the built-in SMTP catcher received (server/routes/outbox.routes.ts). */
+export interface OutboxSummary {
+  id: number;
+  receivedAt: string;
+  from: string;
+  to: string[];
+  subject: string;
+  size: number;
+}
+export interface OutboxMessage extends OutboxSummary {
+  text: string;
+  raw: string;
+}
+
+export function fetchOutbox(signal?: AbortSignal): Promise<OutboxSummary[]> {
+  return api<OutboxSummary[]>(paths.withQuery(paths.outbox, { limit: 200 }), { signal });
+}
+
+export const outboxQuery = queryOptions({
+  queryKey: ['outbox'],
+  queryFn: ({ signal }) => fetchOutbox(signal),
+  // Mail arrives from the balance engine without a stream event; a gentle poll picks it up.
+  refetchInterval: 15_000,
+});
+
+export function useOutbox() {
+  return useQuery(outboxQuery);
+}
