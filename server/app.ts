@@ -22,6 +22,8 @@ import { settingsRoutes } from './routes/settings.routes.ts';
 import { streamRoutes } from './routes/stream.routes.ts';
 import { tokensRoutes } from './routes/tokens.routes.ts';
 import { usersRoutes } from './routes/users.routes.ts';
+import { wiringRoutes } from './routes/wiring.routes.ts';
+import { ingestStatusRoutes } from './routes/ingest-status.routes.ts';
 
 export const VERSION = '0.1.0';
 const DIST = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../dist');
@@ -32,6 +34,8 @@ export function apiRoutes(ctx: AppContext): RouteDef[] {
   defs.push(...alarmsRoutes(ctx));
   defs.push(...settingsRoutes(ctx));
   defs.push(...outboxRoutes(ctx));
+  defs.push(...wiringRoutes(ctx));
+  defs.push(...ingestStatusRoutes(ctx));
   const doc = () => buildOpenApi(defs, VERSION);
   let cached: object | undefined;
   defs.push({

@@ -1,0 +1,220 @@
+import express, { type Request } from 'express';
+import { z } from 'zod';
+import { plantParams, type PlantParams } from '../../shared/contracts/plant-api.ts';
+import {
+  browseOut,
+  browseQuery,
+  connectionTestOut,
+  discoveryOut,
+  mappingParams,
+  mappingPut,
+  mappingPutOut,
+  sourceCreate,
+  sourceDeleteQuery,
+  sourceOut,
+  sourceParams,
+  sourcePatch,
+  sourcesResponse,
+  tagConfigOut,
+  tagCreate,
+  tagIdParams,
+  tagImportOut,
+  tagImportQuery,
+  tagPatch,
+  tagsConfigResponse,
+  type MappingPut,
+  type SourceCreate,
+  type SourcePatch,
+  type TagCreate,
+  type TagPatch,
+} from '../../shared/contracts/wiring.ts';
+import type { AppContext } from '../app-context.ts';
+import { HttpError } from '../http/errors.ts';
+import type { RouteDef } from '../http/route.ts';
+import { plantService } from '../services/plant.service.ts';
+import { wiringService } from '../services/wiring.service.ts';
+
+/** Largest tag-list upload [bytes]. */
+export const TAG_CSV_MAX_BYTES = 1 << 20;
+const csvBody = express.text({ type: ['text/csv', 'text/plain', 'application/csv'], limit: TAG_CSV_MAX_BYTES });
+
+const deleted = z.object({ deleted: z.literal(true), id: z.number().int() });
+
+/**
+ * Wiring (DESIGN §4, §5): sources, tags and the signal map, integrator and up; every write
+ * audited; source passwords are write-only.
+ */
+export function wiringRoutes(ctx: AppContext): RouteDef[] {
+  const plants = plantService(ctx);
+  const wiring = wiringService(ctx);
+  const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
+  const sid = (req: Request) => (req.valid.params as { sourceId: number }).sourceId;
+  const tid = (req: Request) => (req.valid.params as { tagId: number }).tagId;
+  const common = { role: 'integrator', tag: 'wiring' } as const;
+  return [
+    {
+      ...common,
+      method: 'get',
+      path: '/plants/:plantId/sources',
+      summary: 'Sources of a plant (MQTT brokers, OPC UA endpoints); passwords are never returned, hasSecret says whether one is stored',
+      params: plantParams,
+      response: sourcesResponse,
+      handler: async (req) => {
+        await plants.requirePlant(req, pid(req));
+        return wiring.listSources(pid(req));
+      },
+    },
+    {
+      ...common,
+      method: 'post',
+      path: '/plants/:plantId/sources',
+      summary:
+        'Add a source: kind mqtt (url mqtt://, mqtts://, ws:// or wss://; options topics, protocolVersion 4|5|auto, clientId, keepalive_s) or opcua (url opc.tcp://; options securityMode, securityPolicy, publishingInterval_ms, samplingInterval_ms, acceptUnknownServerCertificate); password is write-only; name unique in the plant (409)',
+      status: 201,
+      params: plantParams,
+      body: sourceCreate,
+      response: sourceOut,
+      handler: async (req) => {
+        await plants.requirePlant(req, pid(req));
+        return wiring.createSource(req, pid(req), req.valid.body as SourceCreate);
+      },
+    },
+    {
+      ...common,
+      method: 'patch',
+      path: '/sources/:sourceId',
+      summary: 'Change a source (not its kind); url and options are checked against its kind; password null removes it, left out keeps it',
+      params: sourceParams,
+      body: sourcePatch,
+      response: sourceOut,
+      handler: (req) => wiring.updateSource(req, sid(req), req.valid.body as SourcePatch),
+    },
+    {
+      ...common,
+      method: 'delete',
+      path: '/sources/:sourceId',
+      summary: 'Delete a source; 409 while it has tags unless ?force=1 (then its tags and their mappings go too; stored samples stay)',
+      params: sourceParams,
+      query: sourceDeleteQuery,
+      response: deleted.extend({ tagsDeleted: z.number().int() }),
+      handler: (req) => wiring.deleteSource(req, sid(req), (req.valid.query as { force?: string }).force === '1'),
+    },
+    {
+      ...common,
+      method: 'post',
+      path: '/sources/:sourceId/test',
+      summary: 'Test the connection with the stored settings: MQTT CONNECT/CONNACK within 5 s, OPC UA secure channel and session within 8 s; answers ok:false with the error (still 200) when the far end fails',
+      params: sourceParams,
+      response: connectionTestOut,
+      handler: (req) => wiring.testSource(req, sid(req)),
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/sources/:sourceId/browse',
+      summary: 'OPC UA source: children of a node (default the Objects folder) with node class, whether they have children and, for variables, the data type; 502 when the endpoint cannot be reached',
+      params: sourceParams,
+      query: browseQuery,
+      response: browseOut,
+      handler: (req) => wiring.browse(req, sid(req), (req.valid.query as { nodeId?: string }).nodeId),
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/sources/:sourceId/discovery',
+      summary: 'MQTT source: topics ingest has seen with their last payload (first 256 characters), count and mapped tag; empty with a note until ingest has written the list',
+      params: sourceParams,
+      response: discoveryOut,
+      handler: (req) => wiring.discovery(req, sid(req)),
+    },
+    {
+      ...common,
+      method: 'get',
+      path: '/plants/:plantId/tags/config',
+      summary: 'Tag configuration of a plant (address, scaling, deadband, expected period, range, sampling interval, mapped signals); live values are GET /plants/{plantId}/tags',
+      params: plantParams,
+      response: tagsConfigResponse,
+      handler: async (req) => {
+        await plants.requirePlant(req, pid(req));
+        return wiring.listTags(pid(req));
+      },
+    },
+    {
+      ...common,
+      method: 'post',
+      path: '/plants/:plantId/tags',
+      summary: 'Add a tag: source of this plant, address fitting its kind (MQTT topic or filter, OPC UA NodeId), unit, scaling raw × scaleGain + scaleOffset, deadband, expectedPeriod_s, rangeLow < rangeHigh; name unique in the plant and address unique per source (409)',
+      status: 201,
+      params: plantParams,
+      body: tagCreate,
+      response: tagConfigOut,
+      handler: async (req) => {
+        await plants.requirePlant(req, pid(req));
+        return wiring.createTag(req, pid(req), req.valid.body as TagCreate);
+      },
+    },
+    {
+      ...common,
+      method: 'patch',
+      path: '/tags/:tagId',
+      summary: 'Change a tag; the same rules as adding one, checked against the resulting tag',
+      params: tagIdParams,
+      body: tagPatch,
+      response: tagConfigOut,
+      handler: (req) => wiring.updateTag(req, tid(req), req.valid.body as TagPatch),
+    },
+    {
+      ...common,
+      method: 'delete',
+      path: '/tags/:tagId',
+      summary: 'Delete a tag and its signal mappings (stored samples stay)',
+      params: tagIdParams,
+      response: deleted,
+      handler: (req) => wiring.deleteTag(req, tid(req)),
+    },
+    {
+      ...common,
+      method: 'post',
+      path: '/plants/:plantId/tags/import',
+      summary:
+        'Upload a tag list as CSV (Content-Type: text/csv, RFC 4180, header row; columns name, source (source name), address, unit, description, scale_gain, scale_offset, deadband, expected_period_s, range_low, range_high, signal, target (basin/clarifier/pump code); at most 1 MiB, 5000 rows). ?dryRun=1 answers the preview and the row errors without storing; otherwise all or nothing: any invalid row → 422 listing line.<n>.<column> (the header is line 1)',
+      status: 201,
+      params: plantParams,
+      query: tagImportQuery,
+      before: [csvBody],
+      response: tagImportOut,
+      handler: async (req, res) => {
+        await plants.requirePlant(req, pid(req));
+        if (typeof req.body !== 'string') throw new HttpError(415, 'unsupported_media_type', 'send the file as the request body with Content-Type: text/csv');
+        const dryRun = (req.valid.query as { dryRun?: string }).dryRun === '1';
+        const out = await wiring.importCsv(req, pid(req), req.body, dryRun);
+        if (dryRun) res.status(200);
+        else res.status(201);
+        res.json(out);
+      },
+    },
+    {
+      ...common,
+      method: 'put',
+      path: '/plants/:plantId/signal-map',
+      summary:
+        'Map a process signal of a target to a tag, replacing the tag mapped to that signal and target before (answered as replacedTagId); the signal kind must fit the target type (plant.* → plant, basin.* → basin, clarifier.* → clarifier, pump.* → pump); target by targetCode or targetId',
+      params: plantParams,
+      body: mappingPut,
+      response: mappingPutOut,
+      handler: async (req) => {
+        await plants.requirePlant(req, pid(req));
+        return wiring.putMapping(req, pid(req), req.valid.body as MappingPut);
+      },
+    },
+    {
+      ...common,
+      method: 'delete',
+      path: '/signal-map/:id',
+      summary: 'Remove one signal mapping',
+      params: mappingParams,
+      response: deleted,
+      handler: (req) => wiring.deleteMapping(req, (req.valid.params as { id: number }).id),
+    },
+  ];
+}

@@ -1,0 +1,488 @@
+import { randomBytes } from 'node:crypto';
+import fs from 'node:fs/promises';
+import path from 'node:path';
+import type { Request } from 'express';
+import mqtt from 'mqtt';
+import { SIGNAL_KINDS } from '../../shared/contracts/plant-layout.ts';
+import {
+  signalTargetType,
+  sourceOptionsSchema,
+  sourceUrlIssue,
+  tagAddressIssue,
+  TAG_CSV_COLUMNS,
+  TAG_CSV_MAX_ROWS,
+  TAG_CSV_REQUIRED,
+  discoveryFile,
+  tagCreate,
+  type ConnectionTestOut,
+  type MappingOut,
+  type MappingPut,
+  type SourceCreate,
+  type SourceKind,
+  type SourceOut,
+  type SourcePatch,
+  type TagConfigOut,
+  type TagCreate,
+  type TagImportOut,
+  type TagImportRow,
+  type TagPatch,
+} from '../../shared/contracts/wiring.ts';
+import type { AppContext } from '../app-context.ts';
+import { assertPlantAccess } from '../auth/middleware.ts';
+import { ConflictError, NotFoundError, ValidationError } from '../http/errors.ts';
+import { zodFields } from '../http/validate.ts';
+import { uniqueViolation, wiringRepository, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow } from '../repositories/wiring.repository.ts';
+import { audit } from './audit.service.ts';
+import { parseCsv } from './csv.service.ts';
+import { browseChildren, serverPkiDir, testOpcua } from './opcua-browse.service.ts';
+
+/** MQTT "test connection" budget: CONNECT → CONNACK within this [ms]. */
+export const MQTT_TEST_TIMEOUT_MS = 5_000;
+
+/** The answer for a source: the password is never part of it, only whether one is stored. */
+export function sourceOut(s: SourceRow, tagCount: number): SourceOut {
+  return {
+    id: s.id,
+    plantId: s.plantId,
+    name: s.name,
+    kind: s.kind,
+    url: s.url,
+    username: s.username,
+    hasSecret: s.secret !== null && s.secret !== '',
+    options: (s.options ?? {}) as Record<string, unknown>,
+    enabled: s.enabled,
+    tags: tagCount,
+    createdAt: s.createdAt.toISOString(),
+  };
+}
+
+function conflictMessage(constraint: string, what: { name?: string; address?: string }): string {
+  if (constraint === 'sources_plant_name_uq') return `the plant already has a source named "${what.name}"`;
+  if (constraint === 'tags_plant_name_uq') return `the plant already has a tag named "${what.name}"`;
+  if (constraint === 'tags_source_address_uq') return `the source already has a tag at address "${what.address}"`;
+  return 'that would duplicate an existing entry';
+}
+
+/** Runs a write, turning a unique-index violation into a 409 that names what is duplicated. */
+async function unique<T>(what: { name?: string; address?: string }, fn: () => Promise<T>): Promise<T> {
+  try {
+    return await fn();
+  } catch (err) {
+    const c = uniqueViolation(err);
+    if (c !== null) throw new ConflictError(conflictMessage(c, what));
+    throw err;
+  }
+}
+
+/** A CSV cell as a number when it reads as one in plain decimal notation (else the text, so zod names the field). */
+function csvNumber(t: string): unknown {
+  return /^[+-]?(\d+\.?\d*|\.\d+)$/.test(t) ? Number(t) : t;
+}
+/** JSON field of the tag form → CSV column, so import errors name the column the user sees. */
+const CSV_COLUMN_OF: Record<string, string> = {
+  name: 'name',
+  sourceId: 'source',
+  address: 'address',
+  unit: 'unit',
+  description: 'description',
+  scaleGain: 'scale_gain',
+  scaleOffset: 'scale_offset',
+  deadband: 'deadband',
+  expectedPeriod_s: 'expected_period_s',
+  rangeLow: 'range_low',
+  rangeHigh: 'range_high',
+};
+
+/**
+ * MQTT "test connection": one CONNECT with Clean Start and a client identifier of its own (MQTT
+ * 5.0 §3.1.4: a second connection with ingest's identifier would make the broker close ingest's
+ * session), CONNACK awaited for at most 5 s, then DISCONNECT. With protocolVersion auto a
+ * refusal of 5.0 (reason 0x84, §3.2.2.2; 3.1.1 return code 1) is retried as 3.1.1, as ingest does.
+ */
+export async function testMqtt(s: Pick<SourceRow, 'id' | 'url' | 'username' | 'secret' | 'options'>, timeoutMs = MQTT_TEST_TIMEOUT_MS): Promise<ConnectionTestOut> {
+  const opts = (s.options ?? {}) as { protocolVersion?: 4 | 5 | 'auto' };
+  const versions: Array<4 | 5> = opts.protocolVersion === 4 ? [4] : opts.protocolVersion === 5 ? [5] : [5, 4];
+  const t0 = performance.now();
+  let lastError = '';
+  for (const protocolVersion of versions) {
+    try {
+      const client = await mqtt.connectAsync(
+        s.url,
+        {
+          clientId: `flocstream-test-${s.id}-${randomBytes(4).toString('hex')}`,
+          clean: true,
+          protocolVersion,
+          connectTimeout: timeoutMs,
+          reconnectPeriod: 0,
+          keepalive: 10,
+          ...(s.username ? { username: s.username } : {}),
+          ...(s.secret ? { password: s.secret } : {}),
+        },
+        false,
+      );
+      const latency_ms = Math.round(performance.now() - t0);
+      await client.endAsync().catch(() => {});
+      return { ok: true, latency_ms, details: { protocolVersion: protocolVersion === 5 ? '5.0' : '3.1.1' } };
+    } catch (err) {
+      const e = err as { code?: number | string; message?: string };
+      lastError = e.message || String(e.code ?? err);
+      if (!(protocolVersion === 5 && versions.length > 1 && (e.code === 0x84 || e.code === 1))) break;
+    }
+  }
+  return { ok: false, latency_ms: Math.round(performance.now() - t0), error: lastError.slice(0, 300) };
+}
+
+/**
+ * Sources, tags and the signal map of a plant (integrator and up), with every write audited.
+ * Passwords go in and never out (answers say `hasSecret`), nor into the audit log.
+ */
+export function wiringService(ctx: AppContext) {
+  const repo = wiringRepository(ctx.db.db);
+  const pkiDir = serverPkiDir(ctx.config.dataDir);
+
+  async function requireSource(req: Request, id: number) {
+    const r = await repo.source(id);
+    if (!r) throw new NotFoundError(`no source ${id}`);
+    assertPlantAccess(req, r.source.plantId);
+    return r;
+  }
+  async function requireTag(req: Request, id: number) {
+    const r = await repo.tag(id);
+    if (!r) throw new NotFoundError(`no tag ${id}`);
+    assertPlantAccess(req, r.tag.plantId);
+    return r;
+  }
+  /** A source of this plant for a tag, or a 422 under `field`. */
+  async function sourceOfPlant(plantId: number, sourceId: number, field = 'sourceId'): Promise<SourceRow> {
+    const r = await repo.source(sourceId);
+    if (!r || r.source.plantId !== plantId) throw new ValidationError({ [field]: [`no source ${sourceId} in this plant`] });
+    return r.source;
+  }
+
+  async function tagOut(t: TagRow, source: { name: string; kind: SourceKind }, maps?: MappingRow[], targets?: TargetRow[]): Promise<TagConfigOut> {
+    maps ??= (await repo.mappings(t.plantId)).filter((m) => m.tagId === t.id);
+    targets ??= await repo.targets(t.plantId);
+    return {
+      id: t.id,
+      plantId: t.plantId,
+      name: t.name,
+      description: t.description,
+      source: { id: t.sourceId, name: source.name, kind: source.kind },
+      address: t.address,
+      unit: t.unit,
+      scaleGain: t.scaleGain,
+      scaleOffset: t.scaleOffset,
+      deadband: t.deadband,
+      expectedPeriod_s: t.expectedPeriod_s,
+      rangeLow: t.rangeLow,
+      rangeHigh: t.rangeHigh,
+      samplingInterval_ms: t.samplingInterval_ms,
+      enabled: t.enabled,
+      signals: maps.filter((m) => m.tagId === t.id).map((m) => mappingOut(m, targets)),
+      createdAt: t.createdAt.toISOString(),
+    };
+  }
+  function mappingOut(m: MappingRow, targets: TargetRow[]): MappingOut {
+    return { id: m.id, signal: m.signal, targetType: m.targetType, targetId: m.targetId, targetCode: targets.find((t) => t.type === m.targetType && t.id === m.targetId)?.code ?? null, tagId: m.tagId };
+  }
+
+  /** Resolves a mapping target by code or id among the plant's targets of that type; null with a message when there is none. */
+  function resolveTarget(targets: TargetRow[], type: TargetRow['type'], by: { code?: string; id?: number }): TargetRow | string {
+    const ofType = targets.filter((t) => t.type === type);
+    if (type === 'plant' && by.code === undefined && by.id === undefined) return ofType[0]!;
+    const hit = ofType.find((t) => (by.code !== undefined ? t.code === by.code : t.id === by.id));
+    if (hit) return hit;
+    const known = ofType.map((t) => t.code).join(', ') || 'none';
+    return `no ${type} ${by.code !== undefined ? `"${by.code}"` : by.id} in this plant (${type} codes: ${known})`;
+  }
+
+  return {
+    // ---- sources ----
+    async listSources(plantId: number) {
+      return { plantId, sources: (await repo.listSources(plantId)).map((r) => sourceOut(r.source, r.tags)) };
+    },
+
+    async getSource(req: Request, id: number): Promise<SourceOut> {
+      const r = await requireSource(req, id);
+      return sourceOut(r.source, r.tags);
+    },
+
+    async createSource(req: Request, plantId: number, input: SourceCreate): Promise<SourceOut> {
+      const row = await unique({ name: input.name }, () =>
+        repo.insertSource({ plantId, name: input.name, kind: input.kind, url: input.url, username: input.username ?? null, secret: input.password ?? null, options: input.options ?? {}, enabled: input.enabled ?? true }),
+      );
+      await audit(ctx, req, 'source.create', `source:${row.id}`, { plantId, name: row.name, kind: row.kind, url: row.url, username: row.username, hasSecret: row.secret !== null, options: row.options, enabled: row.enabled });
+      return sourceOut(row, 0);
+    },
+
+    async updateSource(req: Request, id: number, patch: SourcePatch): Promise<SourceOut> {
+      const { source: cur, tags } = await requireSource(req, id);
+      const fields: Record<string, string[]> = {};
+      if (patch.url !== undefined) {
+        const issue = sourceUrlIssue(cur.kind, patch.url);
+        if (issue) fields.url = [issue];
+      }
+      let options: Record<string, unknown> | undefined;
+      if (patch.options !== undefined) {
+        const r = sourceOptionsSchema[cur.kind].safeParse(patch.options);
+        if (r.success) options = r.data as Record<string, unknown>;
+        else for (const [f, msgs] of Object.entries(zodFields(r.error))) fields[f === '_' ? 'options' : `options.${f}`] = msgs;
+      }
+      if (Object.keys(fields).length) throw new ValidationError(fields);
+      const set: Partial<SourceRow> = {};
+      if (patch.name !== undefined) set.name = patch.name;
+      if (patch.url !== undefined) set.url = patch.url;
+      if (patch.username !== undefined) set.username = patch.username;
+      if (patch.password !== undefined) set.secret = patch.password;
+      if (options !== undefined) set.options = options;
+      if (patch.enabled !== undefined) set.enabled = patch.enabled;
+      const row = await unique({ name: patch.name }, () => repo.updateSource(id, set));
+      if (!row) throw new NotFoundError(`no source ${id}`);
+      // What changed, never the password itself.
+      const changed = Object.fromEntries(Object.entries(set).map(([k, v]) => (k === 'secret' ? ['password', v === null ? 'removed' : 'changed'] : [k, v])));
+      await audit(ctx, req, 'source.update', `source:${id}`, { plantId: row.plantId, changed });
+      return sourceOut(row, tags);
+    },
+
+    async deleteSource(req: Request, id: number, force: boolean): Promise<{ deleted: true; id: number; tagsDeleted: number }> {
+      const { source, tags } = await requireSource(req, id);
+      if (tags > 0 && !force) throw new ConflictError(`source ${id} still has ${tags} tag(s); delete them first, or repeat with ?force=1 to delete the source with its tags and their mappings (stored samples stay)`);
+      if (!(await repo.deleteSource(id))) throw new NotFoundError(`no source ${id}`);
+      await audit(ctx, req, 'source.delete', `source:${id}`, { plantId: source.plantId, name: source.name, kind: source.kind, url: source.url, tagsDeleted: tags });
+      return { deleted: true, id, tagsDeleted: tags };
+    },
+
+    async testSource(req: Request, id: number): Promise<ConnectionTestOut> {
+      const { source } = await requireSource(req, id);
+      const out = source.kind === 'mqtt' ? await testMqtt(source) : await testOpcua(source, pkiDir);
+      ctx.log.info({ source: id, ok: out.ok, latency_ms: out.latency_ms, error: out.error }, 'source connection test');
+      return out;
+    },
+
+    async browse(req: Request, id: number, nodeId: string | undefined) {
+      const { source } = await requireSource(req, id);
+      if (source.kind !== 'opcua') throw new ValidationError({ sourceId: ['browsing is for OPC UA sources; an MQTT source lists its topics under /discovery'] });
+      return { sourceId: id, ...(await browseChildren(source, pkiDir, nodeId)) };
+    },
+
+    /** Topics ingest has seen on an MQTT source, from `<dataDir>/ingest-discovery/source-<id>.json`. */
+    async discovery(req: Request, id: number) {
+      const { source } = await requireSource(req, id);
+      if (source.kind !== 'mqtt') throw new ValidationError({ sourceId: ['discovery lists MQTT topics; browse an OPC UA source instead'] });
+      const file = path.join(ctx.config.dataDir, 'ingest-discovery', `source-${id}.json`);
+      let text: string, mtime: Date;
+      try {
+        [text, mtime] = await Promise.all([fs.readFile(file, 'utf8'), fs.stat(file).then((s) => s.mtime)]);
+      } catch {
+        return { sourceId: id, asOf: null, topics: [], note: source.enabled ? 'ingest has not listed topics for this source yet (it writes the list every few seconds while it is connected)' : 'the source is disabled, so ingest does not connect to it' };
+      }
+      let json: unknown;
+      try {
+        json = JSON.parse(text);
+      } catch {
+        json = undefined;
+      }
+      const r = discoveryFile.safeParse(json);
+      if (!r.success) return { sourceId: id, asOf: mtime.toISOString(), topics: [], note: 'the topic list written by ingest could not be read (a different ingest version?)' };
+      return { sourceId: id, asOf: mtime.toISOString(), topics: r.data };
+    },
+
+    // ---- tags ----
+    async listTags(plantId: number) {
+      const [rows, maps, targets] = await Promise.all([repo.listTags(plantId), repo.mappings(plantId), repo.targets(plantId)]);
+      return { plantId, tags: await Promise.all(rows.map((r) => tagOut(r.tag, { name: r.sourceName, kind: r.sourceKind }, maps, targets))) };
+    },
+
+    async createTag(req: Request, plantId: number, input: TagCreate): Promise<TagConfigOut> {
+      const src = await sourceOfPlant(plantId, input.sourceId);
+      const issue = tagAddressIssue(src.kind, input.address);
+      if (issue) throw new ValidationError({ address: [issue] });
+      const row = await unique(input, () => repo.insertTag({ ...input, plantId }));
+      await audit(ctx, req, 'tag.create', `tag:${row.id}`, { plantId, ...input });
+      return tagOut(row, src, []);
+    },
+
+    async updateTag(req: Request, id: number, patch: TagPatch): Promise<TagConfigOut> {
+      const { tag: cur } = await requireTag(req, id);
+      const src = patch.sourceId !== undefined && patch.sourceId !== cur.sourceId ? await sourceOfPlant(cur.plantId, patch.sourceId) : (await repo.source(cur.sourceId))!.source;
+      const fields: Record<string, string[]> = {};
+      if (patch.address !== undefined || patch.sourceId !== undefined) {
+        const issue = tagAddressIssue(src.kind, patch.address ?? cur.address);
+        if (issue) fields.address = [issue];
+      }
+      const low = patch.rangeLow !== undefined ? patch.rangeLow : cur.rangeLow;
+      const high = patch.rangeHigh !== undefined ? patch.rangeHigh : cur.rangeHigh;
+      if (low !== null && high !== null && !(low < high)) fields.rangeHigh = [`rangeLow must be below rangeHigh (they would be ${low} and ${high})`];
+      if (Object.keys(fields).length) throw new ValidationError(fields);
+      const row = await unique({ name: patch.name ?? cur.name, address: patch.address ?? cur.address }, () => repo.updateTag(id, patch));
+      if (!row) throw new NotFoundError(`no tag ${id}`);
+      await audit(ctx, req, 'tag.update', `tag:${id}`, { plantId: row.plantId, changed: patch });
+      return tagOut(row, src);
+    },
+
+    async deleteTag(req: Request, id: number) {
+      const { tag } = await requireTag(req, id);
+      if (!(await repo.deleteTag(id))) throw new NotFoundError(`no tag ${id}`);
+      await audit(ctx, req, 'tag.delete', `tag:${id}`, { plantId: tag.plantId, name: tag.name, sourceId: tag.sourceId, address: tag.address });
+      return { deleted: true as const, id };
+    },
+
+    // ---- signal map ----
+    async putMapping(req: Request, plantId: number, m: MappingPut) {
+      const tag = await repo.tag(m.tagId);
+      const targets = await repo.targets(plantId);
+      const fields: Record<string, string[]> = {};
+      if (!tag || tag.tag.plantId !== plantId) fields.tagId = [`no tag ${m.tagId} in this plant`];
+      const target = resolveTarget(targets, m.targetType, { code: m.targetCode, id: m.targetId });
+      if (typeof target === 'string') fields[m.targetCode !== undefined ? 'targetCode' : 'targetId'] = [target];
+      if (Object.keys(fields).length) throw new ValidationError(fields);
+      const t = target as TargetRow;
+      const { row, replacedTagId } = await repo.putMapping({ plantId, signal: m.signal, targetType: t.type, targetId: t.id, tagId: m.tagId });
+      await audit(ctx, req, 'signal_map.put', `signal_map:${row.id}`, { plantId, signal: row.signal, targetType: row.targetType, targetId: row.targetId, targetCode: t.code, tagId: row.tagId, replacedTagId });
+      return { ...mappingOut(row, targets), replacedTagId };
+    },
+
+    async deleteMapping(req: Request, id: number) {
+      const m = await repo.mapping(id);
+      if (!m) throw new NotFoundError(`no signal mapping ${id}`);
+      assertPlantAccess(req, m.plantId);
+      if (!(await repo.deleteMapping(id))) throw new NotFoundError(`no signal mapping ${id}`);
+      await audit(ctx, req, 'signal_map.delete', `signal_map:${id}`, { plantId: m.plantId, signal: m.signal, targetType: m.targetType, targetId: m.targetId, tagId: m.tagId });
+      return { deleted: true as const, id };
+    },
+
+    /**
+     * CSV tag list (RFC 4180, header row with TAG_CSV_COLUMNS). Every row is checked like the
+     * form (plus: source by name, address fits the source kind, no duplicate name or
+     * source+address in the file or the plant, signal fits its target). A dry run answers the
+     * preview and the row errors; a real import stores all rows and mappings in one transaction
+     * or, if any row is invalid, nothing (422 with `line.<n>.<column>`; the header is line 1).
+     */
+    async importCsv(req: Request, plantId: number, text: string, dryRun: boolean): Promise<TagImportOut> {
+      const parsed = parseCsv(text);
+      if (!parsed.ok) throw new ValidationError({ [`line.${parsed.line}`]: [parsed.message] }, 'the file is not valid CSV (RFC 4180); nothing was stored');
+      const [header, ...records] = parsed.records;
+      if (!header) throw new ValidationError({ _: ['the file is empty; expected a header row and at least one tag'] });
+      const cols = header.fields.map((c) => c.trim());
+      const unknown = cols.filter((c) => !(TAG_CSV_COLUMNS as readonly string[]).includes(c));
+      const dup = cols.filter((c, i) => cols.indexOf(c) !== i);
+      const missing = TAG_CSV_REQUIRED.filter((c) => !cols.includes(c));
+      if (unknown.length || dup.length || missing.length) {
+        const msg = [unknown.length ? `unknown column(s) ${unknown.join(', ')}` : '', dup.length ? `duplicate column(s) ${dup.join(', ')}` : '', missing.length ? `missing column(s) ${missing.join(', ')}` : ''].filter(Boolean);
+        throw new ValidationError({ 'line.1': [`${msg.join('; ')}; the columns are ${TAG_CSV_COLUMNS.join(', ')}`] }, 'the header row is not usable; nothing was stored');
+      }
+      if (!records.length) throw new ValidationError({ _: ['the file has a header but no tags'] });
+      if (records.length > TAG_CSV_MAX_ROWS) throw new ValidationError({ _: [`at most ${TAG_CSV_MAX_ROWS} rows per file; this one has ${records.length}`] });
+
+      const [plantSources, existingNames, targets] = await Promise.all([repo.listSources(plantId), repo.tagNames(plantId), repo.targets(plantId)]);
+      const existingAddr = await repo.tagAddresses(plantSources.map((s) => s.source.id));
+      const errors: Record<string, string[]> = {};
+      const add = (line: number, col: string, msg: string) => (errors[`line.${line}.${col}`] ??= []).push(msg);
+      const rows: TagImportRow[] = [];
+      const inserts: NewTagRow[] = [];
+      const maps: Array<{ row: number; plantId: number; signal: string; targetType: TargetRow['type']; targetId: number }> = [];
+      const seenName = new Map<string, number>();
+      const seenAddr = new Map<string, number>();
+      const seenSignal = new Map<string, number>();
+      const bad = new Set<number>();
+
+      for (const rec of records) {
+        const line = rec.line;
+        if (rec.fields.length !== cols.length) {
+          errors[`line.${line}`] = [`${rec.fields.length} fields where the header has ${cols.length} (RFC 4180 §2 rule 4)`];
+          bad.add(line);
+          continue;
+        }
+        const cell = (c: string) => (cols.includes(c) ? rec.fields[cols.indexOf(c)]!.trim() : '');
+        const before = Object.keys(errors).length;
+        const srcText = cell('source');
+        const src = plantSources.find((s) => s.source.name === srcText)?.source ?? (/^\d+$/.test(srcText) ? plantSources.find((s) => s.source.id === Number(srcText))?.source : undefined);
+        if (!srcText) add(line, 'source', 'required: the name of a source of this plant');
+        else if (!src) add(line, 'source', `no source "${srcText}" in this plant (sources: ${plantSources.map((s) => s.source.name).join(', ') || 'none'})`);
+        // The source cell is checked above; a stand-in id lets the form schema check the other cells.
+        const obj: Record<string, unknown> = { sourceId: src?.id ?? 1 };
+        for (const [field, col] of Object.entries(CSV_COLUMN_OF)) {
+          if (field === 'sourceId') continue;
+          const v = cell(col);
+          if (v === '') continue;
+          obj[field] = ['name', 'address', 'unit', 'description'].includes(field) ? v : csvNumber(v);
+        }
+        const r = tagCreate.safeParse(obj);
+        if (!r.success) for (const [f, msgs] of Object.entries(zodFields(r.error))) for (const msg of msgs) add(line, CSV_COLUMN_OF[f] ?? f, msg);
+        const name = cell('name');
+        const address = cell('address');
+        if (name) {
+          if (existingNames.has(name)) add(line, 'name', `the plant already has a tag named "${name}"`);
+          else if (seenName.has(name)) add(line, 'name', `"${name}" is also on line ${seenName.get(name)}`);
+          else seenName.set(name, line);
+        }
+        if (src && address) {
+          const issue = tagAddressIssue(src.kind, address);
+          const key = `${src.id}\u0000${address}`;
+          if (issue) add(line, 'address', issue);
+          else if (existingAddr.has(key)) add(line, 'address', `source "${src.name}" already has a tag at this address`);
+          else if (seenAddr.has(key)) add(line, 'address', `the same source and address are also on line ${seenAddr.get(key)}`);
+          else seenAddr.set(key, line);
+        }
+        const signal = cell('signal');
+        const targetCode = cell('target');
+        let target: TargetRow | undefined;
+        if (signal) {
+          if (!(SIGNAL_KINDS as readonly string[]).includes(signal)) add(line, 'signal', `unknown signal; one of ${SIGNAL_KINDS.join(', ')}`);
+          else {
+            const type = signalTargetType(signal as (typeof SIGNAL_KINDS)[number]);
+            if (type !== 'plant' && !targetCode) add(line, 'target', `${signal} needs the code of a ${type}`);
+            else {
+              const t = resolveTarget(targets, type, targetCode ? { code: targetCode } : {});
+              if (typeof t === 'string') add(line, 'target', t);
+              else {
+                const key = `${signal}@${t.type}:${t.id}`;
+                if (seenSignal.has(key)) add(line, 'signal', `${signal} of ${t.code} is also mapped on line ${seenSignal.get(key)}`);
+                else {
+                  seenSignal.set(key, line);
+                  target = t;
+                }
+              }
+            }
+          }
+        } else if (targetCode) add(line, 'signal', 'a target without a signal: give the signal too, or leave target empty');
+
+        if (Object.keys(errors).length > before || !r.success || !src) {
+          bad.add(line);
+          if (r.success) rows.push(previewRow(line, r.data, src, srcText, signal || null, targetCode || null));
+          continue;
+        }
+        rows.push(previewRow(line, r.data, src, srcText, signal || null, targetCode || null));
+        if (target) maps.push({ row: inserts.length, plantId, signal, targetType: target.type, targetId: target.id });
+        inserts.push({ ...r.data, sourceId: src.id, plantId });
+      }
+
+      const ok = bad.size === 0;
+      if (dryRun) return { dryRun: true, ok, rows, errors, imported: 0, tagIds: [], mappings: maps.length };
+      if (!ok) throw new ValidationError(errors, `${bad.size} of ${records.length} rows have errors (line numbers count the header as line 1); nothing was stored — fix them and upload the whole file again`);
+      const stored = await unique({}, () => repo.importTags(inserts, maps));
+      await audit(ctx, req, 'tag.import', `plant:${plantId}`, { plantId, rows: stored.length, ids: stored.map((t) => t.id), mappings: maps.length });
+      return { dryRun: false, ok: true, rows, errors: {}, imported: stored.length, tagIds: stored.map((t) => t.id), mappings: maps.length };
+    },
+  };
+}
+
+function previewRow(line: number, t: TagCreate, src: SourceRow | undefined, sourceText: string, signal: string | null, target: string | null): TagImportRow {
+  return {
+    line,
+    name: t.name,
+    sourceId: src?.id ?? null,
+    source: src?.name ?? sourceText,
+    address: t.address,
+    unit: t.unit,
+    description: t.description ?? '',
+    scaleGain: t.scaleGain ?? 1,
+    scaleOffset: t.scaleOffset ?? 0,
+    deadband: t.deadband ?? 0,
+    expectedPeriod_s: t.expectedPeriod_s ?? 10,
+    rangeLow: t.rangeLow ?? null,
+    rangeHigh: t.rangeHigh ?? null,
+    signal,
+    target,
+  };
+}
