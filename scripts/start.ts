@@ -10,6 +10,9 @@ import { fileURLToPath } from 'node:url';
 import { startEmbeddedBroker } from '../server/broker/embedded-broker.ts';
 import { loadConfig } from '../server/config.ts';
 import { demoCredentials, startServer } from '../server/main.ts';
+import { labResultInput } from '../shared/contracts/lab.ts';
+import { labRow } from '../server/services/lab.service.ts';
+import { labResults } from '../server/db/schema/index.ts';
 import { seedPlant, updateSeedEndpoints } from '../server/services/plant-seed.service.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
 import { buildMonitorIfNeeded } from './build-if-needed.ts';
@@ -57,6 +60,13 @@ async function main(): Promise<void> {
       const seeded = await seedPlant(server.ctx, DEMO_PLANT, { mqttUrl, opcuaUrl });
       if (!seeded.created) await updateSeedEndpoints(server.ctx, seeded.plantId, DEMO_PLANT.code, { mqttUrl, opcuaUrl });
       say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
+      if (seeded.created) {
+        // The settleability test is a lab entry, not a tag: the demo starts with one diluted
+        // test (170 mL/L at 1:3, MLSS 3.4 g/L → DSVI 150 mL/g, the demo scenario's sludge), as an
+        // operator would have entered it this morning, so the RAS limit has an SVI to work from.
+        const entry = labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 170, dilutionFactor: 3, mlss_gL: 3.4, location: 'ab1', sampledAt: new Date(Date.now() - 3 * 3600_000).toISOString(), note: 'demo entry' });
+        await server.ctx.db.db.insert(labResults).values(labRow(seeded.plantId, null, entry));
+      }
       // Two simulated hours of history replayed fast (the demo storm starts half an hour in),
       // then real time: the board shows a storm within minutes and no timestamp is in the future.
       const simArgs = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir, '--catch-up-h', '2'];

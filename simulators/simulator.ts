@@ -90,7 +90,7 @@ export async function startSimulator(opts: SimulatorOptions): Promise<RunningSim
   let opcua: SimOpcuaServer | null = null;
   if (opcuaPort !== null) {
     try {
-      opcua = await SimOpcuaServer.start({ plant, port: opcuaPort, dataDir: opts.dataDir ?? '.data', ...(opts.opcuaHost ? { host: opts.opcuaHost } : {}) });
+      opcua = await SimOpcuaServer.start({ plant, port: opcuaPort, dataDir: opts.dataDir ?? '.data', initialTimestamp: start, ...(opts.opcuaHost ? { host: opts.opcuaHost } : {}) });
     } catch (e) {
       await publisher?.close();
       throw e;

@@ -1,6 +1,9 @@
 import fs from 'node:fs';
 import path from 'node:path';
 import {
+  DataChangeFilter,
+  DataChangeTrigger,
+  DeadbandType,
   AttributeIds,
   ClientMonitoredItem,
   ClientSubscription,
@@ -200,7 +203,10 @@ export class OpcuaConnector implements Connector {
         item = ClientMonitoredItem.create(
           sub,
           { nodeId: t.address, attributeId: AttributeIds.Value },
-          { samplingInterval: interval, discardOldest: true, queueSize },
+          // Trigger on a new source timestamp too (OPC 10000-4 §7.22.2, DataChangeTrigger
+          // STATUS_VALUE_TIMESTAMP): a steady value the device keeps confirming is a fresh
+          // sample, not a stale one.
+          { samplingInterval: interval, discardOldest: true, queueSize, filter: new DataChangeFilter({ trigger: DataChangeTrigger.StatusValueTimestamp, deadbandType: DeadbandType.None }) },
           TimestampsToReturn.Both,
         );
       } catch (err) {

@@ -36,6 +36,9 @@ export interface SimOpcuaServerOptions {
   resourcePath?: string;
   /** Fastest sampling a client may ask for [ms]. */
   minimumSamplingInterval_ms?: number;
+  /** Source timestamp of the "no data yet" placeholder: the simulated start, so it never
+   * outranks the first simulated sample (default: now). */
+  initialTimestamp?: Date;
 }
 
 const UNITS: Record<string, [string, string, string]> = {
@@ -95,12 +98,12 @@ export class SimOpcuaServer {
     });
     await server.initialize();
     const self = new SimOpcuaServer(server, `opc.tcp://${host}:${opts.port}${resourcePath}`);
-    self.build(opts.plant, opts.minimumSamplingInterval_ms ?? 100);
+    self.build(opts.plant, opts.minimumSamplingInterval_ms ?? 100, opts.initialTimestamp ?? new Date());
     await server.start();
     return self;
   }
 
-  private build(plant: DemoPlant, msi: number): void {
+  private build(plant: DemoPlant, msi: number, initialTs: Date): void {
     const addressSpace = this.server.engine.addressSpace!;
     // The server's own namespace is index 1 and carries the applicationUri, so the tags'
     // "ns=1;s=…" addresses are stable whatever other namespaces the stack registers.
@@ -135,7 +138,7 @@ export class SimOpcuaServer {
         minimumSamplingInterval: msi,
       });
       // No value until the transmitter's first sample: a client must see "no data yet", not 0.
-      v.setValueFromSource({ dataType: DataType.Double, value: 0 }, StatusCodes.BadWaitingForInitialData);
+      v.setValueFromSource({ dataType: DataType.Double, value: 0 }, StatusCodes.BadWaitingForInitialData, initialTs);
       this.variables.set(tag.name, v);
     }
   }
