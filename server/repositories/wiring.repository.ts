@@ -18,6 +18,10 @@ export function uniqueViolation(err: unknown): string | null {
   return null;
 }
 
+// Written out: inside a select list drizzle renders columns unqualified, and the subquery would
+// then compare tags.source_id with tags.id.
+const tagCount = sql<number>`(SELECT count(*)::int FROM tags t WHERE t.source_id = "sources"."id")`;
+
 /** A mappable target of a plant: the plant itself and its basins, clarifiers and pumps. */
 export interface TargetRow {
   type: 'plant' | 'basin' | 'clarifier' | 'pump';
@@ -30,14 +34,14 @@ export function wiringRepository(db: Db) {
   return {
     listSources(plantId: number) {
       return db
-        .select({ source: sources, tags: sql<number>`(SELECT count(*)::int FROM ${tags} WHERE ${tags.sourceId} = ${sources.id})` })
+        .select({ source: sources, tags: tagCount })
         .from(sources)
         .where(eq(sources.plantId, plantId))
         .orderBy(asc(sources.name));
     },
     async source(id: number): Promise<{ source: SourceRow; tags: number } | undefined> {
       const [r] = await db
-        .select({ source: sources, tags: sql<number>`(SELECT count(*)::int FROM ${tags} WHERE ${tags.sourceId} = ${sources.id})` })
+        .select({ source: sources, tags: tagCount })
         .from(sources)
         .where(eq(sources.id, id));
       return r;
