@@ -81,6 +81,15 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
     },
     {
       ...common,
+      method: 'get',
+      path: '/sources/:sourceId',
+      summary: 'One source with its tag count; the password is never returned (hasSecret)',
+      params: sourceParams,
+      response: sourceOut,
+      handler: (req) => wiring.getSource(req, sid(req)),
+    },
+    {
+      ...common,
       method: 'patch',
       path: '/sources/:sourceId',
       summary: 'Change a source (not its kind); url and options are checked against its kind; password null removes it, left out keeps it',

@@ -362,6 +362,7 @@ describe('wiring API', () => {
       expect(header2.status).toBe(422);
       expect(header2.body.error.fields['line.1'][0]).toMatch(/unknown column\(s\) addr; missing column\(s\) address/);
       expect((await integ.post(`/api/v1/plants/${plant}/tags/import`).send({ csv: 'x' })).status).toBe(415);
+      expect((await upload(`${header}\n${'x,'.repeat(600_000)}`)).status).toBe(413);
       expect((await operator.post(`/api/v1/plants/${plant}/tags/import`).set('Content-Type', 'text/csv').send(good)).status).toBe(403);
     });
   });
@@ -397,6 +398,23 @@ describe('wiring API', () => {
     const stale = await analyst.get('/api/v1/ingest/status');
     expect(stale.body).toMatchObject({ running: false, pid: 4242 });
     expect(stale.body.reason).toMatch(/heartbeat is 3\d(\.\d)? s old/);
+
+    // A token scoped to another plant sees neither this plant's sources in the status nor their dead letters.
+    const ours = (await mqttSource({ name: 'scoped' })).body.id;
+    await q(`INSERT INTO dead_letters (source_id, address, payload, reason) VALUES ($1, 'c', 'w', 'ours')`, [ours]);
+    fs.writeFileSync(file, JSON.stringify({ ...status, sources: [{ ...status.sources[0], sourceId: ours }] }));
+    const made = await integ.post('/api/v1/tokens').send({ name: 'other-plant', role: 'integrator', expiresInDays: 1, plantIds: [other] });
+    expect(made.status).toBe(201);
+    const bearer = { Authorization: `Bearer ${made.body.token}` };
+    const scoped = await request(h.app).get('/api/v1/ingest/status').set(bearer);
+    expect(scoped.body).toMatchObject({ running: true, sources: [], deadLetters: { lastHour: 0, total: 0 } });
+    expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ sources: [expect.objectContaining({ sourceId: ours })], deadLetters: { lastHour: 3, total: 4 } });
+    expect((await request(h.app).get(`/api/v1/sources/${ours}`).set(bearer)).status).toBe(403);
+    expect((await request(h.app).patch(`/api/v1/sources/${ours}`).set(bearer).send({ enabled: false })).status).toBe(403);
+    expect((await request(h.app).get(`/api/v1/plants/${plant}/tags/config`).set(bearer)).status).toBe(403);
+    const own = await integ.get(`/api/v1/sources/${ours}`);
+    expect(own.body).toMatchObject({ id: ours, name: 'scoped', hasSecret: true });
+    expect(own.text).not.toContain(SECRET);
 
     fs.writeFileSync(file, '{"pid": 1, "heartb');
     expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ running: false, reason: expect.stringMatching(/could not be read/) });
