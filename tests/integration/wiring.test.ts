@@ -190,14 +190,18 @@ describe('wiring API', () => {
     expect((await integ.get(`/api/v1/sources/${id}/browse`).query({ nodeId: 'ns=1;s=Nope' })).status).toBe(404);
     expect((await integ.get(`/api/v1/sources/${id}/browse`).query({ nodeId: 'garbage;;' })).status).toBe(422);
 
+    // Signed and encrypted channel: our client certificate (created under the data folder) and the server's.
+    const secure = await integ.post(`/api/v1/plants/${plant}/sources`).send({ name: 'ua-secure', kind: 'opcua', url: opcuaUrl, options: { securityMode: 'SignAndEncrypt', securityPolicy: 'Basic256Sha256', acceptUnknownServerCertificate: true } });
+    const st = await integ.post(`/api/v1/sources/${secure.body.id}/test`);
+    expect(st.body.ok, JSON.stringify(st.body)).toBe(true);
+    expect(fs.existsSync(path.join(h.ctx.config.dataDir, 'pki', 'server-client', 'own', 'certs', 'client_certificate.pem'))).toBe(true);
+
     const down = await integ.post(`/api/v1/plants/${plant}/sources`).send({ name: 'ua-down', kind: 'opcua', url: `opc.tcp://127.0.0.1:${await closedPort()}` });
     const dt = await integ.post(`/api/v1/sources/${down.body.id}/test`);
     expect(dt.status).toBe(200);
     expect(dt.body.ok).toBe(false);
     expect(dt.body.error).toBeTruthy();
     expect((await integ.get(`/api/v1/sources/${down.body.id}/browse`)).status).toBe(502);
-    // The PKI of the server's client lives under the data folder.
-    expect(fs.existsSync(path.join(h.ctx.config.dataDir, 'pki', 'server-client'))).toBe(true);
   });
 
   it('discovery: empty list with a note before ingest wrote it, the topics once the file exists; 422 for an OPC UA source', async () => {
