@@ -8,7 +8,7 @@ export function Button({ kind = 'normal', className = '', ...rest }: ButtonHTMLA
       : kind === 'quiet'
         ? 'bg-transparent border-transparent hover:border-edge text-ink-2'
         : 'bg-panel-2 border-edge hover:bg-white text-ink';
-  return <button type="button" className={`h-7 px-3 border rounded-sm text-[13px] disabled:opacity-50 ${look} ${className}`} {...rest} />;
+  return <button type="button" className={`h-7 px-3 border rounded-sm text-[13px] whitespace-nowrap disabled:opacity-50 ${look} ${className}`} {...rest} />;
 }
 
 export function Field({ label, unit, error, hint, children }: { label: string; unit?: string; error?: string[] | undefined; hint?: ReactNode; children: ReactNode }) {

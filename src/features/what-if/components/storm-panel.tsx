@@ -1,6 +1,8 @@
 import type { FormEvent } from 'react';
 import { stormRequest, type StormResponse } from '../../../../shared/contracts/calc.ts';
 import { Button, Panel } from '../../../components/ui/controls.tsx';
+import { useCurrentPlant } from '../../plant/api/plants.ts';
+import { useStormPrefill } from '../api/live-prefill.ts';
 import { useStormCalc } from '../api/storm.ts';
 import { KESTREL_BEND } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
@@ -52,6 +54,12 @@ function StormChecks({ checks }: { checks: StormResponse['checks'] }) {
 export function StormPanel() {
   const form = useCalcForm(stormRequest, KESTREL_BEND.storm, { optionalKeys: ['xrFactor', 'clarifierMass_kg'] });
   const calc = useStormCalc();
+  const { plantId } = useCurrentPlant();
+  const prefill = useStormPrefill();
+  const fillFromPlant = () => {
+    if (plantId === null) return;
+    prefill.mutate(plantId, { onSuccess: (p) => Object.entries(p.values).forEach(([k, v]) => form.set(k, v)) });
+  };
   const { fe, general } = mergeErrors(form.errors, calc.error);
   const submit = (e: FormEvent) => {
     e.preventDefault();
@@ -72,8 +80,18 @@ export function StormPanel() {
           <Button kind="primary" type="submit" disabled={calc.isPending}>
             Calculate storm
           </Button>
+          <Button onClick={fillFromPlant} disabled={plantId === null || prefill.isPending}>
+            Fill from live plant
+          </Button>
           <span className="text-[11px] text-ink-3">Return flow held at its present value during the storm.</span>
         </div>
+        {prefill.error ? <p role="alert" className="mt-1 text-[12px] text-alarm-1">Could not fill from the plant: {prefill.error.message}</p> : null}
+        {prefill.data ? (
+          <p role="status" className="mt-1 text-[11px] text-ink-3" data-testid="storm-prefill">
+            Filled from the balance of {prefill.data.balanceTs.slice(0, 19).replace('T', ' ')}Z{prefill.data.estimated ? ' (balance partly estimated)' : ''}
+            {prefill.data.missing.length ? `; not available, left as they were: ${prefill.data.missing.join(', ')}` : ''}.
+          </p>
+        ) : null}
       </form>
       {general}
       {r ? (
