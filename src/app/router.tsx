@@ -8,6 +8,7 @@ const AccessPage = lazy(() => import('../features/access/components/access-page.
 const WhatIfPage = lazy(() => import('../features/what-if/components/what-if-page.tsx'));
 const SignalsPage = lazy(() => import('../features/signals/components/signals-page.tsx'));
 const TrendsPage = lazy(() => import('../features/trends/components/trends-page.tsx'));
+const WiringPage = lazy(() => import('../features/wiring/components/wiring-page.tsx'));
 const BoardPage = lazy(() => import('../features/board/components/board-page.tsx'));
 const AlarmsPage = lazy(() => import('../features/alarms/components/alarms-page.tsx'));
 const LabPage = lazy(() => import('../features/lab/components/lab-page.tsx'));
@@ -28,6 +29,7 @@ export const router = createBrowserRouter([
       { path: 'access', element: <AccessPage /> },
       { path: 'signals', element: <SignalsPage /> },
       { path: 'trends', element: <TrendsPage /> },
+      { path: 'wiring', element: <WiringPage /> },
       { path: '*', element: <p className="p-2">No such view.</p> },
     ],
   },

@@ -23,6 +23,18 @@ export const paths = {
   settings: `${v1}/settings`,
   outbox: `${v1}/outbox`,
   outboxMessage: (id: number) => `${v1}/outbox/${id}`,
+  // wiring (integrator+)
+  sources: (plantId: number) => `${v1}/plants/${plantId}/sources`,
+  source: (id: number) => `${v1}/sources/${id}`,
+  sourceTest: (id: number) => `${v1}/sources/${id}/test`,
+  sourceBrowse: (id: number) => `${v1}/sources/${id}/browse`,
+  sourceDiscovery: (id: number) => `${v1}/sources/${id}/discovery`,
+  tagsConfig: (plantId: number) => `${v1}/plants/${plantId}/tags/config`,
+  tag: (id: number) => `${v1}/tags/${id}`,
+  tagsImport: (plantId: number) => `${v1}/plants/${plantId}/tags/import`,
+  signalMap: (plantId: number) => `${v1}/plants/${plantId}/signal-map`,
+  signalMapping: (id: number) => `${v1}/signal-map/${id}`,
+  ingestStatus: `${v1}/ingest/status`,
   /** Adds a query string, leaving out undefined values. */
   withQuery: (url: string, q: Record<string, string | number | undefined>) => {
     const sp = new URLSearchParams();

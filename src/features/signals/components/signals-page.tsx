@@ -224,7 +224,7 @@ const SignalRow = memo(function SignalRow({ tag, store, skewMs, top, index }: { 
         {tag.description}
       </div>
       <div role="cell" className={`px-1.5 text-right num ${stale || bad ? 'text-ink-3' : 'text-ink'}`} data-testid="signal-value">
-        <AlignedNumber text={formatValue(value, 4)} />
+        <AlignedNumber text={tag.unit === 'state' && value !== null ? String(Math.round(value)) : formatValue(value, 4)} />
       </div>
       <div role="cell" className="px-1.5 text-ink-3 truncate">
         {prettyUnit(tag.unit)}

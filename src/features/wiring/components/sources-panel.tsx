@@ -1,0 +1,185 @@
+import { useState, type FormEvent } from 'react';
+import type { ConnectionTestOut, SourceCreate, SourceKind } from '../../../../shared/contracts/wiring.ts';
+import { Button, ErrorNote, Field, fieldErrors, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { formatAge, formatUtc } from '../../../lib/format.ts';
+import { useIngestStatus } from '../api/ingest-status.ts';
+import { useTestSource } from '../api/source-test.ts';
+import { useCreateSource, useSources } from '../api/sources.ts';
+
+const th = 'text-left font-semibold text-ink-2 px-1.5 py-1 border-b border-edge';
+const td = 'px-1.5 py-1 border-b border-edge/50 align-top';
+
+/** Sources with their connector state from ingest, a connection test each, and the form for a new one. */
+export function SourcesPanel({ plantId, selected, onSelect }: { plantId: number; selected: number | null; onSelect(id: number): void }) {
+  const sources = useSources(plantId);
+  const status = useIngestStatus();
+  const test = useTestSource();
+  const [results, setResults] = useState<Record<number, ConnectionTestOut | { error: string; ok: false; latency_ms: number }>>({});
+  const runTest = (id: number) =>
+    test.mutate(id, {
+      onSuccess: (r) => setResults((m) => ({ ...m, [id]: r })),
+      onError: (e) => setResults((m) => ({ ...m, [id]: { ok: false, latency_ms: 0, error: e.message } })),
+    });
+  const connector = (id: number) => status.data?.sources.find((s) => s.sourceId === id);
+  return (
+    <Panel title="Sources" actions={<IngestBadge running={status.data?.running} reason={status.data?.reason} />}>
+      <ErrorNote error={sources.error} />
+      <table className="w-full text-[12px]" aria-label="Sources">
+        <thead>
+          <tr>
+            <th className={th}>Name</th>
+            <th className={th}>Kind</th>
+            <th className={th}>URL</th>
+            <th className={`${th} text-right`}>Tags</th>
+            <th className={th}>Ingest</th>
+            <th className={th}>
+              <span className="sr-only">Actions</span>
+            </th>
+          </tr>
+        </thead>
+        <tbody>
+          {(sources.data ?? []).map((s) => {
+            const c = connector(s.id);
+            const r = results[s.id];
+            const abnormal = c && c.state !== 'connected';
+            return (
+              <tr key={s.id} className={selected === s.id ? 'bg-white' : ''} data-testid="source-row" data-source-id={s.id}>
+                <td className={td}>
+                  {s.name}
+                  {!s.enabled ? <span className="ml-1 text-ink-3">(disabled)</span> : null}
+                </td>
+                <td className={td}>{s.kind === 'opcua' ? 'OPC UA' : 'MQTT'}</td>
+                <td className={`${td} num break-all`}>
+                  {s.url}
+                  {s.username ? <span className="text-ink-3"> as {s.username}</span> : null}
+                  {s.hasSecret ? <span className="text-ink-3"> · password stored</span> : null}
+                </td>
+                <td className={`${td} num text-right`}>{s.tags}</td>
+                <td className={td} data-testid="source-ingest">
+                  {c ? (
+                    <span className={abnormal ? 'text-alarm-1' : 'text-ink-2'} title={c.lastError ?? undefined}>
+                      {c.state}
+                      {c.lastMessageAt ? <span className="text-ink-3"> · last {formatAge((Date.now() - Date.parse(c.lastMessageAt)) / 1000)} ago</span> : null}
+                      {c.staleTags ? <span className="text-unavailable"> · {c.staleTags} stale</span> : null}
+                    </span>
+                  ) : (
+                    <span className="text-ink-3">—</span>
+                  )}
+                  {r ? (
+                    <div role="status" data-testid="connection-result" className={r.ok ? 'text-ink' : 'text-alarm-1'}>
+                      {r.ok ? 'Connection OK' : 'Connection failed'} <span className="num">({Math.round(r.latency_ms)} ms)</span>
+                      {r.error ? `: ${r.error}` : ''}
+                    </div>
+                  ) : null}
+                </td>
+                <td className={`${td} whitespace-nowrap text-right`}>
+                  <Button onClick={() => runTest(s.id)} disabled={test.isPending && test.variables === s.id} aria-label={`Test connection of ${s.name}`}>
+                    {test.isPending && test.variables === s.id ? 'Testing…' : 'Test connection'}
+                  </Button>{' '}
+                  <Button kind={selected === s.id ? 'primary' : 'normal'} onClick={() => onSelect(s.id)} aria-pressed={selected === s.id} aria-label={`${s.kind === 'opcua' ? 'Browse' : 'Discover topics of'} ${s.name}`}>
+                    {s.kind === 'opcua' ? 'Browse' : 'Topics'}
+                  </Button>
+                </td>
+              </tr>
+            );
+          })}
+        </tbody>
+      </table>
+      {status.data?.loadError ? <p className="text-alarm-1 mt-1">Ingest could not load the wiring: {status.data.loadError}</p> : null}
+      <NewSourceForm plantId={plantId} />
+    </Panel>
+  );
+}
+
+function IngestBadge({ running, reason }: { running: boolean | undefined; reason: string | undefined }) {
+  if (running === undefined) return null;
+  return (
+    <span title={reason} data-testid="ingest-state" className={`text-[11px] px-1 border rounded-[2px] ${running ? 'border-edge text-ink-3' : 'border-alarm-1 text-alarm-1'}`}>
+      {running ? 'ingest running' : 'INGEST NOT RUNNING'}
+    </span>
+  );
+}
+
+function NewSourceForm({ plantId }: { plantId: number }) {
+  const create = useCreateSource(plantId);
+  const [open, setOpen] = useState(false);
+  const [kind, setKind] = useState<SourceKind>('mqtt');
+  const [f, setF] = useState({ name: '', url: '', username: '', password: '', topics: '#', securityMode: 'None', securityPolicy: 'None' });
+  const fe = fieldErrors(create.error);
+  const set = (k: keyof typeof f) => (e: { target: { value: string } }) => setF((o) => ({ ...o, [k]: e.target.value }));
+  const submit = (e: FormEvent) => {
+    e.preventDefault();
+    const common = { name: f.name, url: f.url.trim(), username: f.username || null, password: f.password || null };
+    const body: SourceCreate =
+      kind === 'mqtt'
+        ? { kind, ...common, options: { topics: f.topics.split(',').map((t) => t.trim()).filter(Boolean) } }
+        : { kind, ...common, options: { securityMode: f.securityMode as 'None', securityPolicy: f.securityPolicy as 'None' } };
+    create.mutate(body, { onSuccess: () => setF((o) => ({ ...o, name: '', url: '', password: '' })) });
+  };
+  if (!open)
+    return (
+      <div className="mt-2">
+        <Button onClick={() => setOpen(true)}>Add source…</Button>
+      </div>
+    );
+  return (
+    <form onSubmit={submit} aria-label="New source" className="mt-2 border-t border-edge pt-2 grid grid-cols-[repeat(auto-fill,minmax(170px,1fr))] gap-2 items-end">
+      <Field label="Kind">
+        <Select value={kind} onChange={(e) => setKind(e.target.value as SourceKind)}>
+          <option value="mqtt">MQTT broker</option>
+          <option value="opcua">OPC UA endpoint</option>
+        </Select>
+      </Field>
+      <Field label="Name" error={fe.name}>
+        <TextInput value={f.name} onChange={set('name')} required />
+      </Field>
+      <Field label="URL" error={fe.url} hint={kind === 'mqtt' ? 'mqtt://host:1883, mqtts://, ws://' : 'opc.tcp://host:4840/path'}>
+        <TextInput value={f.url} onChange={set('url')} required className="num" />
+      </Field>
+      <Field label="User name" error={fe.username}>
+        <TextInput value={f.username} onChange={set('username')} autoComplete="off" />
+      </Field>
+      <Field label="Password" error={fe.password} hint="stored on the server only">
+        <TextInput type="password" value={f.password} onChange={set('password')} autoComplete="new-password" />
+      </Field>
+      {kind === 'mqtt' ? (
+        <Field label="Topic filters" error={fe['options.topics'] ?? fe.options} hint="comma-separated; # sees everything">
+          <TextInput value={f.topics} onChange={set('topics')} className="num" />
+        </Field>
+      ) : (
+        <>
+          <Field label="Security mode" error={fe['options.securityMode']}>
+            <Select value={f.securityMode} onChange={set('securityMode')}>
+              <option>None</option>
+              <option>Sign</option>
+              <option>SignAndEncrypt</option>
+            </Select>
+          </Field>
+          <Field label="Security policy" error={fe['options.securityPolicy']}>
+            <Select value={f.securityPolicy} onChange={set('securityPolicy')}>
+              <option>None</option>
+              <option>Basic256Sha256</option>
+              <option>Aes128_Sha256_RsaOaep</option>
+              <option>Aes256_Sha256_RsaPss</option>
+            </Select>
+          </Field>
+        </>
+      )}
+      <div className="flex gap-1">
+        <Button kind="primary" type="submit" disabled={create.isPending}>
+          Add source
+        </Button>
+        <Button kind="quiet" onClick={() => setOpen(false)}>
+          Close
+        </Button>
+      </div>
+      {create.error && !Object.keys(fe).length ? <ErrorNote error={create.error} /> : null}
+      {create.data ? (
+        <p role="status" className="text-ink-2 col-span-full">
+          Added {create.data.name} ({formatUtc(create.data.createdAt)}). Ingest picks it up within seconds; test the connection above.
+        </p>
+      ) : null}
+    </form>
+  );
+}
+
