@@ -126,7 +126,7 @@ describe('storm scenario → ingest → balance engine → alarm → e-mail', ()
     expect(mail.text).toMatch(/licensed operator/);
 
     // An admin reads it in the outbox.
-    const admin = request.agent(server.ctx.config.port === 0 ? server.url : server.url);
+    const admin = request.agent(server.url);
     const creds = JSON.parse(fs.readFileSync(path.join(dataDir, 'demo-credentials.json'), 'utf8')) as Array<{ role: string; email: string; password: string }>;
     const a = creds.find((x) => x.role === 'admin')!;
     expect((await admin.post('/api/v1/auth/login').send({ email: a.email, password: a.password })).status).toBe(200);
@@ -134,4 +134,38 @@ describe('storm scenario → ingest → balance engine → alarm → e-mail', ()
     expect(outbox.status).toBe(200);
     expect(JSON.stringify(outbox.body)).toMatch(/RAS/i);
   }, 240_000);
+
+  it('the live stream delivers a new balance within two engine cycles (interval 2 s)', async () => {
+    const creds = JSON.parse(fs.readFileSync(path.join(dataDir, 'demo-credentials.json'), 'utf8')) as Array<{ role: string; email: string; password: string }>;
+    const op = creds.find((x) => x.role === 'operator')!;
+    const login = await fetch(`${server.url}/api/v1/auth/login`, { method: 'POST', headers: { 'Content-Type': 'application/json' }, body: JSON.stringify({ email: op.email, password: op.password }) });
+    const cookie = login.headers.get('set-cookie')!.split(';')[0]!;
+    const ac = new AbortController();
+    const res = await fetch(`${server.url}/api/v1/plants/${plantId}/stream?events=balance`, { headers: { Cookie: cookie, Accept: 'text/event-stream' }, signal: ac.signal });
+    expect(res.status).toBe(200);
+    const reader = res.body!.getReader();
+    const dec = new TextDecoder();
+    let buf = '';
+    let readyAt = 0;
+    const deadline = Date.now() + 30_000;
+    try {
+      while (Date.now() < deadline) {
+        const { value, done } = await reader.read();
+        if (done) break;
+        buf += dec.decode(value, { stream: true });
+        if (!readyAt && buf.includes(': ready')) readyAt = Date.now();
+        const m = /event: balance\ndata: (.*)\n/.exec(buf);
+        if (readyAt && m) {
+          const waited = Date.now() - readyAt;
+          expect(waited).toBeLessThanOrEqual(2 * 2000 + 500);
+          const data = JSON.parse(m[1]!);
+          expect(JSON.stringify(data)).toMatch(/quality/);
+          return;
+        }
+      }
+      throw new Error(`no balance event; stream said: ${buf.slice(0, 500)}`);
+    } finally {
+      ac.abort();
+    }
+  }, 60_000);
 });
