@@ -1,4 +1,6 @@
+import path from 'node:path';
 import mqtt, { type MqttClient } from 'mqtt';
+import { DataType, OPCUACertificateManager, OPCUAServer, StatusCodes } from 'node-opcua';
 import type { Browser, Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { IngestService } from '../../ingest/ingest-service.ts';
@@ -23,6 +25,7 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
   let ingest: IngestService;
   let pub: MqttClient;
   let timer: NodeJS.Timeout;
+  let ua: OPCUAServer | undefined;
   const q = (text: string, values: unknown[] = []) => env.server.ctx.db.pool.query(text, values);
 
   beforeAll(async () => {
@@ -46,6 +49,8 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
     clearInterval(timer);
     await pub?.endAsync().catch(() => {});
     await ingest?.stop();
+    // after ingest, whose OPC UA connector to it would otherwise be reconnecting
+    await ua?.shutdown(0);
     await b?.close();
     await env?.close();
     await broker?.close();
@@ -85,7 +90,7 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
     await topicRow.getByRole('button', { name: `New tag for ${NEW_TOPIC}` }).click();
 
     const form = page.getByRole('form', { name: 'New tag' });
-    expect(await form.getByLabel('Address').inputValue()).toBe(NEW_TOPIC);
+    await expect.poll(() => form.getByLabel('Address').inputValue()).toBe(NEW_TOPIC);
     // the browser checks with the server's schema first: a missing unit is refused beside its field
     await form.getByLabel(/^Tag name/).fill('YI-3211');
     await form.getByRole('button', { name: 'Add tag' }).click();
@@ -162,4 +167,66 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
     expect(errors.filter((e) => !/401/.test(e))).toEqual([]);
     await page.close();
   });
+  it('adds an OPC UA source from the form, tests it, browses its address space and makes a tag of a variable', async () => {
+    // a small OPC UA server of our own (Works/Basin9/MLSS), as the wiring API test uses
+    const pki = path.join(env.server.ctx.config.dataDir, 'pki', 'e2e-server');
+    const port = await freePort();
+    ua = new OPCUAServer({
+      port,
+      host: '127.0.0.1',
+      hostname: '127.0.0.1',
+      resourcePath: '/e2e',
+      serverCertificateManager: new OPCUACertificateManager({ rootFolder: path.join(pki, 'server'), automaticallyAcceptUnknownCertificate: true }),
+      userCertificateManager: new OPCUACertificateManager({ rootFolder: path.join(pki, 'user'), automaticallyAcceptUnknownCertificate: true }),
+    });
+    await ua.initialize();
+    const ns = ua.engine.addressSpace!.getOwnNamespace();
+    const folder = ns.addFolder(ua.engine.addressSpace!.rootFolder.objects, { browseName: 'Works', nodeId: 's=Works' });
+    const basin = ns.addObject({ organizedBy: folder, browseName: 'Basin9', nodeId: 's=Works.Basin9' });
+    const mlss = ns.addVariable({ componentOf: basin, browseName: 'MLSS', nodeId: 's=Works.Basin9.MLSS', dataType: 'Double', minimumSamplingInterval: 100 });
+    mlss.setValueFromSource({ dataType: DataType.Double, value: 3.1 }, StatusCodes.Good);
+    await ua.start();
+    {
+      const page = await b.browser.newPage({ viewport: { width: 1280, height: 900 } });
+      const errors = watchConsole(page);
+      await signIn(page, '/wiring');
+      await page.getByRole('button', { name: 'Add source…' }).click();
+      const sf = page.getByRole('form', { name: 'New source' });
+      await sf.getByLabel('Kind').selectOption('opcua');
+      await sf.getByLabel(/^Name/).fill('kb-ua-e2e');
+      // a wrong scheme is refused by the server beside the field
+      await sf.getByLabel(/^URL/).fill(`mqtt://127.0.0.1:${port}`);
+      await sf.getByRole('button', { name: 'Add source' }).click();
+      await expect.poll(() => sf.getByRole('alert').first().innerText()).toMatch(/opc\.tcp:\/\//);
+      errors.length = 0; // the browser logs the deliberate 422 as a failed resource
+      await sf.getByLabel(/^URL/).fill(`opc.tcp://127.0.0.1:${port}/e2e`);
+      await sf.getByRole('button', { name: 'Add source' }).click();
+      await page.getByRole('button', { name: 'Test connection of kb-ua-e2e' }).click();
+      const row = page.getByTestId('source-row').filter({ hasText: 'kb-ua-e2e' });
+      await expect.poll(() => row.getByTestId('connection-result').innerText(), { timeout: 15_000 }).toMatch(/^Connection OK/);
+
+      await page.getByRole('button', { name: 'Browse kb-ua-e2e' }).click();
+      const tree = page.getByRole('tree', { name: 'Address space of kb-ua-e2e' });
+      await tree.getByRole('button', { name: 'Expand Works' }).click({ timeout: 15_000 });
+      await tree.getByRole('button', { name: 'Expand Basin9' }).click({ timeout: 15_000 });
+      // tree items nest, so the innermost one holding the NodeId is the variable itself
+      const item = tree.getByRole('treeitem').filter({ hasText: 'ns=1;s=Works.Basin9.MLSS' }).last();
+      await expect.poll(() => item.innerText()).toContain('Double');
+      await shot(page, 'integrator-opcua-browse');
+      await item.getByRole('button', { name: 'New tag for MLSS' }).click();
+      const form = page.getByRole('form', { name: 'New tag' });
+      await expect.poll(() => form.getByLabel('Address').inputValue()).toBe('ns=1;s=Works.Basin9.MLSS');
+      await expect.poll(() => form.getByLabel(/^Tag name/).inputValue()).toBe('MLSS');
+      await form.getByLabel(/^Tag name/).fill('AIT-119');
+      await form.getByLabel(/^Unit/).fill('g/L');
+      await form.getByLabel('Range low').fill('0');
+      await form.getByLabel('Range high').fill('12');
+      await form.getByRole('button', { name: 'Add tag' }).click();
+      await expect.poll(() => form.getByRole('status').innerText()).toMatch(/^Tag AIT-119 added\./);
+      const stored = await q(`SELECT t.address, t.unit, t.range_high, s.name FROM tags t JOIN sources s ON s.id = t.source_id WHERE t.name = 'AIT-119'`);
+      expect(stored.rows).toEqual([{ address: 'ns=1;s=Works.Basin9.MLSS', unit: 'g/L', range_high: 12, name: 'kb-ua-e2e' }]);
+      expect(errors.filter((e) => !/401/.test(e))).toEqual([]);
+      await page.close();
+    }
+  }, 60_000);
 });

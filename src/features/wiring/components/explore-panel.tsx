@@ -4,6 +4,7 @@ import { Button, ErrorNote, Panel, TextInput } from '../../../components/ui/cont
 import { formatAge } from '../../../lib/format.ts';
 import { useBrowse } from '../api/browse.ts';
 import { useDiscovery } from '../api/discovery.ts';
+import { useTagsConfig } from '../api/tags-config.ts';
 
 export interface TagDraft {
   sourceId: number;
@@ -26,9 +27,15 @@ export function ExplorePanel({ source, onPick }: { source: SourceOut | undefined
 
 function TopicsPanel({ source, onPick }: { source: SourceOut; onPick(d: TagDraft): void }) {
   const d = useDiscovery(source.id);
+  const cfg = useTagsConfig(source.plantId);
   const [filter, setFilter] = useState('');
   const [onlyNew, setOnlyNew] = useState(true);
-  const topics = (d.data?.topics ?? []).filter((t) => (!onlyNew || t.tagId === null) && t.topic.toLowerCase().includes(filter.toLowerCase()));
+  // Ingest's list says which tag took a topic when it last wrote it; a tag added since is
+  // matched here by address, so a topic just wired does not look unwired for a few seconds.
+  const byAddress = new Map((cfg.data ?? []).filter((t) => t.source.id === source.id).map((t) => [t.address, t]));
+  const topics = (d.data?.topics ?? [])
+    .map((t) => ({ ...t, tag: byAddress.get(t.topic)?.name ?? (t.tagId !== null ? `tag ${t.tagId}` : null) }))
+    .filter((t) => (!onlyNew || t.tag === null) && t.topic.toLowerCase().includes(filter.toLowerCase()));
   return (
     <Panel title={`Topics on ${source.name}`}>
       <div className="flex flex-wrap items-center gap-2 mb-1">
@@ -64,12 +71,12 @@ function TopicsPanel({ source, onPick }: { source: SourceOut; onPick(d: TagDraft
                 <td className="px-1.5 py-0.5 num text-right">{t.count}</td>
                 <td className="px-1.5 py-0.5 num text-right text-ink-2">{formatAge((Date.now() - Date.parse(t.lastSeen)) / 1000)}</td>
                 <td className="px-1.5 py-0.5 text-right whitespace-nowrap">
-                  {t.tagId === null ? (
+                  {t.tag === null ? (
                     <Button onClick={() => onPick({ sourceId: source.id, address: t.topic })} aria-label={`New tag for ${t.topic}`}>
                       New tag…
                     </Button>
                   ) : (
-                    <span className="text-ink-3">tag {t.tagId}</span>
+                    <span className="text-ink-3">{t.tag}</span>
                   )}
                 </td>
               </tr>

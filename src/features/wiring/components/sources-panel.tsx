@@ -123,7 +123,7 @@ function NewSourceForm({ plantId }: { plantId: number }) {
       </div>
     );
   return (
-    <form onSubmit={submit} aria-label="New source" className="mt-2 border-t border-edge pt-2 grid grid-cols-[repeat(auto-fill,minmax(170px,1fr))] gap-2 items-end">
+    <form onSubmit={submit} aria-label="New source" className="mt-2 border-t border-edge pt-2 grid grid-cols-[repeat(auto-fill,minmax(170px,1fr))] gap-2 items-start">
       <Field label="Kind">
         <Select value={kind} onChange={(e) => setKind(e.target.value as SourceKind)}>
           <option value="mqtt">MQTT broker</option>
@@ -165,7 +165,7 @@ function NewSourceForm({ plantId }: { plantId: number }) {
           </Field>
         </>
       )}
-      <div className="flex gap-1">
+      <div className="flex gap-1 mt-[17px]">
         <Button kind="primary" type="submit" disabled={create.isPending}>
           Add source
         </Button>

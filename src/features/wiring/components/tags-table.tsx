@@ -6,7 +6,7 @@ import { useTagsConfig } from '../api/tags-config.ts';
 
 const SHOWN = 200;
 const th = 'text-left font-semibold text-ink-2 px-1.5 py-1 border-b border-edge sticky top-0 bg-panel';
-const td = 'px-1.5 py-0.5 border-b border-edge/50';
+const td = 'px-1.5 py-0.5 h-7 border-b border-edge/50';
 
 /** The configured tags with address, scaling and mapped signals; a mapping can be removed here. */
 export function TagsTable({ plantId }: { plantId: number }) {
