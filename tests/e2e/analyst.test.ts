@@ -124,6 +124,10 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
     expect(rows.length).toBeLessThan(260);
     expect(rows.filter((r) => r[5] === 'bad').length).toBe(1);
     expect(Number(rows[0]![1])).toBeCloseTo(json.points[0]!.value, 9);
+    // wiring is for integrators: not in the analyst's navigation, and the view says why
+    expect(await page.getByRole('navigation', { name: 'Main' }).innerText()).not.toContain('Wiring');
+    await page.goto(`${env.server.url}/wiring`);
+    await page.getByText('Wiring needs the integrator role (you are analyst).').waitFor();
     expect(errors).toEqual([]);
     await ctx.close();
   });

@@ -1,5 +1,7 @@
 import { useState } from 'react';
+import { roleAtLeast } from '../../../../shared/contracts/roles.ts';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
+import { useMe } from '../../auth/api/me.ts';
 import { useCurrentPlant } from '../../plant/api/plants.ts';
 import { PlantPicker } from '../../signals/components/plant-picker.tsx';
 import { useSources } from '../api/sources.ts';
@@ -12,6 +14,9 @@ import { TagsTable } from './tags-table.tsx';
 /** Wiring (integrator+): sources and their connections, what they offer, tags and their process signals. */
 export default function WiringPage() {
   const { plantId, plants, setPlantId } = useCurrentPlant();
+  const me = useMe();
+  // The server refuses every wiring route below integrator; say so instead of a page of 403s.
+  if (me.data && !roleAtLeast(me.data.role, 'integrator')) return <p className="p-2 text-ink-2">Wiring needs the integrator role (you are {me.data.role}).</p>;
   return (
     <div className="flex flex-col gap-2">
       <div className="flex items-center gap-3">
