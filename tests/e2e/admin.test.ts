@@ -1,15 +1,42 @@
 import type { Browser, Page } from 'playwright-core';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { settingsService } from '../../server/services/settings.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
 import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
-import { startTestServer } from '../helpers/server.ts';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import pino from 'pino';
+import { loadConfig } from '../../server/config.ts';
+import { startServer } from '../../server/main.ts';
+import { createTestDatabase } from '../helpers/db.ts';
 
 const ADMIN = { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' };
 // A new shift operator at our invented plant Kestrel Bend.
 const NEW_USER = { email: 'wren.alder@kestrel.invalid', name: 'Wren Alder', password: 'kestrel-night-shift-7' };
+
+/**
+ * The real server on a fresh database like tests/helpers/server.ts, but without its scheduled
+ * balance engine (jobs: false): this test runs the engine itself (runOnce), so "no balance yet"
+ * and every later balance happen exactly when the test says.
+ */
+async function startServerWithoutJobs(env: Record<string, string>) {
+  const t = await createTestDatabase();
+  const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-e2e-'));
+  const config = { ...loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '1', ...env }), port: 0 };
+  const server = await startServer(config, { log: pino({ level: 'silent' }), jobs: false });
+  return {
+    server,
+    t,
+    async close() {
+      await server.close();
+      await t.drop();
+      fs.rmSync(dataDir, { recursive: true, force: true });
+    },
+  };
+}
 
 async function signIn(page: Page, url: string, who: { email: string; password: string }, landing: RegExp): Promise<void> {
   await page.goto(url);
@@ -21,12 +48,12 @@ async function signIn(page: Page, url: string, who: { email: string; password: s
 }
 
 describe('admin in Debian Chromium', () => {
-  let env: Awaited<ReturnType<typeof startTestServer>>;
+  let env: Awaited<ReturnType<typeof startServerWithoutJobs>>;
   let b: { browser: Browser; close(): Promise<void> };
   let engine: BalanceEngine;
   let plantId: number;
   beforeAll(async () => {
-    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password });
+    env = await startServerWithoutJobs({ FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password });
     ({ plantId } = await seedPlant(env.server.ctx, DEMO_PLANT, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:2' }));
     // The product's own SMTP catcher on a free port: what the engine mails lands in mail_outbox.
     engine = await startBalanceEngine(env.server.ctx, { schedule: false, catcherPort: 0 });
@@ -41,7 +68,16 @@ describe('admin in Debian Chromium', () => {
   it('creates a user in Access, reads the mail sent to them in the Outbox, and the new operator cannot open the Outbox', async () => {
     const page = await b.browser.newPage({ viewport: { width: 1920, height: 1080 } });
     const errors = watchConsole(page);
+    // On failure, keep the screen as it was and what the console said, for the report.
+    onTestFailed(async () => {
+      await shot(page, 'admin-failed');
+      console.error('console errors at failure:', errors);
+    });
     await signIn(page, `${env.server.url}/`, ADMIN, /\/board$/);
+    await page.getByTestId('no-balance').waitFor();
+    // Leave the board only once its stream is subscribed: a stream request that closes while the
+    // server is still checking the plant leaks its LISTEN connection (reported; server/services/stream.service.ts).
+    await page.getByTestId('stream-state').filter({ hasText: 'live' }).waitFor();
     const nav = page.getByRole('navigation', { name: 'Main' });
     expect(await nav.innerText()).toMatch(/Board\s+Alarms[\s\S]*Lab[\s\S]*Access\s+Outbox/);
 

@@ -1,11 +1,17 @@
 import type { Browser, Page } from 'playwright-core';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { settingsService } from '../../server/services/settings.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
 import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
-import { startTestServer } from '../helpers/server.ts';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import pino from 'pino';
+import { loadConfig } from '../../server/config.ts';
+import { startServer } from '../../server/main.ts';
+import { createTestDatabase } from '../helpers/db.ts';
 
 /**
  * Kestrel Bend (our invented demo plant) on a quiet morning, except that clarifier 2's blanket
@@ -34,7 +40,28 @@ const FIXTURE: Record<string, { v: number; ramp_per_h?: number }> = {
   'FIT-401': { v: 1510 },
 };
 
-type Env = Awaited<ReturnType<typeof startTestServer>>;
+/**
+ * The real server on a fresh database like tests/helpers/server.ts, but without its scheduled
+ * balance engine (jobs: false): this test runs the engine itself (runOnce), so "no balance yet"
+ * and every later balance happen exactly when the test says.
+ */
+async function startServerWithoutJobs(env: Record<string, string>) {
+  const t = await createTestDatabase();
+  const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-e2e-'));
+  const config = { ...loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '1', ...env }), port: 0 };
+  const server = await startServer(config, { log: pino({ level: 'silent' }), jobs: false });
+  return {
+    server,
+    t,
+    async close() {
+      await server.close();
+      await t.drop();
+      fs.rmSync(dataDir, { recursive: true, force: true });
+    },
+  };
+}
+
+type Env = Awaited<ReturnType<typeof startServerWithoutJobs>>;
 
 /** Seeds Kestrel Bend and writes the fixture signals into tag_latest and rollup_1m (what ingest would have written). */
 async function seedKestrelBend(env: Env): Promise<number> {
@@ -76,7 +103,7 @@ describe('operator on shift in Debian Chromium', () => {
   let engine: BalanceEngine;
   let plantId: number;
   beforeAll(async () => {
-    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: 'chief@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'e2e-admin-password-1' });
+    env = await startServerWithoutJobs({ FLOCSTREAM_ADMIN_EMAIL: 'chief@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'e2e-admin-password-1' });
     plantId = await seedKestrelBend(env);
     engine = await startBalanceEngine(env.server.ctx, { schedule: false, mailCatcher: false });
     b = await launchBrowser();
@@ -92,6 +119,11 @@ describe('operator on shift in Debian Chromium', () => {
     expect(op, 'demo operator').toBeDefined();
     const page = await b.browser.newPage({ viewport: { width: 1920, height: 1080 } });
     const errors = watchConsole(page);
+    // On failure, keep the screen as it was and what the console said, for the report.
+    onTestFailed(async () => {
+      await shot(page, 'operator-failed');
+      console.error('console errors at failure:', errors);
+    });
     await signIn(page, `${env.server.url}/`, op!.email, op!.password, /\/board$/);
 
     // No balance yet: the board says why, in the server's words.
@@ -121,7 +153,7 @@ describe('operator on shift in Debian Chromium', () => {
     const form = page.getByRole('form', { name: 'Lab result' });
     expect(await form.getByTestId('dilution-rule').innerText()).toMatch(/above 250 mL\/L is not a valid SVI: dilute/);
     await form.getByLabel('Settled volume (30 min) [mL/L]').fill('320');
-    await form.getByLabel('MLSS of the undiluted sample [g/L]').fill('3.1');
+    await form.getByLabel('MLSS, undiluted sample [g/L]').fill('3.1');
     await form.getByLabel('Location').selectOption('ab1');
     await form.getByRole('button', { name: 'Save result' }).click();
     const alert = form.getByRole('alert').first();

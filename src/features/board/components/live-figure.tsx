@@ -33,7 +33,7 @@ export function AlarmFlag({ watch }: { watch: Watch | undefined }) {
   if (!a || !watch) return null;
   const acked = a.state !== 'raised';
   return (
-    <span className="ml-1.5 inline-flex items-center gap-0.5 align-middle" data-testid={`flag-${watch.rule}`} title={a.message}>
+    <span className="inline-flex items-center gap-0.5 self-center" data-testid={`flag-${watch.rule}`} title={a.message}>
       <PriorityMark priority={a.priority} muted={acked} />
       <span className="text-[10px] font-semibold" style={{ color: `var(--color-alarm-${a.priority})` }}>
         {watch.word}
@@ -42,14 +42,17 @@ export function AlarmFlag({ watch }: { watch: Watch | undefined }) {
   );
 }
 
-/** One labelled row: label left (truncated, full text on hover), value right-aligned in a fixed-width cell so numbers never shift. */
+/**
+ * One labelled row: label left (truncated, full text on hover), then the alarm flag (never
+ * truncated away), then the value right-aligned in a fixed-width cell so numbers never shift.
+ */
 export function Row({ label, children, watch }: { label: string; children: ReactNode; watch?: Watch }) {
   return (
-    <div className="grid grid-cols-[minmax(0,1fr)_auto] items-baseline gap-2 h-[22px]" data-figure={label}>
+    <div className="grid grid-cols-[minmax(0,1fr)_auto_auto] items-baseline gap-x-1 h-[22px]" data-figure={label}>
       <span className="text-ink-2 text-[12px] truncate" title={label}>
         {label}
-        <AlarmFlag watch={watch} />
       </span>
+      <AlarmFlag watch={watch} />
       <span className="min-w-[140px] text-right whitespace-nowrap">{children}</span>
     </div>
   );

@@ -38,7 +38,7 @@ export const SrtPanel = memo(function SrtPanel({ srt }: { srt: BalanceData['srt'
   const off = srt.total_d.value !== null ? (srt.total_d.value - srt.target_d) / srt.target_d : null;
   return (
     <Box title="Sludge age (SRT) and WAS advice">
-      <div className="grid grid-cols-2 gap-x-4">
+      <div className="grid grid-cols-1 min-[1700px]:grid-cols-2 gap-x-4">
         <FigureRow label="Total SRT, rolling" f={srt.total_d} watch={{ rule: 'srt-off-target', target: 'plant', word: 'OFF TARGET' }} />
         <Row label="Target">
           <FigureValue value={srt.target_d} unit="d" label="setting srt.target_d" />
@@ -55,7 +55,7 @@ export const SrtPanel = memo(function SrtPanel({ srt }: { srt: BalanceData['srt'
           <FigureValue value={srt.coverage * 100} unit="%" digits={3} label="share of the rolling window with data" />
         </Row>
       </div>
-      <div className="mt-1 pt-1 border-t border-edge grid grid-cols-2 gap-x-4" data-testid="was-advice">
+      <div className="mt-1 pt-1 border-t border-edge grid grid-cols-1 min-[1700px]:grid-cols-2 gap-x-4" data-testid="was-advice">
         <FigureRow label="WAS flow for target SRT" f={srt.wasAdvice_m3h} />
         <FigureRow label="WAS flow now" f={srt.wasFlow_m3h} />
       </div>

@@ -26,7 +26,14 @@ function Group({ title, children, testid }: { title: string; children: ReactNode
  * flows, the blankets, the RAS margins and the storm projection at the plant's peak flow. Memoised:
  * with structural sharing an unchanged train keeps its props and skips the re-render.
  */
-export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarifiers, peakFlowSource }: { train: Train; name: string; basins: Basin[]; clarifiers: Clarifier[]; peakFlowSource: string }) {
+type TrainPanelProps = { train: Train; name: string; basins: Basin[]; clarifiers: Clarifier[]; peakFlowSource: string };
+
+/** Basins and clarifiers arrive as freshly filtered arrays; their elements keep identity under structural sharing, so compare element-wise. */
+const sameItems = <T,>(a: T[], b: T[]) => a.length === b.length && a.every((x, i) => x === b[i]);
+const samePanel = (p: TrainPanelProps, q: TrainPanelProps) =>
+  p.train === q.train && p.name === q.name && p.peakFlowSource === q.peakFlowSource && sameItems(p.basins, q.basins) && sameItems(p.clarifiers, q.clarifiers);
+
+export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarifiers, peakFlowSource }: TrainPanelProps) {
   const basinMass = sumFigures(basins.map((b) => b.mass_kg), 'kg');
   const clarMass = sumFigures(clarifiers.map((c) => c.blanketMass_kg), 'kg');
   const stored = train.storm.checks.find((c) => c.rule === 'max-stored-fraction');
@@ -118,4 +125,4 @@ export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarif
       ) : null}
     </article>
   );
-});
+}, samePanel);

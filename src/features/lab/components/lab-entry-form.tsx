@@ -133,7 +133,7 @@ export function LabEntryForm({ plantId, locations }: { plantId: number; location
               <b>Dilution rule.</b> A settled volume above <span className="num">{MAX_SETTLED_VOLUME_mLL} mL/L</span> is not a valid SVI: dilute the sample with clarified effluent and repeat, then record a <b>DSVI</b> = diluted settled volume × dilution factor ÷ MLSS of the undiluted sample. The diluted reading must lie between{' '}
               <span className="num">{MIN_DILUTED_SETTLED_VOLUME_mLL}</span> and <span className="num">{MAX_SETTLED_VOLUME_mLL} mL/L</span>.
             </aside>
-            <Field label={kind === 'SSVI' ? 'MLSS of the test (≈ 3.5)' : 'MLSS of the undiluted sample'} unit="g/L" error={fe.mlss_gL}>
+            <Field label={kind === 'SSVI' ? 'MLSS of the test (≈ 3.5)' : 'MLSS, undiluted sample'} unit="g/L" error={fe.mlss_gL}>
               <TextInput inputMode="decimal" className="num" value={v.mlss_gL} onChange={set('mlss_gL')} aria-invalid={!!fe.mlss_gL} />
             </Field>
             {kind === 'DSVI' ? (
