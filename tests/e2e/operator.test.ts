@@ -230,6 +230,12 @@ describe('operator on shift in Debian Chromium', () => {
       [plantId],
     );
     expect(acked.rows).toEqual([{ state: 'acknowledged', email: op!.email }]);
+    // keyboard only: Tab reaches the next Acknowledge button and Enter presses it
+    const rising = active.locator('tr[data-rule="blanket-rising"]');
+    await rising.getByRole('button', { name: 'Acknowledge blanket-rising sc2' }).focus();
+    await page.keyboard.press('Enter');
+    await expect.poll(() => rising.innerText()).toMatch(/ACTIVE · ACK/);
+    expect(await page.getByTestId('alarm-counts').innerText()).toMatch(/4 needing attention · 2 unacknowledged/);
     await shot(page, 'alarms-after-ack');
 
     expect(errors.filter((e) => !/401/.test(e))).toEqual([]);

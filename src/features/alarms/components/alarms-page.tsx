@@ -36,6 +36,21 @@ function stateText(a: AlarmOut): { text: string; strong: boolean } {
 /** The message without the advisory sentence the server appends to each (shown once above the table). */
 const plainMessage = (m: string) => m.replace(` ${OPERATOR_CAUTION}`, '').replace(OPERATOR_CAUTION, '').trim();
 
+/**
+ * One row per alarm: the three state queries refetch one after another, so for a moment an alarm
+ * just acknowledged is both in the (stale) raised list and the (fresh) acknowledged list. States
+ * only move forward (raised → acknowledged → cleared, ack at most once), so keep the furthest.
+ */
+function newestState(list: AlarmOut[]): Map<number, AlarmOut> {
+  const rank = (a: AlarmOut) => ({ raised: 0, acknowledged: 1, cleared: 2 })[a.state] * 2 + (a.acknowledgedAt ? 1 : 0);
+  const out = new Map<number, AlarmOut>();
+  for (const a of list) {
+    const seen = out.get(a.id);
+    if (!seen || rank(a) > rank(seen)) out.set(a.id, a);
+  }
+  return out;
+}
+
 const byPriorityThenNewest = (x: AlarmOut, y: AlarmOut) => x.priority - y.priority || Date.parse(y.raisedAt) - Date.parse(x.raisedAt);
 
 /**
@@ -53,7 +68,7 @@ export default function AlarmsPage() {
   const stream = useLiveAlarms(plantId);
 
   const active = useMemo(
-    () => [...(raised.data?.alarms ?? []), ...(acked.data?.alarms ?? []), ...(cleared.data?.alarms ?? []).filter((a) => !a.acknowledgedAt)].sort(byPriorityThenNewest),
+    () => [...newestState([...(raised.data?.alarms ?? []), ...(acked.data?.alarms ?? []), ...(cleared.data?.alarms ?? [])]).values()].filter((a) => a.state !== 'cleared' || !a.acknowledgedAt).sort(byPriorityThenNewest),
     [raised.data, acked.data, cleared.data],
   );
 
