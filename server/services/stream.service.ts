@@ -294,6 +294,12 @@ export async function serveStream(hub: StreamHub, req: Request, res: Response, p
   };
   req.on('close', close);
   res.on('error', close);
+  // The client may have left while the route was still checking the plant: its 'close' event
+  // has fired already and would never reach the listener above.
+  if (req.destroyed || res.destroyed || req.socket.destroyed) {
+    close();
+    return;
+  }
 
   res.status(200);
   res.setHeader('Content-Type', 'text/event-stream; charset=utf-8');
