@@ -1,5 +1,5 @@
 /**
- * The one fetch client: JSON in and out, the session cookie rides along (same origin), and
+ * The one fetch client: JSON in and out (or a CSV file up), the session cookie rides along (same origin), and
  * a non-2xx answer becomes an ApiError carrying the server's `{ error: { code, message, fields } }`.
  */
 export class ApiError extends Error {
@@ -13,11 +13,13 @@ export class ApiError extends Error {
   }
 }
 
-export async function api<T>(url: string, init: { method?: string; body?: unknown; signal?: AbortSignal } = {}): Promise<T> {
+export async function api<T>(url: string, init: { method?: string; body?: unknown; csv?: string; signal?: AbortSignal } = {}): Promise<T> {
+  // A JSON body, or a CSV file sent as it is (text/csv uploads).
+  const sending = init.csv !== undefined ? 'text/csv' : init.body !== undefined ? 'application/json' : null;
   const res = await fetch(url, {
-    method: init.method ?? (init.body === undefined ? 'GET' : 'POST'),
-    headers: init.body === undefined ? { Accept: 'application/json' } : { Accept: 'application/json', 'Content-Type': 'application/json' },
-    body: init.body === undefined ? undefined : JSON.stringify(init.body),
+    method: init.method ?? (sending ? 'POST' : 'GET'),
+    headers: sending ? { Accept: 'application/json', 'Content-Type': sending } : { Accept: 'application/json' },
+    body: init.csv ?? (init.body === undefined ? undefined : JSON.stringify(init.body)),
     credentials: 'same-origin',
     signal: init.signal,
   });

@@ -4,39 +4,13 @@ import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balanc
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { settingsService } from '../../server/services/settings.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
+import { startTestServer } from '../helpers/server.ts';
 import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
-import fs from 'node:fs';
-import os from 'node:os';
-import path from 'node:path';
-import pino from 'pino';
-import { loadConfig } from '../../server/config.ts';
-import { startServer } from '../../server/main.ts';
-import { createTestDatabase } from '../helpers/db.ts';
 
 const ADMIN = { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' };
 // A new shift operator at our invented plant Kestrel Bend.
 const NEW_USER = { email: 'wren.alder@kestrel.invalid', name: 'Wren Alder', password: 'kestrel-night-shift-7' };
 
-/**
- * The real server on a fresh database like tests/helpers/server.ts, but without its scheduled
- * balance engine (jobs: false): this test runs the engine itself (runOnce), so "no balance yet"
- * and every later balance happen exactly when the test says.
- */
-async function startServerWithoutJobs(env: Record<string, string>) {
-  const t = await createTestDatabase();
-  const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-e2e-'));
-  const config = { ...loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '1', ...env }), port: 0 };
-  const server = await startServer(config, { log: pino({ level: 'silent' }), jobs: false });
-  return {
-    server,
-    t,
-    async close() {
-      await server.close();
-      await t.drop();
-      fs.rmSync(dataDir, { recursive: true, force: true });
-    },
-  };
-}
 
 async function signIn(page: Page, url: string, who: { email: string; password: string }, landing: RegExp): Promise<void> {
   await page.goto(url);
@@ -48,12 +22,12 @@ async function signIn(page: Page, url: string, who: { email: string; password: s
 }
 
 describe('admin in Debian Chromium', () => {
-  let env: Awaited<ReturnType<typeof startServerWithoutJobs>>;
+  let env: Awaited<ReturnType<typeof startTestServer>>;
   let b: { browser: Browser; close(): Promise<void> };
   let engine: BalanceEngine;
   let plantId: number;
   beforeAll(async () => {
-    env = await startServerWithoutJobs({ FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password });
+    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password }, { jobs: false });
     ({ plantId } = await seedPlant(env.server.ctx, DEMO_PLANT, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:2' }));
     // The product's own SMTP catcher on a free port: what the engine mails lands in mail_outbox.
     engine = await startBalanceEngine(env.server.ctx, { schedule: false, catcherPort: 0 });

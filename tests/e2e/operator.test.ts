@@ -4,14 +4,8 @@ import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balanc
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { settingsService } from '../../server/services/settings.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
+import { startTestServer } from '../helpers/server.ts';
 import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
-import fs from 'node:fs';
-import os from 'node:os';
-import path from 'node:path';
-import pino from 'pino';
-import { loadConfig } from '../../server/config.ts';
-import { startServer } from '../../server/main.ts';
-import { createTestDatabase } from '../helpers/db.ts';
 
 /**
  * Kestrel Bend (our invented demo plant) on a quiet morning, except that clarifier 2's blanket
@@ -40,28 +34,8 @@ const FIXTURE: Record<string, { v: number; ramp_per_h?: number }> = {
   'FIT-401': { v: 1510 },
 };
 
-/**
- * The real server on a fresh database like tests/helpers/server.ts, but without its scheduled
- * balance engine (jobs: false): this test runs the engine itself (runOnce), so "no balance yet"
- * and every later balance happen exactly when the test says.
- */
-async function startServerWithoutJobs(env: Record<string, string>) {
-  const t = await createTestDatabase();
-  const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-e2e-'));
-  const config = { ...loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '1', ...env }), port: 0 };
-  const server = await startServer(config, { log: pino({ level: 'silent' }), jobs: false });
-  return {
-    server,
-    t,
-    async close() {
-      await server.close();
-      await t.drop();
-      fs.rmSync(dataDir, { recursive: true, force: true });
-    },
-  };
-}
 
-type Env = Awaited<ReturnType<typeof startServerWithoutJobs>>;
+type Env = Awaited<ReturnType<typeof startTestServer>>;
 
 /** Seeds Kestrel Bend and writes the fixture signals into tag_latest and rollup_1m (what ingest would have written). */
 async function seedKestrelBend(env: Env): Promise<number> {
@@ -103,7 +77,7 @@ describe('operator on shift in Debian Chromium', () => {
   let engine: BalanceEngine;
   let plantId: number;
   beforeAll(async () => {
-    env = await startServerWithoutJobs({ FLOCSTREAM_ADMIN_EMAIL: 'chief@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'e2e-admin-password-1' });
+    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: 'chief@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'e2e-admin-password-1' }, { jobs: false });
     plantId = await seedKestrelBend(env);
     engine = await startBalanceEngine(env.server.ctx, { schedule: false, mailCatcher: false });
     b = await launchBrowser();
