@@ -1,3 +1,4 @@
+import { createHash } from 'node:crypto';
 import mqtt, { type IClientOptions, type MqttClient, type Packet } from 'mqtt';
 import type { Logger } from 'pino';
 import { z } from 'zod';
@@ -27,7 +28,16 @@ const UNSUPPORTED_PROTOCOL = new Set([1, 0x84]);
 interface HeldAck {
   messageId: number;
   generation: number;
+  /** Topic and payload digest: recognises the broker's redelivery of this very message. */
+  fingerprint: string;
 }
+
+function fingerprint(topic: string, payload: Buffer): string {
+  return `${topic}\u0000${createHash('sha1').update(payload).digest('base64')}`;
+}
+
+/** How many committed-but-unacknowledged messages are remembered across a reconnect. */
+const MAX_REMEMBERED = 100_000;
 
 /** The mqtt.js 5.16 internal every outgoing packet goes through (private in its typings). */
 interface PacketSender {
@@ -66,12 +76,19 @@ export class MqttConnector implements Connector {
   private opts: MqttSourceOptions;
   private generation = 0;
   private held = new Map<number, HeldAck>();
+  /**
+   * Messages whose rows were committed after their connection had closed, so their PUBACK could
+   * not be sent: the broker will deliver them again (MQTT 3.1.1 §4.4, MQTT 5.0 §4.4; aedes does
+   * not set the DUP flag on it). Such a redelivery is acknowledged without writing it twice —
+   * samples would be absorbed by the primary key, dead letters would not.
+   */
+  private committedUnacked = new Map<number, string>();
   private protocol: 4 | 5;
   private state: ConnectionState = 'connecting';
   private lastError: string | null = null;
   private connectedAt: number | null = null;
   private lastMessageAt: number | null = null;
-  private counters = { messages: 0, samples: 0, unmapped: 0, deadLetters: 0, suppressed: 0, reconnects: 0, outstanding: 0 };
+  private counters = { messages: 0, samples: 0, unmapped: 0, deadLetters: 0, suppressed: 0, reconnects: 0, outstanding: 0, redelivered: 0 };
   private closing = false;
 
   constructor(
@@ -160,7 +177,14 @@ export class MqttConnector implements Connector {
     client.on('message', (_topic, payload, packet) => {
       if (packet.qos === 1 && packet.messageId !== undefined) {
         // Registered before mqtt.js sends the PUBACK, which the _sendPacket wrapper then holds.
-        const h: HeldAck = { messageId: packet.messageId, generation: this.generation };
+        const fp = fingerprint(packet.topic, payload);
+        if (this.committedUnacked.get(packet.messageId) === fp) {
+          // Already stored: let mqtt.js send its PUBACK now and write nothing.
+          this.committedUnacked.delete(packet.messageId);
+          this.counters.redelivered++;
+          return;
+        }
+        const h: HeldAck = { messageId: packet.messageId, generation: this.generation, fingerprint: fp };
         this.held.set(packet.messageId, h);
         this.process(packet.topic, payload, h);
       } else {
@@ -204,6 +228,12 @@ export class MqttConnector implements Connector {
   /** Sends a held PUBACK if its connection is still the current one. */
   private release(h: HeldAck): void {
     const client = this.client;
+    if (h.generation !== this.generation) {
+      // Committed, but its connection is gone: remember it for the redelivery.
+      if (this.committedUnacked.size >= MAX_REMEMBERED) this.committedUnacked.delete(this.committedUnacked.keys().next().value!);
+      this.committedUnacked.set(h.messageId, h.fingerprint);
+      return;
+    }
     if (this.held.get(h.messageId) !== h) return;
     this.held.delete(h.messageId);
     if (!client || h.generation !== this.generation || !client.connected) return;
@@ -244,6 +274,8 @@ export class MqttConnector implements Connector {
         topics: this.opts.topics,
         discoveredTopics: this.handler.discovery.size,
         invalidFilters: this.handler.invalidFilters,
+        /** Redeliveries of messages already stored, acknowledged without writing them again. */
+        redelivered: this.counters.redelivered,
       },
     };
   }

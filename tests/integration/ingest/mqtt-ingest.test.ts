@@ -108,6 +108,37 @@ describe('MQTT → PostgreSQL', () => {
     }
   });
 
+  it('does not store a dead letter twice when the connection drops between commit and PUBACK', async () => {
+    // MQTT 3.1.1 §4.4: unacknowledged QoS 1 messages are sent again after a reconnect. Hold the
+    // commit with a table lock, drop the ingest connection, then let the commit through: the rows
+    // are stored, the PUBACKs cannot be sent, the broker redelivers, and nothing is written twice.
+    const ingestId = 'it-ingest-' + (svc.status().sources[0]?.sourceId ?? 0);
+    const before = await scalar(pool, `SELECT count(*) FROM dead_letters WHERE address = 'bad/value'`);
+    const N = 50;
+    const locker = await pool.connect();
+    try {
+      await locker.query('BEGIN');
+      await locker.query('LOCK TABLE dead_letters IN ACCESS EXCLUSIVE MODE');
+      for (let i = 0; i < N; i++) await pub.publishAsync('bad/value', `{"v": "not a number ${i}"}`, { qos: 1 });
+      await waitFor('ingest holding the messages', async () => svc.status().sources[0]!.unacknowledged, (n) => n >= N, 10_000);
+      await new Promise((r) => setTimeout(r, 300));
+      const client = (broker.broker as unknown as { clients: Record<string, { close(): void }> }).clients[ingestId];
+      expect(client).toBeDefined();
+      client!.close();
+      await new Promise((r) => setTimeout(r, 200));
+      await locker.query('COMMIT');
+    } finally {
+      await locker.query('ROLLBACK').catch(() => {});
+      locker.release();
+    }
+    await waitFor('ingest reconnected', async () => svc.status().sources[0]?.state, (st) => st === 'connected', 15_000);
+    await waitFor('N dead letters', () => scalar(pool, `SELECT count(*) FROM dead_letters WHERE address = 'bad/value'`), (n) => n >= before + N, 15_000);
+    // Give the redelivery time to arrive and be recognised.
+    await waitFor('redeliveries recognised', async () => Number(svc.status().sources[0]!.details.redelivered ?? 0), (n) => n > 0, 15_000);
+    await new Promise((r) => setTimeout(r, 1_000));
+    expect(await scalar(pool, `SELECT count(*) FROM dead_letters WHERE address = 'bad/value'`)).toBe(before + N);
+  });
+
   it('still stores exactly N when the broker restarts mid-stream', async () => {
     const N = 20_000;
     const t0 = Date.UTC(2026, 0, 12, 0, 0, 0);
