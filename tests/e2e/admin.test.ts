@@ -1,25 +1,16 @@
-import type { Browser, Page } from 'playwright-core';
+import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { settingsService } from '../../server/services/settings.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
 import { startTestServer } from '../helpers/server.ts';
-import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
+import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
 const ADMIN = { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' };
 // A new shift operator at our invented plant Kestrel Bend.
 const NEW_USER = { email: 'wren.alder@kestrel.invalid', name: 'Wren Alder', password: 'kestrel-night-shift-7' };
 
-
-async function signIn(page: Page, url: string, who: { email: string; password: string }, landing: RegExp): Promise<void> {
-  await page.goto(url);
-  await page.waitForURL(/\/login$/);
-  await page.getByLabel('E-mail').fill(who.email);
-  await page.getByLabel('Password').fill(who.password);
-  await page.getByRole('button', { name: 'Sign in' }).click();
-  await page.waitForURL(landing);
-}
 
 describe('admin in Debian Chromium', () => {
   let env: Awaited<ReturnType<typeof startTestServer>>;

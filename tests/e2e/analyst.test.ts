@@ -5,7 +5,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { parseCsv } from '../../server/services/csv.service.ts';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
-import { launchBrowser, SCREENSHOT_DIR, shot, watchConsole } from '../helpers/browser.ts';
+import { launchBrowser, SCREENSHOT_DIR, shot, watchConsole, signIn } from '../helpers/browser.ts';
 import { startTestServer } from '../helpers/server.ts';
 
 const ADMIN = { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' };
@@ -84,20 +84,15 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
     await env?.close();
   });
 
-  async function signIn(ctx: BrowserContext, to: string): Promise<Page> {
+  async function openAs(ctx: BrowserContext, to: string): Promise<Page> {
     const page = await ctx.newPage();
-    await page.goto(`${env.server.url}${to}`);
-    await page.waitForURL(/\/login$/);
-    await page.getByLabel('E-mail').fill(ANALYST.email);
-    await page.getByLabel('Password').fill(ANALYST.password);
-    await page.getByRole('button', { name: 'Sign in' }).click();
-    await page.waitForURL((u) => u.pathname === to.split('?')[0]);
+    await signIn(page, `${env.server.url}${to}`, ANALYST, (u) => u.pathname === to.split('?')[0]);
     return page;
   }
 
   it('creates an API token and pulls tag history as CSV with it', async () => {
     const ctx = await b.browser.newContext({ viewport: { width: 1280, height: 800 } });
-    const page = await signIn(ctx, '/access');
+    const page = await openAs(ctx, '/access');
     const errors = watchConsole(page);
     await page.getByLabel('Name').fill('monthly report');
     await page.getByRole('button', { name: 'Create token' }).click();
@@ -134,7 +129,7 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
 
   it('trends two pens: gaps and quality shown, zoom refetches, rollups for a week, CSV and PNG export', async () => {
     const ctx = await b.browser.newContext({ viewport: { width: 1280, height: 900 }, acceptDownloads: true });
-    const page = await signIn(ctx, `/trends`);
+    const page = await openAs(ctx, `/trends`);
     const errors = watchConsole(page);
     await page.getByRole('heading', { name: 'Trends' }).waitFor();
     // Kestrel Bend is the first plant; pens are added by name, from the keyboard
@@ -209,7 +204,7 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
 
   it('signals: 10 000 tags scroll with only visible rows rendered; filter, sort and live update', async () => {
     const ctx = await b.browser.newContext({ viewport: { width: 1280, height: 800 } });
-    const page = await signIn(ctx, '/signals');
+    const page = await openAs(ctx, '/signals');
     const errors = watchConsole(page);
     await page.getByLabel('Plant').selectOption({ label: 'Bulk test plant' });
     const count = page.getByTestId('signals-count');

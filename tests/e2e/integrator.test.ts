@@ -6,7 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { IngestService } from '../../ingest/ingest-service.ts';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
-import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
+import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 import { startTestServer } from '../helpers/server.ts';
 import { freePort, ingestConfig, silentLog, startTestBroker, type TestBroker } from '../integration/ingest/helpers.ts';
 
@@ -56,20 +56,15 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
     await broker?.close();
   });
 
-  async function signIn(page: Page, to: string): Promise<void> {
-    await page.goto(`${env.server.url}${to}`);
-    await page.waitForURL(/\/login$/);
-    await page.getByLabel('E-mail').fill(INTEGRATOR.email);
-    await page.getByLabel('Password').fill(INTEGRATOR.password);
-    await page.getByRole('button', { name: 'Sign in' }).click();
-    await page.waitForURL((u) => u.pathname === to);
+  async function openAs(page: Page, to: string): Promise<void> {
+    await signIn(page, `${env.server.url}${to}`, INTEGRATOR, (u) => u.pathname === to);
   }
 
   it('tests both sources, discovers the new topic, maps it to a process signal and sees its values arrive', async () => {
     b = await launchBrowser();
     const page = await b.browser.newPage({ viewport: { width: 1280, height: 900 } });
     const errors = watchConsole(page);
-    await signIn(page, '/wiring');
+    await openAs(page, '/wiring');
     expect(await page.getByRole('navigation', { name: 'Main' }).innerText()).toContain('Wiring');
     await expect.poll(() => page.getByTestId('ingest-state').innerText(), { timeout: 15_000 }).toBe('ingest running');
 
@@ -135,7 +130,7 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
   it('imports a tag list from CSV: preview with row errors, then all rows at once', async () => {
     const page = await b.browser.newPage({ viewport: { width: 1280, height: 900 } });
     const errors = watchConsole(page);
-    await signIn(page, '/wiring');
+    await openAs(page, '/wiring');
     const panel = page.getByRole('region', { name: 'Import a tag list (CSV)' });
     const header = 'name,source,address,unit,description,scale_gain,expected_period_s,signal,target';
     const bad = [header, 'AIT-901,kb-mqtt,kb/aux/AIT-901,mg/L,Aux effluent TSS,1,10,,', 'AIT-902,nowhere,kb/aux/AIT-902,mg/L,Aux TSS 2,abc,10,,', ''].join('\r\n');
@@ -189,7 +184,7 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
     {
       const page = await b.browser.newPage({ viewport: { width: 1280, height: 900 } });
       const errors = watchConsole(page);
-      await signIn(page, '/wiring');
+      await openAs(page, '/wiring');
       await page.getByRole('button', { name: 'Add source…' }).click();
       const sf = page.getByRole('form', { name: 'New source' });
       await sf.getByLabel('Kind').selectOption('opcua');

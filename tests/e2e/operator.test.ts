@@ -1,11 +1,11 @@
-import type { Browser, Page } from 'playwright-core';
+import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { settingsService } from '../../server/services/settings.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
 import { startTestServer } from '../helpers/server.ts';
-import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
+import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
 /**
  * Kestrel Bend (our invented demo plant) on a quiet morning, except that clarifier 2's blanket
@@ -62,14 +62,6 @@ async function seedKestrelBend(env: Env): Promise<number> {
   return plantId;
 }
 
-async function signIn(page: Page, url: string, email: string, password: string, landing: RegExp): Promise<void> {
-  await page.goto(url);
-  await page.waitForURL(/\/login$/);
-  await page.getByLabel('E-mail').fill(email);
-  await page.getByLabel('Password').fill(password);
-  await page.getByRole('button', { name: 'Sign in' }).click();
-  await page.waitForURL(landing);
-}
 
 describe('operator on shift in Debian Chromium', () => {
   let env: Env;
@@ -98,7 +90,7 @@ describe('operator on shift in Debian Chromium', () => {
       await shot(page, 'operator-failed');
       console.error('console errors at failure:', errors);
     });
-    await signIn(page, `${env.server.url}/`, op!.email, op!.password, /\/board$/);
+    await signIn(page, `${env.server.url}/`, op!, /\/board$/);
 
     // No balance yet: the board says why, in the server's words.
     const none = page.getByTestId('no-balance');

@@ -2,7 +2,7 @@ import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
-import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
+import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 import { startTestServer } from '../helpers/server.ts';
 
 const fig = (value: number | null, unit: string) => ({ value, unit, quality: value === null ? 'unavailable' : 'good', reasons: value === null ? ['no input'] : [] });
@@ -40,12 +40,7 @@ describe('what-if pre-filled from the live plant', () => {
 
     const page = await b.browser.newPage({ viewport: { width: 1280, height: 900 } });
     const errors = watchConsole(page);
-    await page.goto(`${env.server.url}/what-if`);
-    await page.waitForURL(/\/login$/);
-    await page.getByLabel('E-mail').fill('chief@kestrel.invalid');
-    await page.getByLabel('Password').fill('e2e-admin-password-1');
-    await page.getByRole('button', { name: 'Sign in' }).click();
-    await page.waitForURL(/\/what-if$/);
+    await signIn(page, `${env.server.url}/what-if`, { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' }, /\/what-if$/);
     const storm = page.getByRole('region', { name: 'Storm projection' });
     await storm.getByRole('button', { name: 'Fill from live plant' }).click();
     await storm.getByTestId('storm-prefill').waitFor();

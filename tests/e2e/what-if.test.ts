@@ -1,7 +1,7 @@
 import type { Browser, Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import path from 'node:path';
-import { launchBrowser, SCREENSHOT_DIR, shot, watchConsole } from '../helpers/browser.ts';
+import { launchBrowser, SCREENSHOT_DIR, shot, watchConsole, signIn } from '../helpers/browser.ts';
 import { startTestServer } from '../helpers/server.ts';
 
 // Kestrel Bend is our invented demo plant; the forms come pre-filled with its example values.
@@ -17,20 +17,15 @@ describe('what-if calculators in Debian Chromium', () => {
     await env?.close();
   });
 
-  async function signIn(page: Page): Promise<void> {
-    await page.goto(`${env.server.url}/what-if`);
-    await page.waitForURL(/\/login$/);
-    await page.getByLabel('E-mail').fill('chief@kestrel.invalid');
-    await page.getByLabel('Password').fill('e2e-admin-password-1');
-    await page.getByRole('button', { name: 'Sign in' }).click();
-    await page.waitForURL(/\/what-if$/);
+  async function openWhatIf(page: Page): Promise<void> {
+    await signIn(page, `${env.server.url}/what-if`, { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' }, /\/what-if$/);
     await page.getByRole('heading', { name: 'What-if calculators' }).waitFor();
   }
 
   it('runs the storm and state-point calculators, draws the diagram, and shows a field error for SVI 0', async () => {
     const page = await b.browser.newPage({ viewport: { width: 1280, height: 900 } });
     const errors = watchConsole(page);
-    await signIn(page);
+    await openWhatIf(page);
     await shot(page, 'what-if-empty');
 
     // storm: 1 500 → 3 000 m³/h with RAS held at 900 m³/h, SVI 120 → X_R,max = 1200/120 = 10 g/L,

@@ -47,3 +47,13 @@ export async function shot(page: Page, name: string): Promise<string> {
   await page.screenshot({ path: file, fullPage: true });
   return file;
 }
+
+/** Signs in through the login page the app redirects to from `url`, then waits for `landing`. */
+export async function signIn(page: Page, url: string, who: { email: string; password: string }, landing: RegExp | ((u: URL) => boolean)): Promise<void> {
+  await page.goto(url);
+  await page.waitForURL(/\/login$/);
+  await page.getByLabel('E-mail').fill(who.email);
+  await page.getByLabel('Password').fill(who.password);
+  await page.getByRole('button', { name: 'Sign in' }).click();
+  await page.waitForURL(landing);
+}
