@@ -1,3 +1,4 @@
+import type { TagSet } from './pipeline/tag-set.ts';
 import type { TagConfig } from './pipeline/types.ts';
 
 export type ConnectionState = 'connecting' | 'connected' | 'reconnecting' | 'disconnected' | 'error';
@@ -41,4 +42,23 @@ export interface SourceConfig {
   username: string | null;
   secret: string | null;
   options: Record<string, unknown>;
+}
+
+/** The status fields every connector reports the same way, from its own state. */
+export function sourceStatusBase(
+  source: SourceConfig,
+  c: { state: ConnectionState; lastError: string | null; connectedAt: number | null; lastMessageAt: number | null; tags: TagSet },
+  now: number,
+): Pick<ConnectorStatus, 'sourceId' | 'name' | 'kind' | 'state' | 'lastError' | 'connectedAt' | 'lastMessageAt' | 'tags' | 'staleTags'> {
+  return {
+    sourceId: source.id,
+    name: source.name,
+    kind: source.kind,
+    state: c.state,
+    lastError: c.lastError,
+    connectedAt: c.connectedAt ? new Date(c.connectedAt).toISOString() : null,
+    lastMessageAt: c.lastMessageAt ? new Date(c.lastMessageAt).toISOString() : null,
+    tags: c.tags.size,
+    staleTags: c.tags.staleCount(now),
+  };
 }

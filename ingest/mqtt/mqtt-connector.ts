@@ -2,7 +2,7 @@ import { createHash } from 'node:crypto';
 import mqtt, { type IClientOptions, type MqttClient, type Packet } from 'mqtt';
 import type { Logger } from 'pino';
 import { z } from 'zod';
-import type { Connector, ConnectorStatus, ConnectionState, SourceConfig } from '../connector.ts';
+import { sourceStatusBase, type Connector, type ConnectorStatus, type ConnectionState, type SourceConfig } from '../connector.ts';
 import { TagSet } from '../pipeline/tag-set.ts';
 import type { TagConfig } from '../pipeline/types.ts';
 import type { BatchWriter } from '../sink/batch-writer.ts';
@@ -249,24 +249,14 @@ export class MqttConnector implements Connector {
   }
 
   status(now: number): ConnectorStatus {
-    let stale = 0;
-    for (const p of this.tags.all()) if (p.isStale(now)) stale++;
     return {
-      sourceId: this.source.id,
-      name: this.source.name,
-      kind: 'mqtt',
-      state: this.state,
-      lastError: this.lastError,
-      connectedAt: this.connectedAt ? new Date(this.connectedAt).toISOString() : null,
-      lastMessageAt: this.lastMessageAt ? new Date(this.lastMessageAt).toISOString() : null,
+      ...sourceStatusBase(this.source, { state: this.state, lastError: this.lastError, connectedAt: this.connectedAt, lastMessageAt: this.lastMessageAt, tags: this.tags }, now),
       messages: this.counters.messages,
       samples: this.counters.samples,
       unmapped: this.counters.unmapped,
       deadLetters: this.counters.deadLetters,
       suppressed: this.counters.suppressed,
       unacknowledged: this.counters.outstanding,
-      tags: this.tags.size,
-      staleTags: stale,
       reconnects: this.counters.reconnects,
       details: {
         clientId: this.clientId,

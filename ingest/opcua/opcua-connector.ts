@@ -19,7 +19,7 @@ import {
   type UserIdentityInfo,
 } from 'node-opcua';
 import type { Logger } from 'pino';
-import type { Connector, ConnectorStatus, ConnectionState, SourceConfig } from '../connector.ts';
+import { sourceStatusBase, type Connector, type ConnectorStatus, type ConnectionState, type SourceConfig } from '../connector.ts';
 import { isSample } from '../pipeline/quality.ts';
 import { TagSet } from '../pipeline/tag-set.ts';
 import { deadLetter, type TagConfig } from '../pipeline/types.ts';
@@ -255,24 +255,14 @@ export class OpcuaConnector implements Connector {
   }
 
   status(now: number): ConnectorStatus {
-    let stale = 0;
-    for (const p of this.tags.all()) if (p.isStale(now)) stale++;
     return {
-      sourceId: this.source.id,
-      name: this.source.name,
-      kind: 'opcua',
-      state: this.state,
-      lastError: this.lastError,
-      connectedAt: this.connectedAt ? new Date(this.connectedAt).toISOString() : null,
-      lastMessageAt: this.lastMessageAt ? new Date(this.lastMessageAt).toISOString() : null,
+      ...sourceStatusBase(this.source, { state: this.state, lastError: this.lastError, connectedAt: this.connectedAt, lastMessageAt: this.lastMessageAt, tags: this.tags }, now),
       messages: this.counters.messages,
       samples: this.counters.samples,
       unmapped: 0,
       deadLetters: this.counters.deadLetters,
       suppressed: this.counters.suppressed,
       unacknowledged: 0,
-      tags: this.tags.size,
-      staleTags: stale,
       reconnects: this.counters.reconnects,
       details: {
         securityMode: this.opts.securityMode,

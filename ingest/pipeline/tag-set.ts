@@ -20,6 +20,13 @@ export class TagSet {
 
   constructor(private opts: QualityOptions = DEFAULT_QUALITY_OPTIONS) {}
 
+  /** Tags whose latest sample is older than their staleness limit at `now`. */
+  staleCount(now: number): number {
+    let n = 0;
+    for (const p of this.byId.values()) if (p.isStale(now)) n++;
+    return n;
+  }
+
   /** Replaces the tag list; returns true when anything changed. */
   update(tags: readonly TagConfig[]): boolean {
     let changed = tags.length !== this.byId.size;
