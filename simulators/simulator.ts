@@ -127,7 +127,9 @@ export async function startSimulator(opts: SimulatorOptions): Promise<RunningSim
 
   const endpoints = { mqtt: mqttUrl, opcua: opcua?.endpointUrl ?? null };
   log(
-    `flocstream simulator: plant ${plant.code} (${plant.name}), scenario ${scenario.name}, speed ${speed}×, seed ${seed}; ` +
+    `flocstream simulator: plant ${plant.code} (${plant.name}), scenario ${scenario.name}, speed ${speed}×` +
+      (catchUp ? ` from ${opts.catchUp_h} h ago until it meets the wall clock, then real time` : '') +
+      `, seed ${seed}; ` +
       `MQTT ${endpoints.mqtt ?? 'off'}${endpoints.mqtt ? (opts.batch ? ' (batched)' : ' (one value per message)') : ''}; OPC UA ${endpoints.opcua ?? 'off'}`,
   );
 
