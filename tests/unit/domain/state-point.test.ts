@@ -6,8 +6,8 @@ import { mulberry32, uniform } from './prng.js';
 
 // Worked example after the state point method of Keinath (1985) as presented in Metcalf & Eddy,
 // Wastewater Engineering: Treatment and Resource Recovery, 5th ed. (2014), ch. 8 — the numbers are an
-// invented plant of our own and every expected value is computed by hand below; no textbook
-// example number is cited because none can be recalled reliably from memory.
+// invented plant of our own and every expected value is computed by hand below. The textbook's own
+// worked example (Example 8-3, clarifier step) is checked in textbook-example.test.ts.
 const plant: StatePointInputs = {
   influentFlow_m3h: 1000,
   rasFlow_m3h: 600,
