@@ -4,7 +4,7 @@ import pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
 import type { DeadLetter, Sample } from '../pipeline/types.ts';
 import { encodeSamplesBinary } from './copy-binary.ts';
-import { aggregate, latestPerTag, type RollupRow } from './rollup.ts';
+import { aggregate, latestPerTag, mergeInto, type RollupRow } from './rollup.ts';
 
 /** What one committed write did. */
 export interface WriteResult {
@@ -159,8 +159,10 @@ export class SampleStore {
         }
       }
       if (inserted.length) {
-        for (const [table, bucket] of [['rollup_1m', 60_000], ['rollup_1h', 3_600_000]] as const) {
-          const rows = aggregate(inserted, bucket);
+        // Hours are merged from the minute rows (a few thousand) rather than from the samples again.
+        const perMinute = aggregate(inserted, 60_000);
+        const perHour = mergeInto(perMinute, 3_600_000);
+        for (const [table, rows] of [['rollup_1m', perMinute], ['rollup_1h', perHour]] as const) {
           if (rows.length) await c.query({ name: `ingest_${table}`, text: rollupSql(table), values: rollupParams(rows) });
         }
         const latest = latestPerTag(inserted);

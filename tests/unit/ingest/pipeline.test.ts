@@ -6,7 +6,7 @@ import { decodePayload, looksLikeBatch } from '../../../ingest/pipeline/decode.t
 import { TagProcessor, isSample } from '../../../ingest/pipeline/quality.ts';
 import { TopicMap, parseTopicFilter, topicMatches } from '../../../ingest/pipeline/topic-match.ts';
 import type { TagConfig } from '../../../ingest/pipeline/types.ts';
-import { aggregate } from '../../../ingest/sink/rollup.ts';
+import { aggregate, mergeInto } from '../../../ingest/sink/rollup.ts';
 import { Spool } from '../../../ingest/sink/spool.ts';
 import { encodeSamplesBinary } from '../../../ingest/sink/copy-binary.ts';
 import { QUALITY_FLAG, qualityFlags, qualityGrade } from '../../../shared/contracts/sample-quality.ts';
@@ -116,6 +116,24 @@ describe('rollup aggregation', () => {
       { tagId: 1, bucket: 0, min: -1, max: 5, sum: 6, count: 3, last: 5, lastTs: 59_000, quality: 1 | QUALITY_FLAG.outOfRange },
       { tagId: 1, bucket: 60_000, min: 7, max: 7, sum: 7, count: 1, last: 7, lastTs: 61_000, quality: 0 },
     ]);
+  });
+});
+
+describe('rollup merge into coarser buckets', () => {
+  it('hours merged from minute rows equal hours aggregated from the samples (seeded mix of tags, times and grades)', () => {
+    let seed = 7;
+    const rnd = () => ((seed = (seed * 1_103_515_245 + 12_345) % 2 ** 31) / 2 ** 31);
+    const samples = Array.from({ length: 5_000 }, () => ({
+      tagId: 1 + Math.floor(rnd() * 7),
+      ts: Math.floor(rnd() * 3 * 3_600_000),
+      value: rnd() < 0.02 ? null : Math.round((rnd() * 200 - 100) * 8) / 8, // eighths: sums exact in float
+      quality: [0, 0, 0, 1, 2, 1 | QUALITY_FLAG.outOfRange][Math.floor(rnd() * 6)]!,
+    }));
+    const key = (r: { tagId: number; bucket: number }) => r.tagId * 1e9 + r.bucket;
+    const direct = aggregate(samples, 3_600_000).sort((a, b) => key(a) - key(b));
+    const merged = mergeInto(aggregate(samples, 60_000), 3_600_000).sort((a, b) => key(a) - key(b));
+    expect(merged).toEqual(direct);
+    expect(direct.length).toBe(7 * 3);
   });
 });
 
