@@ -22,6 +22,17 @@ const envSchema = z.object({
   INGEST_BATCH_ROWS: positiveInt.default(DEFAULT_BATCH_ROWS),
   /** … or once its oldest sample has waited this long [ms]. */
   INGEST_FLUSH_MS: positiveInt.default(200),
+  /**
+   * Database connections the batch writer commits on. Two let one batch's COPY run while the
+   * previous one finishes its rollups and commit (tests/bench/ingest.bench.ts); acknowledgements
+   * stay in arrival order whatever the count.
+   */
+  INGEST_WRITERS: z.coerce.number().int().min(1).max(8).default(2),
+  /**
+   * Backpressure: sources pause while this many samples are received but not yet committed or
+   * spooled, and resume at half of it; default four batches.
+   */
+  INGEST_MAX_BACKLOG_ROWS: positiveInt.optional(),
   /** Day partitions ending before now − retention are dropped [days]. */
   INGEST_RETENTION_DAYS: positiveInt.default(400),
   /** How often sources and tags are re-read from the database [ms]. */
@@ -37,6 +48,9 @@ export interface IngestConfig {
   dataDir: string;
   logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
   batchRows: number;
+  writers: number;
+  /** Undefined: four batches. */
+  maxBacklog?: number;
   flushMs: number;
   retentionDays: number;
   reloadMs: number;
@@ -58,6 +72,8 @@ export function loadIngestConfig(env: NodeJS.ProcessEnv = process.env): IngestCo
     dataDir: path.resolve(e.FLOCSTREAM_DATA_DIR),
     logLevel: e.LOG_LEVEL,
     batchRows: e.INGEST_BATCH_ROWS,
+    writers: e.INGEST_WRITERS,
+    ...(e.INGEST_MAX_BACKLOG_ROWS ? { maxBacklog: e.INGEST_MAX_BACKLOG_ROWS } : {}),
     flushMs: e.INGEST_FLUSH_MS,
     retentionDays: e.INGEST_RETENTION_DAYS,
     reloadMs: e.INGEST_RELOAD_MS,

@@ -58,6 +58,7 @@ export class IngestService {
     private log: Logger,
     private pool: pg.Pool,
     private store: SampleStore,
+    private lanes: SampleStore[],
     readonly writer: BatchWriter,
   ) {}
 
@@ -66,11 +67,13 @@ export class IngestService {
     await fs.mkdir(paths.discoveryDir, { recursive: true });
     const spool = await Spool.open(paths.spoolDir);
     if (!spool.isEmpty) log.info({ files: spool.fileCount, bytes: spool.sizeBytes }, 'spool from a previous run will be replayed');
+    // Partition upkeep has a connection of its own: on a writer's it could land inside a batch's transaction.
     const store = new SampleStore(cfg.databaseUrl, { retentionDays: cfg.retentionDays });
-    const writer = new BatchWriter(store, spool, { batchRows: cfg.batchRows, flushMs: cfg.flushMs, log });
+    const lanes = Array.from({ length: cfg.writers }, () => new SampleStore(cfg.databaseUrl, { retentionDays: cfg.retentionDays }));
+    const writer = new BatchWriter(lanes, spool, { batchRows: cfg.batchRows, flushMs: cfg.flushMs, log, ...(cfg.maxBacklog ? { maxBacklog: cfg.maxBacklog } : {}) });
     const pool = new pg.Pool({ connectionString: cfg.databaseUrl, max: 2, connectionTimeoutMillis: 5_000, application_name: 'flocstream-ingest-config' });
     pool.on('error', () => {});
-    const svc = new IngestService(cfg, log, pool, store, writer);
+    const svc = new IngestService(cfg, log, pool, store, lanes, writer);
     // Replay what a previous run spooled before any new traffic is accepted.
     await writer.flush();
     await svc.maintain();
@@ -187,6 +190,7 @@ export class IngestService {
     await this.writeStatus();
     this.connectors.clear();
     await this.store.close();
+    for (const l of this.lanes) await l.close();
     await this.pool.end().catch(() => {});
   }
 }

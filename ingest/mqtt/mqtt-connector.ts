@@ -90,6 +90,10 @@ export class MqttConnector implements Connector {
   private lastMessageAt: number | null = null;
   private counters = { messages: 0, samples: 0, unmapped: 0, deadLetters: 0, suppressed: 0, reconnects: 0, outstanding: 0, redelivered: 0 };
   private closing = false;
+  /** mqtt.js's callback for the message being handled while intake is paused (at most one). */
+  private stalled: (() => void) | null = null;
+  private corked = false;
+  private offPressure: () => void;
 
   constructor(
     private source: SourceConfig,
@@ -104,6 +108,12 @@ export class MqttConnector implements Connector {
     this.protocol = this.opts.protocolVersion === 4 ? 4 : 5;
     this.tags.update(tags);
     this.handler = new MqttMessageHandler(source.id, this.tags);
+    this.offPressure = writer.onPressure((high) => {
+      if (high) return;
+      const resume = this.stalled;
+      this.stalled = null;
+      resume?.();
+    });
     this.connect();
   }
 
@@ -136,6 +146,17 @@ export class MqttConnector implements Connector {
       }
       send(packet, cb, cbStorePut, noStore);
     };
+    // Backpressure (BatchWriter.onPressure): mqtt.js handles incoming packets one at a time and
+    // reads no further until handleMessage calls back, so holding the callback while the writer's
+    // backlog is high stops reading the socket; TCP flow control then keeps the excess in the
+    // broker. The callback of a connection that has closed is dropped with it (a new connection
+    // gets a new parser).
+    client.handleMessage = (_packet, callback) => {
+      if (!this.writer.underPressure || this.client !== client) return callback();
+      this.stalled = () => {
+        if (this.client === client && client.connected) callback();
+      };
+    };
     client.on('connect', (connack) => {
       if (this.connectedAt !== null) this.counters.reconnects++;
       this.state = 'connected';
@@ -156,6 +177,7 @@ export class MqttConnector implements Connector {
       // Held PUBACKs belong to the connection that just ended (see the class comment).
       this.generation++;
       this.held.clear();
+      this.stalled = null;
       if (this.closing) return;
       this.state = 'reconnecting';
     });
@@ -237,6 +259,17 @@ export class MqttConnector implements Connector {
     if (this.held.get(h.messageId) !== h) return;
     this.held.delete(h.messageId);
     if (!client || h.generation !== this.generation || !client.connected) return;
+    // A commit releases thousands of PUBACKs in one go: cork the socket for the rest of this
+    // tick so they leave in a few writes instead of one system call (and TCP segment) each.
+    if (!this.corked && client.stream) {
+      const stream = client.stream;
+      this.corked = true;
+      stream.cork();
+      process.nextTick(() => {
+        this.corked = false;
+        stream.uncork();
+      });
+    }
     sender(client)._sendPacket({ cmd: 'puback', messageId: h.messageId, reasonCode: 0 } as Packet);
   }
 
@@ -273,6 +306,8 @@ export class MqttConnector implements Connector {
   async close(): Promise<void> {
     this.closing = true;
     this.state = 'disconnected';
+    this.offPressure();
+    this.stalled = null;
     const c = this.client;
     this.client = null;
     if (c) await c.endAsync(false).catch(() => {});

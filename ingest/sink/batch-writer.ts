@@ -15,6 +15,10 @@ export interface WriterStats {
   flushes: number;
   stagedFlushes: number;
   pendingSamples: number;
+  /** Samples and dead letters received but not yet committed or spooled (pending plus flushing). */
+  backlog: number;
+  /** Times intake was paused because the backlog reached the high-water mark. */
+  pressureEvents: number;
   dbState: 'up' | 'down';
   lastError: string | null;
   /** Receive → commit (or spool) delay of the oldest item of the last flush [ms]. */
@@ -60,6 +64,8 @@ export class BatchWriter {
     flushes: 0,
     stagedFlushes: 0,
     pendingSamples: 0,
+    backlog: 0,
+    pressureEvents: 0,
     dbState: 'up',
     lastError: null,
     lastLagMs: 0,
@@ -67,12 +73,21 @@ export class BatchWriter {
   };
   /** Called after each commit with the samples committed (for rates in the status file). */
   onCommit: ((n: number) => void) | null = null;
+  /** Items in batches handed to the chain and not finished yet. */
+  private flushing = 0;
+  private pressured = false;
+  /** Database connections not in use, and the writes waiting for one (first come, first served). */
+  private free: SampleStore[];
+  private waiting: ((s: SampleStore) => void)[] = [];
+  private pressureListeners = new Set<(high: boolean) => void>();
 
   constructor(
-    private store: SampleStore,
+    stores: SampleStore | readonly SampleStore[],
     private spool: Spool,
-    private opts: { batchRows: number; flushMs: number; log: Logger },
+    private opts: { batchRows: number; flushMs: number; log: Logger; maxBacklog?: number },
   ) {
+    this.free = Array.isArray(stores) ? [...stores] : [stores as SampleStore];
+    if (this.free.length === 0) throw new Error('BatchWriter needs at least one SampleStore');
     // Without new traffic nothing would flush: retry a non-empty spool by itself.
     this.replayTimer = setInterval(() => {
       if (!this.spool.isEmpty && Date.now() >= this.retryAt) void this.flush();
@@ -95,8 +110,39 @@ export class BatchWriter {
     for (const d of deadLetters) p.deadLetters.push(d);
     if (ack) p.acks.push(ack);
     this.stats.pendingSamples = p.samples.length;
+    this.updatePressure();
     if (p.samples.length + p.deadLetters.length >= this.opts.batchRows) this.flushSoon(0);
     else if (!this.timer) this.flushSoon(this.opts.flushMs);
+  }
+
+  /**
+   * Backpressure: sources stop taking new messages while the backlog is at or above the
+   * high-water mark (`maxBacklog`, default four batches) and resume once it is down to half. Without it a
+   * publisher faster than the database grows the process without bound; with it the excess
+   * waits in the broker's queue (MQTT) or the server's (OPC UA), where it belongs.
+   */
+  onPressure(fn: (high: boolean) => void): () => void {
+    this.pressureListeners.add(fn);
+    return () => this.pressureListeners.delete(fn);
+  }
+
+  get underPressure(): boolean {
+    return this.pressured;
+  }
+
+  private updatePressure(): void {
+    const backlog = this.pending.samples.length + this.pending.deadLetters.length + this.flushing;
+    this.stats.backlog = backlog;
+    const high = this.opts.maxBacklog ?? 4 * this.opts.batchRows;
+    const next = this.pressured ? backlog > high / 2 : backlog >= high;
+    if (next === this.pressured) return;
+    this.pressured = next;
+    if (next) {
+      this.stats.pressureEvents++;
+      // Nothing more is coming in for now: write what is pending instead of waiting for the timer.
+      if (this.pending.samples.length + this.pending.deadLetters.length > 0) this.flushSoon(0);
+    }
+    for (const fn of this.pressureListeners) fn(next);
   }
 
   private flushSoon(delay: number): void {
@@ -116,15 +162,46 @@ export class BatchWriter {
       clearTimeout(this.timer);
       this.timer = null;
     }
-    this.chain = this.chain.then(() => this.write(batch));
+    const items = batch.samples.length + batch.deadLetters.length;
+    this.flushing += items;
+    // With the database up and nothing spooled, the commit starts now on a connection of its
+    // own, overlapping the batches before it; what is done with the outcome (acks, spooling on
+    // failure) still happens strictly in flush order on the chain. Otherwise the batch waits
+    // its turn and goes the serial way (spool replay first), as before.
+    const early = items > 0 && this.spool.isEmpty && this.stats.dbState === 'up' && Date.now() >= this.retryAt ? this.commitOnLane(batch) : null;
+    this.chain = this.chain.then(async () => {
+      try {
+        await this.write(batch, early);
+      } finally {
+        this.flushing -= items;
+        this.updatePressure();
+      }
+    });
     return this.chain;
   }
 
-  private async write(b: Pending): Promise<void> {
+  /** Resolves with null once committed, or with the error that kept it out of the database. */
+  private async commitOnLane(b: Pending): Promise<unknown> {
+    try {
+      await this.commit(b.samples, b.deadLetters);
+      return null;
+    } catch (err) {
+      return err ?? new Error('commit failed');
+    }
+  }
+
+  private async write(b: Pending, early: Promise<unknown> | null = null): Promise<void> {
     const hasData = b.samples.length > 0 || b.deadLetters.length > 0;
     try {
-      if (!this.spool.isEmpty && Date.now() >= this.retryAt) await this.replaySpool();
-      if (hasData) {
+      if (early) {
+        const err = await early;
+        if (err === null) this.markUp();
+        else {
+          this.markDown(err);
+          await this.toSpool(b);
+        }
+      } else if (!this.spool.isEmpty && Date.now() >= this.retryAt) await this.replaySpool();
+      if (hasData && !early) {
         if (!this.spool.isEmpty || Date.now() < this.retryAt) {
           await this.toSpool(b);
         } else {
@@ -153,8 +230,9 @@ export class BatchWriter {
   private async commit(samples: Sample[], deadLetters: DeadLetter[]): Promise<void> {
     let lastErr: unknown;
     for (let attempt = 0; attempt < 2; attempt++) {
+      const store = await this.lane();
       try {
-        const r = await this.store.write(samples, deadLetters);
+        const r = await store.write(samples, deadLetters);
         this.stats.committedSamples += r.inserted;
         this.stats.duplicateSamples += r.duplicates;
         this.stats.committedDeadLetters += r.deadLetters;
@@ -164,11 +242,26 @@ export class BatchWriter {
       } catch (err) {
         lastErr = err;
         // A transient error is handled by the spool; a non-transient one gets one more try
-        // (e.g. a tag deleted between the checks of one batch) before it is treated the same.
+        // (e.g. a tag deleted between the checks of one batch, a deadlock between two
+        // connections) before it is treated the same.
         if (isTransientDbError(err)) break;
+      } finally {
+        this.unlane(store);
       }
     }
     throw lastErr;
+  }
+
+  private lane(): Promise<SampleStore> {
+    const s = this.free.shift();
+    if (s) return Promise.resolve(s);
+    return new Promise((resolve) => this.waiting.push(resolve));
+  }
+
+  private unlane(s: SampleStore): void {
+    const next = this.waiting.shift();
+    if (next) next(s);
+    else this.free.push(s);
   }
 
   private async toSpool(b: Pending): Promise<void> {

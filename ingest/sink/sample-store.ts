@@ -17,6 +17,8 @@ export interface WriteResult {
 
 const DAY_MS = 86_400_000;
 
+const byTagBucket = (a: RollupRow, b: RollupRow) => a.tagId - b.tagId || a.bucket - b.bucket;
+
 /**
  * Error classes after which the connection is gone or the server is not accepting work, so the
  * batch goes to the spool and is retried; anything else is a defect in the batch or the schema.
@@ -160,12 +162,15 @@ export class SampleStore {
       }
       if (inserted.length) {
         // Hours are merged from the minute rows (a few thousand) rather than from the samples again.
-        const perMinute = aggregate(inserted, 60_000);
-        const perHour = mergeInto(perMinute, 3_600_000);
+        // Rows go in sorted by (tag, bucket): with several writer connections every transaction
+        // then locks the rows it shares with another in the same order, so two batches wait for
+        // each other instead of deadlocking (PostgreSQL documentation, "Deadlocks").
+        const perMinute = aggregate(inserted, 60_000).sort(byTagBucket);
+        const perHour = mergeInto(perMinute, 3_600_000).sort(byTagBucket);
         for (const [table, rows] of [['rollup_1m', perMinute], ['rollup_1h', perHour]] as const) {
           if (rows.length) await c.query({ name: `ingest_${table}`, text: rollupSql(table), values: rollupParams(rows) });
         }
-        const latest = latestPerTag(inserted);
+        const latest = latestPerTag(inserted).sort((a, b) => a.tagId - b.tagId);
         await c.query({
           name: 'ingest_tag_latest',
           // Only tags that still exist: tag_latest references tags, a deleted tag must not fail the batch.

@@ -1,7 +1,8 @@
 /**
  * Embedded MQTT broker for one-machine installs and tests: aedes 1.2 (ESM, created with
  * `await Aedes.createBroker()`; the old default-export factory throws) on a plain TCP server,
- * in-memory persistence (aedes' default).
+ * in-memory persistence: aedes-persistence's memory store with indexed outgoing queues
+ * (./indexed-persistence.ts — the stock one slows down quadratically with messages in flight).
  *
  * Protocol versions: aedes 1.2 speaks MQTT 3.1 and 3.1.1 only; an MQTT 5 CONNECT is refused
  * with CONNACK return code 1, "unacceptable protocol version" (aedes README: "MQTT 5.0 — not
@@ -13,6 +14,7 @@
  */
 import net from 'node:net';
 import { Aedes } from 'aedes';
+import { IndexedMemoryPersistence } from './indexed-persistence.ts';
 
 export interface EmbeddedBroker {
   url: string;
@@ -22,7 +24,7 @@ export interface EmbeddedBroker {
 
 export async function startEmbeddedBroker(opts: { host?: string; port: number }): Promise<EmbeddedBroker> {
   const host = opts.host ?? '127.0.0.1';
-  const broker = await Aedes.createBroker();
+  const broker = await Aedes.createBroker({ persistence: new IndexedMemoryPersistence() });
   // A misbehaving client must never take the process down: aedes reports per-client errors
   // as events; without a listener Node would throw them.
   broker.on('clientError', () => {});

@@ -5,6 +5,7 @@ import path from 'node:path';
 import { Aedes } from 'aedes';
 import pg from 'pg';
 import pino from 'pino';
+import { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
 import type { IngestConfig } from '../../../ingest/config.ts';
 
 export const silentLog = pino({ level: 'silent' });
@@ -24,7 +25,7 @@ export function freePort(): Promise<number> {
 }
 
 export function ingestConfig(databaseUrl: string, dataDir: string, over: Partial<IngestConfig> = {}): IngestConfig {
-  return { databaseUrl, dataDir, logLevel: 'silent', batchRows: 5_000, flushMs: 100, retentionDays: 400, reloadMs: 500, statusMs: 500, mqttClientIdPrefix: 'it-ingest', ...over };
+  return { databaseUrl, dataDir, logLevel: 'silent', batchRows: 5_000, writers: 2, flushMs: 100, retentionDays: 400, reloadMs: 500, statusMs: 500, mqttClientIdPrefix: 'it-ingest', ...over };
 }
 
 /**
@@ -43,7 +44,8 @@ export interface TestBroker {
 }
 
 export async function startTestBroker(port: number): Promise<TestBroker> {
-  let broker = await Aedes.createBroker();
+  // The embedded broker's store (server/broker/indexed-persistence.ts), kept across restarts.
+  let broker = await Aedes.createBroker({ persistence: new IndexedMemoryPersistence() } as Parameters<typeof Aedes.createBroker>[0]);
   // Not in aedes' typings, but the documented `persistence` option takes the same object.
   const persistence: unknown = (broker as unknown as { persistence: unknown }).persistence;
   let server: net.Server | null = null;

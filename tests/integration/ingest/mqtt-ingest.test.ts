@@ -47,7 +47,7 @@ describe('MQTT → PostgreSQL', () => {
       addresses: [...Array.from({ length: TAGS }, (_, i) => `t/tag${i}`), 'p/+/flow', 'bad/value'],
     });
     tagIds = seeded.tagIds;
-    svc = await IngestService.start(ingestConfig(t.url, dataDir), silentLog);
+    svc = await IngestService.start(ingestConfig(t.url, dataDir, { maxBacklog: 1_000 }), silentLog);
     await waitFor('ingest connected', async () => svc.status().sources[0]?.state, (s) => s === 'connected');
     pub = await publisher(broker.url, 'it-publisher');
   });
@@ -106,6 +106,40 @@ describe('MQTT → PostgreSQL', () => {
       locker.release();
       broker.broker.removeListener('ack', onAck);
     }
+  });
+
+  it('stops reading from the broker while the backlog is at its high-water mark, and loses nothing', async () => {
+    // With the samples table locked nothing commits; after 1 000 samples (maxBacklog) ingest must
+    // stop taking messages — the rest wait in the broker — and take them once the lock is gone.
+    const N = 3_000;
+    const t0 = Date.UTC(2026, 0, 12);
+    const ids = tagIds.slice(0, TAGS);
+    const range = [ids, new Date(t0), new Date(t0 + 86_400_000)];
+    const q = `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`;
+    const pressureBefore = svc.status().writer.pressureEvents;
+    const received = () => svc.status().sources[0]!.messages;
+    const receivedBefore = received();
+    const locker = await pool.connect();
+    try {
+      await locker.query('BEGIN');
+      await locker.query('LOCK TABLE samples IN ACCESS EXCLUSIVE MODE');
+      await publishSeries(pub, N, t0);
+      await waitFor('pressure', async () => svc.status().writer.pressureEvents, (n) => n > pressureBefore, 10_000);
+      await new Promise((r) => setTimeout(r, 1_000));
+      // at most the high-water mark plus the message being handled when it was reached
+      const held = received() - receivedBefore;
+      expect(held).toBeGreaterThanOrEqual(1_000);
+      expect(held).toBeLessThanOrEqual(1_001);
+      expect(svc.status().writer.backlog).toBeLessThanOrEqual(1_001);
+      await locker.query('COMMIT');
+    } finally {
+      await locker.query('ROLLBACK').catch(() => {});
+      locker.release();
+    }
+    await waitFor('N rows after the pause', () => scalar(pool, q, range), (n) => n >= N, 20_000);
+    await new Promise((r) => setTimeout(r, 300));
+    expect(await scalar(pool, q, range)).toBe(N);
+    expect(received() - receivedBefore).toBe(N);
   });
 
   it('does not store a dead letter twice when the connection drops between commit and PUBACK', async () => {

@@ -1,0 +1,86 @@
+/**
+ * Load child of the ingest benchmark, run in a process of its own so that publishing does not
+ * share a thread with the broker (in a plant the publishers are other machines):
+ *
+ *   mqtt-load.ts publish <url> single <n> <qos> <dayStartMs>   one JSON value per message
+ *   mqtt-load.ts publish <url> batched <messages> <per> <baseMs>  batched JSON, QoS 1
+ *   mqtt-load.ts sink <url> <n>                                  counts n QoS 1 messages on b/#
+ *
+ * Prints JSON lines: {start} (absolute ms, performance.timeOrigin + now()) when publishing
+ * begins, then what it measured. Tags are b/tag0 … b/tag999, as in the benchmark.
+ */
+import mqtt from 'mqtt';
+
+const TAGS = 1_000;
+const [role, url, ...rest] = process.argv.slice(2);
+if (!role || !url) throw new Error('usage: mqtt-load.ts publish|sink <url> …');
+
+/** Publishing with at most `window` messages awaiting their PUBACK (QoS 1), or none (QoS 0). */
+async function publishAll(c: mqtt.MqttClient, n: number, qos: 0 | 1, make: (k: number) => [string, string | Buffer], window: number): Promise<void> {
+  let next = 0;
+  const worker = async () => {
+    while (next < n) {
+      const k = next++;
+      const [t, p] = make(k);
+      await c.publishAsync(t, p, { qos });
+    }
+  };
+  await Promise.all(Array.from({ length: window }, worker));
+}
+
+if (role === 'publish') {
+  const [mode, a, b, c0] = rest;
+  const c = await mqtt.connectAsync(url, { clientId: `bench-pub-${process.pid}`, protocolVersion: 4 });
+  c.setMaxListeners(0);
+  const now = () => performance.timeOrigin + performance.now();
+  let n: number;
+  let t: number;
+  if (mode === 'single') {
+    n = Number(a);
+    const qos = Number(b) as 0 | 1;
+    const day = Number(c0);
+    console.log(JSON.stringify({ start: now() }));
+    t = performance.now();
+    await publishAll(c, n, qos, (k) => [`b/tag${k % TAGS}`, `{"v":${k},"ts":"${new Date(day + Math.floor(k / TAGS) * 100).toISOString()}"}`], 2_000);
+  } else if (mode === 'batched') {
+    const messages = Number(a);
+    const per = Number(b);
+    const base = Number(c0);
+    n = messages * per;
+    const payloads: Buffer[] = [];
+    for (let m = 0; m < messages; m++) {
+      const samples = [];
+      for (let j = 0; j < per; j++) {
+        const k = m * per + j;
+        samples.push({ topic: `b/tag${k % TAGS}`, v: k, ts: new Date(base + Math.floor(k / TAGS) * 10).toISOString() });
+      }
+      payloads.push(Buffer.from(JSON.stringify({ samples })));
+    }
+    console.log(JSON.stringify({ start: now() }));
+    t = performance.now();
+    await publishAll(c, messages, 1, (m) => ['b/batch', payloads[m]!], 50);
+  } else {
+    throw new Error(`unknown mode ${mode}`);
+  }
+  const u = process.cpuUsage();
+  console.log(JSON.stringify({ published: n, publishSec: (performance.now() - t) / 1000, cpuSec: (u.user + u.system) / 1e6 }));
+  await c.endAsync();
+  process.exit(0);
+} else if (role === 'sink') {
+  const n = Number(rest[0]);
+  const c = await mqtt.connectAsync(url, { clientId: `bench-sink-${process.pid}`, protocolVersion: 4, clean: true });
+  await c.subscribeAsync('b/#', { qos: 1 });
+  let got = 0;
+  let t0 = 0;
+  c.on('message', () => {
+    if (got++ === 0) t0 = performance.now();
+    if (got === n) {
+      const u = process.cpuUsage();
+      console.log(JSON.stringify({ received: n, receiveSec: (performance.now() - t0) / 1000, end: performance.timeOrigin + performance.now(), cpuSec: (u.user + u.system) / 1e6 }));
+      process.exit(0);
+    }
+  });
+  console.log(JSON.stringify({ ready: true }));
+} else {
+  throw new Error(`unknown role ${role}`);
+}
