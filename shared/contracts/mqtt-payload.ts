@@ -16,6 +16,9 @@ export const payloadQuality = z.enum(['good', 'uncertain', 'bad']);
 const finite = z.number().refine(Number.isFinite, 'must be a finite number');
 const isoTs = z.iso.datetime({ offset: true });
 
+/** The exact pattern zod checks `ts` against (ingest's fast path uses the same one). */
+export const isoTimestampPattern: RegExp = isoTs._zod.pattern;
+
 export const singleValuePayload = z
   .object({ v: finite.nullable(), ts: isoTs.optional(), q: payloadQuality.optional() })
   .strict()
