@@ -14,6 +14,16 @@ const positiveInt = z.coerce.number().int().positive();
  * 20 000 did not. At ordinary rates the time limit below flushes long before the size does.
  */
 export const DEFAULT_BATCH_ROWS = 50_000;
+
+/**
+ * Node options the ingest process is started with (scripts/start.ts, the benchmark). V8 sizes
+ * its heap by the machine's memory (GBs here), so short-lived objects that survive a scavenge —
+ * samples and held acks live a few hundred ms — piled up in old space until a late full
+ * collection: peak RSS 260–310 MB in tests/bench/ingest.bench.ts. A 256 MB old-space limit makes
+ * V8 collect sooner (peak about 200 MB, same throughput) and is far above what ingest keeps
+ * alive, which backpressure bounds (BatchWriter maxBacklog).
+ */
+export const INGEST_NODE_ARGS: readonly string[] = ['--max-old-space-size=256'];
 const envSchema = z.object({
   DATABASE_URL: z.url(),
   FLOCSTREAM_DATA_DIR: z.string().default('.data'),

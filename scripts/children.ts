@@ -35,8 +35,16 @@ export interface Child {
  * stop reaches it directly), prefixing its output lines with its name. stop() sends SIGTERM,
  * waits up to `grace_ms` for a clean exit (ingest flushes), then SIGKILL.
  */
-export function spawnTs(root: string, name: string, entry: string, args: string[], env: Record<string, string>, onExit?: (code: number | null) => void): Child {
-  const proc = spawn(process.execPath, ['--import', 'tsx', path.join(root, entry), ...args], {
+export function spawnTs(
+  root: string,
+  name: string,
+  entry: string,
+  args: string[],
+  env: Record<string, string>,
+  onExit?: (code: number | null) => void,
+  nodeArgs: readonly string[] = [],
+): Child {
+  const proc = spawn(process.execPath, [...nodeArgs, '--import', 'tsx', path.join(root, entry), ...args], {
     cwd: root,
     // The launcher passes its environment on, with the child's own settings over it.
     env: { ...process.env, ...env },

@@ -17,6 +17,7 @@ import { seedPlant, updateSeedEndpoints } from '../server/services/plant-seed.se
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
 import { buildMonitorIfNeeded } from './build-if-needed.ts';
 import { spawnTs } from './children.ts';
+import { INGEST_NODE_ARGS } from '../ingest/config.ts';
 
 const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
 const say = (m: string) => console.log(`[flocstream] ${m}`);
@@ -78,9 +79,17 @@ async function main(): Promise<void> {
     }
 
     if (fs.existsSync(path.join(root, 'ingest/main.ts'))) {
-      const ingest = spawnTs(root, 'ingest', 'ingest/main.ts', [], { DATABASE_URL: server.databaseUrl, FLOCSTREAM_DATA_DIR: config.dataDir }, (code) => {
-        if (!stopping) void stop(`ingest exited (code ${code})`, 1);
-      });
+      const ingest = spawnTs(
+        root,
+        'ingest',
+        'ingest/main.ts',
+        [],
+        { DATABASE_URL: server.databaseUrl, FLOCSTREAM_DATA_DIR: config.dataDir },
+        (code) => {
+          if (!stopping) void stop(`ingest exited (code ${code})`, 1);
+        },
+        INGEST_NODE_ARGS,
+      );
       stops.push(() => ingest.stop());
     }
 

@@ -28,8 +28,9 @@ const UNSUPPORTED_PROTOCOL = new Set([1, 0x84]);
 interface HeldAck {
   messageId: number;
   generation: number;
-  /** Topic and payload digest: recognises the broker's redelivery of this very message. */
-  fingerprint: string;
+  /** Kept to fingerprint the message if its connection closes before the PUBACK (rare; hashed only then). */
+  topic: string;
+  payload: Buffer;
 }
 
 function fingerprint(topic: string, payload: Buffer): string {
@@ -199,14 +200,16 @@ export class MqttConnector implements Connector {
     client.on('message', (_topic, payload, packet) => {
       if (packet.qos === 1 && packet.messageId !== undefined) {
         // Registered before mqtt.js sends the PUBACK, which the _sendPacket wrapper then holds.
-        const fp = fingerprint(packet.topic, payload);
-        if (this.committedUnacked.get(packet.messageId) === fp) {
+        // Only a packet identifier left over from a closed connection can be a redelivery of a
+        // stored message; the digest is computed just for those.
+        const remembered = this.committedUnacked.size ? this.committedUnacked.get(packet.messageId) : undefined;
+        if (remembered !== undefined && remembered === fingerprint(packet.topic, payload)) {
           // Already stored: let mqtt.js send its PUBACK now and write nothing.
           this.committedUnacked.delete(packet.messageId);
           this.counters.redelivered++;
           return;
         }
-        const h: HeldAck = { messageId: packet.messageId, generation: this.generation, fingerprint: fp };
+        const h: HeldAck = { messageId: packet.messageId, generation: this.generation, topic: packet.topic, payload };
         this.held.set(packet.messageId, h);
         this.process(packet.topic, payload, h);
       } else {
@@ -253,7 +256,7 @@ export class MqttConnector implements Connector {
     if (h.generation !== this.generation) {
       // Committed, but its connection is gone: remember it for the redelivery.
       if (this.committedUnacked.size >= MAX_REMEMBERED) this.committedUnacked.delete(this.committedUnacked.keys().next().value!);
-      this.committedUnacked.set(h.messageId, h.fingerprint);
+      this.committedUnacked.set(h.messageId, fingerprint(h.topic, h.payload));
       return;
     }
     if (this.held.get(h.messageId) !== h) return;

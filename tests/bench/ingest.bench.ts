@@ -20,7 +20,7 @@ import pg from 'pg';
 import { startEmbeddedBroker } from '../../server/broker/embedded-broker.ts';
 import { localPsql, startLocalPostgres } from '../../server/db/local-postgres.ts';
 import { runMigrations } from '../../server/db/migrate.ts';
-import { DEFAULT_BATCH_ROWS } from '../../ingest/config.ts';
+import { DEFAULT_BATCH_ROWS, INGEST_NODE_ARGS } from '../../ingest/config.ts';
 import { SampleStore } from '../../ingest/sink/sample-store.ts';
 import type { Sample } from '../../ingest/pipeline/types.ts';
 
@@ -226,7 +226,7 @@ try {
 
   // ---- ingest child process -----------------------------------------------------------------
   const dataDir = path.join(tmp, 'ingest');
-  const child = spawn(process.execPath, ['--import', 'tsx', 'ingest/main.ts'], {
+  const child = spawn(process.execPath, [...INGEST_NODE_ARGS, '--import', 'tsx', 'ingest/main.ts'], {
     cwd: ROOT,
     env: { ...process.env, DATABASE_URL: cluster.url, FLOCSTREAM_DATA_DIR: dataDir, LOG_LEVEL: 'warn', INGEST_MQTT_CLIENT_ID: 'bench' },
     stdio: ['ignore', 'inherit', 'inherit'],
