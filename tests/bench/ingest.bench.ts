@@ -6,7 +6,9 @@
  * (a) writer: SampleStore (binary COPY into `samples` with its primary key, plus the rollup_1m,
  *     rollup_1h and tag_latest upserts) against `psql \copy` of the same rows into an identical
  *     partitioned table with the same primary key;
- * (b) MQTT → PostgreSQL end to end, single-value and batched messages, QoS 1;
+ * (b) MQTT → PostgreSQL end to end, single-value and batched messages, QoS 1 (single-value also
+ *     at QoS 0), publishers in a process of their own; as its ceiling, the broker alone with a
+ *     subscriber that only counts; the CPU seconds of each process per phase go in the notes;
  * (c) publish → row visible latency at 10 000 samples/s;
  * (d) peak RSS (VmHWM) of the ingest process.
  */
