@@ -39,13 +39,17 @@ function empty(): Pending {
 
 /**
  * Buffers samples and dead letters and writes them in batches, flushed by size or by age.
- * Flushes run one at a time in arrival order, and acks are called in that order after commit
- * — which is what lets the MQTT connector send PUBACKs in the order the PUBLISH packets were
- * received (MQTT 5.0 §4.6, message ordering).
+ * While the database is up and the spool empty, a batch's commit starts at once on one of the
+ * given connections (SampleStores), so commits may overlap; what follows a commit — spooling
+ * if it failed, then the acks — runs one batch at a time in flush order, so acks are called in
+ * arrival order and only after commit — which is what lets the MQTT connector send PUBACKs in
+ * the order the PUBLISH packets were received (MQTT 5.0 §4.6, message ordering).
  *
  * When the database fails with a transient error the batch is appended to the spool (fsync'd)
  * and then acknowledged; while the spool holds anything, every flush first tries to replay it,
  * so replayed batches always precede newer ones. Database attempts back off while it is down.
+ * A batch whose commit was already under way when the database failed keeps its place: it is
+ * spooled in flush order behind the ones before it.
  */
 export class BatchWriter {
   private pending = empty();
@@ -117,9 +121,10 @@ export class BatchWriter {
 
   /**
    * Backpressure: sources stop taking new messages while the backlog is at or above the
-   * high-water mark (`maxBacklog`, default four batches) and resume once it is down to half. Without it a
-   * publisher faster than the database grows the process without bound; with it the excess
-   * waits in the broker's queue (MQTT) or the server's (OPC UA), where it belongs.
+   * high-water mark (`maxBacklog`, default four batches) and resume once it is down to half.
+   * Without it a publisher faster than the database grows the process without bound; with it
+   * the excess waits in the broker's queue. (The MQTT connector listens; the OPC UA connector
+   * does not pause its subscriptions — plant OPC UA rates are far below the writer's.)
    */
   onPressure(fn: (high: boolean) => void): () => void {
     this.pressureListeners.add(fn);
