@@ -32,6 +32,7 @@ import { loadConfig } from '../../server/config.ts';
 import { openDatabase } from '../../server/db/client.ts';
 import { startLocalPostgres } from '../../server/db/local-postgres.ts';
 import { runMigrations } from '../../server/db/migrate.ts';
+import { freePort } from '../helpers/net.ts';
 
 const ROOT = path.resolve(import.meta.dirname, '../..');
 const SELF = fileURLToPath(import.meta.url);
@@ -51,15 +52,6 @@ interface AutocannonResult {
 }
 type Autocannon = (opts: Record<string, unknown>) => Promise<AutocannonResult>;
 
-function freePort(): Promise<number> {
-  return new Promise((resolve) => {
-    const s = net.createServer();
-    s.listen(0, '127.0.0.1', () => {
-      const a = s.address() as net.AddressInfo;
-      s.close(() => resolve(a.port));
-    });
-  });
-}
 
 function pct(sorted: number[], p: number): number {
   return sorted[Math.min(sorted.length - 1, Math.floor((p / 100) * sorted.length))] ?? NaN;

@@ -14,7 +14,6 @@
  */
 import { spawn, spawnSync } from 'node:child_process';
 import fs from 'node:fs';
-import net from 'node:net';
 import os from 'node:os';
 import path from 'node:path';
 import mqtt from 'mqtt';
@@ -25,20 +24,12 @@ import { runMigrations } from '../../server/db/migrate.ts';
 import { DEFAULT_BATCH_ROWS, INGEST_NODE_ARGS } from '../../ingest/config.ts';
 import { SampleStore } from '../../ingest/sink/sample-store.ts';
 import type { Sample } from '../../ingest/pipeline/types.ts';
+import { freePort } from '../helpers/net.ts';
 
 const ROOT = path.resolve(import.meta.dirname, '../..');
 const DAY = 86_400_000;
 const TAGS = 1_000;
 
-function freePort(): Promise<number> {
-  return new Promise((resolve) => {
-    const s = net.createServer();
-    s.listen(0, '127.0.0.1', () => {
-      const a = s.address() as net.AddressInfo;
-      s.close(() => resolve(a.port));
-    });
-  });
-}
 
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
 const isRoot = process.getuid?.() === 0;

@@ -1,5 +1,4 @@
 import fs from 'node:fs';
-import net from 'node:net';
 import os from 'node:os';
 import path from 'node:path';
 import pino from 'pino';
@@ -13,6 +12,7 @@ import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
 import { startSimulator, type RunningSimulator } from '../../simulators/simulator.ts';
 import { spawnTs, type Child } from '../../scripts/children.ts';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
+import { freePort } from '../helpers/net.ts';
 
 /**
  * The whole chain as in a plant: the simulator's storm scenario speaks MQTT and OPC UA, ingest
@@ -23,14 +23,6 @@ import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
  */
 const root = path.resolve(import.meta.dirname, '../..');
 
-function freePort(): Promise<number> {
-  return new Promise((resolve) => {
-    const s = net.createServer().listen(0, '127.0.0.1', () => {
-      const p = (s.address() as net.AddressInfo).port;
-      s.close(() => resolve(p));
-    });
-  });
-}
 
 let explainOnTimeout: (() => Promise<string>) | null = null;
 async function until<T>(what: string, timeout_ms: number, f: () => Promise<T | null | undefined>): Promise<T> {

@@ -7,6 +7,7 @@ import pg from 'pg';
 import pino from 'pino';
 import { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
 import type { IngestConfig } from '../../../ingest/config.ts';
+export { freePort } from '../../helpers/net.ts';
 
 export const silentLog = pino({ level: 'silent' });
 
@@ -14,15 +15,6 @@ export function tempDir(prefix: string): string {
   return fs.mkdtempSync(path.join(os.tmpdir(), `flocstream-${prefix}-`));
 }
 
-export function freePort(): Promise<number> {
-  return new Promise((resolve, reject) => {
-    const s = net.createServer();
-    s.listen(0, '127.0.0.1', () => {
-      const a = s.address();
-      s.close(() => (typeof a === 'object' && a ? resolve(a.port) : reject(new Error('no port'))));
-    });
-  });
-}
 
 export function ingestConfig(databaseUrl: string, dataDir: string, over: Partial<IngestConfig> = {}): IngestConfig {
   return { databaseUrl, dataDir, logLevel: 'silent', batchRows: 5_000, writers: 2, flushMs: 100, retentionDays: 400, reloadMs: 500, statusMs: 500, mqttClientIdPrefix: 'it-ingest', ...over };

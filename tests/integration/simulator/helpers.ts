@@ -1,18 +1,6 @@
-import net from 'node:net';
 import mqtt, { type MqttClient } from 'mqtt';
+export { freePort } from '../../helpers/net.ts';
 
-/** A free TCP port on 127.0.0.1 (asked from the OS, then released). */
-export async function freePort(): Promise<number> {
-  return new Promise((resolve, reject) => {
-    const s = net.createServer();
-    s.once('error', reject);
-    s.listen(0, '127.0.0.1', () => {
-      const a = s.address();
-      const port = typeof a === 'object' && a ? a.port : 0;
-      s.close(() => resolve(port));
-    });
-  });
-}
 
 export interface Received { topic: string; payload: string; at: number }
 
