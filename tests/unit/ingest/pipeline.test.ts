@@ -10,6 +10,7 @@ import { aggregate, mergeInto } from '../../../ingest/sink/rollup.ts';
 import { Spool } from '../../../ingest/sink/spool.ts';
 import { encodeSamplesBinary } from '../../../ingest/sink/copy-binary.ts';
 import { QUALITY_FLAG, qualityFlags, qualityGrade } from '../../../shared/contracts/sample-quality.ts';
+import { mulberry32 } from '../domain/prng.js';
 
 const tag = (over: Partial<TagConfig> = {}): TagConfig => ({ id: 7, sourceId: 1, address: 'a/b', scaleGain: 1, scaleOffset: 0, deadband: 0, expectedPeriod_s: 10, rangeLow: null, rangeHigh: null, samplingInterval_ms: null, ...over });
 
@@ -121,8 +122,7 @@ describe('rollup aggregation', () => {
 
 describe('rollup merge into coarser buckets', () => {
   it('hours merged from minute rows equal hours aggregated from the samples (seeded mix of tags, times and grades)', () => {
-    let seed = 7;
-    const rnd = () => ((seed = (seed * 1_103_515_245 + 12_345) % 2 ** 31) / 2 ** 31);
+    const rnd = mulberry32(7);
     const samples = Array.from({ length: 5_000 }, () => ({
       tagId: 1 + Math.floor(rnd() * 7),
       ts: Math.floor(rnd() * 3 * 3_600_000),

@@ -3,6 +3,7 @@ import mqtt from 'mqtt';
 import { afterEach, describe, expect, it } from 'vitest';
 import { startEmbeddedBroker, type EmbeddedBroker } from '../../../server/broker/embedded-broker.ts';
 import { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
+import { mulberry32 } from '../domain/prng.js';
 
 const require = createRequire(import.meta.url);
 // the stock store the indexed one must behave like
@@ -32,8 +33,7 @@ describe('indexed outgoing queue of the embedded broker', () => {
   it('gives the same results as the stock aedes-persistence memory store over 3 000 seeded operations', async () => {
     const stock = new StockPersistence();
     const ours = new IndexedMemoryPersistence();
-    let seed = 11;
-    const rnd = () => (seed = (seed * 1_103_515_245 + 12_345) % 2 ** 31) / 2 ** 31;
+    const rnd = mulberry32(11);
     const clients = [{ id: 'a' }, { id: 'b' }];
     let counter = 0;
     let nextId = 1;
