@@ -5,9 +5,8 @@ import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { settingsService } from '../../server/services/settings.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
 import { startTestServer } from '../helpers/server.ts';
-import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
+import { E2E_ADMIN as ADMIN, launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
-const ADMIN = { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' };
 // A new shift operator at our invented plant Kestrel Bend.
 const NEW_USER = { email: 'wren.alder@kestrel.invalid', name: 'Wren Alder', password: 'kestrel-night-shift-7' };
 

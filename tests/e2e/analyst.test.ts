@@ -5,10 +5,9 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { parseCsv } from '../../server/services/csv.service.ts';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
-import { launchBrowser, SCREENSHOT_DIR, shot, watchConsole, signIn } from '../helpers/browser.ts';
+import { E2E_ADMIN as ADMIN, launchBrowser, SCREENSHOT_DIR, shot, watchConsole, signIn } from '../helpers/browser.ts';
 import { startTestServer } from '../helpers/server.ts';
 
-const ADMIN = { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' };
 const ANALYST = { email: 'ana@kestrel.invalid', password: 'e2e-analyst-password-1', name: 'Ana Lyst' };
 const BULK_TAGS = 10_000;
 const H = 3_600_000;

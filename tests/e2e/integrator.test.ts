@@ -6,11 +6,10 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { IngestService } from '../../ingest/ingest-service.ts';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
-import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
+import { E2E_ADMIN as ADMIN, launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 import { startTestServer } from '../helpers/server.ts';
 import { freePort, ingestConfig, silentLog, startTestBroker, type TestBroker } from '../integration/ingest/helpers.ts';
 
-const ADMIN = { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' };
 const INTEGRATOR = { email: 'wire@kestrel.invalid', password: 'e2e-integrator-password-1', name: 'Ira Wirer' };
 // A topic the plant sends but nobody has wired yet: WAS pump 1's run feedback (0/1).
 const NEW_TOPIC = 'kb/was1/YI-3211';

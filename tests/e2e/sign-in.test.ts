@@ -1,36 +1,25 @@
-import type { Browser } from 'playwright-core';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { launchBrowser, shot, watchConsole } from '../helpers/browser.ts';
-import { startTestServer } from '../helpers/server.ts';
+import { describe, expect, it } from 'vitest';
+import { E2E_ADMIN, serverAndBrowser, shot, watchConsole } from '../helpers/browser.ts';
 
 describe('sign-in in Debian Chromium', () => {
-  let env: Awaited<ReturnType<typeof startTestServer>>;
-  let b: { browser: Browser; close(): Promise<void> };
-  beforeAll(async () => {
-    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: 'chief@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'e2e-admin-password-1' });
-    b = await launchBrowser();
-  });
-  afterAll(async () => {
-    await b?.close();
-    await env?.close();
-  });
+  const suite = serverAndBrowser();
 
   it('an admin signs in, sees the navigation for the role, and signs out', async () => {
-    const page = await b.browser.newPage({ viewport: { width: 1280, height: 800 } });
+    const page = await suite.browser.newPage({ viewport: { width: 1280, height: 800 } });
     const errors = watchConsole(page);
-    await page.goto(`${env.server.url}/access`);
+    await page.goto(`${suite.env.server.url}/access`);
     await page.waitForURL(/\/login$/);
-    await page.getByLabel('E-mail').fill('chief@kestrel.invalid');
+    await page.getByLabel('E-mail').fill(E2E_ADMIN.email);
     await page.getByLabel('Password').fill('wrong-password-xx');
     await page.getByRole('button', { name: 'Sign in' }).click();
     await page.getByRole('alert').waitFor();
     expect(await page.getByRole('alert').innerText()).toMatch(/wrong e-mail or password/);
     await shot(page, 'sign-in-wrong-password');
-    await page.getByLabel('Password').fill('e2e-admin-password-1');
+    await page.getByLabel('Password').fill(E2E_ADMIN.password);
     await page.getByRole('button', { name: 'Sign in' }).click();
     await page.waitForURL(/\/access$/);
     await page.getByRole('heading', { name: 'Users' }).waitFor();
-    expect(await page.getByTestId('whoami').innerText()).toContain('chief@kestrel.invalid · admin');
+    expect(await page.getByTestId('whoami').innerText()).toContain(`${E2E_ADMIN.email} · admin`);
     const nav = await page.getByRole('navigation', { name: 'Main' }).innerText();
     expect(nav).toContain('Access');
     await shot(page, 'access-admin');

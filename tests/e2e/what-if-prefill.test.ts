@@ -1,26 +1,15 @@
-import type { Browser } from 'playwright-core';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
 import { seedPlant } from '../../server/services/plant-seed.service.ts';
 import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
-import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
-import { startTestServer } from '../helpers/server.ts';
+import { E2E_ADMIN, serverAndBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
 const fig = (value: number | null, unit: string) => ({ value, unit, quality: value === null ? 'unavailable' : 'good', reasons: value === null ? ['no input'] : [] });
 
 describe('what-if pre-filled from the live plant', () => {
-  let env: Awaited<ReturnType<typeof startTestServer>>;
-  let b: { browser: Browser; close(): Promise<void> };
-  beforeAll(async () => {
-    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: 'chief@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'e2e-admin-password-1' });
-    b = await launchBrowser();
-  });
-  afterAll(async () => {
-    await b?.close();
-    await env?.close();
-  });
+  const suite = serverAndBrowser();
 
   it('fills the storm form from the latest balance of the invented demo plant', async () => {
-    const { plantId } = await seedPlant(env.server.ctx, DEMO_PLANT, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:1/x' });
+    const { plantId } = await seedPlant(suite.env.server.ctx, DEMO_PLANT, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:1/x' });
     // A balance as the engine stores it (only the figures the form reads are set here):
     // two trains of 1 600 and 1 500 m³/h, RAS 850 + 840 m³/h, basins of 6 000 m³ at 3.0 and 3.2 g/L.
     const data = {
@@ -36,11 +25,11 @@ describe('what-if pre-filled from the live plant', () => {
       storm: { peakFlow_m3h: fig(6200, 'm3/h'), source: 'setting' },
       inventory: { clarifierMass_kg: fig(9000, 'kg') },
     };
-    await env.server.ctx.db.pool.query(`INSERT INTO balances (plant_id, ts, quality, data, inputs) VALUES ($1, now(), 'good', $2, '{}')`, [plantId, JSON.stringify(data)]);
+    await suite.env.server.ctx.db.pool.query(`INSERT INTO balances (plant_id, ts, quality, data, inputs) VALUES ($1, now(), 'good', $2, '{}')`, [plantId, JSON.stringify(data)]);
 
-    const page = await b.browser.newPage({ viewport: { width: 1280, height: 900 } });
+    const page = await suite.browser.newPage({ viewport: { width: 1280, height: 900 } });
     const errors = watchConsole(page);
-    await signIn(page, `${env.server.url}/what-if`, { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' }, /\/what-if$/);
+    await signIn(page, `${suite.env.server.url}/what-if`, E2E_ADMIN, /\/what-if$/);
     const storm = page.getByRole('region', { name: 'Storm projection' });
     await storm.getByRole('button', { name: 'Fill from live plant' }).click();
     await storm.getByTestId('storm-prefill').waitFor();

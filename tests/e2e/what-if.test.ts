@@ -1,29 +1,19 @@
-import type { Browser, Page } from 'playwright-core';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import type { Page } from 'playwright-core';
+import { describe, expect, it } from 'vitest';
 import path from 'node:path';
-import { launchBrowser, SCREENSHOT_DIR, shot, watchConsole, signIn } from '../helpers/browser.ts';
-import { startTestServer } from '../helpers/server.ts';
+import { E2E_ADMIN, SCREENSHOT_DIR, serverAndBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
 // Kestrel Bend is our invented demo plant; the forms come pre-filled with its example values.
 describe('what-if calculators in Debian Chromium', () => {
-  let env: Awaited<ReturnType<typeof startTestServer>>;
-  let b: { browser: Browser; close(): Promise<void> };
-  beforeAll(async () => {
-    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: 'chief@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'e2e-admin-password-1' });
-    b = await launchBrowser();
-  });
-  afterAll(async () => {
-    await b?.close();
-    await env?.close();
-  });
+  const suite = serverAndBrowser();
 
   async function openWhatIf(page: Page): Promise<void> {
-    await signIn(page, `${env.server.url}/what-if`, { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' }, /\/what-if$/);
+    await signIn(page, `${suite.env.server.url}/what-if`, E2E_ADMIN, /\/what-if$/);
     await page.getByRole('heading', { name: 'What-if calculators' }).waitFor();
   }
 
   it('runs the storm and state-point calculators, draws the diagram, and shows a field error for SVI 0', async () => {
-    const page = await b.browser.newPage({ viewport: { width: 1280, height: 900 } });
+    const page = await suite.browser.newPage({ viewport: { width: 1280, height: 900 } });
     const errors = watchConsole(page);
     await openWhatIf(page);
     await shot(page, 'what-if-empty');

@@ -2,6 +2,8 @@ import fs from 'node:fs';
 import path from 'node:path';
 import { chromium, type Browser, type Page } from 'playwright-core';
 import { chromiumPath } from '../../scripts/system-deps.ts';
+import { afterAll, beforeAll } from 'vitest';
+import { startTestServer } from './server.ts';
 
 export const SCREENSHOT_DIR = path.resolve('tests/e2e/screenshots');
 
@@ -56,4 +58,34 @@ export async function signIn(page: Page, url: string, who: { email: string; pass
   await page.getByLabel('Password').fill(who.password);
   await page.getByRole('button', { name: 'Sign in' }).click();
   await page.waitForURL(landing);
+}
+
+/** The administrator every browser suite starts its server with. */
+export const E2E_ADMIN = { email: 'chief@kestrel.invalid', password: 'e2e-admin-password-1' };
+
+/**
+ * Registers the usual suite hooks: the real server with {@link E2E_ADMIN} and Debian Chromium
+ * before all tests, both closed after. Read `env` and `browser` inside tests (set by then).
+ */
+export function serverAndBrowser(): { readonly env: Awaited<ReturnType<typeof startTestServer>>; readonly browser: Browser } {
+  let env: Awaited<ReturnType<typeof startTestServer>> | undefined;
+  let b: { browser: Browser; close(): Promise<void> } | undefined;
+  beforeAll(async () => {
+    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: E2E_ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: E2E_ADMIN.password });
+    b = await launchBrowser();
+  });
+  afterAll(async () => {
+    await b?.close();
+    await env?.close();
+  });
+  return {
+    get env() {
+      if (!env) throw new Error('server not started (use inside a test)');
+      return env;
+    },
+    get browser() {
+      if (!b) throw new Error('browser not launched (use inside a test)');
+      return b.browser;
+    },
+  };
 }
