@@ -2,7 +2,8 @@
  * Embedded MQTT broker for one-machine installs and tests: aedes 1.2 (ESM, created with
  * `await Aedes.createBroker()`; the old default-export factory throws) on a plain TCP server,
  * in-memory persistence: aedes-persistence's memory store with indexed outgoing queues
- * (./indexed-persistence.ts — the stock one slows down quadratically with messages in flight).
+ * (./indexed-persistence.ts — the stock one slows down quadratically with messages in flight),
+ * and each connection's writes gathered per turn of the event loop (./coalesce-writes.ts).
  *
  * Protocol versions: aedes 1.2 speaks MQTT 3.1 and 3.1.1 only; an MQTT 5 CONNECT is refused
  * with CONNACK return code 1, "unacceptable protocol version" (aedes README: "MQTT 5.0 — not
@@ -14,6 +15,7 @@
  */
 import net from 'node:net';
 import { Aedes } from 'aedes';
+import { coalesceWrites } from './coalesce-writes.ts';
 import { IndexedMemoryPersistence } from './indexed-persistence.ts';
 
 export interface EmbeddedBroker {
@@ -29,7 +31,10 @@ export async function startEmbeddedBroker(opts: { host?: string; port: number })
   // as events; without a listener Node would throw them.
   broker.on('clientError', () => {});
   broker.on('connectionError', () => {});
-  const server = net.createServer(broker.handle);
+  const server = net.createServer((conn) => {
+    coalesceWrites(conn);
+    broker.handle(conn);
+  });
   const sockets = new Set<net.Socket>();
   server.on('connection', (s) => {
     sockets.add(s);

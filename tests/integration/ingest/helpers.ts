@@ -5,6 +5,7 @@ import path from 'node:path';
 import { Aedes } from 'aedes';
 import pg from 'pg';
 import pino from 'pino';
+import { coalesceWrites } from '../../../server/broker/coalesce-writes.ts';
 import { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
 import type { IngestConfig } from '../../../ingest/config.ts';
 export { freePort } from '../../helpers/net.ts';
@@ -17,7 +18,7 @@ export function tempDir(prefix: string): string {
 
 
 export function ingestConfig(databaseUrl: string, dataDir: string, over: Partial<IngestConfig> = {}): IngestConfig {
-  return { databaseUrl, dataDir, logLevel: 'silent', batchRows: 5_000, writers: 2, flushMs: 100, retentionDays: 400, reloadMs: 500, statusMs: 500, mqttClientIdPrefix: 'it-ingest', ...over };
+  return { databaseUrl, dataDir, logLevel: 'silent', batchRows: 5_000, writers: 2, flushMs: 100, retentionDays: 400, reloadMs: 500, statusMs: 500, mqttClientIdPrefix: 'it-ingest', mqttTrace: false, ...over };
 }
 
 /**
@@ -36,14 +37,19 @@ export interface TestBroker {
 }
 
 export async function startTestBroker(port: number): Promise<TestBroker> {
-  // The embedded broker's store (server/broker/indexed-persistence.ts), kept across restarts.
+  // The embedded broker's store (server/broker/indexed-persistence.ts), kept across restarts, and its
+  // gathered writes.
   let broker = await Aedes.createBroker({ persistence: new IndexedMemoryPersistence() } as Parameters<typeof Aedes.createBroker>[0]);
   // Not in aedes' typings, but the documented `persistence` option takes the same object.
   const persistence: unknown = (broker as unknown as { persistence: unknown }).persistence;
   let server: net.Server | null = null;
   const sockets = new Set<net.Socket>();
   const listen = async () => {
-    server = net.createServer(broker.handle);
+    // As the embedded broker does (server/broker/embedded-broker.ts), so the outage tests run on it.
+    server = net.createServer((conn) => {
+      coalesceWrites(conn);
+      broker.handle(conn);
+    });
     server.on('connection', (s) => {
       sockets.add(s);
       s.on('close', () => sockets.delete(s));

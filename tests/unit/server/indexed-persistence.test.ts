@@ -77,6 +77,45 @@ describe('indexed outgoing queue of the embedded broker', () => {
     for (const c of clients) expect((await drain(ours.outgoingStream(c))).map(view)).toEqual((await drain(stock.outgoingStream(c))).map(view));
   });
 
+  it('answers subscriptionsByTopic like the stock store over 2 000 seeded subscription changes and lookups', async () => {
+    // The matches are remembered per topic (aedes asks for every QoS 1 PUBLISH); any change of
+    // subscriptions must forget them, also when the change comes between a lookup and its answer.
+    const stock = new StockPersistence();
+    const ours = new IndexedMemoryPersistence();
+    const rnd = mulberry32(23);
+    const filters = ['a/#', 'a/+/c', 'a/b/c', '+/b/#', 'z/y', '#'];
+    const topics = ['a/b/c', 'a/x/c', 'a/b', 'q/b/c', 'z/y', 'z/z'];
+    const clients = ['c1', 'c2', 'c3'];
+    const norm = (subs: { clientId: string; topic: string; qos: number }[]) => subs.map((x) => `${x.clientId} ${x.topic} ${x.qos}`).sort();
+    for (let i = 0; i < 2_000; i++) {
+      const client = { id: clients[Math.floor(rnd() * clients.length)]! };
+      const op = rnd();
+      if (op < 0.25) {
+        const subs = [{ topic: filters[Math.floor(rnd() * filters.length)]!, qos: Math.floor(rnd() * 3) }];
+        await stock.addSubscriptions(client, subs);
+        await ours.addSubscriptions(client as never, subs as never);
+      } else if (op < 0.4) {
+        const f = [filters[Math.floor(rnd() * filters.length)]!];
+        await stock.removeSubscriptions(client, f);
+        await ours.removeSubscriptions(client as never, f as never);
+      } else if (op < 0.45) {
+        await stock.cleanSubscriptions(client);
+        await ours.cleanSubscriptions(client as never);
+      } else if (op < 0.55) {
+        // a lookup whose answer is still pending when a subscription changes
+        const t = topics[Math.floor(rnd() * topics.length)]!;
+        const pending = ours.subscriptionsByTopic(t);
+        const subs = [{ topic: filters[Math.floor(rnd() * filters.length)]!, qos: 1 }];
+        void ours.addSubscriptions(client as never, subs as never);
+        await stock.addSubscriptions(client, subs);
+        await pending;
+      } else {
+        const t = topics[Math.floor(rnd() * topics.length)]!;
+        expect(norm(await ours.subscriptionsByTopic(t) as never)).toEqual(norm(await stock.subscriptionsByTopic(t)));
+      }
+    }
+  });
+
   it('a PUBREL of another broker instance replaces the queued packet with its identifier, as in the stock store', async () => {
     const ours = new IndexedMemoryPersistence();
     const p = { cmd: 'publish', topic: 't', payload: Buffer.from('1'), qos: 2, brokerId: 'B1', brokerCounter: 1, retain: false, dup: false };
