@@ -51,6 +51,8 @@ const envSchema = z.object({
   INGEST_STATUS_MS: positiveInt.default(2_000),
   /** MQTT client identifier prefix; the source id is appended so each session is stable across restarts. */
   INGEST_MQTT_CLIENT_ID: z.string().min(1).max(16).default('flocstream-ingest'),
+  /** The `debug` package's namespaces; mqtt.js traces each packet only when it names `mqttjs`. */
+  DEBUG: z.string().optional(),
 });
 
 export interface IngestConfig {
@@ -66,6 +68,8 @@ export interface IngestConfig {
   reloadMs: number;
   statusMs: number;
   mqttClientIdPrefix: string;
+  /** mqtt.js's per-packet trace through `debug` (DEBUG=mqttjs*); off, it costs nothing per packet. */
+  mqttTrace: boolean;
 }
 
 export class IngestConfigError extends Error {}
@@ -89,6 +93,7 @@ export function loadIngestConfig(env: NodeJS.ProcessEnv = process.env): IngestCo
     reloadMs: e.INGEST_RELOAD_MS,
     statusMs: e.INGEST_STATUS_MS,
     mqttClientIdPrefix: e.INGEST_MQTT_CLIENT_ID,
+    mqttTrace: /mqttjs/.test(e.DEBUG ?? ''),
   };
 }
 

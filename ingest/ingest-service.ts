@@ -137,7 +137,7 @@ export class IngestService {
   }
 
   private async create(s: SourceConfig, tags: TagConfig[]): Promise<Connector> {
-    if (s.kind === 'mqtt') return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log });
+    if (s.kind === 'mqtt') return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log, trace: this.cfg.mqttTrace });
     // node-opcua is large (≈ 100 MB resident once loaded): only load it when a source needs it.
     const { OpcuaConnector } = await import('./opcua/opcua-connector.ts');
     return new OpcuaConnector(s, tags, this.writer, { pkiDir: ingestPaths(this.cfg.dataDir).pkiDir, log: this.log });

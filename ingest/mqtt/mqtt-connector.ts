@@ -93,14 +93,16 @@ export class MqttConnector implements Connector {
   private closing = false;
   /** mqtt.js's callback for the message being handled while intake is paused (at most one). */
   private stalled: (() => void) | null = null;
-  private corked = false;
+  /** Packet identifiers whose PUBACK is written at the end of this tick (see flushAcks). */
+  private ackQueue: number[] = [];
+  private ackClient: MqttClient | null = null;
   private offPressure: () => void;
 
   constructor(
     private source: SourceConfig,
     tags: readonly TagConfig[],
     private writer: BatchWriter,
-    private ctx: { clientIdPrefix: string; log: Logger },
+    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean },
   ) {
     this.sourceId = source.id;
     const parsed = mqttSourceOptions.safeParse(source.options ?? {});
@@ -132,6 +134,9 @@ export class MqttConnector implements Connector {
       connectTimeout: 10_000,
       resubscribe: false,
       queueQoSZero: false,
+      // mqtt.js calls its `debug` logger several times per packet even when tracing is off;
+      // a no-op logger saves that at 50 000 messages a second (DEBUG=mqttjs* turns it back on).
+      ...(this.ctx.trace ? {} : { log: () => {} }),
       ...(this.source.username ? { username: this.source.username } : {}),
       ...(this.source.secret ? { password: this.source.secret } : {}),
       ...(this.protocol === 5 ? { properties: { sessionExpiryInterval: 0xffffffff, receiveMaximum: 65535 } } : {}),
@@ -211,7 +216,10 @@ export class MqttConnector implements Connector {
         }
         const h: HeldAck = { messageId: packet.messageId, generation: this.generation, topic: packet.topic, payload };
         this.held.set(packet.messageId, h);
-        this.process(packet.topic, payload, h);
+        // Nothing to store (unmapped, deadband): mqtt.js's own PUBACK, which follows this event,
+        // is let through — releasing it here as well would acknowledge the identifier twice, and
+        // a second PUBACK could acknowledge the broker's next message under the reused identifier.
+        if (!this.process(packet.topic, payload, h)) this.held.delete(packet.messageId);
       } else {
         // QoS 0 has no acknowledgement (we subscribe with QoS 1, so the broker downgrades QoS 2 to 1).
         this.process(packet.topic, payload, undefined);
@@ -219,7 +227,8 @@ export class MqttConnector implements Connector {
     });
   }
 
-  private process(topic: string, payload: Buffer, held: HeldAck | undefined): void {
+  /** Decodes and enqueues one message; false when there was nothing to write (so nothing to wait for). */
+  private process(topic: string, payload: Buffer, held: HeldAck | undefined): boolean {
     const now = Date.now();
     this.lastMessageAt = now;
     this.counters.messages++;
@@ -235,19 +244,17 @@ export class MqttConnector implements Connector {
     this.counters.unmapped += r.unmapped;
     this.counters.deadLetters += r.deadLetters.length;
     this.counters.suppressed += r.suppressed;
+    if (r.samples.length === 0 && r.deadLetters.length === 0) return false;
     if (!held) {
-      if (r.samples.length || r.deadLetters.length) this.writer.enqueue(r.samples, r.deadLetters);
-      return;
-    }
-    if (r.samples.length === 0 && r.deadLetters.length === 0) {
-      this.release(held);
-      return;
+      this.writer.enqueue(r.samples, r.deadLetters);
+      return true;
     }
     this.counters.outstanding++;
     this.writer.enqueue(r.samples, r.deadLetters, () => {
       this.counters.outstanding--;
       this.release(held);
     });
+    return true;
   }
 
   /** Sends a held PUBACK if its connection is still the current one. */
@@ -262,19 +269,35 @@ export class MqttConnector implements Connector {
     if (this.held.get(h.messageId) !== h) return;
     this.held.delete(h.messageId);
     if (!client || h.generation !== this.generation || !client.connected) return;
-    // A commit releases thousands of PUBACKs in one go: cork the socket for the rest of this
-    // tick so they leave in a few writes instead of one system call (and TCP segment) each.
-    if (!this.corked && client.stream) {
-      const stream = client.stream;
-      this.corked = true;
-      stream.cork();
-      process.nextTick(() => {
-        this.corked = false;
-        stream.uncork();
-      });
+    if (this.ackQueue.length === 0) {
+      this.ackClient = client;
+      process.nextTick(this.flushAcks);
     }
-    sender(client)._sendPacket({ cmd: 'puback', messageId: h.messageId, reasonCode: 0 } as Packet);
+    this.ackQueue.push(h.messageId);
   }
+
+  /**
+   * Writes the PUBACKs released in this tick as one buffer. A commit releases thousands at once;
+   * one write of 4 bytes each instead of an encoder call, a cork and a socket write apiece —
+   * about a tenth of ingest's CPU per message in tests/bench/ingest.bench.ts. The encoding is
+   * the same for both protocol levels: MQTT 3.1.1 §3.4 (type 4, remaining length 2, packet
+   * identifier) and MQTT 5.0 §3.4.2.1, where a remaining length of 2 means reason code 0x00
+   * (Success) with no properties. The packets go in arrival order (§4.6).
+   */
+  private flushAcks = (): void => {
+    const ids = this.ackQueue;
+    const client = this.ackClient;
+    this.ackQueue = [];
+    this.ackClient = null;
+    if (!client || client !== this.client || !client.connected || !client.stream) return;
+    const buf = Buffer.allocUnsafe(ids.length * 4);
+    for (let i = 0, o = 0; i < ids.length; i++, o += 4) {
+      buf[o] = 0x40;
+      buf[o + 1] = 0x02;
+      buf.writeUInt16BE(ids[i]!, o + 2);
+    }
+    client.stream.write(buf);
+  };
 
   updateTags(tags: readonly TagConfig[]): void {
     if (this.tags.update(tags)) this.handler.rebuild();

@@ -67,6 +67,15 @@ export function looksLikeBatch(payload: Buffer): boolean {
   return payload.subarray(i, i + 64).includes('"samples"');
 }
 
+/** The first character that String.prototype.trimStart would keep (JSON and plain numbers start with ASCII). */
+function firstNonSpace(text: string): string | undefined {
+  for (let i = 0; i < text.length; i++) {
+    const c = text.charCodeAt(i);
+    if (c !== 0x20 && c !== 0x0a && c !== 0x0d && c !== 0x09) return c < 0x80 ? text[i] : text.slice(i).trimStart()[0];
+  }
+  return undefined;
+}
+
 /**
  * Decodes Flocstream's MQTT payload formats (shared/contracts/mqtt-payload.ts): a single JSON
  * value, a batch, or a plain number. Returns a result instead of throwing (hot path). A batch
@@ -77,8 +86,7 @@ export function decodePayload(topic: string, payload: Buffer): DecodeResult {
   if (payload.length === 0) return { ok: false, reason: 'empty payload' };
   if (payload.length > MAX_PAYLOAD_BYTES) return { ok: false, reason: `payload of ${payload.length} bytes exceeds ${MAX_PAYLOAD_BYTES}` };
   const text = payload.toString('utf8');
-  const first = text.trimStart()[0];
-  if (first !== '{') {
+  if (firstNonSpace(text) !== '{') {
     if (!PLAIN_NUMBER.test(text)) return { ok: false, reason: 'not JSON and not a plain number' };
     const v = Number(text);
     if (!Number.isFinite(v)) return { ok: false, reason: 'plain number is not finite' };

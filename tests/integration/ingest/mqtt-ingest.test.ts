@@ -78,6 +78,12 @@ describe('MQTT → PostgreSQL', () => {
     const latest = await pool.query(`SELECT tag_id, value FROM tag_latest WHERE tag_id = ANY($1) ORDER BY tag_id`, [ids]);
     expect(latest.rows).toHaveLength(TAGS);
     expect(latest.rows[0].value).toBe(N - TAGS);
+    // Timestamps keep their milliseconds through the rollup and latest-value upserts (sent as
+    // epoch milliseconds, turned into timestamptz by to_timestamp in SQL).
+    expect(await scalar(pool, `SELECT count(*) FROM tag_latest l WHERE l.tag_id = ANY($1) AND l.ts IS DISTINCT FROM (SELECT max(ts) FROM samples s WHERE s.tag_id = l.tag_id AND s.ts >= $2 AND s.ts < $3)`, range)).toBe(0);
+    expect(
+      await scalar(pool, `SELECT count(*) FROM rollup_1m r WHERE r.tag_id = ANY($1) AND r.bucket >= $2 AND r.bucket < $3 AND r.last_ts IS DISTINCT FROM (SELECT max(ts) FROM samples s WHERE s.tag_id = r.tag_id AND s.ts >= r.bucket AND s.ts < r.bucket + interval '1 minute')`, range),
+    ).toBe(0);
     // Rows went into their day partition, not the default one.
     const parts = await pool.query(`SELECT DISTINCT tableoid::regclass::text p FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range);
     expect(parts.rows.map((r) => r.p)).toEqual(['samples_20260110']);
@@ -171,6 +177,34 @@ describe('MQTT → PostgreSQL', () => {
     await waitFor('redeliveries recognised', async () => Number(svc.status().sources[0]!.details.redelivered ?? 0), (n) => n > 0, 15_000);
     await new Promise((r) => setTimeout(r, 1_000));
     expect(await scalar(pool, `SELECT count(*) FROM dead_letters WHERE address = 'bad/value'`)).toBe(before + N);
+  });
+
+  it('acknowledges each message exactly once, stored or not (MQTT 3.1.1 §4.3.2)', async () => {
+    // A second PUBACK for an identifier could acknowledge the broker's next message under the
+    // reused identifier before ingest stored it. aedes emits 'ack' for every PUBACK it receives,
+    // with the queued packet it cleared, or without one when nothing was waiting for that PUBACK.
+    const ingestId = 'it-ingest-' + (svc.status().sources[0]?.sourceId ?? 0);
+    const acks = { cleared: 0, stray: 0 };
+    const onAck = (packet: unknown, client: { id?: string } | null) => {
+      if (client?.id !== ingestId) return;
+      if (packet) acks.cleared++;
+      else acks.stray++;
+    };
+    broker.broker.on('ack', onAck);
+    try {
+      const t0 = Date.UTC(2026, 0, 14);
+      const ps: Promise<unknown>[] = [];
+      for (let i = 0; i < 300; i++) {
+        ps.push(pub.publishAsync(`junk/once/${i}`, '{"v": 1}', { qos: 1 })); // unmapped: acknowledged at once
+        ps.push(pub.publishAsync(`t/tag${i % TAGS}`, JSON.stringify({ v: i, ts: new Date(t0 + i * 1000).toISOString() }), { qos: 1 })); // stored, then acknowledged
+      }
+      await Promise.all(ps);
+      await waitFor('600 PUBACKs from ingest', async () => acks.cleared + acks.stray, (n) => n >= 600, 15_000);
+      await new Promise((r) => setTimeout(r, 300));
+      expect(acks).toEqual({ cleared: 600, stray: 0 });
+    } finally {
+      broker.broker.off('ack', onAck);
+    }
   });
 
   it('still stores exactly N when the broker restarts mid-stream', async () => {
