@@ -1,6 +1,6 @@
 /**
  * Ingest benchmark (`npm run bench:ingest`): a throwaway PostgreSQL cluster of its own, the
- * embedded broker, ingest as a child process — all on 127.0.0.1. Prints a table and writes
+ * embedded broker and ingest as child processes — all on 127.0.0.1. Prints a table and writes
  * `.data/bench/ingest.json`. Every figure is measured in this run.
  *
  * (a) writer: SampleStore (binary COPY into `samples` with its primary key, plus the rollup_1m,
@@ -18,7 +18,6 @@ import os from 'node:os';
 import path from 'node:path';
 import mqtt from 'mqtt';
 import pg from 'pg';
-import { startEmbeddedBroker } from '../../server/broker/embedded-broker.ts';
 import { localPsql, startLocalPostgres } from '../../server/db/local-postgres.ts';
 import { runMigrations } from '../../server/db/migrate.ts';
 import { DEFAULT_BATCH_ROWS, INGEST_NODE_ARGS } from '../../ingest/config.ts';
@@ -147,8 +146,12 @@ try {
   const pool = new pg.Pool({ connectionString: cluster.url, max: 3 });
   cleanup.push(() => void pool.end());
   const mqttPort = await freePort();
-  const broker = await startEmbeddedBroker({ port: mqttPort });
-  cleanup.push(() => void broker.close());
+  const brokerChild = spawn(process.execPath, ['--import', 'tsx', 'tests/bench/broker-child.ts', String(mqttPort)], { cwd: ROOT, stdio: ['ignore', 'pipe', 'inherit'] });
+  cleanup.push(() => brokerChild.kill('SIGKILL'));
+  const broker = await new Promise<{ url: string }>((resolve, reject) => {
+    brokerChild.stdout.once('data', (d: Buffer) => resolve(JSON.parse(d.toString())));
+    brokerChild.once('exit', (code) => reject(new Error(`broker child exited with ${code}`)));
+  });
 
   const plant = (await pool.query(`INSERT INTO plants (code, name) VALUES ('bench', 'Bench') RETURNING id`)).rows[0].id;
   const source = (await pool.query(`INSERT INTO sources (plant_id, name, kind, url, options) VALUES ($1, 'bench', 'mqtt', $2, '{"topics":["b/#"],"protocolVersion":4}') RETURNING id`, [plant, broker.url])).rows[0].id;
@@ -199,21 +202,26 @@ try {
   results.writerRatio = Math.round((results.writerRowsPerSec / results.psqlCopyRowsPerSec) * 100) / 100;
   notes.push(`writer rounds ${writerRates.map((x) => Math.round(x / 1000) + 'k').join(', ')} rows/s; psql rounds ${psqlRates.map((x) => Math.round(x / 1000) + 'k').join(', ')} rows/s; batch ${DEFAULT_BATCH_ROWS} rows`);
   const dayB = dayA - DAY;
+  // The writer rounds leave 6 million fresh rows: vacuumed, analysed and checkpointed now, so
+  // autovacuum and the checkpointer do not fall into the end-to-end phases below and each phase
+  // measures itself.
+  await pool.query('VACUUM (ANALYZE)');
+  await pool.query('CHECKPOINT');
 
   // ---- broker alone: the ceiling for (b) ------------------------------------------------------
   // The same QoS 1 single-value load into a subscriber that only counts (no ingest running yet,
   // so no session of it queues these messages). End-to-end single-value figures are read
   // against this: the embedded broker's own rate on this machine, measured in this run.
   {
-    const REF = 150_000;
+    const REF = 300_000;
     const sink = await runLoad(['sink', broker.url, String(REF)]);
-    const b0 = cpuOf(process.pid);
+    const b0 = cpuOf(brokerChild.pid!);
     const load = await runLoad(['publish', broker.url, 'single', String(REF), '1', String(Date.now())]);
     const sunk = await sink.done;
     const pubDone = await load.done;
     results.brokerOnlyQos1MsgPerSec = Math.round(REF / ((sunk.end - load.start) / 1000));
     notes.push(
-      `broker alone, QoS 1: ${((sunk.end - load.start) / 1000).toFixed(1)} s wall; CPU s — broker+bench ${(cpuOf(process.pid) - b0).toFixed(1)}, sink ${sunk.cpuSec.toFixed(1)}, publisher ${pubDone.cpuSec.toFixed(1)}`,
+      `broker alone, QoS 1: ${((sunk.end - load.start) / 1000).toFixed(1)} s wall; CPU s — broker ${(cpuOf(brokerChild.pid!) - b0).toFixed(1)}, sink ${sunk.cpuSec.toFixed(1)}, publisher ${pubDone.cpuSec.toFixed(1)}`,
     );
   }
 
@@ -254,19 +262,37 @@ try {
   await pool.query(`SELECT flocstream_ensure_day_partition($1)`, [new Date(dayB)]);
   // CPU used by each process during a phase says what limits its figure (2 cores in all).
   const pgData = path.join(tmp, 'pg');
-  const procs = () => ({ broker: cpuOf(process.pid), ingest: cpuOf(child.pid!), postgres: pgCpu(pgData) });
+  const procs = () => ({ broker: cpuOf(brokerChild.pid!), ingest: cpuOf(child.pid!), postgres: pgCpu(pgData) });
   const cpuNote = (label: string, r: { wallSec: number; cpu: Record<string, number> }, publisherCpu: number) =>
-    notes.push(`${label}: ${r.wallSec} s wall; CPU s — broker+bench ${r.cpu.broker}, ingest ${r.cpu.ingest}, postgres ${r.cpu.postgres}, publisher ${publisherCpu.toFixed(1)}`);
+    notes.push(`${label}: ${r.wallSec} s wall; CPU s — broker ${r.cpu.broker}, ingest ${r.cpu.ingest}, postgres ${r.cpu.postgres}, publisher ${publisherCpu.toFixed(1)}`);
 
-  const SINGLE = 150_000;
-  const single = await cpuDuring(procs, async () => {
-    const load = await runLoad(['publish', broker.url, 'single', String(SINGLE), '1', String(dayB)]);
-    const end = await waitCount(pool, inDay, [new Date(dayB), new Date(dayB + DAY / 2)], SINGLE, 120_000);
-    return { rate: SINGLE / ((end - load.start) / 1000), done: await load.done };
-  });
-  await exact(dayB, dayB + DAY / 2, SINGLE);
-  results.e2eSingleSamplesPerSec = Math.round(single.value.rate);
-  cpuNote('single, QoS 1', single, single.value.done.cpuSec);
+  // Sustained rates: 300 000 messages (at 50 000/s the last batch's commit is then a small part
+  // of the run), after a warm-up of 30 000 that is not counted, on a day of its own — a running
+  // ingest has its hot paths compiled long before, a fresh one has not. Three rounds, each on
+  // three hours of its own, and the median is the figure: the 2 cores are shared with whatever
+  // else the host runs, and one round can fall into someone else's burst (all rounds are noted).
+  const SINGLE = 300_000;
+  const dayW = dayB - 2 * DAY;
+  await pool.query(`SELECT flocstream_ensure_day_partition($1)`, [new Date(dayW)]);
+  {
+    const WARM = 30_000;
+    await runLoad(['publish', broker.url, 'single', String(WARM), '1', String(dayW)]);
+    await waitCount(pool, inDay, [new Date(dayW), new Date(dayW + DAY)], WARM, 60_000);
+  }
+  const singleRates: number[] = [];
+  for (let round = 0; round < 3; round++) {
+    const from = dayB + round * 3 * 3_600_000;
+    const to = from + 3 * 3_600_000;
+    const single = await cpuDuring(procs, async () => {
+      const load = await runLoad(['publish', broker.url, 'single', String(SINGLE), '1', String(from)]);
+      const end = await waitCount(pool, inDay, [new Date(from), new Date(to)], SINGLE, 120_000);
+      return { rate: SINGLE / ((end - load.start) / 1000), done: await load.done };
+    });
+    await exact(from, to, SINGLE);
+    singleRates.push(single.value.rate);
+    cpuNote(`single, QoS 1, round ${round + 1} (${Math.round(single.value.rate).toLocaleString('en-US')}/s)`, single, single.value.done.cpuSec);
+  }
+  results.e2eSingleSamplesPerSec = Math.round(median(singleRates));
 
   // The same with QoS 0 publishing (delivered at QoS 0: no PUBACK anywhere, and nothing the
   // broker would redeliver) — the rate a fleet of QoS 0 field publishers could push.
