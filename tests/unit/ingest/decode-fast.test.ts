@@ -1,6 +1,7 @@
 import { describe, expect, it } from 'vitest';
-import { batchItem, singleValuePayload } from '../../../shared/contracts/mqtt-payload.ts';
-import { decodePayload, fastReading } from '../../../ingest/pipeline/decode.ts';
+import { batchItem, isoTimestampPattern, singleValuePayload } from '../../../shared/contracts/mqtt-payload.ts';
+import { decodePayload, fastReading, isoToMs } from '../../../ingest/pipeline/decode.ts';
+import { mulberry32 } from '../domain/prng.js';
 
 // The fast path must accept exactly what the zod schemas accept, with the same result.
 const TS = [
@@ -88,5 +89,26 @@ describe('fast reading check agrees with the zod contract (shared/contracts/mqtt
     expect(r.items.map((i) => i.topic)).toEqual(['a', 'c']);
     expect(r.errors).toHaveLength(1);
     expect(r.errors[0]!.reason).toMatch(/^batch item 1: v:/);
+  });
+});
+
+describe('isoToMs', () => {
+  it('gives the instant Date.parse gives for 20 000 generated timestamps the contract accepts (ECMA-262 Date Time String Format)', () => {
+    const rnd = mulberry32(5);
+    const pad = (x: number, w: number) => String(x).padStart(w, '0');
+    let checked = 0;
+    for (let i = 0; i < 20_000; i++) {
+      const y = i % 50 === 0 ? Math.floor(rnd() * 200) : 1900 + Math.floor(rnd() * 250);
+      const mo = 1 + Math.floor(rnd() * 12);
+      const d = 1 + Math.floor(rnd() * 31);
+      const base = `${pad(y, 4)}-${pad(mo, 2)}-${pad(d, 2)}T${pad(Math.floor(rnd() * 24), 2)}:${pad(Math.floor(rnd() * 60), 2)}:${pad(Math.floor(rnd() * 60), 2)}`;
+      const frac = ['', '.' + pad(Math.floor(rnd() * 1000), 3), '.5', '.123456'][i % 4]!;
+      const zone = ['Z', 'Z', '+01:00', '-05:30'][Math.floor(rnd() * 4)]!;
+      const ts = base + frac + zone;
+      if (!isoTimestampPattern.test(ts)) continue; // 31 February and the like: refused before this point
+      expect(isoToMs(ts)).toBe(Date.parse(ts));
+      checked++;
+    }
+    expect(checked).toBeGreaterThan(15_000);
   });
 });
