@@ -33,8 +33,8 @@ const digit = (s: string, i: number) => s.charCodeAt(i) - 48;
 /**
  * Epoch milliseconds of a timestamp that isoTimestampPattern (zod's ISO 8601 check) has already
  * accepted. The layout publishers send almost always — `YYYY-MM-DDTHH:MM:SSZ` or with exactly
- * three fraction digits, UTC — is read by position, without Date.parse (about a tenth of the
- * decoder's time at 50 000 messages a second); any other accepted form (offsets, other fraction
+ * three fraction digits, UTC — is read by position, without Date.parse (Date.parse was about a
+ * quarter of the decoder's time in the single-value phase of tests/bench/ingest.bench.ts); any other accepted form (offsets, other fraction
  * lengths, years below 100, which Date.UTC would read as 19xx) goes to Date.parse.
  * tests/unit/ingest/decode-fast.test.ts checks both give the same instant.
  */

@@ -53,8 +53,8 @@ export function isTransientDbError(err: unknown): boolean {
 /**
  * A PostgreSQL array literal of numbers (PostgreSQL documentation, "Arrays", 8.15.6), written
  * here rather than by node-postgres, which formats each element through its generic value
- * preparation: for the few thousand rollup and latest-value rows per batch that was about a
- * tenth of ingest's CPU. Timestamps go as epoch milliseconds and become timestamptz in SQL
+ * preparation: for the few thousand rollup and latest-value rows per batch that was about 7 % of
+ * ingest's CPU in the single-value phase of tests/bench/ingest.bench.ts. Timestamps go as epoch milliseconds and become timestamptz in SQL
  * (to_timestamp(ms / 1000) keeps microsecond precision), which saves a Date and its text form
  * per element. JavaScript's number text (ECMA-262 Number::toString: "1e+21", "NaN",
  * "Infinity") is valid float8 input.
