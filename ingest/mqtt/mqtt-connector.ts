@@ -93,9 +93,8 @@ export class MqttConnector implements Connector {
   private closing = false;
   /** mqtt.js's callback for the message being handled while intake is paused (at most one). */
   private stalled: (() => void) | null = null;
-  /** Packet identifiers whose PUBACK is written at the end of this tick (see flushAcks). */
-  private ackQueue: number[] = [];
-  private ackClient: MqttClient | null = null;
+  /** Messages whose PUBACK is written at the end of this tick (see flushAcks). */
+  private ackQueue: HeldAck[] = [];
   private offPressure: () => void;
 
   constructor(
@@ -259,21 +258,20 @@ export class MqttConnector implements Connector {
 
   /** Sends a held PUBACK if its connection is still the current one. */
   private release(h: HeldAck): void {
-    const client = this.client;
     if (h.generation !== this.generation) {
-      // Committed, but its connection is gone: remember it for the redelivery.
-      if (this.committedUnacked.size >= MAX_REMEMBERED) this.committedUnacked.delete(this.committedUnacked.keys().next().value!);
-      this.committedUnacked.set(h.messageId, fingerprint(h.topic, h.payload));
+      this.remember(h);
       return;
     }
     if (this.held.get(h.messageId) !== h) return;
     this.held.delete(h.messageId);
-    if (!client || h.generation !== this.generation || !client.connected) return;
-    if (this.ackQueue.length === 0) {
-      this.ackClient = client;
-      process.nextTick(this.flushAcks);
-    }
-    this.ackQueue.push(h.messageId);
+    if (this.ackQueue.length === 0) process.nextTick(this.flushAcks);
+    this.ackQueue.push(h);
+  }
+
+  /** Committed, but its connection is gone before the PUBACK: remembered for the redelivery. */
+  private remember(h: HeldAck): void {
+    if (this.committedUnacked.size >= MAX_REMEMBERED) this.committedUnacked.delete(this.committedUnacked.keys().next().value!);
+    this.committedUnacked.set(h.messageId, fingerprint(h.topic, h.payload));
   }
 
   /**
@@ -282,19 +280,23 @@ export class MqttConnector implements Connector {
    * about a tenth of ingest's CPU per message in tests/bench/ingest.bench.ts. The encoding is
    * the same for both protocol levels: MQTT 3.1.1 §3.4 (type 4, remaining length 2, packet
    * identifier) and MQTT 5.0 §3.4.2.1, where a remaining length of 2 means reason code 0x00
-   * (Success) with no properties. The packets go in arrival order (§4.6).
+   * (Success) with no properties. The packets go in arrival order (§4.6). All of one tick's
+   * PUBACKs belong to one connection; if it closed before this runs, they are remembered as
+   * release() remembers a late commit.
    */
   private flushAcks = (): void => {
-    const ids = this.ackQueue;
-    const client = this.ackClient;
+    const held = this.ackQueue;
     this.ackQueue = [];
-    this.ackClient = null;
-    if (!client || client !== this.client || !client.connected || !client.stream) return;
-    const buf = Buffer.allocUnsafe(ids.length * 4);
-    for (let i = 0, o = 0; i < ids.length; i++, o += 4) {
+    const client = this.client;
+    if (held[0]!.generation !== this.generation || !client?.connected || !client.stream) {
+      for (const h of held) this.remember(h);
+      return;
+    }
+    const buf = Buffer.allocUnsafe(held.length * 4);
+    for (let i = 0, o = 0; i < held.length; i++, o += 4) {
       buf[o] = 0x40;
       buf[o + 1] = 0x02;
-      buf.writeUInt16BE(ids[i]!, o + 2);
+      buf.writeUInt16BE(held[i]!.messageId, o + 2);
     }
     client.stream.write(buf);
   };

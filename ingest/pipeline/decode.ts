@@ -34,8 +34,9 @@ const digit = (s: string, i: number) => s.charCodeAt(i) - 48;
  * Epoch milliseconds of a timestamp that isoTimestampPattern (zod's ISO 8601 check) has already
  * accepted. The layout publishers send almost always — `YYYY-MM-DDTHH:MM:SSZ` or with exactly
  * three fraction digits, UTC — is read by position, without Date.parse (Date.parse was about a
- * quarter of the decoder's time in the single-value phase of tests/bench/ingest.bench.ts); any other accepted form (offsets, other fraction
- * lengths, years below 100, which Date.UTC would read as 19xx) goes to Date.parse.
+ * quarter of the decoder's time in the single-value phase of tests/bench/ingest.bench.ts); any
+ * other accepted form (offsets, other fraction lengths, years below 100, which Date.UTC would
+ * read as 19xx) goes to Date.parse.
  * tests/unit/ingest/decode-fast.test.ts checks both give the same instant.
  */
 export function isoToMs(ts: string): number {
@@ -84,6 +85,11 @@ export function fastReading(x: unknown, topic?: string): DecodedItem | null {
   return { topic: t, v, ts: toMs(ts as string | undefined), q: q ?? 'good' };
 }
 
+/** JSON's insignificant whitespace (RFC 8259 §2): space, line feed, carriage return, tab. */
+function isJsonSpace(c: number): boolean {
+  return c === 0x20 || c === 0x0a || c === 0x0d || c === 0x09;
+}
+
 /**
  * True when a payload on a topic no tag maps could still carry mapped samples (a batch names
  * each item's topic). Payloads on unmapped topics that are not batches are counted as unmapped,
@@ -91,7 +97,7 @@ export function fastReading(x: unknown, topic?: string): DecodedItem | null {
  */
 export function looksLikeBatch(payload: Buffer): boolean {
   let i = 0;
-  while (i < payload.length && (payload[i] === 0x20 || payload[i] === 0x0a || payload[i] === 0x0d || payload[i] === 0x09)) i++;
+  while (i < payload.length && isJsonSpace(payload[i]!)) i++;
   if (payload[i] !== 0x7b /* { */) return false;
   return payload.subarray(i, i + 64).includes('"samples"');
 }
@@ -100,7 +106,7 @@ export function looksLikeBatch(payload: Buffer): boolean {
 function firstNonSpace(text: string): string | undefined {
   for (let i = 0; i < text.length; i++) {
     const c = text.charCodeAt(i);
-    if (c !== 0x20 && c !== 0x0a && c !== 0x0d && c !== 0x09) return c < 0x80 ? text[i] : text.slice(i).trimStart()[0];
+    if (!isJsonSpace(c)) return c < 0x80 ? text[i] : text.slice(i).trimStart()[0];
   }
   return undefined;
 }
