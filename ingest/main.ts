@@ -4,6 +4,7 @@
  * `<dataDir>/ingest-discovery/source-<id>.json`. SIGINT/SIGTERM: stop receiving, final flush
  * (commit or spool), exit 0.
  */
+import '../server/broker/quiet-debug.ts';
 import pino from 'pino';
 import { IngestConfigError, loadIngestConfig } from './config.ts';
 import { IngestService } from './ingest-service.ts';

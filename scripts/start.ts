@@ -4,6 +4,7 @@
  * starts the embedded MQTT broker, seeds the invented demo plant and runs its simulator, starts
  * ingest, and serves API + monitor on 127.0.0.1:3000. Ctrl-C stops everything.
  */
+import '../server/broker/quiet-debug.ts';
 import fs from 'node:fs';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';

@@ -5,6 +5,7 @@
  *
  *   broker-child.ts <port>
  */
+import '../../server/broker/quiet-debug.ts';
 import { startEmbeddedBroker } from '../../server/broker/embedded-broker.ts';
 
 const broker = await startEmbeddedBroker({ host: '127.0.0.1', port: Number(process.argv[2]) });
