@@ -4,11 +4,10 @@
  * starts the embedded MQTT broker, seeds the invented demo plant and runs its simulator, starts
  * ingest, and serves API + monitor on 127.0.0.1:3000. Ctrl-C stops everything.
  */
-import '../server/broker/quiet-debug.ts';
 import fs from 'node:fs';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { startEmbeddedBroker } from '../server/broker/embedded-broker.ts';
+import { BROKER_NODE_ARGS, BROKER_READY } from '../server/broker/process.ts';
 import { loadConfig } from '../server/config.ts';
 import { demoCredentials, startServer } from '../server/main.ts';
 import { labResultInput } from '../shared/contracts/lab.ts';
@@ -17,7 +16,7 @@ import { labResults } from '../server/db/schema/index.ts';
 import { seedPlant, updateSeedEndpoints } from '../server/services/plant-seed.service.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
 import { buildMonitorIfNeeded } from './build-if-needed.ts';
-import { spawnTs } from './children.ts';
+import { spawnTs, waitForLine } from './children.ts';
 import { INGEST_NODE_ARGS } from '../ingest/config.ts';
 
 const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
@@ -51,10 +50,19 @@ async function main(): Promise<void> {
 
     let mqttUrl = config.mqttUrl;
     if (!mqttUrl) {
-      const broker = await startEmbeddedBroker({ host: '127.0.0.1', port: config.mqttPort });
-      stops.push(() => broker.close());
-      mqttUrl = broker.url;
-      say(`embedded MQTT broker at ${mqttUrl}`);
+      const broker = spawnTs(
+        root,
+        'broker',
+        'server/broker/main.ts',
+        ['127.0.0.1', String(config.mqttPort)],
+        {},
+        (code) => {
+          if (!stopping) void stop(`the embedded broker exited (code ${code})`, 1);
+        },
+        BROKER_NODE_ARGS,
+      );
+      stops.push(() => broker.stop());
+      mqttUrl = (await waitForLine(broker, BROKER_READY))[1]!;
     }
 
     if (config.demo) {

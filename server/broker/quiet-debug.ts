@@ -1,8 +1,8 @@
 /**
- * Import this module first in a process that moves MQTT packets in bulk (the launcher, which
- * hosts the embedded broker; the ingest process; the benchmark's broker): when the `debug`
- * package has no namespace enabled, later `require('debug')` calls get a factory whose loggers
- * are empty functions.
+ * Import this module first in a process that moves MQTT packets in bulk (the embedded broker's
+ * process, server/broker/main.ts, and the ingest process): when the `debug` package has no
+ * namespace enabled, later `require('debug')` calls get a factory whose loggers are empty
+ * functions.
  *
  * Why: mqtt-packet traces every step of parsing and writing a packet through `debug`, about ten
  * calls per PUBLISH. A disabled logger still collects its arguments into an array and reads its

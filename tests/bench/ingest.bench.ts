@@ -16,10 +16,12 @@ import { spawn, spawnSync } from 'node:child_process';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
+import readline from 'node:readline';
 import mqtt from 'mqtt';
 import pg from 'pg';
 import { localPsql, startLocalPostgres } from '../../server/db/local-postgres.ts';
 import { runMigrations } from '../../server/db/migrate.ts';
+import { BROKER_NODE_ARGS, BROKER_READY } from '../../server/broker/process.ts';
 import { DEFAULT_BATCH_ROWS, INGEST_NODE_ARGS } from '../../ingest/config.ts';
 import { SampleStore } from '../../ingest/sink/sample-store.ts';
 import type { Sample } from '../../ingest/pipeline/types.ts';
@@ -148,11 +150,16 @@ try {
   const pool = new pg.Pool({ connectionString: cluster.url, max: 3 });
   cleanup.push(() => void pool.end());
   const mqttPort = await freePort();
-  const brokerChild = spawn(process.execPath, ['--import', 'tsx', 'tests/bench/broker-child.ts', String(mqttPort)], { cwd: ROOT, stdio: ['ignore', 'pipe', 'inherit'] });
+  // The broker process npm start runs (server/broker/main.ts, with its Node options).
+  const brokerChild = spawn(process.execPath, [...BROKER_NODE_ARGS, '--import', 'tsx', 'server/broker/main.ts', '127.0.0.1', String(mqttPort)], { cwd: ROOT, stdio: ['ignore', 'pipe', 'inherit'] });
   cleanup.push(() => brokerChild.kill('SIGKILL'));
   const broker = await new Promise<{ url: string }>((resolve, reject) => {
-    brokerChild.stdout.once('data', (d: Buffer) => resolve(JSON.parse(d.toString())));
-    brokerChild.once('exit', (code) => reject(new Error(`broker child exited with ${code}`)));
+    const lines = readline.createInterface({ input: brokerChild.stdout });
+    lines.on('line', (l) => {
+      const m = BROKER_READY.exec(l);
+      if (m) resolve({ url: m[1]! });
+    });
+    brokerChild.once('exit', (code) => reject(new Error(`broker process exited with ${code}`)));
   });
 
   const plant = (await pool.query(`INSERT INTO plants (code, name) VALUES ('bench', 'Bench') RETURNING id`)).rows[0].id;

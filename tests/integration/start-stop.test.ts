@@ -61,7 +61,7 @@ function pgRunning(): boolean {
 
 function leftovers(): string[] {
   const ps = spawnSync('ps', ['-eo', 'pid,args'], { encoding: 'utf8' }).stdout.split('\n');
-  return ps.filter((l) => l.includes(dataDir) || l.includes(`--opcua-port ${base + 3}`));
+  return ps.filter((l) => l.includes(dataDir) || l.includes(`--opcua-port ${base + 3}`) || l.includes(`server/broker/main.ts 127.0.0.1 ${base + 2}`));
 }
 
 describe('npm start and Ctrl-C', () => {
@@ -72,6 +72,8 @@ describe('npm start and Ctrl-C', () => {
     const banner = first.out.join('');
     expect(banner).toContain(`http://127.0.0.1:${base}`);
     expect(banner).toContain('seeded the demo plant');
+    // The broker runs as a process of its own (server/broker/main.ts); its port is freed on Ctrl-C below.
+    expect(banner).toContain(`embedded MQTT broker listening at mqtt://127.0.0.1:${base + 2}`);
     const health = await fetch(`http://127.0.0.1:${base}/api/health`).then((r) => r.json());
     expect(health.database.ok).toBe(true);
     expect(pgRunning()).toBe(true);
