@@ -5,6 +5,7 @@
  * (commit or spool), exit 0.
  */
 import '../server/broker/quiet-debug.ts';
+import { useFastPathParsers } from '../server/broker/publish-fast-path.ts';
 import pino from 'pino';
 import { IngestConfigError, loadIngestConfig } from './config.ts';
 import { IngestService } from './ingest-service.ts';
@@ -17,6 +18,8 @@ try {
   process.exit(2);
 }
 const log = pino({ name: 'ingest', level: cfg.logLevel });
+// mqtt.js creates its packet parser on each connect; from here on those have the fast path.
+useFastPathParsers();
 
 const svc = await IngestService.start(cfg, log).catch((err: unknown) => {
   log.fatal({ err }, 'ingest failed to start');

@@ -3,7 +3,8 @@
  * `await Aedes.createBroker()`; the old default-export factory throws) on a plain TCP server,
  * in-memory persistence: aedes-persistence's memory store with indexed outgoing queues
  * (./indexed-persistence.ts — the stock one slows down quadratically with messages in flight),
- * and each connection's writes gathered per turn of the event loop (./coalesce-writes.ts).
+ * each connection's writes gathered per turn of the event loop (./coalesce-writes.ts), and its
+ * PUBLISH and PUBACK packets parsed in place (./publish-fast-path.ts).
  *
  * Protocol versions: aedes 1.2 speaks MQTT 3.1 and 3.1.1 only; an MQTT 5 CONNECT is refused
  * with CONNACK return code 1, "unacceptable protocol version" (aedes README: "MQTT 5.0 — not
@@ -17,6 +18,7 @@ import net from 'node:net';
 import { Aedes } from 'aedes';
 import { coalesceWrites } from './coalesce-writes.ts';
 import { IndexedMemoryPersistence } from './indexed-persistence.ts';
+import { fastPathForAedesClient } from './publish-fast-path.ts';
 
 export interface EmbeddedBroker {
   url: string;
@@ -33,7 +35,7 @@ export async function startEmbeddedBroker(opts: { host?: string; port: number })
   broker.on('connectionError', () => {});
   const server = net.createServer((conn) => {
     coalesceWrites(conn);
-    broker.handle(conn);
+    fastPathForAedesClient(broker.handle(conn) as unknown as Parameters<typeof fastPathForAedesClient>[0]);
   });
   const sockets = new Set<net.Socket>();
   server.on('connection', (s) => {

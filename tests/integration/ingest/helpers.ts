@@ -7,6 +7,7 @@ import pg from 'pg';
 import pino from 'pino';
 import { coalesceWrites } from '../../../server/broker/coalesce-writes.ts';
 import { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
+import { fastPathForAedesClient, useFastPathParsers } from '../../../server/broker/publish-fast-path.ts';
 import type { IngestConfig } from '../../../ingest/config.ts';
 export { freePort } from '../../helpers/net.ts';
 
@@ -27,6 +28,10 @@ export function ingestConfig(databaseUrl: string, dataDir: string, over: Partial
  * a plain restart of the embedded broker would lose messages it had already acknowledged to
  * the publisher; this keeps the test about ingest, not about broker storage.
  */
+// As ingest/main.ts does: mqtt.js clients in these tests (ingest's and the publishers') parse
+// with the fast path, so the ingest tests run the parser ingest runs.
+useFastPathParsers();
+
 export interface TestBroker {
   url: string;
   port: number;
@@ -37,8 +42,8 @@ export interface TestBroker {
 }
 
 export async function startTestBroker(port: number): Promise<TestBroker> {
-  // The embedded broker's store (server/broker/indexed-persistence.ts), kept across restarts, and its
-  // gathered writes.
+  // The embedded broker's store (server/broker/indexed-persistence.ts), kept across restarts, its
+  // gathered writes and its parser fast path.
   let broker = await Aedes.createBroker({ persistence: new IndexedMemoryPersistence() } as Parameters<typeof Aedes.createBroker>[0]);
   // Not in aedes' typings, but the documented `persistence` option takes the same object.
   const persistence: unknown = (broker as unknown as { persistence: unknown }).persistence;
@@ -48,7 +53,7 @@ export async function startTestBroker(port: number): Promise<TestBroker> {
     // As the embedded broker does (server/broker/embedded-broker.ts), so the outage tests run on it.
     server = net.createServer((conn) => {
       coalesceWrites(conn);
-      broker.handle(conn);
+      fastPathForAedesClient(broker.handle(conn) as unknown as Parameters<typeof fastPathForAedesClient>[0]);
     });
     server.on('connection', (s) => {
       sockets.add(s);
