@@ -316,17 +316,25 @@ try {
   results.e2eSingleQos0SamplesPerSec = Math.round(q0.value.rate);
   cpuNote('single, QoS 0', q0, q0.value.done.cpuSec);
 
+  // Batched: three rounds of a million samples, each on three hours of its own in the second half
+  // of the day, median as the figure, as for single values (one round alone ranged from 184 000
+  // to 244 000/s on this host with the same code).
   const BATCHED = 1_000_000;
   const PER = 1_000;
-  const base = dayB + DAY / 2;
-  const batched = await cpuDuring(procs, async () => {
-    const load = await runLoad(['publish', broker.url, 'batched', String(BATCHED / PER), String(PER), String(base)]);
-    const end = await waitCount(pool, inDay, [new Date(base), new Date(dayB + DAY)], BATCHED, 120_000);
-    return { rate: BATCHED / ((end - load.start) / 1000), done: await load.done };
-  });
-  await exact(base, dayB + DAY, BATCHED);
-  results.e2eBatchedSamplesPerSec = Math.round(batched.value.rate);
-  cpuNote(`batched (${PER} per message), QoS 1`, batched, batched.value.done.cpuSec);
+  const batchedRates: number[] = [];
+  for (let round = 0; round < 3; round++) {
+    const from = dayB + DAY / 2 + round * 3 * 3_600_000;
+    const to = from + 3 * 3_600_000;
+    const batched = await cpuDuring(procs, async () => {
+      const load = await runLoad(['publish', broker.url, 'batched', String(BATCHED / PER), String(PER), String(from)]);
+      const end = await waitCount(pool, inDay, [new Date(from), new Date(to)], BATCHED, 120_000);
+      return { rate: BATCHED / ((end - load.start) / 1000), done: await load.done };
+    });
+    await exact(from, to, BATCHED);
+    batchedRates.push(batched.value.rate);
+    cpuNote(`batched (${PER} per message), QoS 1, round ${round + 1} (${Math.round(batched.value.rate).toLocaleString('en-US')}/s)`, batched, batched.value.done.cpuSec);
+  }
+  results.e2eBatchedSamplesPerSec = Math.round(median(batchedRates));
 
   // ---- (c) latency at 10 000 samples/s -------------------------------------------------------
   const RATE = 10_000;
