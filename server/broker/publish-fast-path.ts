@@ -52,8 +52,14 @@ const PUBLISH = 3;
 const PUBACK_HEADER = 0x40;
 
 export class FastPathParser extends EventEmitter {
-  /** Bytes of an incomplete packet the fast path waits for the rest of. */
-  private rest: Buffer | null = null;
+  /**
+   * Chunks of an incomplete packet the fast path waits for the rest of, joined once the packet is
+   * complete (joining on every chunk would copy a large payload over and over).
+   */
+  private rest: Buffer[] = [];
+  private restBytes = 0;
+  /** Bytes the packet in `rest` needs in all; 0 while its remaining length is not known yet. */
+  private restNeeds = 0;
   /** Bytes still owed to the inner parser for the packet it is parsing. */
   private owed = 0;
   /** Set by aedes (lib/client.js), which reads them with `this` bound to the emitter. */
@@ -81,9 +87,12 @@ export class FastPathParser extends EventEmitter {
       if (n === buf.length) return 0;
       buf = buf.subarray(n);
     }
-    if (this.rest) {
-      buf = Buffer.concat([this.rest, buf]);
-      this.rest = null;
+    if (this.rest.length) {
+      this.rest.push(buf);
+      this.restBytes += buf.length;
+      if (this.restBytes < this.restNeeds) return this.restBytes;
+      buf = Buffer.concat(this.rest, this.restBytes);
+      this.dropRest();
     }
     let i = 0;
     while (i < buf.length) {
@@ -107,8 +116,7 @@ export class FastPathParser extends EventEmitter {
       if (!complete) {
         // A fifth length byte is malformed: mqtt-packet says so.
         if (j - i - 1 >= 4) return this.handOver(buf.subarray(i), 0);
-        this.rest = buf.subarray(i);
-        return this.rest.length;
+        return this.wait(buf.subarray(i), 0);
       }
       const end = j + len;
       const type = first >> 4;
@@ -119,16 +127,12 @@ export class FastPathParser extends EventEmitter {
         i = end;
         continue;
       }
-      if (end > buf.length) {
-        this.rest = buf.subarray(i);
-        return this.rest.length;
-      }
+      if (end > buf.length) return this.wait(buf.subarray(i), end - i);
       const packet = first === PUBACK_HEADER ? this.puback(buf, j) : this.publish(buf, first, j, len, end);
       if (packet === null) {
         // Not well formed: mqtt-packet reports it.
         if (!this.feedInner(buf.subarray(i, end))) return 0;
       } else if (packet instanceof Error) {
-        this.rest = null;
         this.emit('error', packet);
         return 0;
       } else this.emit('packet', packet);
@@ -170,6 +174,20 @@ export class FastPathParser extends EventEmitter {
     return p;
   }
 
+  /** Keeps the start of an incomplete packet that needs `needs` bytes in all (0: not known yet). */
+  private wait(start: Buffer, needs: number): number {
+    this.rest = [start];
+    this.restBytes = start.length;
+    this.restNeeds = needs;
+    return start.length;
+  }
+
+  private dropRest(): void {
+    this.rest = [];
+    this.restBytes = 0;
+    this.restNeeds = 0;
+  }
+
   /** The rest of this chunk belongs to a packet the inner parser parses; `owed` more bytes follow. */
   private handOver(bytes: Buffer, owed: number): number {
     this.owed = owed;
@@ -182,7 +200,7 @@ export class FastPathParser extends EventEmitter {
     this.inner.parse(bytes);
     if (!this.inner.error) return true;
     this.owed = 0;
-    this.rest = null;
+    this.dropRest();
     return false;
   }
 }
