@@ -39,23 +39,42 @@ type Queued = AedesPacket & { messageId?: number };
  */
 class CounterIndex {
   private byBroker = new Map<string, Map<number, number>>();
+  /** The last broker id looked up and its map: nearly every packet is this broker's own. */
+  private lastId: string | null = null;
+  private lastMap: Map<number, number> | undefined;
+
+  private counters(brokerId: string): Map<number, number> | undefined {
+    if (brokerId === this.lastId) return this.lastMap;
+    const m = this.byBroker.get(brokerId);
+    if (m) {
+      this.lastId = brokerId;
+      this.lastMap = m;
+    }
+    return m;
+  }
 
   get(p: Queued): number | undefined {
-    return this.byBroker.get(p.brokerId)?.get(p.brokerCounter);
+    return this.counters(p.brokerId)?.get(p.brokerCounter);
   }
 
   set(p: Queued, s: number): void {
-    let m = this.byBroker.get(p.brokerId);
+    let m = this.counters(p.brokerId);
     if (!m) this.byBroker.set(p.brokerId, (m = new Map()));
     m.set(p.brokerCounter, s);
   }
 
   /** Removes p's entry if it still points at position s. */
   delete(p: Queued, s: number): void {
-    const m = this.byBroker.get(p.brokerId);
+    const m = this.counters(p.brokerId);
     if (m?.get(p.brokerCounter) !== s) return;
     m.delete(p.brokerCounter);
-    if (m.size === 0) this.byBroker.delete(p.brokerId);
+    if (m.size === 0) {
+      this.byBroker.delete(p.brokerId);
+      if (this.lastId === p.brokerId) {
+        this.lastId = null;
+        this.lastMap = undefined;
+      }
+    }
   }
 }
 
@@ -64,8 +83,11 @@ export class OutgoingQueue {
   private entries = new Map<number, Queued>();
   private seq = 0;
   private byCounter = new CounterIndex();
-  /** Packet identifier → queue positions holding it, oldest first (almost always exactly one). */
-  private byMessageId = new Map<number, number[]>();
+  /**
+   * Packet identifier → the queue position holding it, or positions oldest first when a reused
+   * identifier is queued more than once (rare: an array only then, none per message).
+   */
+  private byMessageId = new Map<number, number | number[]>();
 
   get size(): number {
     return this.entries.size;
@@ -79,23 +101,34 @@ export class OutgoingQueue {
   }
 
   private indexId(id: number, s: number): void {
-    const list = this.byMessageId.get(id);
-    if (!list) this.byMessageId.set(id, [s]);
+    const cur = this.byMessageId.get(id);
+    if (cur === undefined) this.byMessageId.set(id, s);
+    else if (typeof cur === 'number') this.byMessageId.set(id, cur < s ? [cur, s] : [s, cur]);
     else {
-      // keep queue order: a later seq goes after the earlier ones
-      let i = list.length;
-      while (i > 0 && list[i - 1]! > s) i--;
-      list.splice(i, 0, s);
+      // keep queue order: a later position goes after the earlier ones
+      let i = cur.length;
+      while (i > 0 && cur[i - 1]! > s) i--;
+      cur.splice(i, 0, s);
     }
   }
 
   private unindexId(id: number | undefined, s: number): void {
     if (id === undefined) return;
-    const list = this.byMessageId.get(id);
-    if (!list) return;
-    const i = list.indexOf(s);
-    if (i >= 0) list.splice(i, 1);
-    if (list.length === 0) this.byMessageId.delete(id);
+    const cur = this.byMessageId.get(id);
+    if (cur === undefined) return;
+    if (typeof cur === 'number') {
+      if (cur === s) this.byMessageId.delete(id);
+      return;
+    }
+    const i = cur.indexOf(s);
+    if (i >= 0) cur.splice(i, 1);
+    if (cur.length === 1) this.byMessageId.set(id, cur[0]!);
+    else if (cur.length === 0) this.byMessageId.delete(id);
+  }
+
+  private positions(id: number): readonly number[] {
+    const cur = this.byMessageId.get(id);
+    return cur === undefined ? [] : typeof cur === 'number' ? [cur] : cur;
   }
 
   /** Records the packet identifier of a queued packet, or replaces the one it supersedes; false if neither is queued. */
@@ -111,7 +144,7 @@ export class OutgoingQueue {
       return true;
     }
     if (p.messageId === undefined) return false;
-    for (const t of this.byMessageId.get(p.messageId) ?? []) {
+    for (const t of this.positions(p.messageId)) {
       const q = this.entries.get(t)!;
       if (q.brokerId !== p.brokerId) {
         this.entries.set(t, p);
@@ -125,11 +158,17 @@ export class OutgoingQueue {
 
   /** Removes and returns the oldest queued packet with this identifier. */
   clear(messageId: number): Queued | undefined {
-    const list = this.byMessageId.get(messageId);
-    if (!list?.length) return undefined;
-    const s = list[0]!;
-    if (list.length === 1) this.byMessageId.delete(messageId);
-    else list.shift();
+    const cur = this.byMessageId.get(messageId);
+    if (cur === undefined) return undefined;
+    let s: number;
+    if (typeof cur === 'number') {
+      s = cur;
+      this.byMessageId.delete(messageId);
+    } else {
+      s = cur.shift()!;
+      if (cur.length === 1) this.byMessageId.set(messageId, cur[0]!);
+      else if (cur.length === 0) this.byMessageId.delete(messageId);
+    }
     const e = this.entries.get(s)!;
     this.entries.delete(s);
     this.byCounter.delete(e, s);
