@@ -26,6 +26,16 @@ export interface EmbeddedBroker {
   close(): Promise<void>;
 }
 
+/**
+ * What the embedded broker does with each new TCP connection: its writes gathered, then aedes'
+ * client for it with the parser fast path in front. The durable test broker
+ * (tests/integration/ingest/helpers.ts) accepts its connections the same way.
+ */
+export function acceptConnection(broker: Aedes, conn: net.Socket): void {
+  coalesceWrites(conn);
+  fastPathForAedesClient(broker.handle(conn) as unknown as Parameters<typeof fastPathForAedesClient>[0]);
+}
+
 export async function startEmbeddedBroker(opts: { host?: string; port: number }): Promise<EmbeddedBroker> {
   const host = opts.host ?? '127.0.0.1';
   const broker = await Aedes.createBroker({ persistence: new IndexedMemoryPersistence() });
@@ -33,10 +43,7 @@ export async function startEmbeddedBroker(opts: { host?: string; port: number })
   // as events; without a listener Node would throw them.
   broker.on('clientError', () => {});
   broker.on('connectionError', () => {});
-  const server = net.createServer((conn) => {
-    coalesceWrites(conn);
-    fastPathForAedesClient(broker.handle(conn) as unknown as Parameters<typeof fastPathForAedesClient>[0]);
-  });
+  const server = net.createServer((conn) => acceptConnection(broker, conn));
   const sockets = new Set<net.Socket>();
   server.on('connection', (s) => {
     sockets.add(s);

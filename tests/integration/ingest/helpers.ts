@@ -5,9 +5,9 @@ import path from 'node:path';
 import { Aedes } from 'aedes';
 import pg from 'pg';
 import pino from 'pino';
-import { coalesceWrites } from '../../../server/broker/coalesce-writes.ts';
+import { acceptConnection } from '../../../server/broker/embedded-broker.ts';
 import { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
-import { fastPathForAedesClient, useFastPathParsers } from '../../../server/broker/publish-fast-path.ts';
+import { useFastPathParsers } from '../../../server/broker/publish-fast-path.ts';
 import type { IngestConfig } from '../../../ingest/config.ts';
 export { freePort } from '../../helpers/net.ts';
 
@@ -16,7 +16,6 @@ export const silentLog = pino({ level: 'silent' });
 export function tempDir(prefix: string): string {
   return fs.mkdtempSync(path.join(os.tmpdir(), `flocstream-${prefix}-`));
 }
-
 
 export function ingestConfig(databaseUrl: string, dataDir: string, over: Partial<IngestConfig> = {}): IngestConfig {
   return { databaseUrl, dataDir, logLevel: 'silent', batchRows: 5_000, writers: 2, flushMs: 100, retentionDays: 400, reloadMs: 500, statusMs: 500, mqttClientIdPrefix: 'it-ingest', mqttTrace: false, ...over };
@@ -51,10 +50,7 @@ export async function startTestBroker(port: number): Promise<TestBroker> {
   const sockets = new Set<net.Socket>();
   const listen = async () => {
     // As the embedded broker does (server/broker/embedded-broker.ts), so the outage tests run on it.
-    server = net.createServer((conn) => {
-      coalesceWrites(conn);
-      fastPathForAedesClient(broker.handle(conn) as unknown as Parameters<typeof fastPathForAedesClient>[0]);
-    });
+    server = net.createServer((conn) => acceptConnection(broker, conn));
     server.on('connection', (s) => {
       sockets.add(s);
       s.on('close', () => sockets.delete(s));
