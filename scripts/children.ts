@@ -75,22 +75,22 @@ export function spawnTs(
 }
 
 /**
- * Resolves with the match of the child's first stdout line that matches `re`; rejects if the
- * child exits first or nothing matches within `timeout_ms`.
+ * Resolves with the match of the first stdout line of a child process that matches `re`; rejects
+ * if the process exits first or nothing matches within `timeout_ms`. `name` is for the messages.
  */
-export function waitForLine(child: Child, re: RegExp, timeout_ms = 30_000): Promise<RegExpMatchArray> {
+export function waitForLine(proc: ChildProcess, name: string, re: RegExp, timeout_ms = 30_000): Promise<RegExpMatchArray> {
   return new Promise((resolve, reject) => {
-    const lines = readline.createInterface({ input: child.proc.stdout! });
+    const lines = readline.createInterface({ input: proc.stdout! });
     const finish = (err: Error | null, m?: RegExpMatchArray) => {
       clearTimeout(t);
       lines.close();
-      child.proc.off('exit', onExit);
+      proc.off('exit', onExit);
       if (err) reject(err);
       else resolve(m!);
     };
-    const onExit = (code: number | null) => finish(new Error(`${child.name} exited (code ${code}) before it was ready`));
-    const t = setTimeout(() => finish(new Error(`${child.name} was not ready within ${timeout_ms / 1000} s`)), timeout_ms);
-    child.proc.once('exit', onExit);
+    const onExit = (code: number | null) => finish(new Error(`${name} exited (code ${code}) before it was ready`));
+    const t = setTimeout(() => finish(new Error(`${name} was not ready within ${timeout_ms / 1000} s`)), timeout_ms);
+    proc.once('exit', onExit);
     lines.on('line', (l) => {
       const m = re.exec(l);
       if (m) finish(null, m);

@@ -62,7 +62,7 @@ async function main(): Promise<void> {
         BROKER_NODE_ARGS,
       );
       stops.push(() => broker.stop());
-      mqttUrl = (await waitForLine(broker, BROKER_READY))[1]!;
+      mqttUrl = (await waitForLine(broker.proc, broker.name, BROKER_READY))[1]!;
     }
 
     if (config.demo) {
