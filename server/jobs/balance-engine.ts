@@ -7,7 +7,7 @@ import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
 import { balanceRepository } from '../repositories/balance.repository.ts';
 import { alarmService } from '../services/alarm.service.ts';
 import { readBalanceInputs } from '../services/balance-inputs.service.ts';
-import { computeBalance } from '../services/balance.service.ts';
+import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import { mailService } from '../services/mail.service.ts';
 import { settingsService } from '../services/settings.service.ts';
 import { notifyStream } from '../services/stream.service.ts';

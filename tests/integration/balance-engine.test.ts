@@ -28,7 +28,7 @@ describe('balance engine against PostgreSQL', () => {
     listener.on('notification', (m) => got.push(m.payload ?? ''));
     await listener.query('LISTEN flocstream_stream');
     const b = await engine.runOnce(plantId);
-    // Numbers: tests/unit/server/balance.service.test.ts (design §3 formulas on the fixture values).
+    // Numbers: tests/unit/domain/balance-assemble.test.ts (design §3 formulas on the fixture values).
     expect(b.data.inventory.totalMass_kg.value).toBeCloseTo(30_000, 6);
     expect(b.data.inventory.storedFraction.value).toBeCloseTo(0.4, 9);
     expect(b.data.trains[0]!.ras.concentrationMargin.value).toBeCloseTo(0.3, 9);

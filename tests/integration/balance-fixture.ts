@@ -6,7 +6,7 @@ import type { PlantLayout } from '../../shared/contracts/plant-layout.ts';
  * One-train plant in the database with steady signals written straight into tag_latest and
  * rollup_1m (no broker, no ingest): Q 800 m³/h, Q_R 600, Q_W 20, MLSS 3.0 g/L, underflow
  * 8.0 g/L, effluent 10 mg/L, blanket 1.0 m, SVI 120 mL/g — the same numbers as the unit-test
- * fixture, whose hand computation (tests/unit/server/balance.service.test.ts) applies here.
+ * fixture, whose hand computation (tests/unit/domain/balance-assemble.test.ts) applies here.
  */
 const tag = (name: string, unit: string, kind: NonNullable<PlantLayout['tags'][number]['signal']>['kind'], target: string, period: number) => ({
   name,
