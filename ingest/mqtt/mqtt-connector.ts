@@ -6,6 +6,7 @@ import { sourceStatusBase, type Connector, type ConnectorStatus, type Connection
 import { TagSet } from '../pipeline/tag-set.ts';
 import type { TagConfig } from '../pipeline/types.ts';
 import type { BatchWriter } from '../sink/batch-writer.ts';
+import type { Discovery } from './discovery.ts';
 import { MqttMessageHandler } from './message-handler.ts';
 
 /** `sources.options` for an MQTT source, validated (house rule 3). */
@@ -101,7 +102,7 @@ export class MqttConnector implements Connector {
     private source: SourceConfig,
     tags: readonly TagConfig[],
     private writer: BatchWriter,
-    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean },
+    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean; discovery?: Discovery },
   ) {
     this.sourceId = source.id;
     const parsed = mqttSourceOptions.safeParse(source.options ?? {});
@@ -109,7 +110,7 @@ export class MqttConnector implements Connector {
     if (!parsed.success) this.lastError = `invalid source options, using defaults: ${parsed.error.issues.map((i) => i.message).join('; ')}`;
     this.protocol = this.opts.protocolVersion === 4 ? 4 : 5;
     this.tags.update(tags);
-    this.handler = new MqttMessageHandler(source.id, this.tags);
+    this.handler = new MqttMessageHandler(source.id, this.tags, ctx.discovery);
     this.offPressure = writer.onPressure((high) => {
       if (high) return;
       const resume = this.stalled;
@@ -303,10 +304,6 @@ export class MqttConnector implements Connector {
 
   updateTags(tags: readonly TagConfig[]): void {
     if (this.tags.update(tags)) this.handler.rebuild();
-  }
-
-  discovery() {
-    return this.handler.discovery.list();
   }
 
   status(now: number): ConnectorStatus {

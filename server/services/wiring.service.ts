@@ -1,6 +1,4 @@
 import { randomBytes } from 'node:crypto';
-import fs from 'node:fs/promises';
-import path from 'node:path';
 import type { Request } from 'express';
 import mqtt from 'mqtt';
 import { SIGNAL_KINDS } from '../../shared/contracts/plant-layout.ts';
@@ -12,7 +10,6 @@ import {
   TAG_CSV_COLUMNS,
   TAG_CSV_MAX_ROWS,
   TAG_CSV_REQUIRED,
-  discoveryFile,
   tagCreate,
   type ConnectionTestOut,
   type MappingOut,
@@ -34,7 +31,8 @@ import { zodFields } from '../http/validate.ts';
 import { uniqueViolation, wiringRepository, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow } from '../repositories/wiring.repository.ts';
 import { audit } from './audit.service.ts';
 import { parseCsv } from './csv.service.ts';
-import { browseChildren, serverPkiDir, testOpcua } from './opcua-browse.service.ts';
+import { opcuaBrowseService } from './opcua-browse.service.ts';
+import { ingestRepository } from '../repositories/ingest.repository.ts';
 
 /** MQTT "test connection" budget: CONNECT → CONNACK within this [ms]. */
 export const MQTT_TEST_TIMEOUT_MS = 5_000;
@@ -138,7 +136,7 @@ export async function testMqtt(s: Pick<SourceRow, 'id' | 'url' | 'username' | 's
  */
 export function wiringService(ctx: AppContext) {
   const repo = wiringRepository(ctx.db.db);
-  const pkiDir = serverPkiDir(ctx.config.dataDir);
+  const opcua = opcuaBrowseService(ctx);
 
   async function requireSource(req: Request, id: number) {
     const r = await repo.source(id);
@@ -254,7 +252,7 @@ export function wiringService(ctx: AppContext) {
 
     async testSource(req: Request, id: number): Promise<ConnectionTestOut> {
       const { source } = await requireSource(req, id);
-      const out = source.kind === 'mqtt' ? await testMqtt(source) : await testOpcua(source, pkiDir);
+      const out = source.kind === 'mqtt' ? await testMqtt(source) : await opcua.test(source);
       ctx.log.info({ source: id, ok: out.ok, latency_ms: out.latency_ms, error: out.error }, 'source connection test');
       return out;
     },
@@ -262,29 +260,17 @@ export function wiringService(ctx: AppContext) {
     async browse(req: Request, id: number, nodeId: string | undefined) {
       const { source } = await requireSource(req, id);
       if (source.kind !== 'opcua') throw new ValidationError({ sourceId: ['browsing is for OPC UA sources; an MQTT source lists its topics under /discovery'] });
-      return { sourceId: id, ...(await browseChildren(source, pkiDir, nodeId)) };
+      return { sourceId: id, ...(await opcua.browse(source, nodeId)) };
     },
 
-    /** Topics ingest has seen on an MQTT source, from `<dataDir>/ingest-discovery/source-<id>.json`. */
+    /** Topics ingest has seen on an MQTT source (table `mqtt_discovery`, written by ingest). */
     async discovery(req: Request, id: number) {
       const { source } = await requireSource(req, id);
       if (source.kind !== 'mqtt') throw new ValidationError({ sourceId: ['discovery lists MQTT topics; browse an OPC UA source instead'] });
-      const file = path.join(ctx.config.dataDir, 'ingest-discovery', `source-${id}.json`);
-      let text: string, mtime: Date;
-      try {
-        [text, mtime] = await Promise.all([fs.readFile(file, 'utf8'), fs.stat(file).then((s) => s.mtime)]);
-      } catch {
-        return { sourceId: id, asOf: null, topics: [], note: source.enabled ? 'ingest has not listed topics for this source yet (it writes the list every few seconds while it is connected)' : 'the source is disabled, so ingest does not connect to it' };
-      }
-      let json: unknown;
-      try {
-        json = JSON.parse(text);
-      } catch {
-        json = undefined;
-      }
-      const r = discoveryFile.safeParse(json);
-      if (!r.success) return { sourceId: id, asOf: mtime.toISOString(), topics: [], note: 'the topic list written by ingest could not be read (a different ingest version?)' };
-      return { sourceId: id, asOf: mtime.toISOString(), topics: r.data };
+      const rows = await ingestRepository(ctx.db.db).discovery(id);
+      if (!rows.length) return { sourceId: id, asOf: null, topics: [], note: source.enabled ? 'ingest has not listed topics for this source yet (it saves them every few seconds while it is connected)' : 'the source is disabled, so ingest does not connect to it' };
+      const asOf = new Date(Math.max(...rows.map((r) => r.lastSeen.getTime())));
+      return { sourceId: id, asOf: asOf.toISOString(), topics: rows.map((r) => ({ ...r, firstSeen: r.firstSeen.toISOString(), lastSeen: r.lastSeen.toISOString() })) };
     },
 
     // ---- tags ----

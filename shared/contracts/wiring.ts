@@ -10,8 +10,8 @@ import { SIGNAL_KINDS, signalKind } from './plant-layout.ts';
  * only `hasSecret`. Option objects are the ones the ingest process reads from `sources.options`
  * (it strips unknown keys, so only keys it honours are accepted here).
  *
- * The ingest status and MQTT discovery files are written by the ingest process; the server only
- * reads them, so their shapes are re-declared here (validated on read, never imported).
+ * The ingest status rows (`ingest_workers.status`) and the MQTT discovery rows are written by the
+ * ingest process and read by the server; their shapes live here, validated on read.
  */
 
 const id = (what: string) => z.coerce.number().int().positive().max(2_147_483_647).meta({ description: what });
@@ -160,12 +160,18 @@ export const browseNode = z.object({
 export type BrowseNode = z.infer<typeof browseNode>;
 export const browseOut = z.object({ sourceId: z.number().int(), nodeId: z.string(), children: z.array(browseNode) });
 
-// ---- MQTT discovery (file written by ingest) ----
-export const discoveredTopic = z.object({ topic: z.string(), lastPayload: z.string(), lastSeen: z.string(), count: z.number(), tagId: z.number().nullable() });
-export const discoveryFile = z.array(discoveredTopic);
+// ---- MQTT discovery (table mqtt_discovery, written by ingest) ----
+export const discoveredTopic = z.object({
+  topic: z.string(),
+  lastPayload: z.string().meta({ description: 'first 256 characters of the last payload' }),
+  firstSeen: z.string().optional(),
+  lastSeen: z.string(),
+  count: z.number().meta({ description: 'messages seen, summed over every ingest worker' }),
+  tagId: z.number().nullable(),
+});
 export const discoveryOut = z.object({
   sourceId: z.number().int(),
-  asOf: z.string().nullable().meta({ description: 'when ingest wrote the list; null when it has not' }),
+  asOf: z.string().nullable().meta({ description: 'the latest lastSeen of the list; null when ingest has listed no topic yet' }),
   topics: z.array(discoveredTopic),
   note: z.string().optional(),
 });
@@ -331,8 +337,8 @@ export const tagImportOut = z.object({
 });
 export type TagImportOut = z.infer<typeof tagImportOut>;
 
-// ---- ingest status (file written by ingest) ----
-export const connectorStatusFile = z
+// ---- ingest status (table ingest_workers, written by ingest) ----
+export const connectorStatus = z
   .object({
     sourceId: z.number(),
     name: z.string(),
@@ -353,37 +359,56 @@ export const connectorStatusFile = z
     details: z.record(z.string(), z.unknown()),
   })
   .loose();
-export const ingestStatusFile = z
+/** `ingest_workers.status`: what one ingest worker reports with each heartbeat. */
+export const ingestWorkerStatus = z
   .object({
-    pid: z.number(),
-    startedAt: z.string(),
-    heartbeatAt: z.iso.datetime({ offset: true }),
+    /** Samples committed per second over the last heartbeat period. */
     samplesPerSec: z.number(),
+    /** Receive → commit delay of the last flush [ms]. */
     lagMs: z.number(),
     spool: z.object({ bytes: z.number(), files: z.number() }),
     writer: z.record(z.string(), z.unknown()),
-    sources: z.array(connectorStatusFile),
+    sources: z.array(connectorStatus),
     loadError: z.string().nullable(),
   })
   .loose();
-export type IngestStatusFile = z.infer<typeof ingestStatusFile>;
+export type IngestWorkerStatus = z.infer<typeof ingestWorkerStatus>;
 
-/** Heartbeat older than this → ingest is reported as not running [s]. */
-export const INGEST_HEARTBEAT_MAX_AGE_S = 10;
+/** A worker runs while its last heartbeat is younger than this many of its heartbeat periods. */
+export const INGEST_HEARTBEAT_PERIODS = 3;
+
+export const ingestWorkerOut = z.object({
+  id: z.string(),
+  host: z.string(),
+  pid: z.number().int(),
+  startedAt: z.string(),
+  heartbeatAt: z.string(),
+  heartbeatAge_s: z.number(),
+  heartbeat_ms: z.number().int().meta({ description: 'the worker\'s heartbeat period [ms]' }),
+  running: z.boolean().meta({ description: `heartbeat younger than ${INGEST_HEARTBEAT_PERIODS} periods and not stopped` }),
+  stoppedAt: z.string().nullable().meta({ description: 'set by a clean stop' }),
+  samplesPerSec: z.number().nullable(),
+  lagMs: z.number().nullable(),
+  spool: z.object({ bytes: z.number(), files: z.number() }).nullable(),
+  sourceIds: z.array(z.number().int()),
+  loadError: z.string().nullable(),
+});
+export type IngestWorkerOut = z.infer<typeof ingestWorkerOut>;
 
 export const ingestStatusOut = z.object({
-  running: z.boolean(),
+  running: z.boolean().meta({ description: 'at least one ingest worker has a fresh heartbeat' }),
   reason: z.string().optional().meta({ description: 'why running is false' }),
-  heartbeatAt: z.string().nullable(),
+  heartbeatAt: z.string().nullable().meta({ description: 'the latest heartbeat of any worker' }),
   heartbeatAge_s: z.number().nullable(),
-  pid: z.number().nullable(),
+  pid: z.number().nullable().meta({ description: 'the worker with the latest heartbeat' }),
   startedAt: z.string().nullable(),
-  samplesPerSec: z.number().nullable(),
-  lagMs: z.number().nullable().meta({ description: 'receive → commit delay of the last flush [ms]' }),
-  spool: z.object({ bytes: z.number(), files: z.number() }).nullable(),
-  writer: z.record(z.string(), z.unknown()).nullable(),
+  samplesPerSec: z.number().nullable().meta({ description: 'summed over running workers (the last worker\'s figure when none runs)' }),
+  lagMs: z.number().nullable().meta({ description: 'receive → commit delay of the last flush [ms], the largest of the running workers' }),
+  spool: z.object({ bytes: z.number(), files: z.number() }).nullable().meta({ description: 'summed over the workers shown' }),
+  writer: z.record(z.string(), z.unknown()).nullable().meta({ description: 'writer counters of the worker with the latest heartbeat' }),
   loadError: z.string().nullable(),
-  sources: z.array(connectorStatusFile),
+  sources: z.array(connectorStatus).meta({ description: 'connection state per source, from every running worker (the last worker when none runs)' }),
   deadLetters: z.object({ lastHour: z.number().int(), total: z.number().int() }).meta({ description: 'rows in dead_letters (undecodable or unmapped messages)' }),
+  workers: z.array(ingestWorkerOut).meta({ description: 'every worker heard from in the last day, latest heartbeat first' }),
 });
 export type IngestStatusOut = z.infer<typeof ingestStatusOut>;
