@@ -3,9 +3,11 @@ import path from 'node:path';
 import readline from 'node:readline';
 
 /**
- * The terminal shows what a person starting the product needs: pino lines below warn stay in
- * the child's own log file, and node-opcua's notice about Node 20's RSA PKCS#1 v1.5 revert flag
- * (NODE-OPCUA-W27; we use no PKCS#1 v1.5 padding) is dropped.
+ * The terminal shows what a person starting the product needs: pino lines below warn are not
+ * echoed (the API and ingest write every line to their own file, `<dataDir>/logs/server.log`
+ * and `<dataDir>/logs/ingest.log`, and only warnings and errors to stderr), and node-opcua's
+ * notice about Node 20's RSA PKCS#1 v1.5 revert flag (NODE-OPCUA-W27; we use no PKCS#1 v1.5
+ * padding) is dropped.
  */
 let skipNext = false;
 function keepLine(line: string): boolean {

@@ -103,6 +103,7 @@ async function main(): Promise<void> {
     }
 
     say(`monitor and API at ${server.url}  (OpenAPI: ${server.url}/api/v1/openapi.json)`);
+    say(`logs: ${path.join(config.dataDir, 'logs')} (server.log, ingest.log; warnings and errors also here)`);
     for (const c of server.credentials.filter((c) => !c.email.startsWith('demo-'))) {
       say(`first admin: ${c.email}  password: ${c.password}  (shown once)`);
     }

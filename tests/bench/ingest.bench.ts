@@ -234,14 +234,10 @@ try {
     stdio: ['ignore', 'inherit', 'inherit'],
   });
   cleanup.push(() => child.kill('SIGKILL'));
-  const statusFile = path.join(dataDir, 'ingest-status.json');
+  // Ingest's heartbeat row (ingest_workers) says when its connector is up.
+  const workerStatus = async () => (await pool.query(`SELECT status FROM ingest_workers WHERE pid = $1 ORDER BY heartbeat_at DESC LIMIT 1`, [child.pid])).rows[0]?.status;
   for (let i = 0; ; i++) {
-    try {
-      const st = JSON.parse(fs.readFileSync(statusFile, 'utf8'));
-      if (st.sources?.[0]?.state === 'connected') break;
-    } catch {
-      // not written yet
-    }
+    if ((await workerStatus())?.sources?.[0]?.state === 'connected') break;
     if (i > 300) throw new Error('ingest did not connect');
     await sleep(100);
   }
@@ -381,7 +377,7 @@ try {
   const statusText = fs.readFileSync(`/proc/${child.pid}/status`, 'utf8');
   const hwm = /VmHWM:\s+(\d+) kB/.exec(statusText);
   results.peakRssMb = hwm ? Math.round(Number(hwm[1]) / 1024) : NaN;
-  const st = JSON.parse(fs.readFileSync(statusFile, 'utf8'));
+  const st = await workerStatus();
   notes.push(`ingest status: ${st.writer.flushes} flushes, ${st.writer.stagedFlushes} via staging, ${st.writer.pressureEvents} backpressure pauses, ${st.sources[0].deadLetters} dead letters`);
 
   child.kill('SIGTERM');
