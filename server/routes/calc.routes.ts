@@ -1,6 +1,8 @@
 import type { Request } from 'express';
 import type { z } from 'zod';
 import {
+  dynamicSrtRequest,
+  dynamicSrtResponse,
   settlerRequest,
   settlerResponse,
   srtRequest,
@@ -12,7 +14,7 @@ import {
   sviRequest,
   sviResponse,
 } from '../../shared/contracts/calc.ts';
-import { calcSettler, calcSrt, calcStatePoint, calcStorm, calcSvi } from '../../shared/domain/calculators.ts';
+import { calcDynamicSrt, calcSettler, calcSrt, calcStatePoint, calcStorm, calcSvi } from '../../shared/domain/calculators.ts';
 import type { AppContext } from '../app-context.ts';
 import type { RouteDef } from '../http/route.ts';
 
@@ -37,5 +39,6 @@ export function calcRoutes(_ctx: AppContext): RouteDef[] {
     calc('settler', 'Layered 1-D settler steady state (Takács double-exponential settling, BSM1 defaults)', settlerRequest, settlerResponse, calcSettler),
     calc('srt', 'Sludge age (total and aeration-only) and the WAS flow for a target SRT', srtRequest, srtResponse, calcSrt),
     calc('svi', 'Settleability index: SVI, DSVI (diluted) or SSVI', sviRequest, sviResponse, calcSvi),
+    calc('dynamic-srt', 'Dynamic SRT of a series: the age balance d(M·θ)/dt = M − W·θ, inputs linear between points', dynamicSrtRequest, dynamicSrtResponse, calcDynamicSrt),
   ];
 }

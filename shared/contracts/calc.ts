@@ -222,6 +222,42 @@ export const sviResponse = z
   .strict()
   .meta({ id: 'SviResponse' });
 
+// ---- dynamic SRT ----
+export const dynamicSrtPoint = z
+  .object({
+    t_h: num('time of the point [h], any origin; strictly increasing').min(-1e6).max(1e6),
+    inventory_kg: num('sludge inventory M (aeration + clarifiers) [kg]').positive().max(1e9),
+    wasted_kgh: num('solids removal W = Q_W·X_W + Q_e·X_e (wasting and effluent, not the production) [kg/h]').min(0).max(1e7),
+  })
+  .strict();
+
+export const dynamicSrtRequest = z
+  .object({
+    points: z.array(dynamicSrtPoint).min(1).max(100_000).meta({ description: 'inputs, taken linear between points' }),
+    initialSrt_d: num('sludge age at the first point [d]').min(0).max(1000),
+  })
+  .strict()
+  .superRefine((r, ctx) => {
+    for (let i = 1; i < r.points.length; i++) {
+      const a = r.points[i - 1]!.t_h;
+      const b = r.points[i]!.t_h;
+      if (Number.isFinite(a) && Number.isFinite(b) && !(b > a)) {
+        ctx.addIssue({ code: 'custom', message: 't_h must increase strictly from point to point', path: ['points', i, 't_h'] });
+        return;
+      }
+    }
+  })
+  .meta({ id: 'DynamicSrtRequest', description: 'Dynamic SRT on the age balance d(M·θ)/dt = M − W·θ of your own series' });
+
+export const dynamicSrtResponse = z
+  .object({
+    srt_d: z.array(z.number()).meta({ description: 'mass-weighted mean sludge age θ at each point [d]' }),
+    caution: z.string().meta({ description: 'advisory caution' }),
+    ...qualityFields,
+  })
+  .strict()
+  .meta({ id: 'DynamicSrtResponse' });
+
 export type StormRequest = z.infer<typeof stormRequest>;
 export type StormResponse = z.infer<typeof stormResponse>;
 export type StatePointRequest = z.infer<typeof statePointRequest>;
@@ -232,3 +268,5 @@ export type SrtRequest = z.infer<typeof srtRequest>;
 export type SrtResponse = z.infer<typeof srtResponse>;
 export type SviRequest = z.infer<typeof sviRequest>;
 export type SviResponse = z.infer<typeof sviResponse>;
+export type DynamicSrtRequest = z.infer<typeof dynamicSrtRequest>;
+export type DynamicSrtResponse = z.infer<typeof dynamicSrtResponse>;

@@ -5,6 +5,8 @@
  * calls the same domain functions, so the calculators and the monitor cannot disagree.
  */
 import type {
+  DynamicSrtRequest,
+  DynamicSrtResponse,
   SettlerRequest,
   SettlerResponse,
   SrtRequest,
@@ -23,7 +25,8 @@ import { minRecycleRatio } from './ras-margin.js';
 import { blanketHeight_m, BSM1_SETTLER, BSM1_TAKACS, solveSettlerSteadyState, type SettlerConfig } from './settler.js';
 import { settleabilityIndex } from './settleability.js';
 import { vesilindFromIndex } from './settling.js';
-import { srt, wasFlowForTargetSrt_m3h } from './srt.js';
+import { OPERATOR_CAUTION } from '../contracts/balance.js';
+import { dynamicSrt, srt, wasFlowForTargetSrt_m3h } from './srt.js';
 import { statePoint } from './state-point.js';
 import { stormProjection } from './storm.js';
 
@@ -149,3 +152,16 @@ export function calcSvi(req: SviRequest): SviResponse {
   return { svi_mLg: r.value.svi_mLg, kind: r.value.kind, ...summary(r) };
 }
 
+
+/**
+ * Dynamic SRT calculator: the age balance d(M·θ)/dt = M − W·θ (see {@link dynamicSrt}; after
+ * Takács et al. 2008 [M]) over the analyst's own series, inputs linear between points, from the
+ * given initial age. One age per point, in days.
+ */
+export function calcDynamicSrt(req: DynamicSrtRequest): DynamicSrtResponse {
+  const r = dynamicSrt(
+    req.points.map((p) => ({ ts_ms: p.t_h * 3_600_000, mass_kg: p.inventory_kg, removal_kgh: p.wasted_kgh })),
+    req.initialSrt_d,
+  );
+  return { srt_d: r.value?.map((p) => p.srt_d) ?? [], caution: OPERATOR_CAUTION, ...summary(r) };
+}

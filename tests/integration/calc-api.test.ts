@@ -1,6 +1,7 @@
 import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { stormResponse, statePointResponse, settlerResponse, srtResponse, sviResponse } from '../../shared/contracts/calc.ts';
+import { dynamicSrtResponse, stormResponse, statePointResponse, settlerResponse, srtResponse, sviResponse } from '../../shared/contracts/calc.ts';
+import { OPERATOR_CAUTION } from '../../shared/contracts/balance.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
 
 const storm = { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, svi_mLg: 120, aerationVolume_m3: 12000, clarifierArea_m2: 1400, stormFlow_m3h: 3000 };
@@ -77,6 +78,20 @@ describe('calculator API', () => {
     }
     const dilute = await post('svi', { settledVolume_mLL: 400, mlss_gL: 3 });
     expect(dilute.body.error.fields.settledVolume_mLL.join(' ')).toMatch(/dilute and repeat/);
+  });
+
+  it('dynamic SRT of a series: the issue 16 example (42 000 → 46 200 kg over 48 h at 130 kg/h removal) gives 12.41 d', async () => {
+    // Age balance d(M·θ)/dt = M − W·θ from θ0 = M/W = 42 000/130 h = 13.46 d; an RK4 of dθ/dt = 1 − θ·(W + dM/dt)/M gives 12.406 d (tests/unit/domain/srt.test.ts).
+    const r = await post('dynamic-srt', { points: [{ t_h: 0, inventory_kg: 42000, wasted_kgh: 130 }, { t_h: 48, inventory_kg: 46200, wasted_kgh: 130 }], initialSrt_d: 42000 / 130 / 24 });
+    expect(r.status).toBe(200);
+    dynamicSrtResponse.parse(r.body);
+    expect(r.body.srt_d).toHaveLength(2);
+    expect(r.body.srt_d[0]).toBeCloseTo(13.4615, 4);
+    expect(r.body.srt_d[1]).toBeCloseTo(12.406, 3);
+    expect(r.body.caution).toBe(OPERATOR_CAUTION);
+    const back = await post('dynamic-srt', { points: [{ t_h: 0, inventory_kg: 1, wasted_kgh: 1 }, { t_h: 0, inventory_kg: 1, wasted_kgh: 1 }], initialSrt_d: 1 });
+    expect(back.status).toBe(422);
+    expect(Object.keys(back.body.error.fields)).toContain('points.1.t_h');
   });
 
   it('needs credentials', async () => {

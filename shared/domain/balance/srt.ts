@@ -1,6 +1,6 @@
 /**
  * Sludge age of the live balance (design §3 item 5): the rolling SRT over the window from the
- * trains' measured series (rollingSrt), the dynamic SRT after Takács et al. (2008) (dynamicSrt),
+ * trains' measured series (rollingSrt), the dynamic SRT on the age balance (dynamicSrt),
  * and the WAS flow that holds the target SRT (wasFlowForTargetSrt_m3h), plant totals of the trains.
  */
 import { estimated, fromFigures, propagate, sumFigures, unavailable, type Figure } from '../quality.js';
@@ -67,24 +67,25 @@ export function plantRollingSrt(trains: readonly TrainSrtSeries[], end_ms: numbe
 }
 
 /**
- * Dynamic SRT at the end of the window (dynamicSrt, Takács et al. 2008, reconstructed [M]):
- * integrated over the minutes with both an inventory M and a production rate P, from the
- * steady-state age M/P at the first of them. `production_kgh` is the solids production the age
- * is computed with; today the engine passes the solids loss Σ(Q_W·X_W + Q_e·X_e), its
- * steady-state value. Estimated always (the start age is assumed), unavailable with fewer than
+ * Dynamic SRT at the end of the window (dynamicSrt: the age balance d(M·θ)/dt = M − W·θ, after
+ * Takács et al. 2008 [M]) from what the engine measures: the inventory M minute by minute and
+ * the solids removal W = Σ(Q_W·X_W + Q_e·X_e). The production P = W + dM/dt is implied by the
+ * inventory's change (passing W where the age needs P read the age high while the inventory
+ * built up). Integrated over the minutes with both M and W, from the steady-state age M/W at
+ * the first of them. Estimated always (the start age is assumed), unavailable with fewer than
  * two minutes; `effluentMissing` adds the reason that effluent solids were taken as 0.
  */
-export function plantDynamicSrt(mass_kg: MinuteSeries, production_kgh: MinuteSeries, window_h: number, effluentMissing: boolean): Figure<number> {
+export function plantDynamicSrt(mass_kg: MinuteSeries, removal_kgh: MinuteSeries, window_h: number, effluentMissing: boolean): Figure<number> {
   const samples = [...mass_kg]
-    .filter(([t]) => production_kgh.has(t))
-    .map(([ts_ms, m]) => ({ ts_ms, mass_kg: m, production_kgh: production_kgh.get(ts_ms)! }))
+    .filter(([t]) => removal_kgh.has(t))
+    .map(([ts_ms, m]) => ({ ts_ms, mass_kg: m, removal_kgh: removal_kgh.get(ts_ms)! }))
     .sort((a, b) => a.ts_ms - b.ts_ms);
   if (samples.length < 2) return unavailable(`fewer than two complete minutes of inventory and wasting in the ${window_h} h window`);
   const d = dynamicSrt(samples);
   const last = d.value?.[d.value.length - 1];
   if (last === undefined) return unavailable(...d.reasons);
   const span_h = (samples[samples.length - 1]!.ts_ms - samples[0]!.ts_ms) / 3_600_000;
-  const f = estimated(last.srt_d, ...d.reasons, `integrated over ${span_h.toFixed(1)} h from the steady-state age at the window start (Takács et al. 2008, reconstructed [M])`);
+  const f = estimated(last.srt_d, ...d.reasons, `age balance integrated over ${span_h.toFixed(1)} h from the steady-state age M/W at the window start (after Takács et al. 2008 [M])`);
   return effluentMissing && f.value !== null ? propagate(f, { quality: 'estimated', reasons: [EFFLUENT_TSS_NOT_MEASURED] }) : f;
 }
 
