@@ -17,7 +17,15 @@ export type FigureOut = z.infer<typeof figureOut>;
 
 export const stormCheckOut = z.object({ rule: z.enum(['min-mlss', 'max-stored-fraction', 'max-blanket-rise']), ok: z.boolean(), value: z.number(), limit: z.number() });
 
-export const balanceBasinOut = z.object({ code: z.string(), train: z.string(), volume_m3: z.number(), mlss_gL: figureOut, mass_kg: figureOut });
+export const balanceBasinOut = z.object({
+  code: z.string(),
+  train: z.string(),
+  volume_m3: z.number(),
+  /** Aerated fraction of the volume 0 … 1 from the plant model (1 when the model does not say). */
+  aeratedFraction: z.number(),
+  mlss_gL: figureOut,
+  mass_kg: figureOut,
+});
 export const balanceClarifierOut = z.object({
   code: z.string(),
   train: z.string(),
@@ -70,7 +78,12 @@ export const balanceDataOut = z.object({
   storm: z.object({ peakFlow_m3h: figureOut, source: z.enum(['plant', 'setting', 'none']) }),
   srt: z.object({
     total_d: figureOut,
+    /** Basin (aeration-tank) SRT: all basin mass, aerated or not, over the solids removal. */
     aeration_d: figureOut,
+    /** Aerobic SRT: the aerated basin mass Σ(Vᵢ·Xᵢ·fᵢ) over the solids removal (mass basis). */
+    aerobic_d: figureOut,
+    /** Present aerobic share of the basin mass Σ(Vᵢ·Xᵢ·fᵢ)/Σ(Vᵢ·Xᵢ) [-]. */
+    aerobicFraction: figureOut,
     coverage: z.number(),
     dynamic_d: figureOut,
     target_d: z.number(),

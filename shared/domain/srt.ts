@@ -56,6 +56,29 @@ export function wasFlowForTargetSrt_m3h(mass_kg: number, targetSrt_d: number, ef
   return good(qw);
 }
 
+/** A basin as the aerobic SRT weighs it. */
+export interface AerobicBasin {
+  volume_m3: number;
+  mlss_gL: number;
+  /** Aerated fraction of the volume, 0 … 1. */
+  aeratedFraction: number;
+}
+
+/**
+ * Aerobic share of the basin inventory on a mass basis, Σ(Vᵢ·Xᵢ·fᵢ)/Σ(Vᵢ·Xᵢ) with fᵢ the
+ * aerated fraction of basin i: the aerobic SRT is the basin SRT × this share, i.e. the aerated
+ * sludge mass over the solids removal rate (the usual definition of the aerobic SRT, e.g.
+ * Metcalf & Eddy 5th ed. 2014, ch. 7 [M for the chapter]). Clarifier sludge is not aerated and is
+ * not counted. Unavailable without basin mass or with a fraction outside 0–1.
+ */
+export function aerobicMassFraction(basins: readonly AerobicBasin[]): Figure<number> {
+  if (basins.some((b) => !(b.aeratedFraction >= 0 && b.aeratedFraction <= 1))) return unavailable('aerated fraction must lie in 0 … 1');
+  if (!basins.every((b) => Number.isFinite(b.volume_m3) && Number.isFinite(b.mlss_gL) && b.volume_m3 >= 0 && b.mlss_gL >= 0)) return unavailable('basin volumes and MLSS must be finite and ≥ 0');
+  const mass = basins.reduce((a, b) => a + b.volume_m3 * b.mlss_gL, 0);
+  if (!(mass > 0)) return unavailable('no sludge in the basins');
+  return good(basins.reduce((a, b) => a + b.volume_m3 * b.mlss_gL * b.aeratedFraction, 0) / mass);
+}
+
 /** One time-series sample: epoch milliseconds, value (null for a missing/bad sample), optional quality. */
 export interface TimedSample {
   ts_ms: number;

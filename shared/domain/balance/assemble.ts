@@ -14,7 +14,7 @@ import { basinMass_kg, blanketMassSeries, blanketRate_m_h, clarifierArea_m2, cla
 import { rasConcMaxFromSvi_gL, trainRasMargins } from './ras.js';
 import { joinSeries, meanSeries, sumSeries, weightedSumSeries } from './series.js';
 import { readSignals, settleability, type Signals } from './signals.js';
-import { effluentTssMissing, plantDynamicSrt, plantMassSeries, plantRollingSrt, solidsLossSeries, wasAdvice, type TrainSrtSeries } from './srt.js';
+import { effluentTssMissing, plantAerobicSrt, plantDynamicSrt, plantMassSeries, plantRollingSrt, solidsLossSeries, wasAdvice, type TrainSrtSeries } from './srt.js';
 import { stormPeakFlow, stormShare, trainStorm, trainStormFlow_m3h } from './storm.js';
 
 const H = 3_600_000;
@@ -64,7 +64,7 @@ function trainFigures(t: TrainLayout, ctx: PlantContext): TrainFigures {
     const x = sig.figure('basin.mlss', 'basin', b.id, b.code);
     const m = basinMass_kg(x, b.volume_m3);
     basinMasses.push(m);
-    basins.push({ code: b.code, train: t.code, volume_m3: b.volume_m3, mlss_gL: withUnit(x, 'g/L'), mass_kg: withUnit(m, 'kg') });
+    basins.push({ code: b.code, train: t.code, volume_m3: b.volume_m3, aeratedFraction: b.aeratedFraction ?? 1, mlss_gL: withUnit(x, 'g/L'), mass_kg: withUnit(m, 'kg') });
   }
   const mlss_gL = trainMlss_gL(basinMasses, volume_m3, t.code);
   const basinFlows = t.basins.map((b) => sig.figure('basin.influentFlow', 'basin', b.id, b.code));
@@ -138,6 +138,7 @@ function trainFigures(t: TrainLayout, ctx: PlantContext): TrainFigures {
   const wasWindow = pumpFlowSeries(was, from);
   const srtSeries: TrainSrtSeries = {
     aerationMass_kg: weightedSumSeries(basinSeries('basin.mlss', from), t.basins.map((b) => b.volume_m3)),
+    aerobicMass_kg: weightedSumSeries(basinSeries('basin.mlss', from), t.basins.map((b) => b.volume_m3 * (b.aeratedFraction ?? 1))),
     clarifierMass_kg: sumSeries(
       t.clarifiers.map((c, i) => blanketMassSeries({ method, clarifier: c, level: sig.series('clarifier.blanketLevel', 'clarifier', c.id, from), rasConc: underflow[i]!, mlss: mlssWindow })),
     ),
@@ -225,6 +226,7 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
   const srtSeries = trains.map((t) => t.srtSeries);
   const rolling = plantRollingSrt(srtSeries, clock, s['srt.window_h']);
   const dynamic = plantDynamicSrt(plantMassSeries(srtSeries).total_kg, solidsLossSeries(srtSeries), s['srt.window_h'], effluentTssMissing(srtSeries));
+  const aerobic = plantAerobicSrt(rolling.aerobic_d, layout, trains.flatMap((t) => t.basins));
   const target_d = s['srt.target_d'];
   const advice = wasAdvice(
     trains.map((t) => ({ influentFlow_m3h: t.influentFlow_m3h, wasFlow_m3h: t.wasFlow_m3h, rasConc_gL: t.rasConc_gL, effluentTss_gL: t.effluentTss_gL })),
@@ -247,6 +249,8 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
     srt: {
       total_d: withUnit(rolling.total_d, 'd'),
       aeration_d: withUnit(rolling.aeration_d, 'd'),
+      aerobic_d: withUnit(aerobic.srt_d, 'd'),
+      aerobicFraction: withUnit(aerobic.fraction, '-'),
       coverage: Math.round(rolling.coverage * 1000) / 1000,
       dynamic_d: withUnit(dynamic, 'd'),
       target_d,

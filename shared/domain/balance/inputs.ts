@@ -53,6 +53,11 @@ export interface BasinLayout {
   id: number;
   code: string;
   volume_m3: number;
+  /**
+   * Aerated fraction of the basin's volume, 0 (anoxic/anaerobic) … 1 (fully aerated), from the
+   * plant model; taken as 1 when absent (said so on the aerobic SRT).
+   */
+  aeratedFraction?: number;
 }
 export interface ClarifierLayout {
   id: number;

@@ -173,3 +173,18 @@ describe('computeBalance: missing, stale and bad inputs', () => {
     expect(b.data.basins[0]!.mlss_gL.reasons.join()).toMatch(/unit 'm' does not fit signal basin.mlss/);
   });
 });
+
+describe('computeBalance: aerobic SRT from the basins\' aerated fraction', () => {
+  it('fixture basin 70 % aerated: aerobic SRT = 0.7 × 18 000/167.8/24 = 3.12873 d (mass basis); unset fraction is said', () => {
+    const inp = fixtureInputs();
+    inp.layout.trains[0]!.basins[0]!.aeratedFraction = 0.7;
+    const d = computeBalance(inp, settings()).data;
+    expect(d.basins[0]!.aeratedFraction).toBe(0.7);
+    expect(d.srt.aerobicFraction.value).toBeCloseTo(0.7, 12);
+    expect(d.srt.aerobic_d.value).toBeCloseTo((0.7 * 18_000) / 167.8 / 24, 6);
+    expect(d.srt.aeration_d.value).toBeCloseTo(4.46961, 4);
+    const unset = computeBalance(fixtureInputs(), settings()).data.srt;
+    expect(unset.aerobic_d.value).toBeCloseTo(4.46961, 4);
+    expect(unset.aerobic_d.reasons.join(' ')).toMatch(/aerated fraction not set .* ab1: taken as fully aerated/);
+  });
+});

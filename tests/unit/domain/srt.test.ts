@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { dynamicSrt, EFFLUENT_TSS_NOT_MEASURED, rollingSrt, srt, wasFlowForTargetSrt_m3h, type TimedSample } from '../../../shared/domain/srt.js';
+import { aerobicMassFraction, dynamicSrt, EFFLUENT_TSS_NOT_MEASURED, rollingSrt, srt, wasFlowForTargetSrt_m3h, type TimedSample } from '../../../shared/domain/srt.js';
 
 const H = 3_600_000;
 
@@ -212,5 +212,19 @@ describe('dynamic SRT on the age balance d(M·θ)/dt = M − W·θ (after Takác
     expect(dynamicSrt([{ ts_ms: 0, mass_kg: 1000, removal_kgh: 0 }]).value).toBeNull();
     const d = dynamicSrt([{ ts_ms: 0, mass_kg: 1000, removal_kgh: 10 }, { ts_ms: H, mass_kg: 0, removal_kgh: 10 }]);
     expect(d).toMatchObject({ quality: 'estimated', reasons: ['1 invalid sample(s) ignored'] });
+  });
+});
+
+describe('aerobic SRT on a mass basis: SRT_aerobic = SRT_basins × Σ(Vᵢ·Xᵢ·fᵢ)/Σ(Vᵢ·Xᵢ) (aerated mass over removal; Metcalf & Eddy 5th ed. ch. 7 [M])', () => {
+  it('an anoxic zone of 2000 m³ before an aerated 6000 m³, both at 3 g/L: 6000·3/(8000·3) = 0.75', () => {
+    expect(aerobicMassFraction([{ volume_m3: 2000, mlss_gL: 3, aeratedFraction: 0 }, { volume_m3: 6000, mlss_gL: 3, aeratedFraction: 1 }]).value).toBeCloseTo(0.75, 12);
+    // mass basis, not volume: a thinner anoxic zone weighs less — (6000·3)/(2000·2 + 6000·3) = 18/22
+    expect(aerobicMassFraction([{ volume_m3: 2000, mlss_gL: 2, aeratedFraction: 0 }, { volume_m3: 6000, mlss_gL: 3, aeratedFraction: 1 }]).value).toBeCloseTo(18 / 22, 12);
+    // a swing zone aerated half the volume counts half
+    expect(aerobicMassFraction([{ volume_m3: 4000, mlss_gL: 3, aeratedFraction: 0.5 }]).value).toBeCloseTo(0.5, 12);
+  });
+  it('refuses fractions outside 0–1 and an empty inventory', () => {
+    expect(aerobicMassFraction([{ volume_m3: 1, mlss_gL: 3, aeratedFraction: 1.2 }]).value).toBeNull();
+    expect(aerobicMassFraction([{ volume_m3: 1, mlss_gL: 0, aeratedFraction: 1 }]).value).toBeNull();
   });
 });
