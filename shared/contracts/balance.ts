@@ -17,6 +17,42 @@ export type FigureOut = z.infer<typeof figureOut>;
 
 export const stormCheckOut = z.object({ rule: z.enum(['min-mlss', 'max-stored-fraction', 'max-blanket-rise']), ok: z.boolean(), value: z.number(), limit: z.number() });
 
+/** Vesilind parameters the live figures used and where they came from. */
+export const settlingUsedOut = z.object({
+  v0_mh: z.number().nullable(),
+  k_Lg: z.number().nullable(),
+  /** 'fit': fitted to the plant's own lab data; 'correlation': from the latest SVI by `correlation`. */
+  source: z.enum(['fit', 'correlation']),
+  correlation: z.string(),
+  quality: figureQuality,
+  reasons: z.array(z.string()),
+});
+
+/**
+ * Live state point of one clarifier entry (Keinath 1985; solids-flux theory, Keinath et al.
+ * 1977), the same figures as `POST /calc/state-point` on the same inputs: enough for a state
+ * point diagram (settling curve from v0 and k, overflow line of slope SOR, underflow line from
+ * the state point (MLSS, SLR) to the required underflow concentration).
+ */
+export const statePointOut = z.object({
+  /** The flows and MLSS this clarifier entry was computed with (the train's, split by area when it has several entries). */
+  feed: z.object({ influentFlow_m3h: figureOut, rasFlow_m3h: figureOut, wasFlow_m3h: figureOut, mlss_gL: figureOut }),
+  overflowRate_mh: figureOut,
+  solidsLoading_kgm2h: figureOut,
+  underflowRate_mh: figureOut,
+  limitingFlux_kgm2h: figureOut,
+  limitingConc_gL: figureOut,
+  maxUnderflowConc_gL: figureOut,
+  requiredUnderflowConc_gL: figureOut,
+  thickeningMargin: figureOut,
+  clarificationMargin: figureOut,
+  thickeningLimitFlow_m3h: figureOut,
+  clarificationLimitFlow_m3h: figureOut,
+  settling: settlingUsedOut,
+  /** X_R,max both ways: the rule factor/SVI [CP] and flux theory G_L/u; `used` is the lower, with the reason. */
+  rasConcMax: z.object({ rule_gL: figureOut, flux_gL: figureOut, used: z.enum(['rule', 'flux']).nullable(), reason: z.string() }),
+});
+
 export const balanceBasinOut = z.object({
   code: z.string(),
   train: z.string(),
@@ -41,6 +77,7 @@ export const balanceClarifierOut = z.object({
   /** Mass from integrating the clarifier balance over the integral window, from the blanket mass at its start. */
   integratedMass_kg: figureOut,
   integralDiscrepancy_kg: figureOut,
+  statePoint: statePointOut,
 });
 export const balanceTrainOut = z.object({
   code: z.string(),
@@ -49,8 +86,13 @@ export const balanceTrainOut = z.object({
   wasFlow_m3h: figureOut,
   mlss_gL: figureOut,
   rasPumpCapacity_m3h: z.number(),
+  /** Which X_R,max the RAS margins use: the lower of the rule [CP] and flux theory (null: neither available). */
+  rasConcMaxBasis: z.enum(['rule', 'flux']).nullable(),
   ras: z.object({
+    /** X_R,max the margins use: the lower of the rule and flux theory over the train's clarifiers (reason in its reasons). */
     rasConcMax_gL: figureOut,
+    rasConcMaxRule_gL: figureOut,
+    rasConcMaxFlux_gL: figureOut,
     requiredRasConc_gL: figureOut,
     concentrationMargin: figureOut,
     minRecycleRatio: figureOut,

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { SETTLING_CORRELATIONS, type SettlingCorrelationId } from '../domain/settling.js';
 
 /**
  * Every setting the balance engine, the alarms and the mailer read, with its schema, default,
@@ -23,6 +24,7 @@ export const SETTINGS = {
   'storm.max_stored_fraction': { schema: frac, default: 0.3, unit: '-', doc: 'Highest fraction of the inventory in the clarifiers [CP]' },
   'storm.max_blanket_rise_m': { schema: pos, default: 0.3, unit: 'm', doc: 'Highest blanket rise during storage [CP]' },
   'ras.xr_factor': { schema: z.number().min(100).max(5000), default: 1200, unit: 'mL/L', doc: 'X_R,max = factor / SVI (1000 mL/L with about 20 % margin) [CP]' },
+  'settling.correlation': { schema: z.enum(SETTLING_CORRELATIONS), default: 'haertel-poepel-1992' as SettlingCorrelationId, unit: '', doc: 'SVI → Vesilind correlation of the live state point when no fit to the plant\'s own data is used (shared/domain/settling.ts); Härtel & Pöpel (1992) is the one whose coefficients are not from memory' },
   'clarifier.blanket_conc_method': { schema: z.enum(['ras', 'mean']), default: 'ras' as 'ras' | 'mean', unit: '', doc: "Blanket concentration: 'ras' = underflow TSS, 'mean' = (MLSS + underflow TSS)/2 (shared/domain/clarifier-inventory.ts)" },
   'clarifier.integral_window_h': { schema: z.number().min(0.1).max(24), default: 1, unit: 'h', doc: 'Window of the clarifier mass-balance integral shown beside the blanket mass [ours]' },
   'alarm.on_delay_s': { schema: z.number().int().min(0).max(3600), default: 60, unit: 's', doc: 'A condition must hold this long before the alarm is raised (ISA-18.2 on-delay) [ours]' },

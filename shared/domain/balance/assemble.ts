@@ -14,6 +14,7 @@ import { basinMass_kg, blanketMassSeries, blanketRate_m_h, clarifierArea_m2, cla
 import { rasConcMaxFromSvi_gL, trainRasMargins } from './ras.js';
 import { joinSeries, meanSeries, sumSeries, weightedSumSeries } from './series.js';
 import { readSignals, settleability, type Signals } from './signals.js';
+import { clarifierStatePoint, settlingFromCorrelation, trainRasConcMax, type SettlingUsed } from './state-point.js';
 import { effluentTssMissing, plantAerobicSrt, plantDynamicSrt, plantMassSeries, plantRollingSrt, solidsLossSeries, wasAdvice, type TrainSrtSeries } from './srt.js';
 import { stormPeakFlow, stormShare, trainStorm, trainStormFlow_m3h } from './storm.js';
 
@@ -47,6 +48,8 @@ interface PlantContext {
   settings: EffectiveSettings;
   plantInfluent: Figure<number>;
   totalVolume_m3: number;
+  settling: SettlingUsed;
+  rasConcMaxRule_gL: Figure<number>;
 }
 
 /** One train: basins, flows, clarifiers (blanket, rise rate, balance integral) and its SRT-window series. */
@@ -78,6 +81,7 @@ function trainFigures(t: TrainLayout, ctx: PlantContext): TrainFigures {
   const mlssSeries = (from: number) => joinSeries(basinSeries('basin.mlss', from), (v) => v.reduce((acc, vi, i) => acc + vi * t.basins[i]!.volume_m3, 0) / volume_m3);
 
   const clarifiers: BalanceData['clarifiers'] = [];
+  const trainArea_m2 = t.clarifiers.reduce((a, c) => a + clarifierArea_m2(c), 0);
   const clarifierMasses: Figure<number>[] = [];
   const xrs: Figure<number>[] = [];
   const xes: Figure<number>[] = [];
@@ -124,6 +128,18 @@ function trainFigures(t: TrainLayout, ctx: PlantContext): TrainFigures {
       blanketMass_kg: withUnit(blanket.mass_kg, 'kg'),
       integratedMass_kg: withUnit(integral.integratedMass_kg, 'kg'),
       integralDiscrepancy_kg: withUnit(integral.discrepancy_kg, 'kg'),
+      statePoint: clarifierStatePoint({
+        share: clarifierArea_m2(c) / trainArea_m2,
+        entries: t.clarifiers.length,
+        code: c.code,
+        area_m2: clarifierArea_m2(c),
+        influentFlow_m3h,
+        rasFlow_m3h,
+        wasFlow_m3h,
+        mlss_gL,
+        settling: ctx.settling,
+        rasConcMaxRule_gL: ctx.rasConcMaxRule_gL,
+      }),
     });
   }
   // Effluent TSS unavailable: taken as 0 for the SRT and the WAS advice (which it then overstates), said so.
@@ -181,10 +197,11 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
   const signals = readSignals(inp, { staleFactor: s['inputs.stale_factor'], maxAge_s: s['inputs.max_age_s'] });
   const clock = signals.clock_ms;
   const svi = settleability(inp.svi, now_ms, s['svi.max_age_d']);
-  const rasConcMax = rasConcMaxFromSvi_gL(svi, s['ras.xr_factor']);
+  const rasConcMaxRule = rasConcMaxFromSvi_gL(svi, s['ras.xr_factor']);
+  const settling = settlingFromCorrelation(svi, s['settling.correlation']);
   const totalVolume_m3 = layout.trains.reduce((a, t) => a + t.basins.reduce((b, x) => b + x.volume_m3, 0), 0);
   const plantInfluent = signals.figure('plant.influentFlow', 'plant', layout.plantId, layout.code);
-  const trains = layout.trains.map((t) => trainFigures(t, { signals, settings: s, plantInfluent, totalVolume_m3 }));
+  const trains = layout.trains.map((t) => trainFigures(t, { signals, settings: s, plantInfluent, totalVolume_m3, settling, rasConcMaxRule_gL: rasConcMaxRule }));
 
   const inventory = inventoryTotals(
     trains.flatMap((t) => t.basinMasses),
@@ -199,14 +216,21 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
   const influents = trains.map((t) => t.influentFlow_m3h);
   const stormChecks = { minMlss_gL: s['storm.min_mlss_gL'], maxStoredFraction: s['storm.max_stored_fraction'], maxBlanketRise_m: s['storm.max_blanket_rise_m'] };
 
-  const trainsOut: BalanceData['trains'] = trains.map((t) => ({
+  const trainsOut: BalanceData['trains'] = trains.map((t) => {
+    const xrMax = trainRasConcMax(rasConcMaxRule, t.clarifiers.map((c) => c.statePoint));
+    return {
     code: t.layout.code,
     influentFlow_m3h: withUnit(t.influentFlow_m3h, 'm3/h'),
     rasFlow_m3h: withUnit(t.rasFlow_m3h, 'm3/h'),
     wasFlow_m3h: withUnit(t.wasFlow_m3h, 'm3/h'),
     mlss_gL: withUnit(t.mlss_gL, 'g/L'),
     rasPumpCapacity_m3h: t.rasPumpCapacity_m3h,
-    ras: trainRasMargins({ influentFlow_m3h: t.influentFlow_m3h, rasFlow_m3h: t.rasFlow_m3h, mlss_gL: t.mlss_gL, rasConcMax_gL: rasConcMax, rasPumpCapacity_m3h: t.rasPumpCapacity_m3h }),
+    ras: {
+      ...trainRasMargins({ influentFlow_m3h: t.influentFlow_m3h, rasFlow_m3h: t.rasFlow_m3h, mlss_gL: t.mlss_gL, rasConcMax_gL: xrMax.value, rasPumpCapacity_m3h: t.rasPumpCapacity_m3h }),
+      rasConcMaxRule_gL: withUnit(rasConcMaxRule, 'g/L'),
+      rasConcMaxFlux_gL: withUnit(minFlux(t.clarifiers), 'g/L'),
+    },
+    rasConcMaxBasis: xrMax.used,
     storm: trainStorm({
       trainCode: t.layout.code,
       influentFlow_m3h: t.influentFlow_m3h,
@@ -220,7 +244,8 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
       xrFactor: s['ras.xr_factor'],
       checks: stormChecks,
     }),
-  }));
+  };
+  });
 
   // SRT: rolling over the window and dynamic, from the trains' series; WAS advice from the present totals.
   const srtSeries = trains.map((t) => t.srtSeries);
@@ -272,6 +297,14 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
       svi: inp.svi ? { kind: inp.svi.kind, value_mLg: inp.svi.value_mLg, sampledAt: iso(inp.svi.sampledAt_ms) } : null,
     },
   };
+}
+
+/** The lowest flux-theory X_R,max over a train's clarifiers (unavailable when none has one). */
+function minFlux(clarifiers: BalanceData['clarifiers']): Figure<number> {
+  const f = clarifiers.map((c) => c.statePoint.rasConcMax.flux_gL).filter((x) => x.value !== null);
+  if (f.length === 0) return unavailable(...(clarifiers[0]?.statePoint.rasConcMax.flux_gL.reasons ?? ['no clarifier']));
+  const m = f.reduce((a, b) => (b.value! < a.value! ? b : a));
+  return { value: m.value, quality: m.quality, reasons: [...m.reasons] };
 }
 
 /** Quality of a balance: the worst of its headline figures (total inventory, SRT, each train's concentration margin and storm MLSS). */

@@ -1,6 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { balanceOut } from '../../../shared/contracts/balance.ts';
 import { computeBalance } from '../../../shared/domain/balance/assemble.ts';
+import { calcStatePoint } from '../../../shared/domain/calculators.ts';
 import { signalUnitFactor } from '../../../shared/domain/balance/signals.ts';
 import { fixtureInputs, NOW, settings } from './balance-fixture.ts';
 
@@ -43,14 +44,22 @@ describe('computeBalance: fixture signals against a hand computation', () => {
     expect(d.inventory.storedFraction.value).toBeCloseTo(0.4, 9);
     expect(d.clarifiers[0]!.effluentTss_gL.value).toBeCloseTo(0.01, 12);
   });
-  it('RAS margins', () => {
-    expect(t.ras.rasConcMax_gL.value).toBeCloseTo(10, 9);
+  it('RAS margins on the lower X_R,max: flux theory 9.9077 g/L below the rule 1200/120 = 10 g/L', () => {
+    // Flux theory (Keinath et al. 1977): Härtel & Pöpel (1992) at SVI 120 → v0 = 8.41480 m/h, k = 0.553289 L/g;
+    // u = (Q_R + Q_W)/A = 620/1500 m/h; G_L/u = 9.907676 g/L (the what-if calculator gives the same, see below).
+    const xr = 9.907675696771152;
+    expect(t.ras.rasConcMaxRule_gL.value).toBeCloseTo(10, 9);
+    expect(t.ras.rasConcMaxFlux_gL.value).toBeCloseTo(xr, 9);
+    expect(t.rasConcMaxBasis).toBe('flux');
+    expect(t.ras.rasConcMax_gL.value).toBeCloseTo(xr, 9);
     expect(t.ras.requiredRasConc_gL.value).toBeCloseTo(7, 9);
     expect(t.ras.concentrationMargin).toMatchObject({ quality: 'good' });
-    expect(t.ras.concentrationMargin.value).toBeCloseTo(0.3, 9);
-    expect(t.ras.minRecycleRatio.value).toBeCloseTo(3 / 7, 9);
-    expect(t.ras.minRasFlow_m3h.value).toBeCloseTo(342.857142857, 6);
-    expect(t.ras.pumpMargin.value).toBeCloseTo(1 - 342.857142857 / 850, 6);
+    expect(t.ras.concentrationMargin.value).toBeCloseTo(1 - 7 / xr, 9);
+    // the reason travels with the margin the alarm reads
+    expect(t.ras.concentrationMargin.reasons.join(' ')).toMatch(/flux theory 9\.91 g\/L .* below the rule's 10\.00 g\/L .* the lower one limits the RAS margin/);
+    expect(t.ras.minRecycleRatio.value).toBeCloseTo(3 / (xr - 3), 9);
+    expect(t.ras.minRasFlow_m3h.value).toBeCloseTo((800 * 3) / (xr - 3), 6);
+    expect(t.ras.pumpMargin.value).toBeCloseTo(1 - (800 * 3) / (xr - 3) / 850, 6);
   });
   it('SRT and WAS advice', () => {
     expect(d.srt.total_d.quality).toBe('good');
@@ -186,5 +195,39 @@ describe('computeBalance: aerobic SRT from the basins\' aerated fraction', () =>
     const unset = computeBalance(fixtureInputs(), settings()).data.srt;
     expect(unset.aerobic_d.value).toBeCloseTo(4.46961, 4);
     expect(unset.aerobic_d.reasons.join(' ')).toMatch(/aerated fraction not set .* ab1: taken as fully aerated/);
+  });
+});
+
+describe('computeBalance: live state point per clarifier equals the what-if calculator (Keinath 1985; Keinath et al. 1977)', () => {
+  const req = { influentFlow_m3h: 800, rasFlow_m3h: 600, wasFlow_m3h: 20, mlss_gL: 3, clarifierArea_m2: 1500 };
+  it('fixture at SVI 120, Härtel & Pöpel (1992): every figure identical to POST /calc/state-point on the same inputs', () => {
+    const sp = computeBalance(fixtureInputs(), settings()).data.clarifiers[0]!.statePoint;
+    const calc = calcStatePoint({ ...req, settling: { svi_mLg: 120, correlation: 'haertel-poepel-1992' } });
+    for (const k of ['overflowRate_mh', 'solidsLoading_kgm2h', 'underflowRate_mh', 'limitingFlux_kgm2h', 'limitingConc_gL', 'maxUnderflowConc_gL', 'requiredUnderflowConc_gL', 'thickeningMargin', 'clarificationMargin'] as const) {
+      expect(sp[k].value, k).not.toBeNull();
+      expect(sp[k].value, k).toBe(calc[k]);
+    }
+    expect(sp.settling).toMatchObject({ v0_mh: calc.settling.v0_mh, k_Lg: calc.settling.k_Lg, source: 'correlation', correlation: 'haertel-poepel-1992' });
+    // hand check of the plain ones: SOR = (800 − 20)/1500 = 0.52 m/h; SLR = 1400·3/1500 = 2.8 kg/(m²·h)
+    expect(sp.overflowRate_mh.value).toBeCloseTo(0.52, 12);
+    expect(sp.solidsLoading_kgm2h.value).toBeCloseTo(2.8, 12);
+    expect(sp.rasConcMax).toMatchObject({ used: 'flux' });
+    expect(sp.rasConcMax.rule_gL.value).toBeCloseTo(10, 9);
+    expect(sp.rasConcMax.flux_gL.value).toBe(calc.maxUnderflowConc_gL);
+  });
+  it('a bulking sludge (SVI 250): the rule 1200/250 = 4.8 g/L is below flux theory (5.857 g/L) and limits the margin', () => {
+    const b = computeBalance(fixtureInputs({ svi: 250 }), settings()).data.trains[0]!;
+    const calc = calcStatePoint({ ...req, settling: { svi_mLg: 250, correlation: 'haertel-poepel-1992' } });
+    expect(b.rasConcMaxBasis).toBe('rule');
+    expect(b.ras.rasConcMax_gL.value).toBeCloseTo(4.8, 9);
+    expect(b.ras.rasConcMaxFlux_gL.value).toBe(calc.maxUnderflowConc_gL);
+    expect(calc.maxUnderflowConc_gL!).toBeGreaterThan(4.8);
+    expect(b.ras.concentrationMargin.value).toBeCloseTo(1 - 7 / 4.8, 9);
+  });
+  it('no SVI: no settling parameters, no X_R,max either way, every state point figure unavailable with the reason', () => {
+    const d = computeBalance(fixtureInputs({ svi: null }), settings()).data;
+    expect(d.clarifiers[0]!.statePoint.limitingFlux_kgm2h.value).toBeNull();
+    expect(d.clarifiers[0]!.statePoint.limitingFlux_kgm2h.reasons.join(' ')).toMatch(/no SVI/);
+    expect(d.trains[0]!.rasConcMaxBasis).toBeNull();
   });
 });
