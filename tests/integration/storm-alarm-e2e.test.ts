@@ -105,9 +105,13 @@ describe('storm scenario → ingest → balance engine → alarm → e-mail', ()
     // Raised once the simulated storm was on: simulated hour 6 onwards.
     expect(alarm.raised_at.getTime()).toBeGreaterThan(simStart + 6 * 3_600_000);
 
-    // The basins lost sludge to the clarifiers compared with the dry-weather start (3.4 g/L).
-    const balance = await db.query(`SELECT data FROM balances WHERE plant_id = $1 ORDER BY id DESC LIMIT 1`, [plantId]);
-    const mlss = balance.rows[0].data.basins.map((b: { mlss_gL: { value: number | null } }) => b.mlss_gL.value);
+    // The basins lose sludge to the clarifiers compared with the dry-weather start (3.4 g/L). The
+    // margin on the lower X_R,max (flux theory) can raise the alarm before the basins have drained, so wait for it.
+    const mlss = await until('the basins below 3.3 g/L', 60_000, async () => {
+      const balance = await db.query(`SELECT data FROM balances WHERE plant_id = $1 ORDER BY id DESC LIMIT 1`, [plantId]);
+      const m = balance.rows[0].data.basins.map((b: { mlss_gL: { value: number | null } }) => b.mlss_gL.value);
+      return m.every((v: number | null) => v !== null && v < 3.3) ? m : undefined;
+    });
     for (const m of mlss) expect(m).toBeLessThan(3.3);
 
     const mail = await until('the alarm e-mail in the catcher', 60_000, async () => {
