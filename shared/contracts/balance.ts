@@ -53,6 +53,20 @@ export const statePointOut = z.object({
   rasConcMax: z.object({ rule_gL: figureOut, flux_gL: figureOut, used: z.enum(['rule', 'flux']).nullable(), reason: z.string() }),
 });
 
+/** The design storm in time for one train (shared/domain/storm-timeline.ts; setting storm.hydrograph). */
+export const stormTimelineOut = z.object({
+  points: z.array(z.object({ t_h: z.number(), mlss_gL: z.number(), clarifierMass_kg: z.number(), blanket_m: z.number(), rasConcRequired_gL: z.number().nullable() })),
+  peakBlanket_m: figureOut,
+  /** First time the blanket reaches the clarifier surface [h from the storm's start]; null if never (or not computed). */
+  blanketReachesSurface_h: z.number().nullable(),
+  /** First time any storm check fails [h from the storm's start]; null if none does (or not computed). */
+  firstFailure_h: z.number().nullable(),
+  firstFailedRule: z.enum(['min-mlss', 'max-stored-fraction', 'max-blanket-rise', 'blanket-below-surface']).nullable(),
+  checks: z.array(z.object({ rule: z.enum(['min-mlss', 'max-stored-fraction', 'max-blanket-rise', 'blanket-below-surface']), ok: z.boolean(), value: z.number(), limit: z.number(), firstFailed_h: z.number().nullable() })),
+  quality: figureQuality,
+  reasons: z.array(z.string()),
+});
+
 export const balanceBasinOut = z.object({
   code: z.string(),
   train: z.string(),
@@ -108,6 +122,7 @@ export const balanceTrainOut = z.object({
     blanketRise_m: figureOut,
     storedFraction: figureOut,
     checks: z.array(stormCheckOut),
+    timeline: stormTimelineOut,
   }),
 });
 

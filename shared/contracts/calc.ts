@@ -222,6 +222,67 @@ export const sviResponse = z
   .strict()
   .meta({ id: 'SviResponse' });
 
+// ---- storm timeline ----
+export const hydrographPoint = z.object({ t_h: num('time from the start of the storm [h]').min(0).max(8760), flow_m3h: flow('influent flow at that time') }).strict();
+
+export const stormTimelineRequest = stormRequest
+  .extend({
+    hydrograph: z.array(hydrographPoint).min(2).max(10_000).meta({ description: 'influent flow in time, linear between points; two points at the same time make a step' }),
+    clarifierDepth_m: num('side-water depth of the clarifiers [m]').positive().max(20),
+    blanketNow_m: num('blanket level before the storm [m above the floor]').min(0).max(20).optional(),
+  })
+  .strict()
+  .superRefine((r, ctx) => {
+    for (let i = 1; i < (r.hydrograph?.length ?? 0); i++) {
+      const a = r.hydrograph[i - 1]!.t_h;
+      const b = r.hydrograph[i]!.t_h;
+      if (Number.isFinite(a) && Number.isFinite(b) && b < a) {
+        ctx.addIssue({ code: 'custom', message: 'hydrograph times must not decrease', path: ['hydrograph', i, 't_h'] });
+        return;
+      }
+    }
+    if (r.hydrograph?.length >= 2 && !(r.hydrograph[r.hydrograph.length - 1]!.t_h > r.hydrograph[0]!.t_h)) ctx.addIssue({ code: 'custom', message: 'the hydrograph must span some time', path: ['hydrograph'] });
+    if (typeof r.blanketNow_m === 'number' && typeof r.clarifierDepth_m === 'number' && r.blanketNow_m > r.clarifierDepth_m) {
+      ctx.addIssue({ code: 'custom', message: 'blanket level above the clarifier surface: check the detector and the depth', path: ['blanketNow_m'] });
+    }
+  })
+  .meta({ id: 'StormTimelineRequest', description: 'Storm projection in time over a hydrograph' });
+
+export const stormTimelineCheck = z
+  .object({
+    rule: z.enum(['min-mlss', 'max-stored-fraction', 'max-blanket-rise', 'blanket-below-surface']),
+    ok: z.boolean(),
+    value: num('worst value over the storm (g/L, fraction or m, by rule)'),
+    limit: num('limit of the rule (g/L, fraction or m, by rule)'),
+    firstFailed_h: nullableNum('first time the rule failed [h]; null if it held'),
+  })
+  .strict();
+
+export const stormTimelineResponse = z
+  .object({
+    points: z.array(
+      z
+        .object({
+          t_h: num('time [h]'),
+          mlss_gL: num('basin MLSS [g/L]'),
+          clarifierMass_kg: num('sludge in the clarifiers [kg]'),
+          blanket_m: num('blanket level above the floor, capped at the surface [m]'),
+          rasConcRequired_gL: nullableNum('X·(Q+Q_R)/Q_R at that time [g/L]'),
+        })
+        .strict(),
+    ),
+    peakBlanket_m: nullableNum('highest blanket level over the storm [m]'),
+    blanketReachesSurface_h: nullableNum('first time the blanket reaches the clarifier surface [h]; null if never'),
+    firstFailure_h: nullableNum('first time any check failed [h]; null if none did'),
+    rasConcMax_gL: nullableNum('X_R,max used, factor/SVI [g/L]'),
+    equilibriumMlss_gL: nullableNum('equilibrium MLSS at stormFlow_m3h held long (the storm calculator) [g/L]'),
+    checks: z.array(stormTimelineCheck),
+    caution: z.string().meta({ description: 'advisory caution' }),
+    ...qualityFields,
+  })
+  .strict()
+  .meta({ id: 'StormTimelineResponse' });
+
 // ---- dynamic SRT ----
 export const dynamicSrtPoint = z
   .object({
@@ -268,5 +329,7 @@ export type SrtRequest = z.infer<typeof srtRequest>;
 export type SrtResponse = z.infer<typeof srtResponse>;
 export type SviRequest = z.infer<typeof sviRequest>;
 export type SviResponse = z.infer<typeof sviResponse>;
+export type StormTimelineRequest = z.infer<typeof stormTimelineRequest>;
+export type StormTimelineResponse = z.infer<typeof stormTimelineResponse>;
 export type DynamicSrtRequest = z.infer<typeof dynamicSrtRequest>;
 export type DynamicSrtResponse = z.infer<typeof dynamicSrtResponse>;

@@ -5,6 +5,8 @@
  * calls the same domain functions, so the calculators and the monitor cannot disagree.
  */
 import type {
+  StormTimelineRequest,
+  StormTimelineResponse,
   DynamicSrtRequest,
   DynamicSrtResponse,
   SettlerRequest,
@@ -29,6 +31,7 @@ import { OPERATOR_CAUTION } from '../contracts/balance.js';
 import { dynamicSrt, srt, wasFlowForTargetSrt_m3h } from './srt.js';
 import { statePoint } from './state-point.js';
 import { stormProjection } from './storm.js';
+import { stormTimeline } from './storm-timeline.js';
 
 function summary(...figs: QualityInfo[]): { quality: 'good' | 'estimated' | 'unavailable'; reasons: string[] } {
   const c = combineQuality(...figs);
@@ -164,4 +167,26 @@ export function calcDynamicSrt(req: DynamicSrtRequest): DynamicSrtResponse {
     req.initialSrt_d,
   );
   return { srt_d: r.value?.map((p) => p.srt_d) ?? [], caution: OPERATOR_CAUTION, ...summary(r) };
+}
+
+/**
+ * Storm timeline calculator (see storm-timeline.ts): the basin/clarifier exchange over the
+ * hydrograph, X_R,max by the rule factor/SVI [CP], with the equilibrium MLSS at stormFlow_m3h
+ * (stormProjection) beside it for comparison.
+ */
+export function calcStormTimeline(req: StormTimelineRequest): StormTimelineResponse {
+  const r = stormTimeline(req);
+  const eq = stormProjection(req);
+  const v = r.value;
+  return {
+    points: v?.points ?? [],
+    peakBlanket_m: v?.peakBlanket_m ?? null,
+    blanketReachesSurface_h: v?.blanketReachesSurface_h ?? null,
+    firstFailure_h: v?.firstFailure_h ?? null,
+    rasConcMax_gL: v?.rasConcMax_gL ?? null,
+    equilibriumMlss_gL: eq.value?.equilibriumMlss_gL ?? null,
+    checks: v?.checks ?? [],
+    caution: OPERATOR_CAUTION,
+    ...summary(r, eq),
+  };
 }

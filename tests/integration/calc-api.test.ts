@@ -1,6 +1,6 @@
 import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { dynamicSrtResponse, stormResponse, statePointResponse, settlerResponse, srtResponse, sviResponse } from '../../shared/contracts/calc.ts';
+import { dynamicSrtResponse, stormTimelineResponse, stormResponse, statePointResponse, settlerResponse, srtResponse, sviResponse } from '../../shared/contracts/calc.ts';
 import { OPERATOR_CAUTION } from '../../shared/contracts/balance.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
 
@@ -92,6 +92,28 @@ describe('calculator API', () => {
     const back = await post('dynamic-srt', { points: [{ t_h: 0, inventory_kg: 1, wasted_kgh: 1 }, { t_h: 0, inventory_kg: 1, wasted_kgh: 1 }], initialSrt_d: 1 });
     expect(back.status).toBe(422);
     expect(Object.keys(back.body.error.fields)).toContain('points.1.t_h');
+  });
+
+  it('storm timeline: a 48 h storm ends within 1 % of the equilibrium, a 2 h one moves less than half (τ = V/(Q_s+Q_R) = 3.08 h), a deep blanket fails', async () => {
+    const flat = (h: number) => [{ t_h: 0, flow_m3h: 3000 }, { t_h: h, flow_m3h: 3000 }];
+    const long = await post('storm-timeline', { ...storm, hydrograph: flat(48), clarifierDepth_m: 4, blanketNow_m: 0.5 });
+    expect(long.status).toBe(200);
+    stormTimelineResponse.parse(long.body);
+    // Equilibrium X' = 10·900/3900 = 2.3077 g/L (the storm calculator above); moved (3.2 − X')·12 000 = 10 615 kg.
+    const moved = (3.2 - 9000 / 3900) * 12000;
+    expect(Math.abs(long.body.points.at(-1).mlss_gL - 9000 / 3900) / (9000 / 3900)).toBeLessThan(0.01);
+    expect(long.body.equilibriumMlss_gL).toBeCloseTo(9000 / 3900, 9);
+    expect(long.body.caution).toBe(OPERATOR_CAUTION);
+    const short = await post('storm-timeline', { ...storm, hydrograph: flat(2), clarifierDepth_m: 4, blanketNow_m: 0.5 });
+    expect(short.body.points.at(-1).clarifierMass_kg / moved).toBeLessThan(0.5);
+    const deep = await post('storm-timeline', { ...storm, hydrograph: flat(12), clarifierDepth_m: 4, blanketNow_m: 3.5 });
+    expect(deep.body.blanketReachesSurface_h).not.toBeNull();
+    expect(deep.body.quality).not.toBe('good');
+    expect(deep.body.checks.find((c: { rule: string }) => c.rule === 'blanket-below-surface').ok).toBe(false);
+    noNaN(deep.body);
+    const above = await post('storm-timeline', { ...storm, hydrograph: flat(2), clarifierDepth_m: 4, blanketNow_m: 4.5 });
+    expect(above.status).toBe(422);
+    expect(Object.keys(above.body.error.fields)).toContain('blanketNow_m');
   });
 
   it('needs credentials', async () => {

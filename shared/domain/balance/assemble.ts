@@ -7,7 +7,7 @@
  */
 import { OPERATOR_CAUTION, type Balance, type BalanceData } from '../../contracts/balance.js';
 import type { EffectiveSettings } from '../../contracts/settings.js';
-import { estimated, meanFigures, sumFigures, unavailable, withUnit, worstQuality, type Figure, type Quality } from '../quality.js';
+import { estimated, fromFigures, meanFigures, sumFigures, unavailable, withUnit, worstQuality, type Figure, type Quality } from '../quality.js';
 import { effluentFlowSeries, trainInfluentFlow } from './flows.js';
 import type { BalanceEngineInputs, TrainLayout } from './inputs.js';
 import { basinMass_kg, blanketMassSeries, blanketRate_m_h, clarifierArea_m2, clarifierBlanket, clarifierIntegral, inventoryTotals, trainMlss_gL } from './inventory.js';
@@ -16,7 +16,7 @@ import { joinSeries, meanSeries, sumSeries, weightedSumSeries } from './series.j
 import { readSignals, settleability, type Signals } from './signals.js';
 import { clarifierStatePoint, settlingFromCorrelation, trainRasConcMax, type SettlingUsed } from './state-point.js';
 import { effluentTssMissing, plantAerobicSrt, plantDynamicSrt, plantMassSeries, plantRollingSrt, solidsLossSeries, wasAdvice, type TrainSrtSeries } from './srt.js';
-import { stormPeakFlow, stormShare, trainStorm, trainStormFlow_m3h } from './storm.js';
+import { stormPeakFlow, stormShare, trainStorm, trainStormFlow_m3h, trainStormTimeline } from './storm.js';
 
 const H = 3_600_000;
 const iso = (ms: number) => new Date(ms).toISOString();
@@ -231,7 +231,8 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
       rasConcMaxFlux_gL: withUnit(minFlux(t.clarifiers), 'g/L'),
     },
     rasConcMaxBasis: xrMax.used,
-    storm: trainStorm({
+    storm: {
+      ...trainStorm({
       trainCode: t.layout.code,
       influentFlow_m3h: t.influentFlow_m3h,
       rasFlow_m3h: t.rasFlow_m3h,
@@ -243,7 +244,26 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
       clarifierArea_m2: t.area_m2,
       xrFactor: s['ras.xr_factor'],
       checks: stormChecks,
-    }),
+      blanketNow_m: maxBlanket(t.clarifiers),
+      clarifierDepth_m: Math.min(...t.layout.clarifiers.map((c) => c.sideWaterDepth_m)),
+      }),
+      timeline: trainStormTimeline({
+        trainCode: t.layout.code,
+        influentFlow_m3h: t.influentFlow_m3h,
+        rasFlow_m3h: t.rasFlow_m3h,
+        mlss_gL: t.mlss_gL,
+        svi_mLg: svi,
+        stormFlow_m3h: trainStormFlow_m3h(storm.peak, stormShare(t.influentFlow_m3h, influents, t.volume_m3, totalVolume_m3)),
+        hydrograph: s['storm.hydrograph'],
+        rasConcMax_gL: xrMax.value,
+        clarifierMass_kg: t.clarifierMass_kg,
+        blanketNow_m: maxBlanket(t.clarifiers),
+        clarifierDepth_m: Math.min(...t.layout.clarifiers.map((c) => c.sideWaterDepth_m)),
+        aerationVolume_m3: t.volume_m3,
+        clarifierArea_m2: t.area_m2,
+        checks: stormChecks,
+      }),
+    },
   };
   });
 
@@ -297,6 +317,11 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
       svi: inp.svi ? { kind: inp.svi.kind, value_mLg: inp.svi.value_mLg, sampledAt: iso(inp.svi.sampledAt_ms) } : null,
     },
   };
+}
+
+/** The highest present blanket level of a train's clarifiers [m] (unavailable when any is). */
+function maxBlanket(clarifiers: BalanceData['clarifiers']): Figure<number> {
+  return fromFigures(clarifiers.map((c) => ({ value: c.blanketLevel_m.value, quality: c.blanketLevel_m.quality, reasons: [...c.blanketLevel_m.reasons] })), (...v) => Math.max(...v));
 }
 
 /** The lowest flux-theory X_R,max over a train's clarifiers (unavailable when none has one). */

@@ -231,3 +231,40 @@ describe('computeBalance: live state point per clarifier equals the what-if calc
     expect(d.trains[0]!.rasConcMaxBasis).toBeNull();
   });
 });
+
+describe('computeBalance: the design storm in time (setting storm.hydrograph: 6 h at the peak, then 6 h back)', () => {
+  // Fixture: Q 800, Q_R 600 m³/h, X 3 g/L, V 6000 m³, A 1500 m², depth 4 m, peak 1600 m³/h, SVI 120.
+  // X_R,max = 9.907676 g/L (flux theory, the lower); capped: 2200·3 = 6600 > 9.907676·600 = 5944.6 kg/h.
+  // X' = 5944.6/2200 = 2.70209 g/L; τ = 6000/2200 = 2.7273 h; moved after 6 h = (3 − X')·6000·(1 − e^(−6/τ)).
+  const xr = 9.907675696771152;
+  const xEq = (xr * 600) / 2200;
+  const tau = 6000 / 2200;
+  it('peak blanket = 1.0 m + moved·SVI·1e-3/A; the stored fraction already fails at t = 0 (0.4 > 0.30 [CP])', () => {
+    const tl = computeBalance(fixtureInputs(), settings()).data.trains[0]!.storm.timeline;
+    const moved6 = (3 - xEq) * 6000 * (1 - Math.exp(-6 / tau));
+    expect(tl.peakBlanket_m.value).toBeCloseTo(1 + (moved6 * 0.12) / 1500, 3);
+    expect(tl.quality).toBe('good');
+    expect(tl.blanketReachesSurface_h).toBeNull();
+    expect(tl.firstFailedRule).toBe('max-stored-fraction');
+    expect(tl.firstFailure_h).toBe(0);
+    expect(tl.points.at(-1)!.t_h).toBe(12);
+  });
+  it('a blanket at 3.9 m of 4 m reaches the surface after 0.1 m of rise = 1250 kg: t = −τ·ln(1 − 1250/((3 − X′)·6000)) = 3.26 h; never good', () => {
+    const tl = computeBalance(fixtureInputs({ override: { lv: { value: 3.9 } } }), settings()).data.trains[0]!.storm.timeline;
+    expect(tl.blanketReachesSurface_h!).toBeCloseTo(-tau * Math.log(1 - 1250 / ((3 - xEq) * 6000)), 1);
+    expect(tl.quality).toBe('estimated');
+    expect(tl.peakBlanket_m.quality).not.toBe('good');
+    expect(tl.checks.find((c) => c.rule === 'blanket-below-surface')).toMatchObject({ ok: false, limit: 4 });
+  });
+});
+
+describe('computeBalance: the equilibrium storm projection against the clarifier depth', () => {
+  it('a rise that lifts the blanket above the surface is never good (issue 16: an 18.75 m rise came out good)', () => {
+    // SVI 120 rule projection at 1600 m³/h: rise 0.1309 m (hand computation above); blanket at 3.95 m of 4 m → 4.08 m.
+    const st = computeBalance(fixtureInputs({ override: { lv: { value: 3.95 } } }), settings()).data.trains[0]!.storm;
+    expect(st.blanketRise_m.quality).toBe('estimated');
+    expect(st.blanketRise_m.reasons.join(' ')).toMatch(/above the clarifier surface \(4 m\)/);
+    const ok = computeBalance(fixtureInputs(), settings()).data.trains[0]!.storm;
+    expect(ok.blanketRise_m.quality).toBe('good');
+  });
+});
