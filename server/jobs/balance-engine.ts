@@ -7,6 +7,7 @@ import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
 import { balanceRepository } from '../repositories/balance.repository.ts';
 import { alarmService } from '../services/alarm.service.ts';
 import { readBalanceInputs } from '../services/balance-inputs.service.ts';
+import { labRepository } from '../repositories/lab.repository.ts';
 import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import { mailService } from '../services/mail.service.ts';
 import { settingsService } from '../services/settings.service.ts';
@@ -106,6 +107,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
   const now = opts.now ?? Date.now;
   const settings = settingsService(ctx);
   const repo = balanceRepository(ctx.db);
+  const lab = labRepository(ctx.db.db);
   let catcher: MailCatcher | null = null;
   if (!ctx.config.smtpUrl && opts.mailCatcher !== false) {
     const port = opts.catcherPort ?? (await settings.effective(0))['mail.catcher_port'];
@@ -124,7 +126,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
   async function runOnce(plantId: number): Promise<Balance> {
     const s = await settings.effective(plantId);
     const t = now();
-    const inputs = await readBalanceInputs(repo, plantId, s, t);
+    const inputs = await readBalanceInputs(repo, plantId, s, t, lab);
     if (!inputs) throw new NotFoundError(`no plant ${plantId}`);
     const b = computeBalance(inputs, s);
     const id = await repo.insert(b);

@@ -67,6 +67,27 @@ export const stormTimelineOut = z.object({
   reasons: z.array(z.string()),
 });
 
+/** Settling parameters of the plant: the one used, the fit to its own tests and the correlation beside it. */
+export const settlingOut = z.object({
+  used: settlingUsedOut,
+  fit: z.object({
+    v0_mh: z.number().nullable(),
+    k_Lg: z.number().nullable(),
+    /** Standard errors (ordinary least squares): k ± 2·se, v0·e^(±2·se) at about 95 %. */
+    kStdErr_Lg: z.number().nullable(),
+    lnV0StdErr: z.number().nullable(),
+    r2: z.number().nullable(),
+    /** Number of tests fitted, and their date range. */
+    n: z.number().int(),
+    from: z.iso.datetime().nullable(),
+    to: z.iso.datetime().nullable(),
+    minPoints: z.number().int(),
+    quality: figureQuality,
+    reasons: z.array(z.string()),
+  }),
+  correlation: z.object({ correlation: z.string(), v0_mh: z.number().nullable(), k_Lg: z.number().nullable(), quality: figureQuality, reasons: z.array(z.string()) }),
+});
+
 export const balanceBasinOut = z.object({
   code: z.string(),
   train: z.string(),
@@ -132,6 +153,7 @@ export const balanceDataOut = z.object({
   clarifiers: z.array(balanceClarifierOut),
   trains: z.array(balanceTrainOut),
   settleability: z.object({ svi_mLg: figureOut, kind: z.enum(['SVI', 'DSVI']).nullable(), sampledAt: z.iso.datetime().nullable() }),
+  settling: settlingOut,
   storm: z.object({ peakFlow_m3h: figureOut, source: z.enum(['plant', 'setting', 'none']) }),
   srt: z.object({
     total_d: figureOut,

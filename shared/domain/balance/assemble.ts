@@ -14,7 +14,8 @@ import { basinMass_kg, blanketMassSeries, blanketRate_m_h, clarifierArea_m2, cla
 import { rasConcMaxFromSvi_gL, trainRasMargins } from './ras.js';
 import { joinSeries, meanSeries, sumSeries, weightedSumSeries } from './series.js';
 import { readSignals, settleability, type Signals } from './signals.js';
-import { clarifierStatePoint, settlingFromCorrelation, trainRasConcMax, type SettlingUsed } from './state-point.js';
+import { plantSettlingFit } from '../settling-fit.js';
+import { chooseSettling, clarifierStatePoint, trainRasConcMax, type SettlingUsed } from './state-point.js';
 import { effluentTssMissing, plantAerobicSrt, plantDynamicSrt, plantMassSeries, plantRollingSrt, solidsLossSeries, wasAdvice, type TrainSrtSeries } from './srt.js';
 import { stormPeakFlow, stormShare, trainStorm, trainStormFlow_m3h, trainStormTimeline } from './storm.js';
 
@@ -198,7 +199,8 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
   const clock = signals.clock_ms;
   const svi = settleability(inp.svi, now_ms, s['svi.max_age_d']);
   const rasConcMaxRule = rasConcMaxFromSvi_gL(svi, s['ras.xr_factor']);
-  const settling = settlingFromCorrelation(svi, s['settling.correlation']);
+  const fit = plantSettlingFit(inp.settlingTests ?? [], s['settling.cylinder_height_m']);
+  const { used: settling, out: settlingOut } = chooseSettling(svi, s['settling.correlation'], fit, s['settling.fit_min_points']);
   const totalVolume_m3 = layout.trains.reduce((a, t) => a + t.basins.reduce((b, x) => b + x.volume_m3, 0), 0);
   const plantInfluent = signals.figure('plant.influentFlow', 'plant', layout.plantId, layout.code);
   const trains = layout.trains.map((t) => trainFigures(t, { signals, settings: s, plantInfluent, totalVolume_m3, settling, rasConcMaxRule_gL: rasConcMaxRule }));
@@ -290,6 +292,7 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
     clarifiers: trains.flatMap((t) => t.clarifiers),
     trains: trainsOut,
     settleability: { svi_mLg: withUnit(svi, 'mL/g'), kind: inp.svi?.kind ?? null, sampledAt: inp.svi ? iso(inp.svi.sampledAt_ms) : null },
+    settling: settlingOut,
     storm: { peakFlow_m3h: withUnit(storm.peak, 'm3/h'), source: storm.source },
     srt: {
       total_d: withUnit(rolling.total_d, 'd'),

@@ -5,6 +5,7 @@
  * passed to computeBalance (./assemble.ts).
  */
 import type { SignalKindName } from '../../contracts/plant-layout.js';
+import type { LabSettlingTest } from '../settling-fit.js';
 
 export type TargetType = 'plant' | 'train' | 'basin' | 'clarifier' | 'pump';
 
@@ -94,4 +95,6 @@ export interface BalanceEngineInputs {
   svi: SviReading | null;
   /** Newest received_at over all tags of the plant (wall clock), or null when none ever arrived. */
   lastReceived_ms: number | null;
+  /** The plant's settleability tests over the fit window (setting settling.fit_window_d), for the Vesilind fit; none when omitted. */
+  settlingTests?: LabSettlingTest[];
 }

@@ -8,6 +8,7 @@ import type { BalanceData } from '../../contracts/balance.js';
 import { rasConcMaxFlux_gL } from '../flux.js';
 import { combineQuality, fromFigures, propagate, unavailable, withUnit, type Figure } from '../quality.js';
 import { vesilindFromIndex, type SettlingCorrelationId, type VesilindParams } from '../settling.js';
+import type { PlantSettlingFit } from '../settling-fit.js';
 import { statePoint } from '../state-point.js';
 
 export type StatePointOut = BalanceData['clarifiers'][number]['statePoint'];
@@ -34,6 +35,34 @@ export function settlingFromCorrelation(svi: Figure<number>, correlation: Settli
           return propagate(v.value === null ? unavailable<VesilindParams>(...v.reasons) : { ...v, value: { v0_mh: v.value.v0_mh, k_Lg: v.value.k_Lg } }, svi);
         })();
   return { params, source: 'correlation', correlation };
+}
+
+export type SettlingOut = BalanceData['settling'];
+
+/**
+ * Which settling parameters the live state point uses: the fit to the plant's own tests
+ * (plantSettlingFit) when it has at least `minPoints` tests and a fit, otherwise the correlation
+ * of the latest SVI (settlingFromCorrelation) — saying which and why — and both shown side by side.
+ */
+export function chooseSettling(svi: Figure<number>, correlation: SettlingCorrelationId, fit: PlantSettlingFit, minPoints: number): { used: SettlingUsed; out: SettlingOut } {
+  const corr = settlingFromCorrelation(svi, correlation);
+  const useFit = fit.n >= minPoints && fit.fit.value !== null;
+  const why = useFit
+    ? `Vesilind fit to the plant's own ${fit.n} settleability tests (≥ ${minPoints}, setting settling.fit_min_points)`
+    : `correlation ${correlation} of the latest SVI: the fit has ${fit.n} test(s)${fit.fit.value === null && fit.n > 0 ? ` and no result (${fit.fit.reasons.join('; ')})` : ''}, fewer than ${minPoints} or none usable (setting settling.fit_min_points)`;
+  const used: SettlingUsed = useFit
+    ? { params: { value: { v0_mh: fit.fit.value!.v0_mh, k_Lg: fit.fit.value!.k_Lg }, quality: fit.fit.quality, reasons: [...fit.fit.reasons, why] }, source: 'fit', correlation }
+    : { ...corr, params: { ...corr.params, reasons: [...corr.params.reasons, why] } };
+  const iso = (ms: number | null) => (ms === null ? null : new Date(ms).toISOString());
+  const f = fit.fit.value;
+  return {
+    used,
+    out: {
+      used: { v0_mh: used.params.value?.v0_mh ?? null, k_Lg: used.params.value?.k_Lg ?? null, source: used.source, correlation, quality: used.params.quality, reasons: [...used.params.reasons] },
+      fit: { v0_mh: f?.v0_mh ?? null, k_Lg: f?.k_Lg ?? null, kStdErr_Lg: f?.kStdErr_Lg ?? null, lnV0StdErr: f?.lnV0StdErr ?? null, r2: f?.r2 ?? null, n: fit.n, from: iso(fit.from_ms), to: iso(fit.to_ms), minPoints, quality: fit.fit.quality, reasons: [...fit.fit.reasons] },
+      correlation: { correlation, v0_mh: corr.params.value?.v0_mh ?? null, k_Lg: corr.params.value?.k_Lg ?? null, quality: corr.params.quality, reasons: [...corr.params.reasons] },
+    },
+  };
 }
 
 export interface ClarifierStatePointInputs {
