@@ -1,6 +1,6 @@
 import { z } from 'zod';
 import { SETTLING_CORRELATIONS } from '../domain/settling.js';
-import { settleabilityIssues } from '../domain/settleability.js';
+import { MLSS_RANGE_gL, settleabilityIssues } from '../domain/settleability.js';
 
 /**
  * Request and response schemas of the stateless calculators (`POST /api/v1/calc/*`).
@@ -15,17 +15,17 @@ import { settleabilityIssues } from '../domain/settleability.js';
  * | flows (influent, RAS, WAS, storm, effluent, settler feed/underflow) | 0 … 1 000 000 m³/h (zero allowed; results that need a flow become null) |
  * | clarifier / settler area | > 0 … 1 000 000 m² |
  * | aeration volume | > 0 … 10 000 000 m³ |
- * | MLSS | 0.05 … 30 g/L |
+ * | MLSS | 0.1 … 20 g/L (plausibility; the lab's bounds too) |
  * | settler feed TSS | 0 … 30 g/L; WAS TSS 0 … 50 g/L; effluent TSS 0 … 5 g/L |
  * | SVI / SSVI | 20 … 1000 mL/g |
- * | settled volume | > 0 … 1000 mL/L (1 L cylinder); dilution factor 1 … 100 |
+ * | settled volume | > 0 … 1000 mL/L (1 L cylinder); dilution factor 1 … 100; the resulting SVI/DSVI/SSVI 20 … 1000 mL/g |
  * | rule-of-thumb factor X_R,max·SVI | 500 … 2000 mL/L (default 1200) |
  * | Vesilind v0 | > 0 … 50 m/h; k > 0 … 5 L/g |
  * | masses | 0 … 1e9 kg; target SRT > 0 … 200 d |
  * | settler depth | > 0 … 20 m; layers 2 … 100 (integer), feed layer 1 … layers |
  *
- * Responses: a value that cannot be computed is `null` (never NaN) and every response may
- * additionally carry `quality` ('good' | 'estimated' | 'unavailable', the worst over its figures)
+ * Responses: a value that cannot be computed is `null` (never NaN); every response carries the
+ * advisory `caution` the balance carries (OPERATOR_CAUTION) and may additionally carry `quality` ('good' | 'estimated' | 'unavailable', the worst over its figures)
  * and `reasons` (why any figure is estimated or null).
  */
 
@@ -38,11 +38,12 @@ const nullableNum = (description: string) => z.number().nullable().meta({ descri
 
 export const qualityEnum = z.enum(['good', 'estimated', 'unavailable']).meta({ description: 'worst quality over the response figures' });
 const qualityFields = {
+  caution: z.string().meta({ description: 'advisory caution: the licensed operator decides' }),
   quality: qualityEnum.optional(),
   reasons: z.array(z.string()).optional().meta({ description: 'why a figure is estimated or null' }),
 };
 
-const mlss = num('mixed-liquor suspended solids MLSS [g/L]').min(0.05).max(30);
+const mlss = num('mixed-liquor suspended solids MLSS [g/L]').min(MLSS_RANGE_gL.min).max(MLSS_RANGE_gL.max);
 const svi = num('sludge volume index SVI [mL/g]').min(20).max(1000);
 const area = num('clarifier surface area [m²]').positive().max(1_000_000);
 const mass = (what: string) => num(`${what} [kg]`).min(0).max(1e9);
@@ -277,7 +278,6 @@ export const stormTimelineResponse = z
     rasConcMax_gL: nullableNum('X_R,max used, factor/SVI [g/L]'),
     equilibriumMlss_gL: nullableNum('equilibrium MLSS at stormFlow_m3h held long (the storm calculator) [g/L]'),
     checks: z.array(stormTimelineCheck),
-    caution: z.string().meta({ description: 'advisory caution' }),
     ...qualityFields,
   })
   .strict()
@@ -313,7 +313,6 @@ export const dynamicSrtRequest = z
 export const dynamicSrtResponse = z
   .object({
     srt_d: z.array(z.number()).meta({ description: 'mass-weighted mean sludge age θ at each point [d]' }),
-    caution: z.string().meta({ description: 'advisory caution' }),
     ...qualityFields,
   })
   .strict()

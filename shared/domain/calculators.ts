@@ -33,9 +33,10 @@ import { statePoint } from './state-point.js';
 import { stormProjection } from './storm.js';
 import { stormTimeline } from './storm-timeline.js';
 
-function summary(...figs: QualityInfo[]): { quality: 'good' | 'estimated' | 'unavailable'; reasons: string[] } {
+/** Quality and reasons of a response (the worst over its figures), with the advisory caution every answer carries. */
+function summary(...figs: QualityInfo[]): { caution: string; quality: 'good' | 'estimated' | 'unavailable'; reasons: string[] } {
   const c = combineQuality(...figs);
-  return { quality: c.quality, reasons: c.reasons };
+  return { caution: OPERATOR_CAUTION, quality: c.quality, reasons: c.reasons };
 }
 
 /**
@@ -135,7 +136,7 @@ export function calcSettler(req: SettlerRequest): SettlerResponse {
 export function calcSrt(req: SrtRequest): SrtResponse {
   const s = srt(req);
   const figs: QualityInfo[] = [s.total_d, s.aeration_d];
-  const out: SrtResponse = { srtTotal_d: s.total_d.value, srtAeration_d: s.aeration_d.value, quality: 'good', reasons: [] };
+  const out: SrtResponse = { srtTotal_d: s.total_d.value, srtAeration_d: s.aeration_d.value, caution: OPERATOR_CAUTION, quality: 'good', reasons: [] };
   if (req.targetSrt_d !== undefined) {
     const w = wasFlowForTargetSrt_m3h(req.aerationMass_kg + req.clarifierMass_kg, req.targetSrt_d, req.effluentFlow_m3h, req.effluentTss_gL, req.wasTss_gL);
     out.wasFlowForTarget_m3h = w.value;
@@ -166,7 +167,7 @@ export function calcDynamicSrt(req: DynamicSrtRequest): DynamicSrtResponse {
     req.points.map((p) => ({ ts_ms: p.t_h * 3_600_000, mass_kg: p.inventory_kg, removal_kgh: p.wasted_kgh })),
     req.initialSrt_d,
   );
-  return { srt_d: r.value?.map((p) => p.srt_d) ?? [], caution: OPERATOR_CAUTION, ...summary(r) };
+  return { srt_d: r.value?.map((p) => p.srt_d) ?? [], ...summary(r) };
 }
 
 /**
@@ -186,7 +187,6 @@ export function calcStormTimeline(req: StormTimelineRequest): StormTimelineRespo
     rasConcMax_gL: v?.rasConcMax_gL ?? null,
     equilibriumMlss_gL: eq.value?.equilibriumMlss_gL ?? null,
     checks: v?.checks ?? [],
-    caution: OPERATOR_CAUTION,
     ...summary(r, eq),
   };
 }

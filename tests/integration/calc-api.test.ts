@@ -69,6 +69,10 @@ describe('calculator API', () => {
       ['state-point', { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, clarifierArea_m2: 1400, settling: { v0_mh: -2, k_Lg: 0.4 } }, 'settling.v0_mh'],
       ['svi', { settledVolume_mLL: 400, mlss_gL: 3 }, 'settledVolume_mLL'],
       ['srt', { aerationMass_kg: 'lots' }, 'aerationMass_kg'],
+      // plausibility (issue 16): SVI 1/30 mL/g, MLSS outside 0.1–20 g/L
+      ['svi', { settledVolume_mLL: 1, mlss_gL: 20 }, 'settledVolume_mLL'],
+      ['svi', { settledVolume_mLL: 100, mlss_gL: 25 }, 'mlss_gL'],
+      ['storm', { ...storm, mlss_gL: 0.05 }, 'mlss_gL'],
     ];
     for (const [path, body, field] of cases) {
       const r = await post(path, body);
@@ -114,6 +118,21 @@ describe('calculator API', () => {
     const above = await post('storm-timeline', { ...storm, hydrograph: flat(2), clarifierDepth_m: 4, blanketNow_m: 4.5 });
     expect(above.status).toBe(422);
     expect(Object.keys(above.body.error.fields)).toContain('blanketNow_m');
+  });
+
+  it('every calculator answer carries the operator caution the balance carries', async () => {
+    const bodies: Array<[string, unknown]> = [
+      ['storm', storm],
+      ['state-point', { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, clarifierArea_m2: 1400, settling: { v0_mh: 7, k_Lg: 0.4 } }],
+      ['settler', { feedFlow_m3h: 1500, feedTss_gL: 3, underflowFlow_m3h: 700, area_m2: 1500, depth_m: 4 }],
+      ['srt', { aerationMass_kg: 38400, clarifierMass_kg: 6000, wasFlow_m3h: 20, wasTss_gL: 8, effluentFlow_m3h: 1480, effluentTss_gL: 0.01 }],
+      ['svi', { settledVolume_mLL: 240, mlss_gL: 3 }],
+    ];
+    for (const [path, body] of bodies) {
+      const r = await post(path, body);
+      expect(r.status, path).toBe(200);
+      expect(r.body.caution, path).toBe(OPERATOR_CAUTION);
+    }
   });
 
   it('needs credentials', async () => {
