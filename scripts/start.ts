@@ -13,8 +13,10 @@ import { demoCredentials, startServer } from '../server/main.ts';
 import { labResultInput } from '../shared/contracts/lab.ts';
 import { labRow } from '../server/services/lab.service.ts';
 import { labResults } from '../server/db/schema/index.ts';
-import { seedPlant, updateSeedEndpoints } from '../server/services/plant-seed.service.ts';
+import { plantModelRepository } from '../server/repositories/plant-model.repository.ts';
+import { plantConfigService } from '../server/services/plant-config.service.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
+import { DEMO_SOURCE_NAMES, kestrelBendConfig } from '../simulators/plant/kestrel-bend.config.ts';
 import { buildMonitorIfNeeded } from './build-if-needed.ts';
 import { spawnTs, waitForLine } from './children.ts';
 import { INGEST_NODE_ARGS } from '../ingest/config.ts';
@@ -67,8 +69,12 @@ async function main(): Promise<void> {
 
     if (config.demo) {
       const opcuaUrl = `opc.tcp://127.0.0.1:${config.simOpcuaPort}/flocstream-sim`;
-      const seeded = await seedPlant(server.ctx, DEMO_PLANT, { mqttUrl, opcuaUrl });
-      if (!seeded.created) await updateSeedEndpoints(server.ctx, seeded.plantId, DEMO_PLANT.code, { mqttUrl, opcuaUrl });
+      // The demo plant's configuration document goes through the service behind POST
+      // /api/v1/plants; an existing plant with its code is left as it is, only its two demo
+      // sources follow this run's ports.
+      const plantConfig = plantConfigService(plantModelRepository(server.ctx.db.db));
+      const seeded = await plantConfig.ensure(null, kestrelBendConfig({ mqttUrl, opcuaUrl }));
+      if (!seeded.created) await plantConfig.setSourceUrls(null, seeded.plantId, { [DEMO_SOURCE_NAMES.mqtt]: mqttUrl, [DEMO_SOURCE_NAMES.opcua]: opcuaUrl });
       say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
       if (seeded.created) {
         // The settleability test is a lab entry, not a tag: the demo starts with one diluted
