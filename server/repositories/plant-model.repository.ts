@@ -182,16 +182,13 @@ function coreRepository(db: DbOrTx) {
       const tr = await unitsOfPlant(plantId);
       const ids = tr.map((t) => t.id);
       if (!ids.length) return { trains: tr, basins: [], clarifiers: [], pumps: [] };
-      const [bs, cs, ps] = await Promise.all([
-        db.select().from(basins).where(inArray(basins.trainId, ids)).orderBy(asc(basins.code)),
-        db.select().from(clarifiers).where(inArray(clarifiers.trainId, ids)).orderBy(asc(clarifiers.code)),
-        db.select().from(pumps).where(inArray(pumps.trainId, ids)).orderBy(asc(pumps.code)),
-      ]);
-      const [bv, cv, pv] = await Promise.all([
-        bs.length ? db.select().from(basinVersions).where(inArray(basinVersions.basinId, bs.map((b) => b.id))).orderBy(asc(basinVersions.effectiveFrom)) : [],
-        cs.length ? db.select().from(clarifierVersions).where(inArray(clarifierVersions.clarifierId, cs.map((c) => c.id))).orderBy(asc(clarifierVersions.effectiveFrom)) : [],
-        ps.length ? db.select().from(pumpVersions).where(inArray(pumpVersions.pumpId, ps.map((p) => p.id))).orderBy(asc(pumpVersions.effectiveFrom)) : [],
-      ]);
+      // One after the other: inside a transaction there is one connection, which runs one query at a time.
+      const bs = await db.select().from(basins).where(inArray(basins.trainId, ids)).orderBy(asc(basins.code));
+      const cs = await db.select().from(clarifiers).where(inArray(clarifiers.trainId, ids)).orderBy(asc(clarifiers.code));
+      const ps = await db.select().from(pumps).where(inArray(pumps.trainId, ids)).orderBy(asc(pumps.code));
+      const bv = bs.length ? await db.select().from(basinVersions).where(inArray(basinVersions.basinId, bs.map((b) => b.id))).orderBy(asc(basinVersions.effectiveFrom)) : [];
+      const cv = cs.length ? await db.select().from(clarifierVersions).where(inArray(clarifierVersions.clarifierId, cs.map((c) => c.id))).orderBy(asc(clarifierVersions.effectiveFrom)) : [];
+      const pv = ps.length ? await db.select().from(pumpVersions).where(inArray(pumpVersions.pumpId, ps.map((p) => p.id))).orderBy(asc(pumpVersions.effectiveFrom)) : [];
       return {
         trains: tr,
         basins: bs.map((b) => ({ ...b, versions: bv.filter((v) => v.basinId === b.id).map(({ effectiveFrom, volume_m3, aeratedFraction, sideWaterDepth_m, inService }) => ({ effectiveFrom, volume_m3, aeratedFraction, sideWaterDepth_m, inService })) })),
