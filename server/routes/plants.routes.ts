@@ -23,9 +23,9 @@ import {
 import type { AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
 import type { RouteDef } from '../http/route.ts';
-import { flattenRows } from '../services/csv.service.ts';
+import { displayColumns, flattenRows, sampleCsv } from '../services/csv.service.ts';
 import { ALARM_CSV_COLUMNS, plantService } from '../services/plant.service.ts';
-import { SAMPLE_CSV_COLUMNS, sampleCsvRows, seriesService } from '../services/series.service.ts';
+import { seriesService } from '../services/series.service.ts';
 
 const DEFAULT_LIST_LIMIT = 500;
 const DEFAULT_HISTORY_LIMIT = 5000;
@@ -101,12 +101,14 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       response: samplesResponse,
       handler: async (req: Request, res: Response) => {
         const { plantId, tagId } = req.valid.params as TagParams;
-        await plants.requirePlant(req, plantId);
+        const plant = await plants.requirePlant(req, plantId);
         const out = await series.samples(plantId, tagId, req.valid.query as SamplesQuery);
         setNextPage(req, res, out.nextCursor);
         res.setHeader('X-Resolution', out.resolution);
         if (!wantsCsv(req)) return out;
-        sendCsv(res, `tag-${tagId}-samples.csv`, SAMPLE_CSV_COLUMNS, sampleCsvRows(out.points));
+        // CSV is for people: in the plant's unit system, the unit in the header (JSON stays SI).
+        const csv = sampleCsv(out.points, out.unit, plant.unitSystem);
+        sendCsv(res, `tag-${tagId}-samples.csv`, csv.columns, csv.cells);
       },
     },
     {
@@ -132,7 +134,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
         const out = await plants.balanceHistory(req, pid(req), q, q.limit ?? DEFAULT_HISTORY_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
-        const flat = flattenRows(out.rows);
+        const plant = await plants.requirePlant(req, pid(req));
+        const flat = displayColumns(flattenRows(out.rows), plant.unitSystem);
         sendCsv(res, `plant-${out.plantId}-balances.csv`, flat.columns, flat.cells);
       },
     },

@@ -108,7 +108,8 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
     const parsed = parseCsv(await csvRes.text());
     if (!parsed.ok) throw new Error(parsed.message);
     const [header, ...rows] = parsed.records.map((r) => r.fields);
-    expect(header).toEqual(['ts', 'value', 'min', 'max', 'count', 'quality', 'flags']);
+    // Value columns carry the unit in the header (in the plant's unit system).
+    expect(header!.map((c) => c.replace(/ \[[^\]]+\]$/, ''))).toEqual(['ts', 'value', 'min', 'max', 'count', 'quality', 'flags']);
     const json = (await (await fetch(url, { headers: { Authorization: `Bearer ${token}` } })).json()) as { resolution: string; points: { ts: string; value: number; quality: string }[] };
     expect(json.resolution).toBe('raw');
     // 1 h at 10 s minus the 20 min hole: about 240 points, same in both formats

@@ -175,6 +175,24 @@ describe('plant model API', () => {
     expect(audit.rows[0].n).toBe(2);
   });
 
+  it('CSV exports honour the plant unit system (US: gpm, unit in the header); JSON stays SI', async () => {
+    // Plant A was created with unitSystem US. 227.12470704 m³/h = 1000 gpm (1 gpm = 0.22712470704 m³/h, from
+    // 1 US gal = 3.785411784 L exactly, NIST SP 811 (2008) App. B).
+    const src = await h.ctx.db.pool.query(`INSERT INTO sources (plant_id, name, kind, url) VALUES ($1, 'a-mqtt', 'mqtt', 'mqtt://127.0.0.1:1') RETURNING id`, [plantA]);
+    const tag = await h.ctx.db.pool.query(`INSERT INTO tags (plant_id, source_id, name, address, unit) VALUES ($1, $2, 'FIT-311', 'a/fit311', 'm3/h') RETURNING id`, [plantA, src.rows[0].id]);
+    await h.ctx.db.pool.query(`INSERT INTO samples (tag_id, ts, value, quality) VALUES ($1, now() - interval '1 minute', 227.12470704, 0)`, [tag.rows[0].id]);
+    const url = `/api/v1/plants/${plantA}/tags/${tag.rows[0].id}/samples`;
+    const csv = await analyst.get(`${url}?format=csv`);
+    const [header, row] = csv.text.trim().split('\r\n').map((l) => l.split(','));
+    expect(header).toEqual(['ts', 'value [gpm]', 'min [gpm]', 'max [gpm]', 'count', 'quality', 'flags']);
+    expect(Number(row![1])).toBeCloseTo(1000, 9);
+    expect((await analyst.get(url)).body.points[0].value).toBe(227.12470704);
+    await integ.patch(`/api/v1/plants/${plantA}`).send({ unitSystem: 'SI' });
+    const si = await analyst.get(`${url}?format=csv`);
+    expect(si.text.split('\r\n')[0]).toBe('ts,value [m³/h],min [m³/h],max [m³/h],count,quality,flags');
+    await integ.patch(`/api/v1/plants/${plantA}`).send({ unitSystem: 'US' });
+  });
+
   it('delete refuses while samples exist unless ?force=1; retiring keeps history and stops the engine', async () => {
     const src = await h.ctx.db.pool.query(`INSERT INTO sources (plant_id, name, kind, url) VALUES ($1, 'b-mqtt', 'mqtt', 'mqtt://127.0.0.1:1') RETURNING id`, [plantB]);
     const tag = await h.ctx.db.pool.query(`INSERT INTO tags (plant_id, source_id, name, address, unit) VALUES ($1, $2, 'AIT-1', 'b/ait1', 'g/L') RETURNING id`, [plantB, src.rows[0].id]);

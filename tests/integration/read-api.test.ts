@@ -212,7 +212,8 @@ describe('read API', () => {
     expect(csv.headers['content-type']).toMatch(/^text\/csv/);
     expect(csv.text.endsWith('\r\n')).toBe(true);
     const { header, rows } = csvRows(csv.text);
-    expect(header).toEqual(['ts', 'value', 'min', 'max', 'count', 'quality', 'flags']);
+    // Value columns carry the unit in the header (in the plant's unit system).
+    expect(header!.map((c) => c.replace(/ \[[^\]]+\]$/, ''))).toEqual(['ts', 'value', 'min', 'max', 'count', 'quality', 'flags']);
     expect(rows).toHaveLength(json.points.length);
     rows.forEach((r, i) => {
       const p = json.points[i] as SamplePoint;
