@@ -317,7 +317,10 @@ describe('read API', () => {
     const wide = balanceHistoryResponse.parse((await agent.get(`/api/v1/plants/${f.a}/balance/history`).query({ from: iso(T0 - 30 * D), to: iso(T0 + D) })).body);
     expect(wide.step_s).toBe(Math.ceil((31 * D) / 1000 / 2000));
     const csv = await agent.get(`/api/v1/plants/${f.a}/balance/history`).query({ from: iso(T0), to: iso(T0 + 10 * 60_000), step: 60, format: 'csv' });
-    const { header, rows } = csvRows(csv.text);
+    const { header: withUnits, rows } = csvRows(csv.text);
+    // Columns with an SI suffix carry their display unit in the header (`data.inventory_kg [kg]`).
+    expect(withUnits).toContain('data.inventory_kg [kg]');
+    const header = withUnits.map((c) => c.replace(/ \[[^\]]+\]$/, ''));
     expect(header).toEqual(expect.arrayContaining(['bucket', 'ts', 'computations', 'data.inventory_kg', 'data.margin.ras']));
     expect(Number(rows[3]![header.indexOf('data.margin.ras')])).toBe(body.rows[3]!.data.margin && (body.rows[3]!.data.margin as { ras: number }).ras);
     const paged = await agent.get(`/api/v1/plants/${f.a}/balance/history`).query({ from: iso(T0), to: iso(T0 + 10 * 60_000), step: 60, limit: 4 });
