@@ -11,7 +11,7 @@ import { errorMiddleware } from './http/error-middleware.ts';
 import { NotFoundError } from './http/errors.ts';
 import { buildOpenApi } from './http/openapi.ts';
 import { rateLimit } from './http/rate-limit.ts';
-import { mount, type RouteDef } from './http/route.ts';
+import { defineRoute, mount, type RouteDef } from './http/route.ts';
 import { authRoutes } from './routes/auth.routes.ts';
 import { calcRoutes } from './routes/calc.routes.ts';
 import { labRoutes } from './routes/lab.routes.ts';
@@ -38,14 +38,16 @@ export function apiRoutes(ctx: AppContext): RouteDef[] {
   defs.push(...ingestStatusRoutes(ctx));
   const doc = () => buildOpenApi(defs, VERSION);
   let cached: object | undefined;
-  defs.push({
-    method: 'get',
-    path: '/openapi.json',
-    role: 'public',
-    tag: 'meta',
-    summary: 'This OpenAPI document',
-    handler: () => (cached ??= doc()),
-  });
+  defs.push(
+    defineRoute({
+      method: 'get',
+      path: '/openapi.json',
+      role: 'public',
+      tag: 'meta',
+      summary: 'This OpenAPI document',
+      handler: () => (cached ??= doc()),
+    }),
+  );
   return defs;
 }
 

@@ -1,9 +1,7 @@
-import type { Request } from 'express';
-import type { z } from 'zod';
 import { alarmAckParams, alarmAckRequest, alarmOut } from '../../shared/contracts/alarm.ts';
 import type { AppContext } from '../app-context.ts';
 import { assertPlantAccess } from '../auth/middleware.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { alarmService } from '../services/alarm.service.ts';
 import { notifyStream } from '../services/stream.service.ts';
 
@@ -13,7 +11,7 @@ export function alarmsRoutes(ctx: AppContext): RouteDef[] {
     changed: (a, change) => notifyStream(ctx.db.pool, a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
   });
   return [
-    {
+    defineRoute({
       method: 'post',
       path: '/plants/:plantId/alarms/:alarmId/ack',
       role: 'operator',
@@ -22,11 +20,10 @@ export function alarmsRoutes(ctx: AppContext): RouteDef[] {
       params: alarmAckParams,
       body: alarmAckRequest,
       response: alarmOut,
-      handler: (req: Request) => {
-        const p = req.valid.params as z.infer<typeof alarmAckParams>;
-        assertPlantAccess(req, p.plantId);
-        return svc.acknowledge(req, p.plantId, p.alarmId, (req.valid.body as z.infer<typeof alarmAckRequest>).comment);
+      handler: ({ params, body, req }) => {
+        assertPlantAccess(req, params.plantId);
+        return svc.acknowledge(req, params.plantId, params.alarmId, body.comment);
       },
-    },
+    }),
   ];
 }

@@ -1,12 +1,11 @@
-import type { Request, Response } from 'express';
 import { z } from 'zod';
-import { loginRequest, me, type LoginRequest } from '../../shared/contracts/auth.ts';
+import { loginRequest, me } from '../../shared/contracts/auth.ts';
 import type { AppContext } from '../app-context.ts';
 import { LoginThrottle } from '../auth/login-throttle.ts';
 import { dummyPasswordHash, verifyPassword } from '../auth/passwords.ts';
 import { SESSION_COOKIE, SESSION_TTL_S, signSession } from '../auth/session.ts';
 import { TooManyRequestsError, UnauthorizedError } from '../http/errors.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { userRepository } from '../repositories/user.repository.ts';
 import { audit } from '../services/audit.service.ts';
 
@@ -17,7 +16,7 @@ export function authRoutes(ctx: AppContext): RouteDef[] {
   const byIp = new LoginThrottle(50);
 
   return [
-    {
+    defineRoute({
       method: 'post',
       path: '/auth/login',
       role: 'public',
@@ -25,8 +24,7 @@ export function authRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Sign in; sets the httpOnly session cookie',
       body: loginRequest,
       response: me,
-      handler: async (req: Request, res: Response) => {
-        const { email, password } = req.valid.body as LoginRequest;
+      handler: async ({ body: { email, password }, req, res }) => {
         const keysE = [email];
         const keysI = [req.ip ?? 'unknown'];
         const wait = Math.max(byEmail.retryAfter_s(keysE), byIp.retryAfter_s(keysI));
@@ -46,32 +44,31 @@ export function authRoutes(ctx: AppContext): RouteDef[] {
         await audit(ctx, req, 'auth.login', `user:${user.id}`);
         return { id: user.id, email: user.email, name: user.name, role: user.role, viaToken: false };
       },
-    },
-    {
+    }),
+    defineRoute({
       method: 'post',
       path: '/auth/logout',
       role: 'public',
       tag: 'auth',
       summary: 'Sign out; clears the session cookie',
       response: z.object({ ok: z.literal(true) }),
-      handler: async (req: Request, res: Response) => {
+      handler: async ({ req, res }) => {
         res.clearCookie(SESSION_COOKIE, { httpOnly: true, sameSite: 'strict', secure: ctx.config.secureCookies, path: '/' });
         if (req.principal) await audit(ctx, req, 'auth.logout', `user:${req.principal.userId}`);
         return { ok: true as const };
       },
-    },
-    {
+    }),
+    defineRoute({
       method: 'get',
       path: '/auth/me',
       role: 'analyst',
       tag: 'auth',
       summary: 'The caller: user and effective role',
       response: me,
-      handler: async (req: Request) => {
-        const p = req.principal!;
+      handler: async ({ principal: p }) => {
         const u = await users.byId(p.userId);
         return { id: p.userId, email: p.email, name: u?.name ?? p.email, role: p.role, viaToken: p.tokenId !== null };
       },
-    },
+    }),
   ];
 }

@@ -1,5 +1,5 @@
 import type { AppContext } from '../app-context.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { ingestStatusOut } from '../../shared/contracts/wiring.ts';
 import { ingestStatusService } from '../services/ingest-status.service.ts';
 
@@ -7,7 +7,7 @@ import { ingestStatusService } from '../services/ingest-status.service.ts';
 export function ingestStatusRoutes(ctx: AppContext): RouteDef[] {
   const svc = ingestStatusService(ctx);
   return [
-    {
+    defineRoute({
       method: 'get',
       path: '/ingest/status',
       role: 'analyst',
@@ -15,7 +15,7 @@ export function ingestStatusRoutes(ctx: AppContext): RouteDef[] {
       summary:
         'Ingest process: running (heartbeat at most 10 s old, else running:false with the reason and the last figures), samples/s, receive→commit lag [ms], spool size, writer counters, connection state per source, dead letters in the last hour and in total',
       response: ingestStatusOut,
-      handler: (req) => svc.status(req),
-    },
+      handler: ({ req }) => svc.status(req),
+    }),
   ];
 }

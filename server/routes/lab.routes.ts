@@ -1,10 +1,10 @@
-import express, { type Request, type Response } from 'express';
-import { labImportResponse, labResultInput, labResultOut, labResultsQuery, labResultsResponse, type LabResultInput, type LabResultsQuery } from '../../shared/contracts/lab.ts';
-import { plantParams, type PlantParams } from '../../shared/contracts/plant-api.ts';
+import express from 'express';
+import { labImportResponse, labResultInput, labResultOut, labResultsQuery, labResultsResponse } from '../../shared/contracts/lab.ts';
+import { plantParams } from '../../shared/contracts/plant-api.ts';
 import type { AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
 import { HttpError } from '../http/errors.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { LAB_CSV_EXPORT_COLUMNS, labCsvRows, labService } from '../services/lab.service.ts';
 import { plantService } from '../services/plant.service.ts';
 
@@ -22,9 +22,8 @@ const csvBody = express.text({ type: ['text/csv', 'text/plain', 'application/csv
 export function labRoutes(ctx: AppContext): RouteDef[] {
   const plants = plantService(ctx);
   const lab = labService(ctx);
-  const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
   return [
-    {
+    defineRoute({
       method: 'get',
       path: '/plants/:plantId/lab-results',
       role: 'analyst',
@@ -34,16 +33,15 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       query: labResultsQuery,
       csv: true,
       response: labResultsResponse,
-      handler: async (req: Request, res: Response) => {
-        const q = req.valid.query as LabResultsQuery;
-        await plants.requirePlant(req, pid(req));
-        const out = await lab.list(pid(req), q, q.limit ?? DEFAULT_LIMIT);
+      handler: async ({ params, query: q, req, res }) => {
+        await plants.requirePlant(req, params.plantId);
+        const out = await lab.list(params.plantId, q, q.limit ?? DEFAULT_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-lab-results.csv`, LAB_CSV_EXPORT_COLUMNS, labCsvRows(out.results));
       },
-    },
-    {
+    }),
+    defineRoute({
       method: 'post',
       path: '/plants/:plantId/lab-results',
       role: 'operator',
@@ -54,12 +52,12 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: labResultInput,
       response: labResultOut,
-      handler: async (req: Request) => {
-        await plants.requirePlant(req, pid(req));
-        return lab.create(req, pid(req), req.valid.body as LabResultInput);
+      handler: async ({ params, body, req }) => {
+        await plants.requirePlant(req, params.plantId);
+        return lab.create(req, params.plantId, body);
       },
-    },
-    {
+    }),
+    defineRoute({
       method: 'post',
       path: '/plants/:plantId/lab-results/import',
       role: 'operator',
@@ -70,11 +68,11 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       before: [csvBody],
       response: labImportResponse,
-      handler: async (req: Request) => {
-        await plants.requirePlant(req, pid(req));
+      handler: async ({ params, req }) => {
+        await plants.requirePlant(req, params.plantId);
         if (typeof req.body !== 'string') throw new HttpError(415, 'unsupported_media_type', 'send the file as the request body with Content-Type: text/csv');
-        return lab.importCsv(req, pid(req), req.body);
+        return lab.importCsv(req, params.plantId, req.body);
       },
-    },
+    }),
   ];
 }

@@ -1,7 +1,6 @@
-import type { Request } from 'express';
 import { z } from 'zod';
 import type { AppContext } from '../app-context.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { outboxReader } from '../mail/outbox.ts';
 
 const summary = z.object({ id: z.number().int(), receivedAt: z.iso.datetime(), from: z.string(), to: z.array(z.string()), subject: z.string(), size: z.number().int() });
@@ -12,7 +11,7 @@ const idParams = z.strictObject({ id: z.coerce.number().int().positive() });
 export function outboxRoutes(ctx: AppContext): RouteDef[] {
   const reader = outboxReader(ctx.db.db);
   return [
-    {
+    defineRoute({
       method: 'get',
       path: '/outbox',
       role: 'admin',
@@ -20,12 +19,9 @@ export function outboxRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Messages the built-in mail catcher received, newest first (?limit=, ?beforeId= to page)',
       query: listQuery,
       response: z.array(summary),
-      handler: (req: Request) => {
-        const q = req.valid.query as z.infer<typeof listQuery>;
-        return reader.list(q.limit, q.beforeId);
-      },
-    },
-    {
+      handler: ({ query }) => reader.list(query.limit, query.beforeId),
+    }),
+    defineRoute({
       method: 'get',
       path: '/outbox/:id',
       role: 'admin',
@@ -33,7 +29,7 @@ export function outboxRoutes(ctx: AppContext): RouteDef[] {
       summary: 'One caught message: decoded text and the raw message',
       params: idParams,
       response: summary.extend({ text: z.string(), raw: z.string() }),
-      handler: (req: Request) => reader.get((req.valid.params as z.infer<typeof idParams>).id),
-    },
+      handler: ({ params }) => reader.get(params.id),
+    }),
   ];
 }

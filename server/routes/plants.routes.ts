@@ -1,4 +1,3 @@
-import type { Request, Response } from 'express';
 import { z } from 'zod';
 import {
   alarmsQuery,
@@ -14,15 +13,10 @@ import {
   tableQuery,
   tagParams,
   tagsResponse,
-  type AlarmsQuery,
-  type BalanceHistoryQuery,
-  type PlantParams,
-  type SamplesQuery,
-  type TagParams,
 } from '../../shared/contracts/plant-api.ts';
 import type { AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { flattenRows } from '../services/csv.service.ts';
 import { ALARM_CSV_COLUMNS, plantService } from '../services/plant.service.ts';
 import { SAMPLE_CSV_COLUMNS, sampleCsvRows, seriesService } from '../services/series.service.ts';
@@ -40,9 +34,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
   const plants = plantService(ctx);
   const series = seriesService(ctx);
   const common = { role: 'analyst' as const, tag: 'plants' };
-  const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
   return [
-    {
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants',
@@ -50,22 +43,22 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: tableQuery,
       csv: true,
       response: z.array(plantSummary),
-      handler: async (req: Request, res: Response) => {
+      handler: async ({ req, res }) => {
         const list = await plants.list(req);
         if (!wantsCsv(req)) return list;
         sendCsv(res, 'plants.csv', ['id', 'code', 'name', 'timezone', 'peakFlow_m3h', 'createdAt'], list.map((p) => [p.id, p.code, p.name, p.timezone, p.peakFlow_m3h, p.createdAt]));
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId',
       summary: 'A plant and its layout: trains with basins, clarifiers and pumps; peak flow',
       params: plantParams,
       response: plantLayoutOut,
-      handler: (req: Request) => plants.layout(req, pid(req)),
-    },
-    {
+      handler: ({ params, req }) => plants.layout(req, params.plantId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/tags',
@@ -74,8 +67,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: tableQuery,
       csv: true,
       response: tagsResponse,
-      handler: async (req: Request, res: Response) => {
-        const out = await plants.tags(req, pid(req));
+      handler: async ({ params, req, res }) => {
+        const out = await plants.tags(req, params.plantId);
         if (!wantsCsv(req)) return out;
         const cols = ['id', 'name', 'unit', 'value', 'ts', 'age_s', 'stale', 'quality', 'qualityCode', 'qualityFlags', 'sourceKind', 'sourceName', 'signals', 'expectedPeriod_s', 'enabled', 'description'];
         sendCsv(
@@ -88,8 +81,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
           ]),
         );
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/tags/:tagId/samples',
@@ -99,26 +92,25 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: samplesQuery,
       csv: true,
       response: samplesResponse,
-      handler: async (req: Request, res: Response) => {
-        const { plantId, tagId } = req.valid.params as TagParams;
+      handler: async ({ params: { plantId, tagId }, query, req, res }) => {
         await plants.requirePlant(req, plantId);
-        const out = await series.samples(plantId, tagId, req.valid.query as SamplesQuery);
+        const out = await series.samples(plantId, tagId, query);
         setNextPage(req, res, out.nextCursor);
         res.setHeader('X-Resolution', out.resolution);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `tag-${tagId}-samples.csv`, SAMPLE_CSV_COLUMNS, sampleCsvRows(out.points));
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/balance/live',
       summary: 'The latest balance computation; 200 with balance: null and a reason when none has been computed yet (404 only for an unknown plant)',
       params: plantParams,
       response: balanceLiveResponse,
-      handler: (req: Request) => plants.balanceLive(req, pid(req)),
-    },
-    {
+      handler: ({ params, req }) => plants.balanceLive(req, params.plantId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/balance/history',
@@ -127,16 +119,15 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: balanceHistoryQuery,
       csv: true,
       response: balanceHistoryResponse,
-      handler: async (req: Request, res: Response) => {
-        const q = req.valid.query as BalanceHistoryQuery;
-        const out = await plants.balanceHistory(req, pid(req), q, q.limit ?? DEFAULT_HISTORY_LIMIT);
+      handler: async ({ params, query: q, req, res }) => {
+        const out = await plants.balanceHistory(req, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         const flat = flattenRows(out.rows);
         sendCsv(res, `plant-${out.plantId}-balances.csv`, flat.columns, flat.cells);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/alarms',
@@ -145,13 +136,12 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: alarmsQuery,
       csv: true,
       response: alarmsResponse,
-      handler: async (req: Request, res: Response) => {
-        const q = req.valid.query as AlarmsQuery;
-        const out = await plants.alarms(req, pid(req), q, q.limit ?? DEFAULT_LIST_LIMIT);
+      handler: async ({ params, query: q, req, res }) => {
+        const out = await plants.alarms(req, params.plantId, q, q.limit ?? DEFAULT_LIST_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-alarms.csv`, ALARM_CSV_COLUMNS, out.alarms.map((a) => ALARM_CSV_COLUMNS.map((c) => a[c])));
       },
-    },
+    }),
   ];
 }

@@ -1,13 +1,12 @@
-import type { Request } from 'express';
-import { putSettingsRequest, settingsOut, settingsQuery, type PutSettingsRequest } from '../../shared/contracts/settings.ts';
+import { putSettingsRequest, settingsOut, settingsQuery } from '../../shared/contracts/settings.ts';
 import type { AppContext } from '../app-context.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { settingsService } from '../services/settings.service.ts';
 
 export function settingsRoutes(ctx: AppContext): RouteDef[] {
   const svc = settingsService(ctx);
   return [
-    {
+    defineRoute({
       method: 'get',
       path: '/settings',
       role: 'analyst',
@@ -15,9 +14,9 @@ export function settingsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Effective settings (thresholds, SRT target, windows, mail) for a plant (?plantId=, 0 = global), with defaults and where each value comes from',
       query: settingsQuery,
       response: settingsOut,
-      handler: (req: Request) => svc.describe((req.valid.query as { plantId: number }).plantId),
-    },
-    {
+      handler: ({ query }) => svc.describe(query.plantId),
+    }),
+    defineRoute({
       method: 'put',
       path: '/settings',
       role: 'admin',
@@ -25,7 +24,7 @@ export function settingsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Set values for a plant (plantId 0 = global); null removes an override; audited',
       body: putSettingsRequest,
       response: settingsOut,
-      handler: (req: Request) => svc.put(req, req.valid.body as PutSettingsRequest),
-    },
+      handler: ({ body, req }) => svc.put(req, body),
+    }),
   ];
 }

@@ -1,7 +1,6 @@
-import type { Request, Response } from 'express';
-import { plantParams, streamQuery, STREAM_EVENTS, type PlantParams, type StreamEventName } from '../../shared/contracts/plant-api.ts';
+import { plantParams, streamQuery, STREAM_EVENTS, type StreamEventName } from '../../shared/contracts/plant-api.ts';
 import type { AppContext } from '../app-context.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { plantService } from '../services/plant.service.ts';
 import { serveStream, streamHub } from '../services/stream.service.ts';
 
@@ -10,7 +9,7 @@ export function streamRoutes(ctx: AppContext): RouteDef[] {
   const plants = plantService(ctx);
   const hub = streamHub(ctx);
   return [
-    {
+    defineRoute({
       method: 'get',
       path: '/plants/:plantId/stream',
       role: 'analyst',
@@ -20,13 +19,12 @@ export function streamRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       query: streamQuery,
       produces: 'text/event-stream',
-      handler: async (req: Request, res: Response) => {
-        const { plantId } = req.valid.params as PlantParams;
+      handler: async ({ params: { plantId }, query, req, res }) => {
         await plants.requirePlant(req, plantId);
-        const wanted = (req.valid.query as { events?: string }).events;
+        const wanted = query.events;
         const events = new Set<StreamEventName>(wanted ? (wanted.split(',') as StreamEventName[]) : STREAM_EVENTS);
         await serveStream(hub, req, res, plantId, events);
       },
-    },
+    }),
   ];
 }

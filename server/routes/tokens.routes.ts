@@ -1,11 +1,10 @@
-import type { Request } from 'express';
 import { z } from 'zod';
-import { createTokenRequest, createTokenResponse, idParam, tokenOut, type CreateTokenRequest, type TokenOut } from '../../shared/contracts/auth.ts';
+import { createTokenRequest, createTokenResponse, idParam, tokenOut, type TokenOut } from '../../shared/contracts/auth.ts';
 import { roleAtLeast } from '../../shared/contracts/roles.ts';
 import type { AppContext } from '../app-context.ts';
 import { hashToken, newTokenSecret, tokenPrefix } from '../auth/api-tokens.ts';
 import { ForbiddenError, NotFoundError } from '../http/errors.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { tokenRepository } from '../repositories/user.repository.ts';
 import { audit } from '../services/audit.service.ts';
 
@@ -25,15 +24,15 @@ export function tokensRoutes(ctx: AppContext): RouteDef[] {
   const repo = tokenRepository(ctx.db.db);
   const common = { role: 'analyst' as const, sessionOnly: true, tag: 'tokens' };
   return [
-    {
+    defineRoute({
       ...common,
       method: 'get',
       path: '/tokens',
       summary: 'List my API tokens (secrets are never shown again)',
       response: z.array(tokenOut),
-      handler: async (req: Request) => (await repo.listForUser(req.principal!.userId)).map(out),
-    },
-    {
+      handler: async ({ principal }) => (await repo.listForUser(principal.userId)).map(out),
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/tokens',
@@ -41,9 +40,7 @@ export function tokensRoutes(ctx: AppContext): RouteDef[] {
       status: 201,
       body: createTokenRequest,
       response: createTokenResponse,
-      handler: async (req: Request) => {
-        const body = req.valid.body as CreateTokenRequest;
-        const p = req.principal!;
+      handler: async ({ body, principal: p, req }) => {
         if (!roleAtLeast(p.role, body.role)) throw new ForbiddenError(`a token cannot have a higher role (${body.role}) than yours (${p.role})`);
         const secret = newTokenSecret();
         const expiresAt = new Date(Date.now() + body.expiresInDays * 86_400_000);
@@ -51,20 +48,19 @@ export function tokensRoutes(ctx: AppContext): RouteDef[] {
         await audit(ctx, req, 'token.create', `token:${row.id}`, { name: body.name, role: body.role, expiresAt: expiresAt.toISOString(), plantIds: body.plantIds ?? null });
         return { id: row.id, token: secret, expiresAt: expiresAt.toISOString() };
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/tokens/:id',
       summary: 'Revoke one of my API tokens',
       params: idParam,
       response: z.object({ ok: z.literal(true) }),
-      handler: async (req: Request) => {
-        const { id } = req.valid.params as { id: number };
-        if (!(await repo.revoke(req.principal!.userId, id))) throw new NotFoundError(`no active token ${id} of yours`);
+      handler: async ({ params: { id }, principal, req }) => {
+        if (!(await repo.revoke(principal.userId, id))) throw new NotFoundError(`no active token ${id} of yours`);
         await audit(ctx, req, 'token.revoke', `token:${id}`);
         return { ok: true as const };
       },
-    },
+    }),
   ];
 }

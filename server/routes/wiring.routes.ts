@@ -1,6 +1,6 @@
-import express, { type Request } from 'express';
+import express from 'express';
 import { z } from 'zod';
-import { plantParams, type PlantParams } from '../../shared/contracts/plant-api.ts';
+import { plantParams } from '../../shared/contracts/plant-api.ts';
 import {
   browseOut,
   browseQuery,
@@ -22,15 +22,10 @@ import {
   tagImportQuery,
   tagPatch,
   tagsConfigResponse,
-  type MappingPut,
-  type SourceCreate,
-  type SourcePatch,
-  type TagCreate,
-  type TagPatch,
 } from '../../shared/contracts/wiring.ts';
 import type { AppContext } from '../app-context.ts';
 import { HttpError } from '../http/errors.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 import { plantService } from '../services/plant.service.ts';
 import { wiringService } from '../services/wiring.service.ts';
 
@@ -47,24 +42,21 @@ const deleted = z.object({ deleted: z.literal(true), id: z.number().int() });
 export function wiringRoutes(ctx: AppContext): RouteDef[] {
   const plants = plantService(ctx);
   const wiring = wiringService(ctx);
-  const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
-  const sid = (req: Request) => (req.valid.params as { sourceId: number }).sourceId;
-  const tid = (req: Request) => (req.valid.params as { tagId: number }).tagId;
   const common = { role: 'integrator', tag: 'wiring' } as const;
   return [
-    {
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/sources',
       summary: 'Sources of a plant (MQTT brokers, OPC UA endpoints); passwords are never returned, hasSecret says whether one is stored',
       params: plantParams,
       response: sourcesResponse,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.listSources(pid(req));
+      handler: async ({ params, req }) => {
+        await plants.requirePlant(req, params.plantId);
+        return wiring.listSources(params.plantId);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/plants/:plantId/sources',
@@ -74,21 +66,21 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: sourceCreate,
       response: sourceOut,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.createSource(req, pid(req), req.valid.body as SourceCreate);
+      handler: async ({ params, body, req }) => {
+        await plants.requirePlant(req, params.plantId);
+        return wiring.createSource(req, params.plantId, body);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/sources/:sourceId',
       summary: 'One source with its tag count; the password is never returned (hasSecret)',
       params: sourceParams,
       response: sourceOut,
-      handler: (req) => wiring.getSource(req, sid(req)),
-    },
-    {
+      handler: ({ params, req }) => wiring.getSource(req, params.sourceId),
+    }),
+    defineRoute({
       ...common,
       method: 'patch',
       path: '/sources/:sourceId',
@@ -96,9 +88,9 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       body: sourcePatch,
       response: sourceOut,
-      handler: (req) => wiring.updateSource(req, sid(req), req.valid.body as SourcePatch),
-    },
-    {
+      handler: ({ params, body, req }) => wiring.updateSource(req, params.sourceId, body),
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/sources/:sourceId',
@@ -106,18 +98,18 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       query: sourceDeleteQuery,
       response: deleted.extend({ tagsDeleted: z.number().int() }),
-      handler: (req) => wiring.deleteSource(req, sid(req), (req.valid.query as { force?: string }).force === '1'),
-    },
-    {
+      handler: ({ params, query, req }) => wiring.deleteSource(req, params.sourceId, query.force === '1'),
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/sources/:sourceId/test',
       summary: 'Test the connection with the stored settings: MQTT CONNECT/CONNACK within 5 s, OPC UA secure channel and session within 8 s; answers ok:false with the error (still 200) when the far end fails',
       params: sourceParams,
       response: connectionTestOut,
-      handler: (req) => wiring.testSource(req, sid(req)),
-    },
-    {
+      handler: ({ params, req }) => wiring.testSource(req, params.sourceId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/sources/:sourceId/browse',
@@ -125,30 +117,30 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       query: browseQuery,
       response: browseOut,
-      handler: (req) => wiring.browse(req, sid(req), (req.valid.query as { nodeId?: string }).nodeId),
-    },
-    {
+      handler: ({ params, query, req }) => wiring.browse(req, params.sourceId, query.nodeId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/sources/:sourceId/discovery',
       summary: 'MQTT source: topics ingest has seen with their last payload (first 256 characters), count and mapped tag; empty with a note until ingest has written the list',
       params: sourceParams,
       response: discoveryOut,
-      handler: (req) => wiring.discovery(req, sid(req)),
-    },
-    {
+      handler: ({ params, req }) => wiring.discovery(req, params.sourceId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/tags/config',
       summary: 'Tag configuration of a plant (address, scaling, deadband, expected period, range, sampling interval, mapped signals); live values are GET /plants/{plantId}/tags',
       params: plantParams,
       response: tagsConfigResponse,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.listTags(pid(req));
+      handler: async ({ params, req }) => {
+        await plants.requirePlant(req, params.plantId);
+        return wiring.listTags(params.plantId);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/plants/:plantId/tags',
@@ -157,12 +149,12 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: tagCreate,
       response: tagConfigOut,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.createTag(req, pid(req), req.valid.body as TagCreate);
+      handler: async ({ params, body, req }) => {
+        await plants.requirePlant(req, params.plantId);
+        return wiring.createTag(req, params.plantId, body);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'patch',
       path: '/tags/:tagId',
@@ -170,18 +162,18 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: tagIdParams,
       body: tagPatch,
       response: tagConfigOut,
-      handler: (req) => wiring.updateTag(req, tid(req), req.valid.body as TagPatch),
-    },
-    {
+      handler: ({ params, body, req }) => wiring.updateTag(req, params.tagId, body),
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/tags/:tagId',
       summary: 'Delete a tag and its signal mappings (stored samples stay)',
       params: tagIdParams,
       response: deleted,
-      handler: (req) => wiring.deleteTag(req, tid(req)),
-    },
-    {
+      handler: ({ params, req }) => wiring.deleteTag(req, params.tagId),
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/plants/:plantId/tags/import',
@@ -192,17 +184,17 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       query: tagImportQuery,
       before: [csvBody],
       response: tagImportOut,
-      handler: async (req, res) => {
-        await plants.requirePlant(req, pid(req));
+      handler: async ({ params, query, req, res }) => {
+        await plants.requirePlant(req, params.plantId);
         if (typeof req.body !== 'string') throw new HttpError(415, 'unsupported_media_type', 'send the file as the request body with Content-Type: text/csv');
-        const dryRun = (req.valid.query as { dryRun?: string }).dryRun === '1';
-        const out = await wiring.importCsv(req, pid(req), req.body, dryRun);
+        const dryRun = query.dryRun === '1';
+        const out = await wiring.importCsv(req, params.plantId, req.body, dryRun);
         if (dryRun) res.status(200);
         else res.status(201);
         res.json(out);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'put',
       path: '/plants/:plantId/signal-map',
@@ -211,19 +203,19 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: mappingPut,
       response: mappingPutOut,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.putMapping(req, pid(req), req.valid.body as MappingPut);
+      handler: async ({ params, body, req }) => {
+        await plants.requirePlant(req, params.plantId);
+        return wiring.putMapping(req, params.plantId, body);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/signal-map/:id',
       summary: 'Remove one signal mapping',
       params: mappingParams,
       response: deleted,
-      handler: (req) => wiring.deleteMapping(req, (req.valid.params as { id: number }).id),
-    },
+      handler: ({ params, req }) => wiring.deleteMapping(req, params.id),
+    }),
   ];
 }
