@@ -1,12 +1,10 @@
 import express from 'express';
 import { labImportResponse, labResultInput, labResultOut, labResultsQuery, labResultsResponse } from '../../shared/contracts/lab.ts';
 import { plantParams } from '../../shared/contracts/plant-api.ts';
-import type { AppContext } from '../app-context.ts';
+import { services, type AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
-import { HttpError } from '../http/errors.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
-import { LAB_CSV_EXPORT_COLUMNS, labCsvRows, labService } from '../services/lab.service.ts';
-import { plantService } from '../services/plant.service.ts';
+import { LAB_CSV_EXPORT_COLUMNS, labCsvRows } from '../services/lab.service.ts';
 
 /** Largest CSV upload [bytes]; 1 MiB holds far more than the row limit of a day's lab sheet. */
 export const LAB_CSV_MAX_BYTES = 1 << 20;
@@ -20,8 +18,7 @@ const csvBody = express.text({ type: ['text/csv', 'text/plain', 'application/csv
  * audited. Import policy: all or nothing (see the import summary).
  */
 export function labRoutes(ctx: AppContext): RouteDef[] {
-  const plants = plantService(ctx);
-  const lab = labService(ctx);
+  const { lab } = services(ctx);
   return [
     defineRoute({
       method: 'get',
@@ -33,9 +30,8 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       query: labResultsQuery,
       csv: true,
       response: labResultsResponse,
-      handler: async ({ params, query: q, req, res }) => {
-        await plants.requirePlant(req, params.plantId);
-        const out = await lab.list(params.plantId, q, q.limit ?? DEFAULT_LIMIT);
+      handler: async ({ params, query, principal, req, res }) => {
+        const out = await lab.list(principal, params.plantId, query, query.limit ?? DEFAULT_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-lab-results.csv`, LAB_CSV_EXPORT_COLUMNS, labCsvRows(out.results));
@@ -52,10 +48,7 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: labResultInput,
       response: labResultOut,
-      handler: async ({ params, body, req }) => {
-        await plants.requirePlant(req, params.plantId);
-        return lab.create(req, params.plantId, body);
-      },
+      handler: ({ params, body, principal }) => lab.create(principal, params.plantId, body),
     }),
     defineRoute({
       method: 'post',
@@ -68,11 +61,7 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       before: [csvBody],
       response: labImportResponse,
-      handler: async ({ params, req }) => {
-        await plants.requirePlant(req, params.plantId);
-        if (typeof req.body !== 'string') throw new HttpError(415, 'unsupported_media_type', 'send the file as the request body with Content-Type: text/csv');
-        return lab.importCsv(req, params.plantId, req.body);
-      },
+      handler: ({ params, principal, req }) => lab.importCsv(principal, params.plantId, typeof req.body === 'string' ? req.body : undefined),
     }),
   ];
 }

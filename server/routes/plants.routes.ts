@@ -14,12 +14,12 @@ import {
   tagParams,
   tagsResponse,
 } from '../../shared/contracts/plant-api.ts';
-import type { AppContext } from '../app-context.ts';
+import { services, type AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
 import { flattenRows } from '../services/csv.service.ts';
-import { ALARM_CSV_COLUMNS, plantService } from '../services/plant.service.ts';
-import { SAMPLE_CSV_COLUMNS, sampleCsvRows, seriesService } from '../services/series.service.ts';
+import { ALARM_CSV_COLUMNS } from '../services/plant.service.ts';
+import { SAMPLE_CSV_COLUMNS, sampleCsvRows } from '../services/series.service.ts';
 
 const DEFAULT_LIST_LIMIT = 500;
 const DEFAULT_HISTORY_LIMIT = 5000;
@@ -31,8 +31,7 @@ const DEFAULT_HISTORY_LIMIT = 5000;
  * `cursor` + `limit` (nextCursor in the JSON body, `Link: rel="next"` and `X-Next-Cursor` headers).
  */
 export function plantsRoutes(ctx: AppContext): RouteDef[] {
-  const plants = plantService(ctx);
-  const series = seriesService(ctx);
+  const { plants, series } = services(ctx);
   const common = { role: 'analyst' as const, tag: 'plants' };
   return [
     defineRoute({
@@ -43,8 +42,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: tableQuery,
       csv: true,
       response: z.array(plantSummary),
-      handler: async ({ req, res }) => {
-        const list = await plants.list(req);
+      handler: async ({ principal, req, res }) => {
+        const list = await plants.list(principal);
         if (!wantsCsv(req)) return list;
         sendCsv(res, 'plants.csv', ['id', 'code', 'name', 'timezone', 'peakFlow_m3h', 'createdAt'], list.map((p) => [p.id, p.code, p.name, p.timezone, p.peakFlow_m3h, p.createdAt]));
       },
@@ -56,7 +55,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'A plant and its layout: trains with basins, clarifiers and pumps; peak flow',
       params: plantParams,
       response: plantLayoutOut,
-      handler: ({ params, req }) => plants.layout(req, params.plantId),
+      handler: ({ params, principal }) => plants.layout(principal, params.plantId),
     }),
     defineRoute({
       ...common,
@@ -67,8 +66,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: tableQuery,
       csv: true,
       response: tagsResponse,
-      handler: async ({ params, req, res }) => {
-        const out = await plants.tags(req, params.plantId);
+      handler: async ({ params, principal, req, res }) => {
+        const out = await plants.tags(principal, params.plantId);
         if (!wantsCsv(req)) return out;
         const cols = ['id', 'name', 'unit', 'value', 'ts', 'age_s', 'stale', 'quality', 'qualityCode', 'qualityFlags', 'sourceKind', 'sourceName', 'signals', 'expectedPeriod_s', 'enabled', 'description'];
         sendCsv(
@@ -92,9 +91,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: samplesQuery,
       csv: true,
       response: samplesResponse,
-      handler: async ({ params: { plantId, tagId }, query, req, res }) => {
-        await plants.requirePlant(req, plantId);
-        const out = await series.samples(plantId, tagId, query);
+      handler: async ({ params: { plantId, tagId }, query, principal, req, res }) => {
+        const out = await series.samples(principal, plantId, tagId, query);
         setNextPage(req, res, out.nextCursor);
         res.setHeader('X-Resolution', out.resolution);
         if (!wantsCsv(req)) return out;
@@ -108,7 +106,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'The latest balance computation; 200 with balance: null and a reason when none has been computed yet (404 only for an unknown plant)',
       params: plantParams,
       response: balanceLiveResponse,
-      handler: ({ params, req }) => plants.balanceLive(req, params.plantId),
+      handler: ({ params, principal }) => plants.balanceLive(principal, params.plantId),
     }),
     defineRoute({
       ...common,
@@ -119,8 +117,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: balanceHistoryQuery,
       csv: true,
       response: balanceHistoryResponse,
-      handler: async ({ params, query: q, req, res }) => {
-        const out = await plants.balanceHistory(req, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT);
+      handler: async ({ params, query: q, principal, req, res }) => {
+        const out = await plants.balanceHistory(principal, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         const flat = flattenRows(out.rows);
@@ -136,8 +134,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: alarmsQuery,
       csv: true,
       response: alarmsResponse,
-      handler: async ({ params, query: q, req, res }) => {
-        const out = await plants.alarms(req, params.plantId, q, q.limit ?? DEFAULT_LIST_LIMIT);
+      handler: async ({ params, query: q, principal, req, res }) => {
+        const out = await plants.alarms(principal, params.plantId, q, q.limit ?? DEFAULT_LIST_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-alarms.csv`, ALARM_CSV_COLUMNS, out.alarms.map((a) => ALARM_CSV_COLUMNS.map((c) => a[c])));

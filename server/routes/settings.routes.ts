@@ -1,10 +1,9 @@
 import { putSettingsRequest, settingsOut, settingsQuery } from '../../shared/contracts/settings.ts';
-import type { AppContext } from '../app-context.ts';
+import { services, type AppContext } from '../app-context.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
-import { settingsService } from '../services/settings.service.ts';
 
 export function settingsRoutes(ctx: AppContext): RouteDef[] {
-  const svc = settingsService(ctx);
+  const svc = services(ctx).settings;
   return [
     defineRoute({
       method: 'get',
@@ -24,7 +23,7 @@ export function settingsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Set values for a plant (plantId 0 = global); null removes an override; audited',
       body: putSettingsRequest,
       response: settingsOut,
-      handler: ({ body, req }) => svc.put(req, body),
+      handler: ({ body, principal }) => svc.put(principal, body),
     }),
   ];
 }

@@ -1,13 +1,11 @@
 import { plantParams, streamQuery, STREAM_EVENTS, type StreamEventName } from '../../shared/contracts/plant-api.ts';
-import type { AppContext } from '../app-context.ts';
+import { services, type AppContext } from '../app-context.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
-import { plantService } from '../services/plant.service.ts';
-import { serveStream, streamHub } from '../services/stream.service.ts';
+import { sendSse } from '../http/sse.ts';
 
 /** Live stream of a plant as Server-Sent Events (server/services/stream.service.ts has the wire details). */
 export function streamRoutes(ctx: AppContext): RouteDef[] {
-  const plants = plantService(ctx);
-  const hub = streamHub(ctx);
+  const { stream } = services(ctx);
   return [
     defineRoute({
       method: 'get',
@@ -19,11 +17,9 @@ export function streamRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       query: streamQuery,
       produces: 'text/event-stream',
-      handler: async ({ params: { plantId }, query, req, res }) => {
-        await plants.requirePlant(req, plantId);
-        const wanted = query.events;
-        const events = new Set<StreamEventName>(wanted ? (wanted.split(',') as StreamEventName[]) : STREAM_EVENTS);
-        await serveStream(hub, req, res, plantId, events);
+      handler: async ({ params, query, principal, req, res }) => {
+        const events = new Set<StreamEventName>(query.events ? (query.events.split(',') as StreamEventName[]) : STREAM_EVENTS);
+        await sendSse(req, res, await stream.open(principal, params.plantId, events));
       },
     }),
   ];

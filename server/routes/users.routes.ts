@@ -1,11 +1,10 @@
 import { z } from 'zod';
 import { createUserRequest, idParam, updateUserRequest, userOut } from '../../shared/contracts/auth.ts';
-import type { AppContext } from '../app-context.ts';
+import { services, type AppContext } from '../app-context.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
-import { userService } from '../services/user.service.ts';
 
 export function usersRoutes(ctx: AppContext): RouteDef[] {
-  const svc = userService(ctx);
+  const svc = services(ctx).users;
   const common = { role: 'admin' as const, sessionOnly: true, tag: 'users' };
   return [
     defineRoute({ ...common, method: 'get', path: '/users', summary: 'List users', response: z.array(userOut), handler: () => svc.list() }),
@@ -17,7 +16,7 @@ export function usersRoutes(ctx: AppContext): RouteDef[] {
       status: 201,
       body: createUserRequest,
       response: userOut,
-      handler: ({ body, req }) => svc.create(req, body),
+      handler: ({ body, principal }) => svc.create(principal, body),
     }),
     defineRoute({
       ...common,
@@ -27,7 +26,7 @@ export function usersRoutes(ctx: AppContext): RouteDef[] {
       params: idParam,
       body: updateUserRequest,
       response: userOut,
-      handler: ({ params, body, req }) => svc.update(req, params.id, body),
+      handler: ({ params, body, principal }) => svc.update(principal, params.id, body),
     }),
     defineRoute({
       ...common,
@@ -36,7 +35,7 @@ export function usersRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Delete a user (and its tokens)',
       params: idParam,
       response: z.object({ ok: z.literal(true) }),
-      handler: ({ params, req }) => svc.remove(req, params.id),
+      handler: ({ params, principal }) => svc.remove(principal, params.id),
     }),
   ];
 }

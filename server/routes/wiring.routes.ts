@@ -23,11 +23,8 @@ import {
   tagPatch,
   tagsConfigResponse,
 } from '../../shared/contracts/wiring.ts';
-import type { AppContext } from '../app-context.ts';
-import { HttpError } from '../http/errors.ts';
+import { services, type AppContext } from '../app-context.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
-import { plantService } from '../services/plant.service.ts';
-import { wiringService } from '../services/wiring.service.ts';
 
 /** Largest tag-list upload [bytes]. */
 export const TAG_CSV_MAX_BYTES = 1 << 20;
@@ -40,8 +37,7 @@ const deleted = z.object({ deleted: z.literal(true), id: z.number().int() });
  * audited; source passwords are write-only.
  */
 export function wiringRoutes(ctx: AppContext): RouteDef[] {
-  const plants = plantService(ctx);
-  const wiring = wiringService(ctx);
+  const { wiring } = services(ctx);
   const common = { role: 'integrator', tag: 'wiring' } as const;
   return [
     defineRoute({
@@ -51,10 +47,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Sources of a plant (MQTT brokers, OPC UA endpoints); passwords are never returned, hasSecret says whether one is stored',
       params: plantParams,
       response: sourcesResponse,
-      handler: async ({ params, req }) => {
-        await plants.requirePlant(req, params.plantId);
-        return wiring.listSources(params.plantId);
-      },
+      handler: ({ params, principal }) => wiring.listSources(principal, params.plantId),
     }),
     defineRoute({
       ...common,
@@ -66,10 +59,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: sourceCreate,
       response: sourceOut,
-      handler: async ({ params, body, req }) => {
-        await plants.requirePlant(req, params.plantId);
-        return wiring.createSource(req, params.plantId, body);
-      },
+      handler: ({ params, body, principal }) => wiring.createSource(principal, params.plantId, body),
     }),
     defineRoute({
       ...common,
@@ -78,7 +68,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       summary: 'One source with its tag count; the password is never returned (hasSecret)',
       params: sourceParams,
       response: sourceOut,
-      handler: ({ params, req }) => wiring.getSource(req, params.sourceId),
+      handler: ({ params, principal }) => wiring.getSource(principal, params.sourceId),
     }),
     defineRoute({
       ...common,
@@ -88,7 +78,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       body: sourcePatch,
       response: sourceOut,
-      handler: ({ params, body, req }) => wiring.updateSource(req, params.sourceId, body),
+      handler: ({ params, body, principal }) => wiring.updateSource(principal, params.sourceId, body),
     }),
     defineRoute({
       ...common,
@@ -98,7 +88,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       query: sourceDeleteQuery,
       response: deleted.extend({ tagsDeleted: z.number().int() }),
-      handler: ({ params, query, req }) => wiring.deleteSource(req, params.sourceId, query.force === '1'),
+      handler: ({ params, query, principal }) => wiring.deleteSource(principal, params.sourceId, query.force === '1'),
     }),
     defineRoute({
       ...common,
@@ -107,7 +97,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Test the connection with the stored settings: MQTT CONNECT/CONNACK within 5 s, OPC UA secure channel and session within 8 s; answers ok:false with the error (still 200) when the far end fails',
       params: sourceParams,
       response: connectionTestOut,
-      handler: ({ params, req }) => wiring.testSource(req, params.sourceId),
+      handler: ({ params, principal }) => wiring.testSource(principal, params.sourceId),
     }),
     defineRoute({
       ...common,
@@ -117,7 +107,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       query: browseQuery,
       response: browseOut,
-      handler: ({ params, query, req }) => wiring.browse(req, params.sourceId, query.nodeId),
+      handler: ({ params, query, principal }) => wiring.browse(principal, params.sourceId, query.nodeId),
     }),
     defineRoute({
       ...common,
@@ -126,7 +116,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       summary: 'MQTT source: topics ingest has seen with their last payload (first 256 characters), count and mapped tag; empty with a note until ingest has written the list',
       params: sourceParams,
       response: discoveryOut,
-      handler: ({ params, req }) => wiring.discovery(req, params.sourceId),
+      handler: ({ params, principal }) => wiring.discovery(principal, params.sourceId),
     }),
     defineRoute({
       ...common,
@@ -135,10 +125,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Tag configuration of a plant (address, scaling, deadband, expected period, range, sampling interval, mapped signals); live values are GET /plants/{plantId}/tags',
       params: plantParams,
       response: tagsConfigResponse,
-      handler: async ({ params, req }) => {
-        await plants.requirePlant(req, params.plantId);
-        return wiring.listTags(params.plantId);
-      },
+      handler: ({ params, principal }) => wiring.listTags(principal, params.plantId),
     }),
     defineRoute({
       ...common,
@@ -149,10 +136,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: tagCreate,
       response: tagConfigOut,
-      handler: async ({ params, body, req }) => {
-        await plants.requirePlant(req, params.plantId);
-        return wiring.createTag(req, params.plantId, body);
-      },
+      handler: ({ params, body, principal }) => wiring.createTag(principal, params.plantId, body),
     }),
     defineRoute({
       ...common,
@@ -162,7 +146,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: tagIdParams,
       body: tagPatch,
       response: tagConfigOut,
-      handler: ({ params, body, req }) => wiring.updateTag(req, params.tagId, body),
+      handler: ({ params, body, principal }) => wiring.updateTag(principal, params.tagId, body),
     }),
     defineRoute({
       ...common,
@@ -171,7 +155,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Delete a tag and its signal mappings (stored samples stay)',
       params: tagIdParams,
       response: deleted,
-      handler: ({ params, req }) => wiring.deleteTag(req, params.tagId),
+      handler: ({ params, principal }) => wiring.deleteTag(principal, params.tagId),
     }),
     defineRoute({
       ...common,
@@ -184,11 +168,9 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       query: tagImportQuery,
       before: [csvBody],
       response: tagImportOut,
-      handler: async ({ params, query, req, res }) => {
-        await plants.requirePlant(req, params.plantId);
-        if (typeof req.body !== 'string') throw new HttpError(415, 'unsupported_media_type', 'send the file as the request body with Content-Type: text/csv');
+      handler: async ({ params, query, principal, req, res }) => {
         const dryRun = query.dryRun === '1';
-        const out = await wiring.importCsv(req, params.plantId, req.body, dryRun);
+        const out = await wiring.importCsv(principal, params.plantId, typeof req.body === 'string' ? req.body : undefined, dryRun);
         if (dryRun) res.status(200);
         else res.status(201);
         res.json(out);
@@ -203,10 +185,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: mappingPut,
       response: mappingPutOut,
-      handler: async ({ params, body, req }) => {
-        await plants.requirePlant(req, params.plantId);
-        return wiring.putMapping(req, params.plantId, body);
-      },
+      handler: ({ params, body, principal }) => wiring.putMapping(principal, params.plantId, body),
     }),
     defineRoute({
       ...common,
@@ -215,7 +194,7 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Remove one signal mapping',
       params: mappingParams,
       response: deleted,
-      handler: ({ params, req }) => wiring.deleteMapping(req, params.id),
+      handler: ({ params, principal }) => wiring.deleteMapping(principal, params.id),
     }),
   ];
 }

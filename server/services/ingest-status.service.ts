@@ -1,9 +1,9 @@
 import fs from 'node:fs/promises';
 import path from 'node:path';
-import type { Request } from 'express';
 import { INGEST_HEARTBEAT_MAX_AGE_S, ingestStatusFile, type IngestStatusOut } from '../../shared/contracts/wiring.ts';
-import type { AppContext } from '../app-context.ts';
-import { wiringRepository } from '../repositories/wiring.repository.ts';
+import type { Clock } from '../app-context.ts';
+import type { Principal } from '../auth/principal.ts';
+import type { WiringRepository } from '../repositories/wiring.repository.ts';
 
 const HOUR_MS = 3_600_000;
 
@@ -14,13 +14,12 @@ const HOUR_MS = 3_600_000;
  * heartbeat is at most 10 s old; otherwise the last known figures are returned with the reason.
  * A plant-scoped token sees only the sources (and dead letters) of its plants.
  */
-export function ingestStatusService(ctx: AppContext) {
-  const repo = wiringRepository(ctx.db.db);
-  const file = path.join(ctx.config.dataDir, 'ingest-status.json');
+export function createIngestStatusService({ wiringRepo: repo, dataDir, clock }: { wiringRepo: Pick<WiringRepository, 'deadLetterCounts' | 'sourcePlants'>; dataDir: string; clock: Clock }) {
+  const file = path.join(dataDir, 'ingest-status.json');
 
   return {
-    async status(req: Request, now = Date.now()): Promise<IngestStatusOut> {
-      const scope = req.principal?.plantIds ?? null;
+    async status(principal: Principal, now = clock()): Promise<IngestStatusOut> {
+      const scope = principal.plantIds;
       const deadLetters = await repo.deadLetterCounts(new Date(now - HOUR_MS), scope);
       const empty = { heartbeatAt: null, heartbeatAge_s: null, pid: null, startedAt: null, samplesPerSec: null, lagMs: null, spool: null, writer: null, loadError: null, sources: [], deadLetters };
       let text: string;
