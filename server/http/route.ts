@@ -32,7 +32,6 @@ interface RouteMeta {
   sessionOnly?: boolean;
   summary: string;
   tag: string;
-  response?: z.ZodType;
   /** Status of a successful answer (default 200). */
   status?: number;
   /** Also answers text/csv (`?format=csv` or `Accept: text/csv`). */
@@ -44,14 +43,15 @@ interface RouteMeta {
 }
 
 /** A route as written, generic over its schemas so the handler's input is typed. */
-export interface RouteSpec<B extends Schema, Q extends Schema, P extends Schema, R extends Role | 'public'> extends RouteMeta {
+export interface RouteSpec<B extends Schema, Q extends Schema, P extends Schema, R extends Role | 'public', O extends Schema> extends RouteMeta {
   /** Minimum role; 'public' routes need no credentials (only sign-in and sign-out use it). */
   role: R;
   body?: B;
   query?: Q;
   params?: P;
-  /** Returns the JSON answer, or undefined when it wrote the response itself. */
-  handler: (input: RouteInput<B, Q, P, R>) => unknown;
+  response?: O;
+  /** Returns the JSON answer (what the response schema accepts), or undefined when it wrote the response itself. */
+  handler: (input: RouteInput<B, Q, P, R>) => z.input<O> | undefined | Promise<z.input<O> | undefined>;
 }
 
 /**
@@ -68,6 +68,7 @@ export interface RouteDef extends RouteMeta {
   body?: z.ZodType;
   query?: z.ZodType;
   params?: z.ZodType;
+  response?: z.ZodType;
   /** Parses params, query and body (422 with every field named on failure), then runs the handler. */
   run(req: Request, res: Response): Promise<unknown>;
 }
@@ -84,7 +85,7 @@ function parsePart<S extends z.ZodType>(schema: S, value: unknown, fields: Recor
  * Declares a route: the handler's `body`, `query` and `params` are `z.output` of the schemas
  * given, and `principal` is set on every route that is not public.
  */
-export function defineRoute<B extends Schema = z.ZodUndefined, Q extends Schema = z.ZodUndefined, P extends Schema = z.ZodUndefined, R extends Role | 'public' = Role | 'public'>(spec: RouteSpec<B, Q, P, R>): RouteDef {
+export function defineRoute<B extends Schema = z.ZodUndefined, Q extends Schema = z.ZodUndefined, P extends Schema = z.ZodUndefined, R extends Role | 'public' = Role | 'public', O extends Schema = z.ZodUnknown>(spec: RouteSpec<B, Q, P, R, O>): RouteDef {
   const { handler, ...meta } = spec;
   return {
     ...meta,
