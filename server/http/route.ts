@@ -7,18 +7,17 @@ import { UnauthorizedError, ValidationError } from './errors.ts';
 import { zodFields } from './validate.ts';
 
 type Method = 'get' | 'post' | 'put' | 'patch' | 'delete';
+/** A part the route does not declare stands as `z.ZodUndefined`, so the handler sees `undefined` there. */
 type Schema = z.ZodType;
-/** What a schema parses to. A part the route does not declare stands as `z.ZodUndefined`: `undefined`. */
-type Parsed<S extends Schema> = z.output<S>;
 
 /** The caller as a handler sees it: the principal plus the client address (for the audit log). */
 export type RoutePrincipal = Principal & { ip: string | null };
 
 /** What a handler receives: the parsed parts, the caller (absent only on public routes), and the raw exchange for the HTTP-only parts (cookies, CSV, SSE). */
 export interface RouteInput<B extends Schema, Q extends Schema, P extends Schema, R extends Role | 'public'> {
-  body: Parsed<B>;
-  query: Parsed<Q>;
-  params: Parsed<P>;
+  body: z.output<B>;
+  query: z.output<Q>;
+  params: z.output<P>;
   principal: R extends 'public' ? RoutePrincipal | null : RoutePrincipal;
   req: Request;
   res: Response;
@@ -44,7 +43,7 @@ interface RouteMeta {
 
 /** A route as written, generic over its schemas so the handler's input is typed. */
 export interface RouteSpec<B extends Schema, Q extends Schema, P extends Schema, R extends Role | 'public', O extends Schema> extends RouteMeta {
-  /** Minimum role; 'public' routes need no credentials (only sign-in and sign-out use it). */
+  /** Minimum role; 'public' routes need no credentials (sign-in, sign-out and the OpenAPI document). */
   role: R;
   body?: B;
   query?: Q;
