@@ -1,7 +1,7 @@
 import { zodResolver } from '@hookform/resolvers/zod';
 import { get, type FieldErrors, type FieldPath, type FieldValues, type Resolver, type UseFormReturn } from 'react-hook-form';
 import { z } from 'zod';
-import { ApiError } from './api-client.ts';
+import { ApiError, hasFieldErrors } from './api-client.ts';
 
 /**
  * Forms hold what was typed (text); the request is built from it and checked with the very zod
@@ -61,11 +61,6 @@ export function applyServerErrors<V extends FieldValues, O>(error: unknown, form
     else other.push(path === '_' || path === '' ? messages.join('; ') : `${path}: ${messages.join('; ')}`);
   }
   if (other.length) form.setError('root.server', { type: 'server', message: other.join(' · ') });
-}
-
-/** Whether an error is a 422 with field errors (shown beside the fields, not as a whole). */
-export function hasFieldErrors(error: unknown): boolean {
-  return error instanceof ApiError && !!error.fields && Object.keys(error.fields).length > 0;
 }
 
 /** A 422's field errors by dotted path (empty for any other error), for views that are no form (e.g. a CSV upload's rows). */

@@ -1,6 +1,5 @@
 import type { ButtonHTMLAttributes, ComponentProps, ReactNode } from 'react';
-import { ApiError } from '../../lib/api-client.ts';
-import { hasFieldErrors } from '../../lib/form.ts';
+import { ApiError, hasFieldErrors } from '../../lib/api-client.ts';
 
 export function Button({ kind = 'normal', className = '', ...rest }: ButtonHTMLAttributes<HTMLButtonElement> & { kind?: 'normal' | 'primary' | 'quiet' }) {
   const look =
