@@ -67,7 +67,7 @@ export function DataTable<T>({
   /** A row rendered by the caller (e.g. one that subscribes to live values); default: the columns' cells. */
   renderRow?: (row: Row<T>, index: number) => ReactNode;
   empty?: ReactNode;
-  virtual?: { rowHeight: number; height: string; scrollerLabel: string; scrollerTestId?: string };
+  virtual?: { rowHeight: number; height?: string; maxHeight?: string; scrollerLabel: string; scrollerTestId?: string };
   className?: string;
 }) {
   const rows = table.getRowModel().rows;
@@ -139,7 +139,7 @@ export function DataTable<T>({
       </>
     );
   return (
-    <div ref={scroller} tabIndex={0} aria-label={virtual.scrollerLabel} data-testid={virtual.scrollerTestId} className="overflow-y-auto [scrollbar-gutter:stable] bg-panel-2" style={{ height: virtual.height }}>
+    <div ref={scroller} tabIndex={0} aria-label={virtual.scrollerLabel} data-testid={virtual.scrollerTestId} className="overflow-y-auto [scrollbar-gutter:stable] bg-panel-2" style={{ height: virtual.height, maxHeight: virtual.maxHeight }}>
       {body}
       {none}
     </div>
