@@ -28,7 +28,8 @@ export type { ColumnDef } from '@tanstack/react-table';
 /**
  * A table's row model with TanStack Table: sorting and filtering by the column definitions,
  * sorting toggles between ascending and descending (never back to unsorted) and starts
- * ascending, as a control room expects of a column header.
+ * ascending, as a control room expects of a column header. Filter values passed in `state` must
+ * keep their identity between renders (memoize them): the row model is recomputed when they change.
  */
 export function useDataTable<T>(options: Omit<TableOptions<T>, 'getCoreRowModel'> & { getCoreRowModel?: TableOptions<T>['getCoreRowModel'] }): Table<T> {
   return useReactTable({
@@ -37,6 +38,8 @@ export function useDataTable<T>(options: Omit<TableOptions<T>, 'getCoreRowModel'
     getFilteredRowModel: getFilteredRowModel(),
     enableSortingRemoval: false,
     sortDescFirst: false,
+    // No pagination here; its automatic reset would only cost a state update per filter change.
+    autoResetPageIndex: false,
     ...options,
   });
 }

@@ -94,12 +94,13 @@ const LAB_COLUMNS: ColumnDef<LabResultOut>[] = [
 function RecentResults({ plantId }: { plantId: number }) {
   const q = useLabResults(plantId);
   const [kind, setKind] = useState<LabKind | ''>('');
+  const columnFilters = useMemo(() => (kind ? [{ id: 'kind', value: kind }] : []), [kind]);
   const table = useDataTable({
     data: q.data?.results ?? [],
     columns: LAB_COLUMNS,
     getRowId: (r) => String(r.id),
     initialState: { sorting: [{ id: 'sampledAt', desc: true }] },
-    state: { columnFilters: kind ? [{ id: 'kind', value: kind }] : [] },
+    state: { columnFilters },
   });
   const rows = q.data?.results ?? [];
   return (

@@ -66,11 +66,12 @@ function TopicsPanel({ source, onPick }: { source: SourceOut; onPick(d: TagDraft
     return (d.data?.topics ?? []).map((t): TopicRow => ({ ...t, tag: byAddress.get(t.topic)?.name ?? (t.tagId !== null ? `tag ${t.tagId}` : null) }));
   }, [d.data, cfg.data, source.id]);
   const columns = useMemo(() => topicColumns(source, onPick), [source, onPick]);
+  const globalFilter = useMemo(() => ({ text: filter, onlyNew }), [filter, onlyNew]);
   const table = useDataTable({
     data,
     columns,
     getRowId: (t) => t.topic,
-    state: { globalFilter: { text: filter, onlyNew } },
+    state: { globalFilter },
     globalFilterFn: (row, _id, f: { text: string; onlyNew: boolean }) => (!f.onlyNew || row.original.tag === null) && row.original.topic.toLowerCase().includes(f.text.toLowerCase()),
     initialState: { sorting: [{ id: 'topic', desc: false }] },
   });
