@@ -57,6 +57,11 @@ const envSchema = z.object({
   INGEST_STATUS_MS: positiveInt.default(2_000),
   /** MQTT client identifier prefix; the source id is appended so each session is stable across restarts. */
   INGEST_MQTT_CLIENT_ID: z.string().min(1).max(16).default('flocstream-ingest'),
+  /**
+   * How MQTT PUBACKs leave after the commit (ingest/mqtt/mqtt-connector.ts AckMode): `serial` is
+   * mqtt.js's stock way, one message per commit, for `npm run bench:ingest -- --stock` only.
+   */
+  INGEST_MQTT_ACKS: z.enum(['pipelined', 'serial']).default('pipelined'),
   /** The `debug` package's namespaces; mqtt.js traces each packet only when it names `mqttjs`. */
   DEBUG: z.string().optional(),
 });
@@ -76,6 +81,8 @@ export interface IngestConfig {
   mqttClientIdPrefix: string;
   /** mqtt.js's per-packet trace through `debug` (DEBUG=mqttjs*); off, it costs nothing per packet. */
   mqttTrace: boolean;
+  /** Undefined: pipelined (the product's); `serial` only for the benchmark's stock reference. */
+  mqttAcks?: 'pipelined' | 'serial';
 }
 
 export class IngestConfigError extends Error {}
@@ -100,6 +107,7 @@ export function loadIngestConfig(env: NodeJS.ProcessEnv = process.env): IngestCo
     statusMs: e.INGEST_STATUS_MS,
     mqttClientIdPrefix: e.INGEST_MQTT_CLIENT_ID,
     mqttTrace: /mqttjs/.test(e.DEBUG ?? ''),
+    ...(e.INGEST_MQTT_ACKS === 'serial' ? { mqttAcks: 'serial' as const } : {}),
   };
 }
 

@@ -189,7 +189,7 @@ export class IngestService {
       // A reconnected source keeps what it saw: the topics are the broker's, not the connection's.
       let discovery = this.discoveries.get(s.id);
       if (!discovery) this.discoveries.set(s.id, (discovery = new Discovery()));
-      return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log, trace: this.cfg.mqttTrace, discovery });
+      return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log, trace: this.cfg.mqttTrace, discovery, acks: this.cfg.mqttAcks });
     }
     // node-opcua is large (≈ 100 MB resident once loaded): only load it when a source needs it.
     const { OpcuaConnector } = await import('./opcua/opcua-connector.ts');

@@ -1,6 +1,6 @@
 import { randomBytes } from 'node:crypto';
 import type { Request } from 'express';
-import mqtt from 'mqtt';
+import { testMqttConnection } from '../../ingest/mqtt/mqtt-connection.ts';
 import { SIGNAL_KINDS } from '../../shared/contracts/plant-layout.ts';
 import {
   signalTargetType,
@@ -91,43 +91,9 @@ const CSV_COLUMN_OF: Record<string, string> = {
   rangeHigh: 'range_high',
 };
 
-/**
- * MQTT "test connection": one CONNECT with Clean Start and a client identifier of its own (MQTT
- * 5.0 §3.1.4: a second connection with ingest's identifier would make the broker close ingest's
- * session), CONNACK awaited for at most 5 s, then DISCONNECT. With protocolVersion auto a
- * refusal of 5.0 (reason 0x84, §3.2.2.2; 3.1.1 return code 1) is retried as 3.1.1, as ingest does.
- */
-export async function testMqtt(s: Pick<SourceRow, 'id' | 'url' | 'username' | 'secret' | 'options'>, timeoutMs = MQTT_TEST_TIMEOUT_MS): Promise<ConnectionTestOut> {
-  const opts = (s.options ?? {}) as { protocolVersion?: 4 | 5 | 'auto' };
-  const versions: Array<4 | 5> = opts.protocolVersion === 4 ? [4] : opts.protocolVersion === 5 ? [5] : [5, 4];
-  const t0 = performance.now();
-  let lastError = '';
-  for (const protocolVersion of versions) {
-    try {
-      const client = await mqtt.connectAsync(
-        s.url,
-        {
-          clientId: `flocstream-test-${s.id}-${randomBytes(4).toString('hex')}`,
-          clean: true,
-          protocolVersion,
-          connectTimeout: timeoutMs,
-          reconnectPeriod: 0,
-          keepalive: 10,
-          ...(s.username ? { username: s.username } : {}),
-          ...(s.secret ? { password: s.secret } : {}),
-        },
-        false,
-      );
-      const latency_ms = Math.round(performance.now() - t0);
-      await client.endAsync().catch(() => {});
-      return { ok: true, latency_ms, details: { protocolVersion: protocolVersion === 5 ? '5.0' : '3.1.1' } };
-    } catch (err) {
-      const e = err as { code?: number | string; message?: string };
-      lastError = e.message || String(e.code ?? err);
-      if (!(protocolVersion === 5 && versions.length > 1 && (e.code === 0x84 || e.code === 1))) break;
-    }
-  }
-  return { ok: false, latency_ms: Math.round(performance.now() - t0), error: lastError.slice(0, 300) };
+/** MQTT "test connection": connects as ingest does (ingest/mqtt/mqtt-connection.ts), with a session of its own. */
+export function testMqtt(s: Pick<SourceRow, 'id' | 'url' | 'username' | 'secret' | 'options'>, timeoutMs = MQTT_TEST_TIMEOUT_MS): Promise<ConnectionTestOut> {
+  return testMqttConnection(s, timeoutMs);
 }
 
 /**

@@ -48,32 +48,60 @@ export function sourceUrlIssue(kind: SourceKind, url: string): string | null {
 }
 
 // ---- options per kind ----
-/** `sources.options` of an MQTT source (the keys the ingest connector reads). */
-export const mqttOptionsInput = z
+// One definition per kind, used by the API (input, strict: an unknown key is a mistake), by
+// ingest (stored rows, unknown keys dropped and defaults applied) and by the API's connection
+// test, which connects exactly as ingest does (ingest/mqtt/mqtt-connection.ts).
+
+const mqttOptionFields = {
+  topics: z.array(z.string().min(1).max(1024)).min(1).max(100).meta({ description: 'topic filters to subscribe to (default ["#"], which lets discovery see everything)' }),
+  protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).meta({ description: '5 = MQTT 5.0, 4 = MQTT 3.1.1, auto (default) = 5.0 falling back to 3.1.1' }),
+  clientId: z
+    .string()
+    .regex(/^[0-9A-Za-z_.-]{1,64}$/, 'letters, digits, _ . - only (MQTT 5.0 §3.1.3.1 guarantees 0-9a-zA-Z; 64 characters at most)')
+    .meta({ description: 'client identifier of the ingest session (default flocstream-ingest-<source id>); keep it stable so the broker keeps the session' }),
+  keepalive_s: z.number().int().min(5).max(3600).meta({ description: 'Keep Alive [s] (MQTT 5.0 §3.1.2.10)' }),
+  tlsCa_pem: z
+    .string()
+    .max(65_536)
+    .regex(/-----BEGIN CERTIFICATE-----/, 'a PEM certificate (-----BEGIN CERTIFICATE-----)')
+    .meta({ description: 'PEM certificate(s) of the CA that signed the broker’s certificate, for mqtts:// and wss:// when it is not a public CA' }),
+};
+
+/** `sources.options` of an MQTT source as the API accepts it. */
+export const mqttOptionsInput = z.object(mqttOptionFields).partial().strict();
+
+/** `sources.options` of an MQTT source as it is used: defaults applied, unknown keys dropped. */
+export const mqttSourceOptions = z
   .object({
-    topics: z.array(z.string().min(1).max(1024)).min(1).max(100).optional().meta({ description: 'topic filters to subscribe to (default ["#"], which lets discovery see everything)' }),
-    protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).optional().meta({ description: '5 = MQTT 5.0, 4 = MQTT 3.1.1, auto (default) = 5.0 falling back to 3.1.1' }),
-    clientId: z
-      .string()
-      .regex(/^[0-9A-Za-z_.-]{1,64}$/, 'letters, digits, _ . - only (MQTT 5.0 §3.1.3.1 guarantees 0-9a-zA-Z; 64 characters at most)')
-      .optional()
-      .meta({ description: 'client identifier of the ingest session (default flocstream-ingest-<source id>); keep it stable so the broker keeps the session' }),
-    keepalive_s: z.number().int().min(5).max(3600).optional().meta({ description: 'Keep Alive [s] (MQTT 5.0 §3.1.2.10)' }),
+    ...mqttOptionFields,
+    topics: mqttOptionFields.topics.default(['#']),
+    protocolVersion: mqttOptionFields.protocolVersion.default('auto'),
+    clientId: mqttOptionFields.clientId.optional(),
+    keepalive_s: mqttOptionFields.keepalive_s.default(30),
+    tlsCa_pem: mqttOptionFields.tlsCa_pem.optional(),
   })
-  .strict();
+  .strip();
+export type MqttSourceOptions = z.infer<typeof mqttSourceOptions>;
 
 export const OPCUA_SECURITY_MODES = ['None', 'Sign', 'SignAndEncrypt'] as const;
 export const OPCUA_SECURITY_POLICIES = ['None', 'Basic256Sha256', 'Aes128_Sha256_RsaOaep', 'Aes256_Sha256_RsaPss'] as const;
 
-/** `sources.options` of an OPC UA source (OPC 10000-4 §7.15 MessageSecurityMode, §7.36 SecurityPolicy). */
+const opcuaOptionFields = {
+  securityMode: z.enum(OPCUA_SECURITY_MODES),
+  securityPolicy: z.enum(OPCUA_SECURITY_POLICIES),
+  publishingInterval_ms: z.number().int().min(50).max(60_000).meta({ description: 'subscription publishing interval [ms] (OPC 10000-4 §5.13.2)' }),
+  samplingInterval_ms: z.number().int().min(0).max(3_600_000).meta({ description: 'default sampling interval of tags without their own [ms] (OPC 10000-4 §5.12.1.2)' }),
+  /**
+   * Trust a server certificate not yet in `<pki>/trusted` (otherwise it is put in `<pki>/rejected`
+   * for an integrator to move). Only relevant with Sign or SignAndEncrypt.
+   */
+  acceptUnknownServerCertificate: z.boolean().meta({ description: 'trust a server certificate not yet in the trusted folder' }),
+};
+
+/** `sources.options` of an OPC UA source as the API accepts it (OPC 10000-4 §7.15 MessageSecurityMode, §7.36 SecurityPolicy). */
 export const opcuaOptionsInput = z
-  .object({
-    securityMode: z.enum(OPCUA_SECURITY_MODES).optional(),
-    securityPolicy: z.enum(OPCUA_SECURITY_POLICIES).optional(),
-    publishingInterval_ms: z.number().int().min(50).max(60_000).optional().meta({ description: 'subscription publishing interval [ms] (OPC 10000-4 §5.13.2)' }),
-    samplingInterval_ms: z.number().int().min(0).max(3_600_000).optional().meta({ description: 'default sampling interval of tags without their own [ms] (OPC 10000-4 §5.12.1.2)' }),
-    acceptUnknownServerCertificate: z.boolean().optional().meta({ description: 'trust a server certificate not yet in the trusted folder' }),
-  })
+  .object(opcuaOptionFields)
+  .partial()
   .strict()
   .superRefine((o, ctx) => {
     // A secure channel with mode None uses policy None, and Sign/SignAndEncrypt need a real
@@ -83,6 +111,18 @@ export const opcuaOptionsInput = z
     if (mode === 'None' && policy !== 'None') ctx.addIssue({ code: 'custom', path: ['securityPolicy'], message: 'securityMode None goes with securityPolicy None' });
     if (mode !== 'None' && policy === 'None') ctx.addIssue({ code: 'custom', path: ['securityPolicy'], message: `securityMode ${mode} needs a securityPolicy other than None, e.g. Basic256Sha256` });
   });
+
+/** `sources.options` of an OPC UA source as it is used: defaults applied, unknown keys dropped. */
+export const opcuaSourceOptions = z
+  .object({
+    securityMode: opcuaOptionFields.securityMode.default('None'),
+    securityPolicy: opcuaOptionFields.securityPolicy.default('None'),
+    publishingInterval_ms: opcuaOptionFields.publishingInterval_ms.default(500),
+    samplingInterval_ms: opcuaOptionFields.samplingInterval_ms.default(1_000),
+    acceptUnknownServerCertificate: opcuaOptionFields.acceptUnknownServerCertificate.default(false),
+  })
+  .strip();
+export type OpcuaSourceOptions = z.infer<typeof opcuaSourceOptions>;
 
 export const sourceOptionsSchema: Record<SourceKind, z.ZodType> = { mqtt: mqttOptionsInput, opcua: opcuaOptionsInput };
 
