@@ -259,7 +259,7 @@ try {
     // Ingest's heartbeat row (ingest_workers) says when its connector is up.
     for (let i = 0; ; i++) {
       if ((await workerStatusOf(proc.pid))?.sources?.[0]?.state === 'connected') break;
-      if (i > 300) throw new Error(`ingest ${name} did not connect`);
+      if (i > 300 || proc.exitCode !== null) throw new Error(`ingest ${name} did not connect`);
       await sleep(100);
     }
     await sleep(300);
@@ -318,8 +318,14 @@ try {
    * ROUNDS rounds (default three) of one load, each on three hours of its own from `start`,
    * every round noted; the median rate is the figure.
    */
+  /**
+   * Median CPU per sample [µs] of broker and ingest per load label: what an adapter saves its
+   * process, which a busy host changes far less than the rates (both noted under --stock).
+   */
+  const cpuPerSample: Record<string, { broker: number; ingest: number }> = {};
   const medianOfRounds = async (label: string, start: number, n: number, publish: (from: number) => string[], pair: Pair = kept): Promise<number> => {
     const rates: number[] = [];
+    const cpus: { broker: number[]; ingest: number[] } = { broker: [], ingest: [] };
     for (let round = 0; round < ROUNDS; round++) {
       const from = start + round * 3 * 3_600_000;
       const to = from + 3 * 3_600_000;
@@ -330,8 +336,11 @@ try {
       });
       await exact(from, to, n);
       rates.push(r.value.rate);
+      cpus.broker.push(((r.cpu.broker ?? 0) / n) * 1e6);
+      cpus.ingest.push(((r.cpu.ingest ?? 0) / n) * 1e6);
       cpuNote(`${label}, round ${round + 1} (${Math.round(r.value.rate).toLocaleString('en-US')}/s)`, r, r.value.done.cpuSec);
     }
+    cpuPerSample[label] = { broker: median(cpus.broker), ingest: median(cpus.ingest) };
     return Math.round(median(rates));
   };
   results.e2eSingleSamplesPerSec = await medianOfRounds('single, QoS 1', dayB, SINGLE, (from) => ['single', String(SINGLE), '1', String(from)]);
@@ -354,7 +363,7 @@ try {
   // to 244 000/s on this host with the same code).
   const BATCHED = 1_000_000;
   const PER = 1_000;
-  results.e2eBatchedSamplesPerSec = await medianOfRounds(`batched (${PER} per message), QoS 1`, dayB + DAY / 2, BATCHED, (from) => [
+  results.e2eBatchedSamplesPerSec = await medianOfRounds('batched, QoS 1', dayB + DAY / 2, BATCHED, (from) => [
     'batched',
     String(BATCHED / PER),
     String(PER),
@@ -420,6 +429,8 @@ try {
 
   await stopChild(child);
 
+  console.error(JSON.stringify({ measured: results }));
+
   // ---- --stock: each adapter against the stock behaviour, in this run ---------------------------
   if (STOCK) {
     await pub.endAsync(true);
@@ -440,17 +451,26 @@ try {
       const b = await startBroker(await freePort(), [...v.flags]);
       cleanup.push(() => b.child.kill('SIGKILL'));
       await pool.query(`UPDATE sources SET url = $1 WHERE id = $2`, [b.url, source]);
-      const ing = await startIngest(`bench-${v.key}`, v.env);
+      const ing = await startIngest(`bench-stock${k}`, v.env);
       const pair = pairOf(b.url, b.child, ing.child);
       if (v.single >= WARM) await warmUp(pair, day - DAY);
-      const single = await medianOfRounds(`${v.key} single, QoS 1`, day, v.single, (from) => ['single', String(v.single), '1', String(from)], pair);
-      const batched = await medianOfRounds(`${v.key} batched, QoS 1`, day + DAY / 2, v.batchedMessages * PER, (from) => ['batched', String(v.batchedMessages), String(PER), String(from)], pair);
+      const single = await medianOfRounds(`${v.key}: single, QoS 1`, day, v.single, (from) => ['single', String(v.single), '1', String(from)], pair);
+      const batched = await medianOfRounds(`${v.key}: batched, QoS 1`, day + DAY / 2, v.batchedMessages * PER, (from) => ['batched', String(v.batchedMessages), String(PER), String(from)], pair);
       results[`${v.key}SingleSamplesPerSec`] = single;
       results[`${v.key}BatchedSamplesPerSec`] = batched;
+      // Progress on stderr, so a long run that fails later still shows what it measured.
+      console.error(JSON.stringify({ measured: results }));
       const gain = (keptRate: number, stockRate: number) => `${keptRate >= stockRate ? '+' : ''}${Math.round((keptRate / stockRate - 1) * 100)} %`;
       notes.push(
         `${v.key} (${v.what}): single ${single.toLocaleString('en-US')}/s against kept ${results.e2eSingleSamplesPerSec!.toLocaleString('en-US')}/s, adapter gain ${gain(results.e2eSingleSamplesPerSec!, single)}; batched ${batched.toLocaleString('en-US')}/s against ${results.e2eBatchedSamplesPerSec!.toLocaleString('en-US')}/s, gain ${gain(results.e2eBatchedSamplesPerSec!, batched)} (medians of ${ROUNDS})`,
       );
+      const cpuLine = (load: string) => {
+        const k0 = cpuPerSample[load]!;
+        const s0 = cpuPerSample[`${v.key}: ${load}`]!;
+        const f = (x: number) => x.toFixed(1);
+        return `${load}: broker ${f(s0.broker)} against kept ${f(k0.broker)} µs CPU per sample, ingest ${f(s0.ingest)} against ${f(k0.ingest)}`;
+      };
+      notes.push(`${v.key} CPU — ${cpuLine('single, QoS 1')}; ${cpuLine('batched, QoS 1')}`);
       await stopChild(ing.child);
       await stopChild(b.child);
     }
