@@ -1,4 +1,3 @@
-import { randomBytes } from 'node:crypto';
 import type { Request } from 'express';
 import { testMqttConnection } from '../../ingest/mqtt/mqtt-connection.ts';
 import { SIGNAL_KINDS } from '../../shared/contracts/plant-layout.ts';
