@@ -1,4 +1,5 @@
 import fs from 'node:fs';
+import type { IncomingMessage, ServerResponse } from 'node:http';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
 import cookieParser from 'cookie-parser';
@@ -49,6 +50,30 @@ export function apiRoutes(ctx: AppContext): RouteDef[] {
   return defs;
 }
 
+/**
+ * One log line per request, without putting logging on the read path: successful GETs (the
+ * monitor polls several a second) are logged at debug, so at the default info level they cost
+ * no write; writes, client errors (info) and server errors (error) are logged as before. The
+ * request is logged as id, method, URL and address only — cheap to bind per request, and no
+ * Cookie or Authorization header ends up in a log file.
+ */
+function requestLogger(ctx: AppContext) {
+  return pinoHttp({
+    logger: ctx.log,
+    autoLogging: { ignore: (req) => req.url === '/api/health' },
+    wrapSerializers: false,
+    serializers: {
+      req: (req: IncomingMessage & { id?: unknown; originalUrl?: string }) => ({ id: req.id, method: req.method, url: req.originalUrl ?? req.url, remoteAddress: req.socket?.remoteAddress }),
+      res: (res: ServerResponse) => ({ statusCode: res.statusCode }),
+    },
+    customLogLevel: (req, res, err) => {
+      if (err || res.statusCode >= 500) return 'error';
+      if ((req.method === 'GET' || req.method === 'HEAD') && res.statusCode < 400) return 'debug';
+      return 'info';
+    },
+  });
+}
+
 export function createApp(ctx: AppContext, opts: { serveMonitor?: boolean } = {}): Express {
   const app = express();
   app.disable('x-powered-by');
@@ -61,7 +86,7 @@ export function createApp(ctx: AppContext, opts: { serveMonitor?: boolean } = {}
       strictTransportSecurity: false,
     }),
   );
-  app.use(pinoHttp({ logger: ctx.log, autoLogging: { ignore: (req) => req.url === '/api/health' } }));
+  app.use(requestLogger(ctx));
   app.use(express.json({ limit: '256kb' }));
   app.use(cookieParser());
 

@@ -2,6 +2,7 @@ import type { Request, Response } from 'express';
 import { z } from 'zod';
 import { loginRequest, me, type LoginRequest } from '../../shared/contracts/auth.ts';
 import type { AppContext } from '../app-context.ts';
+import { CredentialCache, credentialCache } from '../auth/credential-cache.ts';
 import { LoginThrottle } from '../auth/login-throttle.ts';
 import { dummyPasswordHash, verifyPassword } from '../auth/passwords.ts';
 import { SESSION_COOKIE, SESSION_TTL_S, signSession } from '../auth/session.ts';
@@ -55,6 +56,8 @@ export function authRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Sign out; clears the session cookie',
       response: z.object({ ok: z.literal(true) }),
       handler: async (req: Request, res: Response) => {
+        const cookie = (req.cookies as Record<string, string> | undefined)?.[SESSION_COOKIE];
+        if (cookie) credentialCache(ctx).dropKey(CredentialCache.sessionKey(cookie));
         res.clearCookie(SESSION_COOKIE, { httpOnly: true, sameSite: 'strict', secure: ctx.config.secureCookies, path: '/' });
         if (req.principal) await audit(ctx, req, 'auth.logout', `user:${req.principal.userId}`);
         return { ok: true as const };

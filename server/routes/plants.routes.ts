@@ -22,8 +22,10 @@ import {
 } from '../../shared/contracts/plant-api.ts';
 import type { AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
+import { assertPlantAccess } from '../auth/middleware.ts';
 import type { RouteDef } from '../http/route.ts';
 import { flattenRows } from '../services/csv.service.ts';
+import { liveBalanceCache } from '../services/live-balance-cache.ts';
 import { ALARM_CSV_COLUMNS, plantService } from '../services/plant.service.ts';
 import { SAMPLE_CSV_COLUMNS, sampleCsvRows, seriesService } from '../services/series.service.ts';
 
@@ -39,6 +41,7 @@ const DEFAULT_HISTORY_LIMIT = 5000;
 export function plantsRoutes(ctx: AppContext): RouteDef[] {
   const plants = plantService(ctx);
   const series = seriesService(ctx);
+  const live = liveBalanceCache(ctx);
   const common = { role: 'analyst' as const, tag: 'plants' };
   const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
   return [
@@ -116,7 +119,16 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'The latest balance computation; 200 with balance: null and a reason when none has been computed yet (404 only for an unknown plant)',
       params: plantParams,
       response: balanceLiveResponse,
-      handler: (req: Request) => plants.balanceLive(req, pid(req)),
+      handler: async (req: Request, res: Response) => {
+        // The plant scope first (403 before anything is read); a balance in memory means the plant exists.
+        assertPlantAccess(req, pid(req));
+        const text = live.answer(pid(req));
+        if (text !== undefined) return void res.type('json').send(text);
+        const generation = live.generation(pid(req));
+        const out = await plants.balanceLive(req, pid(req));
+        if (out.balance) live.store(pid(req), out.balance, generation);
+        return out;
+      },
     },
     {
       ...common,

@@ -4,6 +4,7 @@ import { createTokenRequest, createTokenResponse, idParam, tokenOut, type Create
 import { roleAtLeast } from '../../shared/contracts/roles.ts';
 import type { AppContext } from '../app-context.ts';
 import { hashToken, newTokenSecret, tokenPrefix } from '../auth/api-tokens.ts';
+import { credentialChanged } from '../auth/credential-cache.ts';
 import { ForbiddenError, NotFoundError } from '../http/errors.ts';
 import type { RouteDef } from '../http/route.ts';
 import { tokenRepository } from '../repositories/user.repository.ts';
@@ -62,6 +63,7 @@ export function tokensRoutes(ctx: AppContext): RouteDef[] {
       handler: async (req: Request) => {
         const { id } = req.valid.params as { id: number };
         if (!(await repo.revoke(req.principal!.userId, id))) throw new NotFoundError(`no active token ${id} of yours`);
+        await credentialChanged(ctx, { tokenId: id });
         await audit(ctx, req, 'token.revoke', `token:${id}`);
         return { ok: true as const };
       },

@@ -2,6 +2,7 @@ import type { Request } from 'express';
 import type { z } from 'zod';
 import type { createUserRequest, updateUserRequest, UserOut } from '../../shared/contracts/auth.ts';
 import type { AppContext } from '../app-context.ts';
+import { credentialChanged } from '../auth/credential-cache.ts';
 import { hashPassword } from '../auth/passwords.ts';
 import { ConflictError, NotFoundError } from '../http/errors.ts';
 import { userRepository, type PublicUser } from '../repositories/user.repository.ts';
@@ -34,6 +35,7 @@ export function userService(ctx: AppContext) {
         ...(body.disabled !== undefined ? { disabled: body.disabled } : {}),
         ...(body.password !== undefined ? { passwordHash: await hashPassword(body.password) } : {}),
       });
+      await credentialChanged(ctx, { userId: id });
       await audit(ctx, req, 'user.update', `user:${id}`, { fields: Object.keys(body) });
       return out(row!);
     },
@@ -43,6 +45,7 @@ export function userService(ctx: AppContext) {
       if (before.id === req.principal?.userId) throw new ConflictError('you cannot delete yourself');
       if (before.role === 'admin' && !before.disabled && (await repo.countActiveAdmins()) <= 1) throw new ConflictError('this is the last active admin');
       await repo.remove(id);
+      await credentialChanged(ctx, { userId: id });
       await audit(ctx, req, 'user.delete', `user:${id}`, { email: before.email });
       return { ok: true };
     },
