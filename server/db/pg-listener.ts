@@ -13,13 +13,16 @@ import type { Logger } from 'pino';
  * A connection of its own (not a pool client), so `Database.close()` is not held up by it; it is
  * ended from there through `stop()`.
  */
+/** Its `application_name` in pg_stat_activity. */
+export const LISTENER_APPLICATION_NAME = 'flocstream-listener';
+
 export class PgListener {
   private client: pg.Client | null = null;
   private connecting: Promise<void> | null = null;
   private retry: NodeJS.Timeout | null = null;
   private stopped = false;
   private readonly handlers = new Map<string, Array<(payload: string) => void>>();
-  private readonly stateHandlers: Array<(up: boolean) => void> = [];
+  private readonly stateHandlers = new Set<(up: boolean) => void>();
   up = false;
 
   constructor(
@@ -42,8 +45,10 @@ export class PgListener {
     void this.connect();
   }
 
-  onState(handler: (up: boolean) => void): void {
-    this.stateHandlers.push(handler);
+  /** Called with true when LISTEN is active on every channel, false when that stops; returns the unsubscribe. */
+  onState(handler: (up: boolean) => void): () => void {
+    this.stateHandlers.add(handler);
+    return () => this.stateHandlers.delete(handler);
   }
 
   private setUp(up: boolean): void {
@@ -55,7 +60,7 @@ export class PgListener {
   private connect(): Promise<void> {
     if (this.stopped) return Promise.resolve();
     this.connecting ??= (async () => {
-      const client = new pg.Client({ connectionString: this.url });
+      const client = new pg.Client({ connectionString: this.url, application_name: LISTENER_APPLICATION_NAME });
       client.on('error', (err) => this.lost(err, true));
       client.on('notification', (m) => {
         for (const h of this.handlers.get(m.channel) ?? []) {
@@ -68,6 +73,7 @@ export class PgListener {
       });
       try {
         await client.connect();
+        // Channels registered while this was connecting are picked up too (Map iteration sees them).
         for (const ch of this.handlers.keys()) await client.query(`LISTEN ${ch}`);
         if (this.stopped) {
           await client.end().catch(() => {});
@@ -115,10 +121,14 @@ export class PgListener {
   async ready(timeout_ms = 10_000): Promise<void> {
     if (this.up) return;
     await new Promise<void>((resolve, reject) => {
-      const t = setTimeout(() => reject(new Error(`LISTEN not active after ${timeout_ms} ms`)), timeout_ms);
-      this.onState((up) => {
+      const t = setTimeout(() => {
+        off();
+        reject(new Error(`LISTEN not active after ${timeout_ms} ms`));
+      }, timeout_ms);
+      const off = this.onState((up) => {
         if (up) {
           clearTimeout(t);
+          off();
           resolve();
         }
       });

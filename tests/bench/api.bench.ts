@@ -10,8 +10,18 @@
  *
  * (a) sequential latency, 200 requests each after a warm-up: balance/live, the 30-day samples
  *     query (must go through rollup_1m), the one-year query (rollup_1h);
- * (b) load: autocannon, 50 connections for 10 s over a mix of those and the live tag list.
+ * (b) mixed load: autocannon, 50 connections for 10 s over a mix of those and the live tag list,
+ *     three rounds; the median p99 is held to < 250 ms;
+ * (c) balance/live beside the reference: tests/bench/api-baseline.ts, a minimal Express + pg
+ *     process on the same database returning the same row as the same JSON (checked), measured
+ *     with the same autocannon settings (50 connections, 1 s warm-up, 5 s), three rounds that
+ *     alternate which side goes first; `balanceLiveRatio` = median product req/s ÷ median
+ *     baseline req/s, held to ≥ 0.8. Every round notes the CPU seconds the server process and
+ *     autocannon (this process) used, and the load average is printed: on a shared machine that
+ *     says whether a figure measured the code or the neighbours.
  *
+ * The API runs as `npm start` runs it (logger at info into <data>/logs/api.log). `--cpu-prof`
+ * writes a CPU profile of the API process to .data/bench/prof/ (where per-request time goes).
  * The monitor's session cookie is used: the per-token rate limit applies to Bearer callers only.
  * Exit code 1 when a target is missed or any request failed.
  */

@@ -3,6 +3,7 @@ import type { AddressInfo } from 'node:net';
 import express from 'express';
 import pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { LISTENER_APPLICATION_NAME } from '../../server/db/pg-listener.ts';
 import { errorMiddleware } from '../../server/http/error-middleware.ts';
 import { DEFAULT_STREAM_OPTIONS, StreamHub, notifyStream, serveStream, streamHub } from '../../server/services/stream.service.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
@@ -155,7 +156,8 @@ describe('live stream (SSE)', () => {
     hub.publish(plant, 'alarm', { id: 1 });
     await s.next('alarm');
     expect(s.events.map((e) => e.event)).toEqual(['alarm']);
-    const listeners = async () => (await q(`SELECT count(*)::int n FROM pg_stat_activity WHERE datname = current_database() AND query ILIKE 'LISTEN%'`)).rows[0].n;
+    // The process's own cache listener (server/db/pg-listener.ts) stays; this counts the hub's.
+    const listeners = async () => (await q(`SELECT count(*)::int n FROM pg_stat_activity WHERE datname = current_database() AND query ILIKE 'LISTEN%' AND application_name <> $1`, [LISTENER_APPLICATION_NAME])).rows[0].n;
     expect(await listeners()).toBe(1);
     s.close();
     await s.until('server-side cleanup', () => hub.connections === 0);
