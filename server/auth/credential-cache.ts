@@ -1,4 +1,4 @@
-import { createHash } from 'node:crypto';
+import { hash } from 'node:crypto';
 import { z } from 'zod';
 import type { AppContext } from '../app-context.ts';
 import type { Principal } from './principal.ts';
@@ -55,7 +55,7 @@ export class CredentialCache {
   }
 
   static sessionKey(cookie: string): string {
-    return `s:${createHash('sha256').update(cookie).digest('base64url')}`;
+    return `s:${hash('sha256', cookie, 'base64url')}`;
   }
 
   get size(): number {

@@ -251,6 +251,7 @@ async function main(): Promise<void> {
         p99_ms: load.latency.p99,
         max_ms: load.latency.max,
         apiCpu_s: round(cpuSeconds(child.pid) - c0, 2),
+        apiCpuPerRequest_ms: round(((cpuSeconds(child.pid) - c0) * 1000) / Math.max(1, load.requests.total), 2),
       });
       if (load.errors || load.timeouts || load.non2xx) failures.push(`mixed load round ${r + 1}: ${load.errors} errors, ${load.timeouts} timeouts, ${load.non2xx} non-2xx`);
     }
@@ -277,7 +278,16 @@ async function main(): Promise<void> {
       const b0 = cpuSeconds(process.pid);
       const r = await autocannon({ ...opts, connections: 50, duration: LIVE_S });
       if (r.errors || r.timeouts || r.non2xx) failures.push(`balance/live ${who}: ${r.errors} errors, ${r.timeouts} timeouts, ${r.non2xx} non-2xx`);
-      return { requestsPerSec: round(r.requests.average), p50_ms: r.latency.p50, p99_ms: r.latency.p99, serverCpu_s: round(cpuSeconds(pid) - c0, 2), autocannonCpu_s: round(cpuSeconds(process.pid) - b0, 2) };
+      const serverCpu_s = cpuSeconds(pid) - c0;
+      return {
+        requestsPerSec: round(r.requests.average),
+        p50_ms: r.latency.p50,
+        p99_ms: r.latency.p99,
+        serverCpu_s: round(serverCpu_s, 2),
+        // CPU per answered request: what the code costs, much less sensitive to the neighbours' load than req/s.
+        serverCpuPerRequest_ms: round((serverCpu_s * 1000) / Math.max(1, r.requests.total), 3),
+        autocannonCpu_s: round(cpuSeconds(process.pid) - b0, 2),
+      };
     };
     const liveRounds: Array<{ order: string; product: Awaited<ReturnType<typeof runLive>>; baseline: Awaited<ReturnType<typeof runLive>>; ratio: number }> = [];
     for (let r = 0; r < ROUNDS; r++) {
@@ -292,6 +302,8 @@ async function main(): Promise<void> {
     const productRps = median(liveRounds.map((x) => x.product.requestsPerSec));
     const baselineRps = median(liveRounds.map((x) => x.baseline.requestsPerSec));
     const balanceLiveRatio = round(productRps / baselineRps, 3);
+    const productCpu = median(liveRounds.map((x) => x.product.serverCpuPerRequest_ms));
+    const baselineCpu = median(liveRounds.map((x) => x.baseline.serverCpuPerRequest_ms));
     results.balanceLive = {
       connections: 50,
       duration_s: LIVE_S,
@@ -299,6 +311,8 @@ async function main(): Promise<void> {
       baselineRequestsPerSec: baselineRps,
       balanceLiveRatio,
       medianOfRoundRatios: median(liveRounds.map((x) => x.ratio)),
+      productCpuPerRequest_ms: productCpu,
+      baselineCpuPerRequest_ms: baselineCpu,
       baseline: 'tests/bench/api-baseline.ts: Express + pg (pool of 20), one query per request, same row and JSON, no credentials or logging',
       rounds: liveRounds,
     };
@@ -321,15 +335,15 @@ async function main(): Promise<void> {
     const l = results.load as { requestsPerSec: number; p99_ms: number; rounds: Array<Record<string, number>> };
     console.log(`\nmixed load: 50 connections, ${MIX_S} s per round (${(results.load as { mix: string }).mix})`);
     for (const [i, m] of l.rounds.entries()) {
-      console.log(`  round ${i + 1}: ${m.requestsPerSec} req/s, p50 ${m.p50_ms} ms, p97.5 ${m.p97_5_ms} ms, p99 ${m.p99_ms} ms, max ${m.max_ms} ms; API process ${m.apiCpu_s} CPU s`);
+      console.log(`  round ${i + 1}: ${m.requestsPerSec} req/s, p50 ${m.p50_ms} ms, p97.5 ${m.p97_5_ms} ms, p99 ${m.p99_ms} ms, max ${m.max_ms} ms; API process ${m.apiCpu_s} CPU s (${m.apiCpuPerRequest_ms} ms/request)`);
     }
     console.log(`  median: ${l.requestsPerSec} req/s, p99 ${l.p99_ms} ms (target < ${MIX_P99_MS} ms)`);
     console.log(`\nbalance/live, 50 connections, ${LIVE_S} s per side per round (after 1 s warm-up each): product vs minimal Express + pg`);
     for (const [i, x] of liveRounds.entries()) {
-      const side = (s: typeof x.product) => `${s.requestsPerSec} req/s (p50 ${s.p50_ms}, p99 ${s.p99_ms} ms; server ${s.serverCpu_s} CPU s, autocannon ${s.autocannonCpu_s} CPU s)`;
+      const side = (s: typeof x.product) => `${s.requestsPerSec} req/s (p50 ${s.p50_ms}, p99 ${s.p99_ms} ms; server ${s.serverCpu_s} CPU s = ${s.serverCpuPerRequest_ms} ms/request, autocannon ${s.autocannonCpu_s} CPU s)`;
       console.log(`  round ${i + 1} (${x.order}): product ${side(x.product)} | baseline ${side(x.baseline)} | ratio ${x.ratio}`);
     }
-    console.log(`  median: product ${productRps} req/s, baseline ${baselineRps} req/s, balanceLiveRatio ${balanceLiveRatio} (target ≥ ${LIVE_RATIO_TARGET})`);
+    console.log(`  median: product ${productRps} req/s, baseline ${baselineRps} req/s, balanceLiveRatio ${balanceLiveRatio} (target ≥ ${LIVE_RATIO_TARGET}); server CPU per request: product ${productCpu} ms, baseline ${baselineCpu} ms`);
     console.log(`load average before ${loadAtStart.join(' ')}, after ${loadavg().join(' ')} (1, 5, 15 min; ${os.cpus().length} CPUs shared with whatever else runs)`);
     results.loadAverage = { start: loadAtStart, end: loadavg() };
     if (!(l.p99_ms < MIX_P99_MS)) failures.push(`mixed-load p99 ${l.p99_ms} ms ≥ ${MIX_P99_MS} ms`);
