@@ -11,7 +11,7 @@ import { balanceLiveResponse } from '../../shared/contracts/plant-api.ts';
 import { createApp } from '../../server/app.ts';
 import type { AppContext } from '../../server/app-context.ts';
 import { hashToken } from '../../server/auth/api-tokens.ts';
-import { CredentialCache, credentialCache } from '../../server/auth/credential-cache.ts';
+import { CredentialCache, credentialCache, credentialChanged } from '../../server/auth/credential-cache.ts';
 import { openDatabase } from '../../server/db/client.ts';
 import { liveBalanceCache } from '../../server/services/live-balance-cache.ts';
 import { notifyStream } from '../../server/services/stream.service.ts';
@@ -81,6 +81,18 @@ describe('read-path caches', () => {
     expect((await admin.patch(`/api/v1/users/${h.users.integrator.id}`).send({ disabled: true })).status).toBe(200);
     expect((await integrator.get('/api/v1/auth/me')).status).toBe(401);
     expect((await request(h.app).get('/api/v1/auth/me').set('Authorization', bearer)).status).toBe(401);
+  });
+
+  it('this process drops a changed credential before the announcement goes out', async () => {
+    const analyst = await h.agent('analyst');
+    const made = await analyst.post('/api/v1/tokens').send({ name: 'sync', role: 'analyst', expiresInDays: 1 });
+    const key = CredentialCache.tokenKey(hashToken(made.body.token));
+    expect((await request(h.app).get('/api/v1/plants').set('Authorization', `Bearer ${made.body.token as string}`)).status).toBe(200);
+    expect(credentialCache(h.ctx).get(key)).toBeDefined();
+    // Synchronously, before the NOTIFY has even been sent (it would also reach this process).
+    const announced = credentialChanged(h.ctx, { tokenId: made.body.id });
+    expect(credentialCache(h.ctx).get(key)).toBeUndefined();
+    await announced;
   });
 
   it('signing out drops the session from the cache', async () => {
