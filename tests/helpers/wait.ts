@@ -17,6 +17,8 @@ export interface WaitOptions {
  * Calls `probe` until `done(value)` holds and resolves with that value; rejects with the last
  * value after `timeout_ms`. `done` defaults to truthiness.
  */
+export function waitFor<T>(probe: () => T | Promise<T>, done: (v: T) => boolean, opts?: WaitOptions): Promise<T>;
+export function waitFor<T>(probe: () => T | Promise<T>, done?: undefined, opts?: WaitOptions): Promise<NonNullable<T>>;
 export async function waitFor<T>(probe: () => T | Promise<T>, done: (v: T) => boolean = (v) => Boolean(v), opts: WaitOptions = {}): Promise<T> {
   const { timeout_ms = 10_000, every_ms = 20, what = 'the condition' } = opts;
   const deadline = Date.now() + timeout_ms;
