@@ -73,8 +73,11 @@ describe('coalesceWrites (embedded broker connections)', () => {
     server.on('error', (e) => errors.push(e));
     coalesceWrites(server);
     server.write(Buffer.from('lost'));
+    const closed = new Promise((r) => server.once('close', r));
     server.destroy();
-    await new Promise((r) => setTimeout(r, 20));
+    await closed;
+    // The gathered write flushes on setImmediate, queued before this one: it has run by now.
+    await new Promise((r) => setImmediate(r));
     expect(errors).toEqual([]);
   });
 });
