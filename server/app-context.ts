@@ -1,3 +1,4 @@
+import { credentialChanged } from './auth/credential-cache.ts';
 import type { Logger } from 'pino';
 import type { Config } from './config.ts';
 import type { Database } from './db/client.ts';
@@ -11,6 +12,7 @@ import { notificationRepository } from './repositories/notification.repository.t
 import { plantSeedRepository } from './repositories/plant-seed.repository.ts';
 import { streamRepository } from './repositories/stream.repository.ts';
 import { wiringRepository } from './repositories/wiring.repository.ts';
+import { ingestRepository } from './repositories/ingest.repository.ts';
 import { labRepository } from './repositories/lab.repository.ts';
 import { plantRepository } from './repositories/plant.repository.ts';
 import { seriesRepository } from './repositories/series.repository.ts';
@@ -30,7 +32,7 @@ import { createSeriesService } from './services/series.service.ts';
 import { createSettingsService } from './services/settings.service.ts';
 import { createTokenService } from './services/token.service.ts';
 import { createUserService } from './services/user.service.ts';
-import { serverPkiDir } from './services/opcua-browse.service.ts';
+import { createOpcuaBrowseService } from './services/opcua-browse.service.ts';
 import { createWiringService } from './services/wiring.service.ts';
 
 /** What every route module gets: passed in, never imported as a global. */
@@ -64,6 +66,7 @@ function compose(ctx: AppContext) {
     series: seriesRepository(pool),
     lab: labRepository(db),
     wiring: wiringRepository(db),
+    ingest: ingestRepository(db),
     alarms: alarmRepository(db),
     stream: streamRepository(pool),
     balance: balanceRepository(ctx.db),
@@ -88,12 +91,12 @@ function compose(ctx: AppContext) {
       passwords: { hash: hashPassword, random: randomPassword },
       admin: { email: ctx.config.adminEmail, password: ctx.config.adminPassword },
     }),
-    users: createUserService({ userRepo: repos.users, audit, hashPassword }),
-    tokens: createTokenService({ tokenRepo: repos.tokens, audit, clock }),
+    users: createUserService({ userRepo: repos.users, audit, hashPassword, credentialsChanged: (c) => credentialChanged(ctx, c) }),
+    tokens: createTokenService({ tokenRepo: repos.tokens, audit, clock, credentialsChanged: (c) => credentialChanged(ctx, c) }),
     settings: createSettingsService({ settingsRepo: repos.settings, plantRepo: repos.plants, audit }),
     plantAccess,
     plantSeed: createPlantSeedService({ seedRepo: repos.plantSeed, audit }),
-    ingestStatus: createIngestStatusService({ wiringRepo: repos.wiring, dataDir: ctx.config.dataDir, clock }),
+    ingestStatus: createIngestStatusService({ ingest: repos.ingest, wiring: repos.wiring, clock }),
     outbox: createOutboxService({ outbox: repos.outbox }),
     plants: createPlantService({ plantRepo: repos.plants, plantAccess, clock }),
     series: createSeriesService({ seriesRepo: repos.series, plantRepo: repos.plants, plantAccess, clock }),
@@ -105,7 +108,7 @@ function compose(ctx: AppContext) {
       clock,
       changed: (a, change) => repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
     }),
-    wiring: createWiringService({ wiringRepo: repos.wiring, plantAccess, audit, log: ctx.log, dataDir: ctx.config.dataDir, pkiDir: serverPkiDir(ctx.config.dataDir) }),
+    wiring: createWiringService({ wiringRepo: repos.wiring, plantAccess, audit, log: ctx.log, ingestRepo: repos.ingest, opcua: createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir }) }),
   };
   return { repos, services, clock };
 }

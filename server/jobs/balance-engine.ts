@@ -6,7 +6,7 @@ import { NotFoundError } from '../http/errors.ts';
 import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
 import { createAlarmService } from '../services/alarm.service.ts';
 import { readBalanceInputs } from '../services/balance-inputs.service.ts';
-import { computeBalance } from '../services/balance.service.ts';
+import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import { createMailService, smtpTransport } from '../services/mail.service.ts';
 
 export const BALANCE_QUEUE = 'flocstream-balance';

@@ -2,7 +2,7 @@ import { and, desc, eq, inArray } from 'drizzle-orm';
 import type { Balance } from '../../shared/contracts/balance.ts';
 import type { Database } from '../db/client.ts';
 import { balances, basins, clarifiers, plants, pumps, trains } from '../db/schema/index.ts';
-import type { LayoutIn, SeriesPoint, SignalReading } from '../services/balance.service.ts';
+import type { LayoutIn, SeriesPoint, SignalReading } from '../../shared/domain/balance/inputs.ts';
 
 /** Everything the balance engine reads and writes in the database. */
 export function balanceRepository(database: Database) {

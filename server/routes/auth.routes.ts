@@ -1,6 +1,7 @@
 import { z } from 'zod';
 import { loginRequest, me } from '../../shared/contracts/auth.ts';
 import { services, type AppContext } from '../app-context.ts';
+import { CredentialCache, credentialCache } from '../auth/credential-cache.ts';
 import { SESSION_COOKIE, SESSION_TTL_S } from '../auth/session.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
 
@@ -29,7 +30,10 @@ export function authRoutes(ctx: AppContext): RouteDef[] {
       tag: 'auth',
       summary: 'Sign out; clears the session cookie',
       response: z.object({ ok: z.literal(true) }),
-      handler: ({ principal, res }) => {
+      handler: ({ principal, req, res }) => {
+        // The cached caller of this cookie goes at once (server/auth/credential-cache.ts).
+        const sent = (req.cookies as Record<string, string> | undefined)?.[SESSION_COOKIE];
+        if (sent) credentialCache(ctx).dropKey(CredentialCache.sessionKey(sent));
         res.clearCookie(SESSION_COOKIE, cookie);
         return auth.logout(principal);
       },

@@ -12,7 +12,7 @@ export function ingestStatusRoutes(ctx: AppContext): RouteDef[] {
       role: 'analyst',
       tag: 'wiring',
       summary:
-        'Ingest process: running (heartbeat at most 10 s old, else running:false with the reason and the last figures), samples/s, receive→commit lag [ms], spool size, writer counters, connection state per source, dead letters in the last hour and in total',
+        'Ingest workers: running (a worker whose heartbeat row is younger than three of its periods, else running:false with the reason and the last figures), samples/s, receive→commit lag [ms], spool size, writer counters, connection state per source, dead letters in the last hour and in total, and each worker (host, pid, heartbeat)',
       response: ingestStatusOut,
       handler: ({ principal }) => svc.status(principal),
     }),

@@ -1,8 +1,8 @@
 import { z } from 'zod';
 import { services, type AppContext } from '../app-context.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
+import { outboxMessage, outboxSummary as summary } from '../../shared/contracts/outbox.ts';
 
-const summary = z.object({ id: z.number().int(), receivedAt: z.iso.datetime(), from: z.string(), to: z.array(z.string()), subject: z.string(), size: z.number().int() });
 const listQuery = z.strictObject({ limit: z.coerce.number().int().min(1).max(500).default(100), beforeId: z.coerce.number().int().positive().optional() });
 const idParams = z.strictObject({ id: z.coerce.number().int().positive() });
 
@@ -27,7 +27,7 @@ export function outboxRoutes(ctx: AppContext): RouteDef[] {
       tag: 'mail',
       summary: 'One caught message: decoded text and the raw message',
       params: idParams,
-      response: summary.extend({ text: z.string(), raw: z.string() }),
+      response: outboxMessage,
       handler: ({ params }) => outbox.get(params.id),
     }),
   ];

@@ -18,8 +18,9 @@ import { services, type AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
 import { flattenRows } from '../services/csv.service.ts';
-import { ALARM_CSV_COLUMNS } from '../services/plant.service.ts';
+import { ALARM_CSV_COLUMNS, assertPlantScope } from '../services/plant.service.ts';
 import { SAMPLE_CSV_COLUMNS, sampleCsvRows } from '../services/series.service.ts';
+import { liveBalanceCache } from '../services/live-balance-cache.ts';
 
 const DEFAULT_LIST_LIMIT = 500;
 const DEFAULT_HISTORY_LIMIT = 5000;
@@ -32,6 +33,7 @@ const DEFAULT_HISTORY_LIMIT = 5000;
  */
 export function plantsRoutes(ctx: AppContext): RouteDef[] {
   const { plants, series } = services(ctx);
+  const live = liveBalanceCache(ctx);
   const common = { role: 'analyst' as const, tag: 'plants' };
   return [
     defineRoute({
@@ -106,7 +108,16 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'The latest balance computation; 200 with balance: null and a reason when none has been computed yet (404 only for an unknown plant)',
       params: plantParams,
       response: balanceLiveResponse,
-      handler: ({ params, principal }) => plants.balanceLive(principal, params.plantId),
+      handler: async ({ params, principal, res }) => {
+        // The plant scope first (403 before anything is read); a balance in memory means the plant exists.
+        assertPlantScope(principal, params.plantId);
+        const text = live.answer(params.plantId);
+        if (text !== undefined) return void res.type('json').send(text);
+        const generation = live.generation(params.plantId);
+        const out = await plants.balanceLive(principal, params.plantId);
+        if (out.balance) live.store(params.plantId, out.balance, generation);
+        return out;
+      },
     }),
     defineRoute({
       ...common,

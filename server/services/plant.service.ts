@@ -25,7 +25,7 @@ function summary(p: PlantRow): PlantSummary {
   return { id: p.id, code: p.code, name: p.name, timezone: p.timezone, peakFlow_m3h: p.peakFlow_m3h, createdAt: p.createdAt.toISOString() };
 }
 
-function balanceOut(b: BalanceRow): BalanceOut {
+export function balanceOut(b: BalanceRow): BalanceOut {
   return { id: b.id, ts: b.ts.toISOString(), quality: b.quality, data: b.data as Record<string, unknown>, inputs: b.inputs as Record<string, unknown> };
 }
 

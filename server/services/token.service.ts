@@ -1,3 +1,4 @@
+import type { AuthChange } from '../auth/credential-cache.ts';
 import type { CreateTokenRequest, TokenOut } from '../../shared/contracts/auth.ts';
 import { roleAtLeast } from '../../shared/contracts/roles.ts';
 import type { Clock } from '../app-context.ts';
@@ -19,13 +20,15 @@ function out(t: TokenRow): TokenOut {
 }
 
 export interface TokenServiceDeps {
+  /** Drops the cached caller of a revoked token at once, here and in other API processes (server/auth/credential-cache.ts). */
+  credentialsChanged: (change: AuthChange) => Promise<void>;
   tokenRepo: Pick<TokenRepository, 'listForUser' | 'insert' | 'revoke'>;
   audit: AuditLog;
   clock: Clock;
 }
 
 /** The caller's own API tokens. Any role may hold tokens, with a role no higher than its own; the secret is shown once and stored hashed. */
-export function createTokenService({ tokenRepo, audit, clock }: TokenServiceDeps) {
+export function createTokenService({ tokenRepo, audit, clock, credentialsChanged }: TokenServiceDeps) {
   return {
     async list(principal: Principal): Promise<TokenOut[]> {
       return (await tokenRepo.listForUser(principal.userId)).map(out);
@@ -40,6 +43,7 @@ export function createTokenService({ tokenRepo, audit, clock }: TokenServiceDeps
     },
     async revoke(principal: Actor, id: number): Promise<{ ok: true }> {
       if (!(await tokenRepo.revoke(principal.userId, id))) throw new NotFoundError(`no active token ${id} of yours`);
+      await credentialsChanged({ tokenId: id });
       await audit.record(principal, 'token.revoke', `token:${id}`);
       return { ok: true };
     },

@@ -1,3 +1,4 @@
+import type { AuthChange } from '../auth/credential-cache.ts';
 import type { z } from 'zod';
 import type { createUserRequest, updateUserRequest, UserOut } from '../../shared/contracts/auth.ts';
 import { ConflictError, NotFoundError } from '../http/errors.ts';
@@ -16,10 +17,12 @@ export interface UserServiceDeps {
   audit: AuditLog;
   /** Password hashing (server/auth/passwords.ts in the product). */
   hashPassword: (password: string) => Promise<string>;
+  /** Drops cached callers of a changed user at once, here and in other API processes (server/auth/credential-cache.ts). */
+  credentialsChanged: (change: AuthChange) => Promise<void>;
 }
 
 /** User management (admins, signed-in sessions only): every write audited; the last active admin cannot be removed or demoted. */
-export function createUserService({ userRepo, audit, hashPassword }: UserServiceDeps) {
+export function createUserService({ userRepo, audit, hashPassword, credentialsChanged }: UserServiceDeps) {
   return {
     async list(): Promise<UserOut[]> {
       return (await userRepo.list()).map(out);
@@ -41,6 +44,7 @@ export function createUserService({ userRepo, audit, hashPassword }: UserService
         ...(body.disabled !== undefined ? { disabled: body.disabled } : {}),
         ...(body.password !== undefined ? { passwordHash: await hashPassword(body.password) } : {}),
       });
+      await credentialsChanged({ userId: id });
       await audit.record(principal, 'user.update', `user:${id}`, { fields: Object.keys(body) });
       return out(row!);
     },
@@ -50,6 +54,7 @@ export function createUserService({ userRepo, audit, hashPassword }: UserService
       if (before.id === principal.userId) throw new ConflictError('you cannot delete yourself');
       if (before.role === 'admin' && !before.disabled && (await userRepo.countActiveAdmins()) <= 1) throw new ConflictError('this is the last active admin');
       await userRepo.remove(id);
+      await credentialsChanged({ userId: id });
       await audit.record(principal, 'user.delete', `user:${id}`, { email: before.email });
       return { ok: true };
     },

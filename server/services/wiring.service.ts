@@ -1,7 +1,4 @@
-import { randomBytes } from 'node:crypto';
-import fs from 'node:fs/promises';
-import path from 'node:path';
-import mqtt from 'mqtt';
+import { testMqttConnection } from '../../ingest/mqtt/mqtt-connection.ts';
 import { SIGNAL_KINDS } from '../../shared/contracts/plant-layout.ts';
 import {
   signalTargetType,
@@ -11,7 +8,6 @@ import {
   TAG_CSV_COLUMNS,
   TAG_CSV_MAX_ROWS,
   TAG_CSV_REQUIRED,
-  discoveryFile,
   tagCreate,
   type ConnectionTestOut,
   type MappingOut,
@@ -33,8 +29,9 @@ import { zodFields } from '../http/validate.ts';
 import { uniqueViolation, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow, type WiringRepository } from '../repositories/wiring.repository.ts';
 import type { Actor, AuditLog } from './audit.service.ts';
 import { parseCsv } from './csv.service.ts';
-import { browseChildren, testOpcua } from './opcua-browse.service.ts';
+import type { OpcuaBrowseService } from './opcua-browse.service.ts';
 import { assertPlantScope, type PlantAccess } from './plant.service.ts';
+import type { IngestRepository } from '../repositories/ingest.repository.ts';
 
 /** MQTT "test connection" budget: CONNECT → CONNACK within this [ms]. */
 export const MQTT_TEST_TIMEOUT_MS = 5_000;
@@ -93,43 +90,9 @@ const CSV_COLUMN_OF: Record<string, string> = {
   rangeHigh: 'range_high',
 };
 
-/**
- * MQTT "test connection": one CONNECT with Clean Start and a client identifier of its own (MQTT
- * 5.0 §3.1.4: a second connection with ingest's identifier would make the broker close ingest's
- * session), CONNACK awaited for at most 5 s, then DISCONNECT. With protocolVersion auto a
- * refusal of 5.0 (reason 0x84, §3.2.2.2; 3.1.1 return code 1) is retried as 3.1.1, as ingest does.
- */
-export async function testMqtt(s: Pick<SourceRow, 'id' | 'url' | 'username' | 'secret' | 'options'>, timeoutMs = MQTT_TEST_TIMEOUT_MS): Promise<ConnectionTestOut> {
-  const opts = (s.options ?? {}) as { protocolVersion?: 4 | 5 | 'auto' };
-  const versions: Array<4 | 5> = opts.protocolVersion === 4 ? [4] : opts.protocolVersion === 5 ? [5] : [5, 4];
-  const t0 = performance.now();
-  let lastError = '';
-  for (const protocolVersion of versions) {
-    try {
-      const client = await mqtt.connectAsync(
-        s.url,
-        {
-          clientId: `flocstream-test-${s.id}-${randomBytes(4).toString('hex')}`,
-          clean: true,
-          protocolVersion,
-          connectTimeout: timeoutMs,
-          reconnectPeriod: 0,
-          keepalive: 10,
-          ...(s.username ? { username: s.username } : {}),
-          ...(s.secret ? { password: s.secret } : {}),
-        },
-        false,
-      );
-      const latency_ms = Math.round(performance.now() - t0);
-      await client.endAsync().catch(() => {});
-      return { ok: true, latency_ms, details: { protocolVersion: protocolVersion === 5 ? '5.0' : '3.1.1' } };
-    } catch (err) {
-      const e = err as { code?: number | string; message?: string };
-      lastError = e.message || String(e.code ?? err);
-      if (!(protocolVersion === 5 && versions.length > 1 && (e.code === 0x84 || e.code === 1))) break;
-    }
-  }
-  return { ok: false, latency_ms: Math.round(performance.now() - t0), error: lastError.slice(0, 300) };
+/** MQTT "test connection": connects as ingest does (ingest/mqtt/mqtt-connection.ts), with a session of its own. */
+export function testMqtt(s: Pick<SourceRow, 'id' | 'url' | 'username' | 'secret' | 'options'>, timeoutMs = MQTT_TEST_TIMEOUT_MS): Promise<ConnectionTestOut> {
+  return testMqttConnection(s, timeoutMs);
 }
 
 /**
@@ -141,13 +104,13 @@ export interface WiringServiceDeps {
   plantAccess: PlantAccess;
   audit: AuditLog;
   log: Pick<Logger, 'info'>;
-  /** The data folder: the API's OPC UA client PKI and ingest's MQTT topic lists live under it. */
-  dataDir: string;
-  /** The API's own OPC UA client PKI folder. */
-  pkiDir: string;
+  /** MQTT topics ingest has seen (table mqtt_discovery). */
+  ingestRepo: Pick<IngestRepository, 'discovery'>;
+  /** OPC UA test and browse through the client ingest uses (one certificate). */
+  opcua: Pick<OpcuaBrowseService, 'test' | 'browse'>;
 }
 
-export function createWiringService({ wiringRepo: repo, plantAccess, audit, log, dataDir, pkiDir }: WiringServiceDeps) {
+export function createWiringService({ wiringRepo: repo, plantAccess, audit, log, ingestRepo, opcua }: WiringServiceDeps) {
   async function requireSource(principal: Principal, id: number) {
     const r = await repo.source(id);
     if (!r) throw new NotFoundError(`no source ${id}`);
@@ -264,7 +227,7 @@ export function createWiringService({ wiringRepo: repo, plantAccess, audit, log,
 
     async testSource(principal: Actor, id: number): Promise<ConnectionTestOut> {
       const { source } = await requireSource(principal, id);
-      const out = source.kind === 'mqtt' ? await testMqtt(source) : await testOpcua(source, pkiDir);
+      const out = source.kind === 'mqtt' ? await testMqtt(source) : await opcua.test(source);
       log.info({ source: id, ok: out.ok, latency_ms: out.latency_ms, error: out.error }, 'source connection test');
       return out;
     },
@@ -272,29 +235,17 @@ export function createWiringService({ wiringRepo: repo, plantAccess, audit, log,
     async browse(principal: Actor, id: number, nodeId: string | undefined) {
       const { source } = await requireSource(principal, id);
       if (source.kind !== 'opcua') throw new ValidationError({ sourceId: ['browsing is for OPC UA sources; an MQTT source lists its topics under /discovery'] });
-      return { sourceId: id, ...(await browseChildren(source, pkiDir, nodeId)) };
+      return { sourceId: id, ...(await opcua.browse(source, nodeId)) };
     },
 
-    /** Topics ingest has seen on an MQTT source, from `<dataDir>/ingest-discovery/source-<id>.json`. */
+    /** Topics ingest has seen on an MQTT source (table `mqtt_discovery`, written by ingest). */
     async discovery(principal: Actor, id: number) {
       const { source } = await requireSource(principal, id);
       if (source.kind !== 'mqtt') throw new ValidationError({ sourceId: ['discovery lists MQTT topics; browse an OPC UA source instead'] });
-      const file = path.join(dataDir, 'ingest-discovery', `source-${id}.json`);
-      let text: string, mtime: Date;
-      try {
-        [text, mtime] = await Promise.all([fs.readFile(file, 'utf8'), fs.stat(file).then((s) => s.mtime)]);
-      } catch {
-        return { sourceId: id, asOf: null, topics: [], note: source.enabled ? 'ingest has not listed topics for this source yet (it writes the list every few seconds while it is connected)' : 'the source is disabled, so ingest does not connect to it' };
-      }
-      let json: unknown;
-      try {
-        json = JSON.parse(text);
-      } catch {
-        json = undefined;
-      }
-      const r = discoveryFile.safeParse(json);
-      if (!r.success) return { sourceId: id, asOf: mtime.toISOString(), topics: [], note: 'the topic list written by ingest could not be read (a different ingest version?)' };
-      return { sourceId: id, asOf: mtime.toISOString(), topics: r.data };
+      const rows = await ingestRepo.discovery(id);
+      if (!rows.length) return { sourceId: id, asOf: null, topics: [], note: source.enabled ? 'ingest has not listed topics for this source yet (it saves them every few seconds while it is connected)' : 'the source is disabled, so ingest does not connect to it' };
+      const asOf = new Date(Math.max(...rows.map((r) => r.lastSeen.getTime())));
+      return { sourceId: id, asOf: asOf.toISOString(), topics: rows.map((r) => ({ ...r, firstSeen: r.firstSeen.toISOString(), lastSeen: r.lastSeen.toISOString() })) };
     },
 
     // ---- tags ----

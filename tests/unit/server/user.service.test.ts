@@ -40,12 +40,17 @@ function fakeUserRepo(seed: Array<{ id: number; email: string; role: Role; disab
   };
 }
 const hashPassword = async (pw: string) => `hashed:${pw.length}`;
+/** Records which users' cached credentials the service dropped. */
+function fakeCredentials() {
+  const changed: unknown[] = [];
+  return { changed, credentialsChanged: async (c: unknown) => void changed.push(c) };
+}
 
 describe('user service with a fake repository (no HTTP, no database)', () => {
   it('create stores the hash (never the password), answers no hash, audits; a duplicate e-mail is 409', async () => {
     const userRepo = fakeUserRepo([{ id: 1, email: admin.email, role: 'admin' }]);
     const audit = fakeAudit();
-    const svc = createUserService({ userRepo, audit, hashPassword });
+    const svc = createUserService({ userRepo, audit, hashPassword, ...fakeCredentials() });
     const out = await svc.create(admin, { email: 'shift@kestrel.invalid', name: 'Shift', role: 'operator', password: 'a-long-password-1' });
     expect(out).not.toHaveProperty('passwordHash');
     expect(userRepo.rows.get(out.id)?.passwordHash).toBe('hashed:17');
@@ -58,13 +63,16 @@ describe('user service with a fake repository (no HTTP, no database)', () => {
       { id: 1, email: admin.email, role: 'admin' },
       { id: 2, email: 'boss@kestrel.invalid', role: 'admin', disabled: true },
     ]);
-    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword });
+    const creds = fakeCredentials();
+    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword, credentialsChanged: creds.credentialsChanged });
     const other = { ...admin, userId: 2 };
     await expect(svc.update(other, 1, { role: 'operator' })).rejects.toBeInstanceOf(ConflictError);
     await expect(svc.update(other, 1, { disabled: true })).rejects.toBeInstanceOf(ConflictError);
     await expect(svc.remove(other, 1)).rejects.toBeInstanceOf(ConflictError);
     await svc.update(admin, 2, { disabled: false });
     expect((await svc.update(other, 1, { role: 'operator' })).role).toBe('operator');
+    // A role change or a re-enable must reach cached callers at once; refused changes drop nothing.
+    expect(creds.changed).toEqual([{ userId: 2 }, { userId: 1 }]);
   });
 
   it('nobody deletes themselves; an unknown user is 404', async () => {
@@ -72,7 +80,7 @@ describe('user service with a fake repository (no HTTP, no database)', () => {
       { id: 1, email: admin.email, role: 'admin' },
       { id: 2, email: 'boss@kestrel.invalid', role: 'admin' },
     ]);
-    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword });
+    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword, ...fakeCredentials() });
     await expect(svc.remove(admin, admin.userId)).rejects.toThrow('you cannot delete yourself');
     await expect(svc.remove(admin, 77)).rejects.toBeInstanceOf(NotFoundError);
     expect(await svc.remove(admin, 2)).toEqual({ ok: true });
