@@ -36,9 +36,31 @@ export default tseslint.config(
     },
   },
   {
+    // Ingest shares nothing with the API but PostgreSQL and the broker, so it runs on any host.
     files: ['ingest/**/*.ts'],
     rules: {
-      'no-restricted-imports': ['error', { patterns: [{ group: ['**/src/**', '**/simulators/**'], message: 'ingest does not import the monitor or the simulator' }] }],
+      'no-restricted-imports': [
+        'error',
+        { patterns: [{ group: ['**/src/**', '**/simulators/**'], message: 'ingest does not import the monitor or the simulator' }, { group: ['**/server/**'], message: 'ingest imports nothing from server/: it talks to the API through PostgreSQL (rows, LISTEN/NOTIFY)' }] },
+      ],
+    },
+  },
+  {
+    // One module per protocol, used by both: the API's wiring test and browse reuse ingest's
+    // protocol clients (one OPC UA client certificate), and nothing else of ingest.
+    files: ['server/**/*.ts'],
+    rules: {
+      'no-restricted-imports': [
+        'error',
+        {
+          patterns: [
+            {
+              regex: '(^|/)ingest/(?!(opcua/opcua-client|mqtt/mqtt-connection)\\.ts$)',
+              message: 'server/ may import only ingest\'s protocol modules (ingest/opcua/opcua-client.ts, ingest/mqtt/mqtt-connection.ts)',
+            },
+          ],
+        },
+      ],
     },
   },
   {

@@ -2,8 +2,10 @@ import path from 'node:path';
 import { z } from 'zod';
 
 /**
- * The only place in ingest/ that reads process.env (house rule 8). The launcher spawns
- * `tsx ingest/main.ts` with DATABASE_URL and FLOCSTREAM_DATA_DIR; everything else has a default.
+ * The only place in ingest/ that reads process.env (house rule 8). Ingest needs DATABASE_URL
+ * (and the brokers and endpoints named in the `sources` table); FLOCSTREAM_DATA_DIR is a folder
+ * of its own host for the spool, the log and the OPC UA PKI, so ingest can run on any host that
+ * reaches PostgreSQL and the brokers. Everything else has a default.
  */
 const positiveInt = z.coerce.number().int().positive();
 
@@ -45,12 +47,21 @@ const envSchema = z.object({
   INGEST_MAX_BACKLOG_ROWS: positiveInt.optional(),
   /** Day partitions ending before now − retention are dropped [days]. */
   INGEST_RETENTION_DAYS: positiveInt.default(400),
-  /** How often sources and tags are re-read from the database [ms]. */
-  INGEST_RELOAD_MS: positiveInt.default(3_000),
-  /** How often the status file is rewritten [ms]. */
+  /**
+   * Fallback re-read of sources and tags [ms]. A change announces itself on `flocstream_ingest`
+   * (a trigger, migration 0005) and is applied at once; this timer only covers changes that
+   * committed while the LISTEN connection was down.
+   */
+  INGEST_RELOAD_MS: positiveInt.default(30_000),
+  /** Heartbeat: how often this worker's `ingest_workers` row and the MQTT discovery are written [ms]. */
   INGEST_STATUS_MS: positiveInt.default(2_000),
   /** MQTT client identifier prefix; the source id is appended so each session is stable across restarts. */
   INGEST_MQTT_CLIENT_ID: z.string().min(1).max(16).default('flocstream-ingest'),
+  /**
+   * How MQTT PUBACKs leave after the commit (ingest/mqtt/mqtt-connector.ts AckMode): `serial` is
+   * mqtt.js's stock way, one message per commit, for `npm run bench:ingest -- --stock` only.
+   */
+  INGEST_MQTT_ACKS: z.enum(['pipelined', 'serial']).default('pipelined'),
   /** The `debug` package's namespaces; mqtt.js traces each packet only when it names `mqttjs`. */
   DEBUG: z.string().optional(),
 });
@@ -70,6 +81,8 @@ export interface IngestConfig {
   mqttClientIdPrefix: string;
   /** mqtt.js's per-packet trace through `debug` (DEBUG=mqttjs*); off, it costs nothing per packet. */
   mqttTrace: boolean;
+  /** Undefined: pipelined (the product's); `serial` only for the benchmark's stock reference. */
+  mqttAcks?: 'pipelined' | 'serial';
 }
 
 export class IngestConfigError extends Error {}
@@ -94,15 +107,17 @@ export function loadIngestConfig(env: NodeJS.ProcessEnv = process.env): IngestCo
     statusMs: e.INGEST_STATUS_MS,
     mqttClientIdPrefix: e.INGEST_MQTT_CLIENT_ID,
     mqttTrace: /mqttjs/.test(e.DEBUG ?? ''),
+    ...(e.INGEST_MQTT_ACKS === 'serial' ? { mqttAcks: 'serial' as const } : {}),
   };
 }
 
-/** Where ingest keeps its files under the data folder. */
+/**
+ * Where ingest keeps its local files under the data folder: none of them is read by another
+ * process (status and discovery are rows in PostgreSQL).
+ */
 export function ingestPaths(dataDir: string) {
   return {
     spoolDir: path.join(dataDir, 'spool'),
-    statusFile: path.join(dataDir, 'ingest-status.json'),
-    discoveryDir: path.join(dataDir, 'ingest-discovery'),
-    pkiDir: path.join(dataDir, 'pki', 'ingest-client'),
+    logsDir: path.join(dataDir, 'logs'),
   };
 }

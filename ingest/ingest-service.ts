@@ -1,38 +1,43 @@
-import fs from 'node:fs/promises';
-import path from 'node:path';
+import { EventEmitter } from 'node:events';
 import pg from 'pg';
 import type { Logger } from 'pino';
+import { INGEST_CHANNEL, parseIngestEvent } from '../shared/contracts/ingest-events.ts';
+import type { IngestWorkerStatus } from '../shared/contracts/wiring.ts';
 import { ingestPaths, type IngestConfig } from './config.ts';
 import type { Connector, ConnectorStatus, SourceConfig } from './connector.ts';
+import { Discovery, pruneDiscovery, saveDiscovery } from './mqtt/discovery.ts';
 import { MqttConnector } from './mqtt/mqtt-connector.ts';
 import type { TagConfig } from './pipeline/types.ts';
+import { PgListener } from './pg-listener.ts';
 import { loadWiring } from './source-repository.ts';
 import { BatchWriter, type WriterStats } from './sink/batch-writer.ts';
 import { SampleStore } from './sink/sample-store.ts';
 import { Spool } from './sink/spool.ts';
+import { WorkerRegistry } from './worker-registry.ts';
 
-/** Content of `<dataDir>/ingest-status.json`, rewritten every few seconds (atomically). */
-export interface IngestStatus {
-  pid: number;
-  startedAt: string;
-  heartbeatAt: string;
-  /** Samples committed per second over the last status interval. */
-  samplesPerSec: number;
-  /** Receive → commit delay of the last flush [ms]. */
-  lagMs: number;
-  spool: { bytes: number; files: number };
+/**
+ * What this worker reports with each heartbeat (`ingest_workers.status`); the API reads it
+ * with `ingestWorkerStatus` (shared/contracts/wiring.ts).
+ */
+export interface IngestStatus extends Omit<IngestWorkerStatus, 'writer' | 'sources'> {
   writer: WriterStats;
   sources: ConnectorStatus[];
-  loadError: string | null;
+}
+
+/** Why the wiring was re-read: at start, a NOTIFY from the database, the fallback timer, a LISTEN (re)connect. */
+export type ReloadReason = 'start' | 'notify' | 'poll' | 'listen';
+
+/** Events of `IngestService.events`. */
+export interface IngestServiceEvents {
+  /** A re-read of the wiring finished (or found the database down: `error`). */
+  reloaded: [{ reason: ReloadReason; sources: number; tags: number; error: string | null }];
+  /** A heartbeat row was written (`error` when it could not be). */
+  heartbeat: [{ error: string | null }];
 }
 
 const HOUR_MS = 3_600_000;
-
-async function writeAtomic(file: string, text: string): Promise<void> {
-  const tmp = `${file}.${process.pid}.tmp`;
-  await fs.writeFile(tmp, text);
-  await fs.rename(tmp, file);
-}
+/** MQTT topics unseen for this long leave the discovery list [days]. */
+const DISCOVERY_KEEP_DAYS = 7;
 
 function sourceKey(s: SourceConfig): string {
   return JSON.stringify([s.kind, s.name, s.url, s.username, s.secret, s.options]);
@@ -40,18 +45,27 @@ function sourceKey(s: SourceConfig): string {
 
 /**
  * The ingest process: loads enabled sources and tags, runs one connector per source, feeds the
- * batch writer, re-reads the wiring every few seconds (a changed source is reconnected, changed
- * tags are applied in place), keeps day partitions ahead and writes the status file.
+ * batch writer, re-reads the wiring when the database announces a change (and on a slow
+ * fallback timer; a changed source is reconnected, changed tags are applied in place), keeps
+ * day partitions ahead, and writes its heartbeat row and the MQTT topics it saw. Everything it
+ * shares with the API is in PostgreSQL, so it can run on any host.
  */
 export class IngestService {
+  readonly events = new EventEmitter<IngestServiceEvents>();
   private connectors = new Map<number, { key: string; c: Connector }>();
+  private discoveries = new Map<number, Discovery>();
   private timers: NodeJS.Timeout[] = [];
-  private startedAt = new Date();
   private lastCommitted = 0;
-  private lastStatusAt = Date.now();
+  private lastBeatAt = Date.now();
+  private rate = 0;
   private loadError: string | null = null;
   private reloading: Promise<void> | null = null;
+  /** A reload was asked for while one ran: run once more after it (the change may have committed after its query). */
+  private reloadAgain: ReloadReason | null = null;
+  private beating: Promise<void> | null = null;
+  private listener: PgListener | null = null;
   private stopped = false;
+  readonly registry: WorkerRegistry;
 
   private constructor(
     private cfg: IngestConfig,
@@ -60,11 +74,12 @@ export class IngestService {
     private store: SampleStore,
     private lanes: SampleStore[],
     readonly writer: BatchWriter,
-  ) {}
+  ) {
+    this.registry = new WorkerRegistry(pool, new Date(), cfg.statusMs);
+  }
 
   static async start(cfg: IngestConfig, log: Logger): Promise<IngestService> {
     const paths = ingestPaths(cfg.dataDir);
-    await fs.mkdir(paths.discoveryDir, { recursive: true });
     const spool = await Spool.open(paths.spoolDir);
     if (!spool.isEmpty) log.info({ files: spool.fileCount, bytes: spool.sizeBytes }, 'spool from a previous run will be replayed');
     // Partition upkeep has a connection of its own: on a writer's it could land inside a batch's transaction.
@@ -77,11 +92,21 @@ export class IngestService {
     // Replay what a previous run spooled before any new traffic is accepted.
     await writer.flush();
     await svc.maintain();
-    await svc.reload();
-    svc.timers.push(setInterval(() => void svc.reload(), cfg.reloadMs));
-    svc.timers.push(setInterval(() => void svc.writeStatus(), cfg.statusMs));
+    await svc.reload('start');
+    svc.listener = new PgListener(
+      cfg.databaseUrl,
+      INGEST_CHANNEL,
+      (payload) => {
+        if (parseIngestEvent(payload)?.event === 'wiring') void svc.reload('notify');
+      },
+      // Changes committed while nobody listened were not announced: re-read once listening.
+      () => void svc.reload('listen'),
+      log,
+    );
+    svc.timers.push(setInterval(() => void svc.reload('poll'), cfg.reloadMs));
+    svc.timers.push(setInterval(() => void svc.heartbeat(), cfg.statusMs));
     svc.timers.push(setInterval(() => void svc.maintain(), HOUR_MS));
-    await svc.writeStatus();
+    await svc.heartbeat();
     return svc;
   }
 
@@ -89,20 +114,37 @@ export class IngestService {
     try {
       const dropped = await this.store.maintainPartitions();
       if (dropped) this.log.info({ dropped }, 'dropped day partitions past retention');
+      const workers = await this.registry.pruneSilent();
+      const topics = await pruneDiscovery(this.pool, DISCOVERY_KEEP_DAYS);
+      if (workers || topics) this.log.info({ workers, topics }, 'forgot silent ingest workers and MQTT topics');
     } catch (err) {
       this.log.warn({ err: (err as Error).message }, 'partition upkeep failed; will retry');
     }
   }
 
-  /** Re-reads sources and tags; runs at most one at a time. */
-  reload(): Promise<void> {
-    this.reloading ??= this.doReload().finally(() => {
+  /**
+   * Re-reads sources and tags; runs at most one at a time, and once more after the running one
+   * when asked again meanwhile. Emits `reloaded` when done.
+   */
+  reload(reason: ReloadReason): Promise<void> {
+    if (this.reloading) {
+      this.reloadAgain = reason;
+      return this.reloading;
+    }
+    this.reloading = (async () => {
+      let next: ReloadReason | null = reason;
+      while (next) {
+        this.reloadAgain = null;
+        await this.doReload(next);
+        next = this.reloadAgain;
+      }
+    })().finally(() => {
       this.reloading = null;
     });
     return this.reloading;
   }
 
-  private async doReload(): Promise<void> {
+  private async doReload(reason: ReloadReason): Promise<void> {
     if (this.stopped) return;
     let snap;
     try {
@@ -111,6 +153,7 @@ export class IngestService {
     } catch (err) {
       // Database down: keep running with the wiring we have.
       this.loadError = (err as Error).message;
+      this.events.emit('reloaded', { reason, sources: this.connectors.size, tags: 0, error: this.loadError });
       return;
     }
     const seen = new Set<number>();
@@ -131,30 +174,33 @@ export class IngestService {
       if (!seen.has(id)) {
         await cur.c.close();
         this.connectors.delete(id);
+        this.discoveries.delete(id);
         this.log.info({ source: id }, 'source removed or disabled');
       }
     }
+    let tags = 0;
+    for (const list of snap.tagsBySource.values()) tags += list.length;
+    this.log.debug({ reason, sources: snap.sources.length, tags }, 'wiring re-read');
+    this.events.emit('reloaded', { reason, sources: snap.sources.length, tags, error: null });
   }
 
   private async create(s: SourceConfig, tags: TagConfig[]): Promise<Connector> {
-    if (s.kind === 'mqtt') return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log, trace: this.cfg.mqttTrace });
+    if (s.kind === 'mqtt') {
+      // A reconnected source keeps what it saw: the topics are the broker's, not the connection's.
+      let discovery = this.discoveries.get(s.id);
+      if (!discovery) this.discoveries.set(s.id, (discovery = new Discovery()));
+      return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log, trace: this.cfg.mqttTrace, discovery, acks: this.cfg.mqttAcks });
+    }
     // node-opcua is large (≈ 100 MB resident once loaded): only load it when a source needs it.
     const { OpcuaConnector } = await import('./opcua/opcua-connector.ts');
-    return new OpcuaConnector(s, tags, this.writer, { pkiDir: ingestPaths(this.cfg.dataDir).pkiDir, log: this.log });
+    return new OpcuaConnector(s, tags, this.writer, { dataDir: this.cfg.dataDir, db: this.pool, log: this.log });
   }
 
+  /** This worker's figures now; `samplesPerSec` is the rate over the last heartbeat period. */
   status(): IngestStatus {
     const now = Date.now();
-    const committed = this.writer.stats.committedSamples;
-    const dt = (now - this.lastStatusAt) / 1000;
-    const rate = dt > 0 ? (committed - this.lastCommitted) / dt : 0;
-    this.lastCommitted = committed;
-    this.lastStatusAt = now;
     return {
-      pid: process.pid,
-      startedAt: this.startedAt.toISOString(),
-      heartbeatAt: new Date(now).toISOString(),
-      samplesPerSec: Math.round(rate),
+      samplesPerSec: Math.round(this.rate),
       lagMs: this.writer.stats.lastLagMs,
       spool: { bytes: this.writer.spoolBytes, files: this.writer.spoolFiles },
       writer: { ...this.writer.stats },
@@ -163,16 +209,42 @@ export class IngestService {
     };
   }
 
-  private async writeStatus(): Promise<void> {
-    const paths = ingestPaths(this.cfg.dataDir);
-    try {
-      await writeAtomic(paths.statusFile, JSON.stringify(this.status(), null, 2));
-      for (const [id, { c }] of this.connectors) {
-        if (c instanceof MqttConnector) await writeAtomic(path.join(paths.discoveryDir, `source-${id}.json`), JSON.stringify(c.discovery()));
+  /**
+   * Writes the heartbeat row and saves the MQTT topics seen since the last beat; one at a time
+   * (with the database down a beat waits for its connection and the next one is skipped).
+   */
+  heartbeat(stopped = false): Promise<void> {
+    this.beating ??= this.beat(stopped).finally(() => {
+      this.beating = null;
+    });
+    return this.beating;
+  }
+
+  private async beat(stopped: boolean): Promise<void> {
+    const now = Date.now();
+    const committed = this.writer.stats.committedSamples;
+    const dt = (now - this.lastBeatAt) / 1000;
+    if (dt > 0) this.rate = (committed - this.lastCommitted) / dt;
+    this.lastCommitted = committed;
+    this.lastBeatAt = now;
+    let error: string | null = null;
+    for (const [sourceId, d] of this.discoveries) {
+      const deltas = d.drain();
+      try {
+        const newTopics = await saveDiscovery(this.pool, sourceId, deltas);
+        if (newTopics) await this.registry.notify({ event: 'discovery', workerId: this.registry.id, sourceId, newTopics });
+      } catch (err) {
+        d.restore(deltas);
+        error = (err as Error).message;
       }
-    } catch (err) {
-      this.log.warn({ err: (err as Error).message }, 'status file not written');
     }
+    try {
+      await this.registry.beat(this.status(), stopped);
+    } catch (err) {
+      error = (err as Error).message;
+    }
+    if (error) this.log.warn({ err: error }, 'heartbeat not written; will retry');
+    this.events.emit('heartbeat', { error });
   }
 
   /** Stops receiving, flushes everything pending (commit or spool), writes a last status. */
@@ -187,7 +259,9 @@ export class IngestService {
     await this.writer.flush();
     await Promise.all([...this.connectors.values()].map((x) => x.c.close()));
     await this.writer.close();
-    await this.writeStatus();
+    await this.listener?.close();
+    await this.beating;
+    await this.heartbeat(true);
     this.connectors.clear();
     await this.store.close();
     for (const l of this.lanes) await l.close();

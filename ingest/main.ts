@@ -1,14 +1,14 @@
 /**
- * Ingest process entry point: `tsx ingest/main.ts` with DATABASE_URL and FLOCSTREAM_DATA_DIR.
- * Writes `<dataDir>/ingest-status.json` every INGEST_STATUS_MS and, per MQTT source,
- * `<dataDir>/ingest-discovery/source-<id>.json`. SIGINT/SIGTERM: stop receiving, final flush
- * (commit or spool), exit 0.
+ * Ingest process entry point: `node --import tsx ingest/main.ts` with DATABASE_URL (and
+ * FLOCSTREAM_DATA_DIR for its local spool, log and PKI). Talks to the API only through
+ * PostgreSQL: a heartbeat row in `ingest_workers` every INGEST_STATUS_MS, MQTT topics in
+ * `mqtt_discovery`, NOTIFY/LISTEN on `flocstream_ingest` (shared/contracts/ingest-events.ts).
+ * Logs to `<dataDir>/logs/ingest.log`, warnings also to stderr. SIGINT/SIGTERM: stop
+ * receiving, final flush (commit or spool), last heartbeat marked stopped, exit 0.
  */
-import '../server/broker/quiet-debug.ts';
-import { useFastPathParsers } from '../server/broker/publish-fast-path.ts';
-import pino from 'pino';
-import { IngestConfigError, loadIngestConfig } from './config.ts';
+import { IngestConfigError, ingestPaths, loadIngestConfig } from './config.ts';
 import { IngestService } from './ingest-service.ts';
+import { createIngestLogger } from './logger.ts';
 
 let cfg;
 try {
@@ -17,15 +17,13 @@ try {
   console.error(err instanceof IngestConfigError ? err.message : err);
   process.exit(2);
 }
-const log = pino({ name: 'ingest', level: cfg.logLevel });
-// mqtt.js creates its packet parser on each connect; from here on those have the fast path.
-useFastPathParsers();
+const log = createIngestLogger(cfg.logLevel, ingestPaths(cfg.dataDir).logsDir);
 
 const svc = await IngestService.start(cfg, log).catch((err: unknown) => {
   log.fatal({ err }, 'ingest failed to start');
   process.exit(1);
 });
-log.info({ pid: process.pid, dataDir: cfg.dataDir }, 'ingest running');
+log.info({ pid: process.pid, workerId: svc.registry.id, host: svc.registry.host, dataDir: cfg.dataDir }, 'ingest running');
 
 let stopping = false;
 for (const sig of ['SIGINT', 'SIGTERM'] as const) {

@@ -20,13 +20,14 @@ export interface HandledMessage {
  */
 export class MqttMessageHandler {
   private map = new TopicMap<number>();
-  readonly discovery = new Discovery();
   /** Tag filters that are not valid MQTT topic filters (reported in the status). */
   invalidFilters: { tagId: number; address: string; error: string }[] = [];
 
   constructor(
     private sourceId: number,
     private tags: TagSet,
+    /** Where every topic seen is reported (the ingest service saves it to `mqtt_discovery`). */
+    readonly discovery: Discovery = new Discovery(),
   ) {
     this.rebuild();
   }

@@ -1,5 +1,3 @@
-import fs from 'node:fs';
-import path from 'node:path';
 import {
   DataChangeFilter,
   DataChangeTrigger,
@@ -8,65 +6,21 @@ import {
   ClientMonitoredItem,
   ClientSubscription,
   DataType,
-  MessageSecurityMode,
-  OPCUACertificateManager,
-  OPCUAClient,
-  SecurityPolicy,
   TimestampsToReturn,
-  UserTokenType,
   type ClientSession,
   type DataValue,
-  type UserIdentityInfo,
+  type OPCUAClient,
 } from 'node-opcua';
+import type pg from 'pg';
 import type { Logger } from 'pino';
 import { sourceStatusBase, type Connector, type ConnectorStatus, type ConnectionState, type SourceConfig } from '../connector.ts';
 import { isSample } from '../pipeline/quality.ts';
 import { TagSet } from '../pipeline/tag-set.ts';
 import { deadLetter, type TagConfig } from '../pipeline/types.ts';
 import type { BatchWriter } from '../sink/batch-writer.ts';
-import { opcuaSourceOptions, type OpcuaSourceOptions } from './opcua-options.ts';
+import { clientIdentity, createClient, parseOpcuaOptions, userIdentity } from './opcua-client.ts';
+import type { OpcuaSourceOptions } from './opcua-options.ts';
 import { gradeOfStatusCode, numericValue } from './status-quality.ts';
-
-/**
- * Client certificate manager rooted under the data folder (never the home folder: STACK.md).
- * One per PKI folder per process; node-opcua locks the folder while it is initialised.
- */
-const managers = new Map<string, OPCUACertificateManager>();
-export function clientCertificateManager(pkiDir: string, acceptUnknown: boolean): OPCUACertificateManager {
-  const key = `${pkiDir}|${acceptUnknown}`;
-  let m = managers.get(key);
-  if (!m) {
-    fs.mkdirSync(pkiDir, { recursive: true });
-    m = new OPCUACertificateManager({ rootFolder: pkiDir, automaticallyAcceptUnknownCertificate: acceptUnknown });
-    managers.set(key, m);
-  }
-  return m;
-}
-
-export function createOpcuaClient(opts: OpcuaSourceOptions, pkiDir: string, name: string): OPCUAClient {
-  return OPCUAClient.create({
-    applicationName: 'Flocstream ingest',
-    applicationUri: `urn:flocstream:ingest:${name}`,
-    clientName: name,
-    endpointMustExist: false,
-    securityMode: MessageSecurityMode[opts.securityMode],
-    securityPolicy: SecurityPolicy[opts.securityPolicy],
-    clientCertificateManager: clientCertificateManager(pkiDir, opts.acceptUnknownServerCertificate),
-    certificateFile: path.join(pkiDir, 'own', 'certs', 'client_certificate.pem'),
-    privateKeyFile: path.join(pkiDir, 'own', 'private', 'private_key.pem'),
-    keepSessionAlive: true,
-    requestedSessionTimeout: 60_000,
-    // node-opcua re-establishes the secure channel with this back-off, then reactivates the
-    // session or creates a new one and transfers/recreates its subscriptions (OPC 10000-4 §6.7).
-    connectionStrategy: { initialDelay: 1_000, maxDelay: 30_000, maxRetry: 1_000_000, randomisationFactor: 0.2 },
-  });
-}
-
-export function userIdentity(source: Pick<SourceConfig, 'username' | 'secret'>): UserIdentityInfo {
-  return source.username
-    ? { type: UserTokenType.UserName, userName: source.username, password: source.secret ?? '' }
-    : { type: UserTokenType.Anonymous };
-}
 
 /**
  * One OPC UA source: a session with one subscription and a monitored item per tag (sampling
@@ -102,17 +56,20 @@ export class OpcuaConnector implements Connector {
   private retryMs = 1_000;
   private retryTimer: NodeJS.Timeout | null = null;
   private run = 0;
+  /** Of the client certificate presented (the one an integrator trusts). */
+  private thumbprint: string | null = null;
 
   constructor(
     private source: SourceConfig,
     tags: readonly TagConfig[],
     private writer: BatchWriter,
-    private ctx: { pkiDir: string; log: Logger },
+    /** `db` holds the one client certificate (opcua-client.ts); `dataDir` this host's PKI folder. */
+    private ctx: { dataDir: string; db: pg.Pool; log: Logger },
   ) {
     this.sourceId = source.id;
-    const parsed = opcuaSourceOptions.safeParse(source.options ?? {});
-    this.opts = parsed.success ? parsed.data : opcuaSourceOptions.parse({});
-    if (!parsed.success) this.lastError = `invalid source options, using defaults: ${parsed.error.issues.map((i) => i.message).join('; ')}`;
+    const { opts, error } = parseOpcuaOptions(source.options);
+    this.opts = opts;
+    this.lastError = error;
     this.tags.update(tags);
     void this.start();
   }
@@ -120,13 +77,22 @@ export class OpcuaConnector implements Connector {
   private async start(): Promise<void> {
     const run = ++this.run;
     this.state = this.connectedAt ? 'reconnecting' : 'connecting';
-    const client = createOpcuaClient(this.opts, this.ctx.pkiDir, `source-${this.source.id}`);
+    let client: OPCUAClient;
+    try {
+      const identity = await clientIdentity(this.ctx.db, this.ctx.dataDir);
+      this.thumbprint = identity.thumbprint;
+      client = await createClient(identity, this.opts, { clientName: `source-${this.source.id}`, mode: 'subscribe' });
+    } catch (err) {
+      // No certificate (database down on first use): retried with the usual back-off.
+      return this.lost(`no client certificate: ${(err as Error).message}`, run);
+    }
+    if (run !== this.run) return;
     this.client = client;
     try {
       // The first connection is tried once here; our own back-off below repeats it.
       await client.connect(this.source.url);
       if (run !== this.run) return void client.disconnect().catch(() => {});
-      const session = await client.createSession(userIdentity(this.source));
+      const session = await client.createSession(await userIdentity(this.source));
       this.session = session;
       session.on('session_closed', () => this.lost('session closed by the server', run));
       client.on('connection_lost', () => {
@@ -267,6 +233,7 @@ export class OpcuaConnector implements Connector {
       details: {
         securityMode: this.opts.securityMode,
         securityPolicy: this.opts.securityPolicy,
+        clientCertificateThumbprint: this.thumbprint,
         monitoredItems: this.items.size,
         itemErrors: Object.fromEntries(this.itemErrors),
       },

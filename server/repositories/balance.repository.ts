@@ -3,7 +3,7 @@ import type { Balance } from '../../shared/contracts/balance.ts';
 import type { Database } from '../db/client.ts';
 import { balances, plants } from '../db/schema/index.ts';
 import { plantModelRepository } from './plant-model.repository.ts';
-import type { LayoutIn, SeriesPoint, SignalReading } from '../services/balance.service.ts';
+import type { LayoutIn, SeriesPoint, SignalReading } from '../../shared/domain/balance/inputs.ts';
 
 /** Everything the balance engine reads and writes in the database. */
 export function balanceRepository(database: Database) {
@@ -31,7 +31,7 @@ export function balanceRepository(database: Database) {
         trains: l.trains.map((t) => ({
           id: t.id,
           code: t.code,
-          basins: t.basins.map((b) => ({ id: b.id, code: b.code, volume_m3: b.volume_m3 })),
+          basins: t.basins.map((b) => ({ id: b.id, code: b.code, volume_m3: b.volume_m3, aeratedFraction: b.aeratedFraction })),
           clarifiers: t.clarifiers.map((c) => ({ id: c.id, code: c.code, area_m2: c.area_m2, sideWaterDepth_m: c.sideWaterDepth_m, count: c.count })),
           pumps: t.pumps.map((x) => ({ id: x.id, code: x.code, kind: x.kind, capacity_m3h: x.capacity_m3h })),
         })),

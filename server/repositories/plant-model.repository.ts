@@ -1,5 +1,5 @@
 import { and, asc, eq, inArray, sql } from 'drizzle-orm';
-import type { Principal } from '../auth/principal.ts';
+import type { Actor } from '../services/audit.service.ts';
 import type { Db } from '../db/client.ts';
 import { auditLog, basins, basinVersions, clarifiers, clarifierVersions, plants, pumps, pumpVersions, settings, signalMap, sources, tags, trains } from '../db/schema/index.ts';
 import { versionAt } from '../../shared/domain/geometry-versions.ts';
@@ -60,8 +60,8 @@ function coreRepository(db: DbOrTx) {
 
   const repo = {
     /** One audit_log row, in the same transaction as the write it records (no secrets in details). */
-    async audit(p: Principal | null, action: string, target: string, details?: Record<string, unknown>) {
-      await db.insert(auditLog).values({ userId: p?.userId ?? null, tokenId: p?.tokenId ?? null, actor: p ? p.email + (p.tokenId ? ` (token ${p.tokenId})` : '') : 'system', action, target, details: details ?? null, ip: null });
+    async audit(p: Actor | null, action: string, target: string, details?: Record<string, unknown>) {
+      await db.insert(auditLog).values({ userId: p?.userId ?? null, tokenId: p?.tokenId ?? null, actor: p ? p.email + (p.tokenId ? ` (token ${p.tokenId})` : '') : 'system', action, target, details: details ?? null, ip: p?.ip ?? null });
     },
 
     // ---- plants ----

@@ -1,6 +1,5 @@
-import type { Request } from 'express';
 import { z } from 'zod';
-import { configPutOut, configPutQuery, plantConfig, plantConfigCreate, plantCreateQuery, type PlantConfig, type PlantConfigCreate } from '../../shared/contracts/plant-config.ts';
+import { configPutOut, configPutQuery, plantConfig, plantConfigCreate, plantCreateQuery } from '../../shared/contracts/plant-config.ts';
 import {
   basinCreate,
   basinOut,
@@ -26,23 +25,9 @@ import {
   trainOut,
   trainParams,
   trainPatch,
-  type BasinCreate,
-  type BasinPatch,
-  type ClarifierCreate,
-  type ClarifierPatch,
-  type PlantCreate,
-  type PlantPatch,
-  type PumpCreate,
-  type PumpPatch,
-  type TrainCreate,
-  type TrainPatch,
 } from '../../shared/contracts/plant-model.ts';
-import type { AppContext } from '../app-context.ts';
-import type { Principal } from '../auth/principal.ts';
-import type { RouteDef } from '../http/route.ts';
-import { plantModelRepository } from '../repositories/plant-model.repository.ts';
-import { plantConfigService } from '../services/plant-config.service.ts';
-import { plantModelService } from '../services/plant-model.service.ts';
+import { services, type AppContext } from '../app-context.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 
 /**
  * Plant setup (integrator and up): plants, their trains, aeration basins, secondary clarifiers
@@ -50,17 +35,11 @@ import { plantModelService } from '../services/plant-model.service.ts';
  * under /plants/:plantId answers 403 to a token scoped to other plants. Writes are audited.
  */
 export function plantModelRoutes(ctx: AppContext): RouteDef[] {
-  const repo = plantModelRepository(ctx.db.db);
-  const model = plantModelService(repo);
-  const config = plantConfigService(repo);
+  const { plantModel: model, plantConfig: config } = services(ctx);
   const w = { role: 'integrator' as const, tag: 'plant setup' };
-  const who = (req: Request) => req.principal as Principal;
-  const body = <T>(req: Request) => req.valid.body as T;
-  const params = <T>(req: Request) => req.valid.params as T;
-  const pid = (req: Request) => params<{ plantId: number }>(req).plantId;
 
   return [
-    {
+    defineRoute({
       ...w,
       method: 'post',
       path: '/plants',
@@ -70,15 +49,13 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       query: plantCreateQuery,
       body: z.discriminatedUnion('formatVersion', [plantConfigCreate, plantCreate]),
       response: plantOut,
-      handler: (req: Request) => {
-        const b = body<PlantCreate | PlantConfigCreate>(req);
-        if (b.formatVersion === undefined) return model.create(who(req), b);
-        const q = req.valid.query as { code?: string; name?: string };
+      handler: ({ body: b, query: q, principal }) => {
+        if (b.formatVersion === undefined) return model.create(principal, b);
         const { code, name, ...doc } = b;
-        return config.create(who(req), doc, { code: q.code ?? code, name: q.name ?? name });
+        return config.create(principal, doc, { code: q.code ?? code, name: q.name ?? name });
       },
-    },
-    {
+    }),
+    defineRoute({
       ...w,
       method: 'patch',
       path: '/plants/:plantId',
@@ -86,9 +63,9 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: plantPatch,
       response: plantOut,
-      handler: (req: Request) => model.patch(who(req), pid(req), body<PlantPatch>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.patch(principal, params.plantId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'delete',
       path: '/plants/:plantId',
@@ -96,9 +73,9 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       query: plantDeleteQuery,
       response: deletedOut,
-      handler: (req: Request) => model.remove(who(req), pid(req), (req.valid.query as { force?: string }).force === '1'),
-    },
-    {
+      handler: ({ params, query, principal }) => model.remove(principal, params.plantId, query.force === '1'),
+    }),
+    defineRoute({
       role: 'analyst',
       tag: 'plant setup',
       method: 'get',
@@ -107,9 +84,9 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       query: modelQuery,
       response: plantModelOut,
-      handler: (req: Request) => model.model(who(req), pid(req), (req.valid.query as { at?: string }).at),
-    },
-    {
+      handler: ({ params, query, principal }) => model.model(principal, params.plantId, query.at),
+    }),
+    defineRoute({
       ...w,
       method: 'post',
       path: '/plants/:plantId/trains',
@@ -118,9 +95,9 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: trainCreate,
       response: trainOut,
-      handler: (req: Request) => model.createTrain(who(req), pid(req), body<TrainCreate>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.createTrain(principal, params.plantId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'patch',
       path: '/plants/:plantId/trains/:trainId',
@@ -128,18 +105,18 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: trainParams,
       body: trainPatch,
       response: trainOut,
-      handler: (req: Request) => model.patchTrain(who(req), pid(req), params<{ trainId: number }>(req).trainId, body<TrainPatch>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.patchTrain(principal, params.plantId, params.trainId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'delete',
       path: '/plants/:plantId/trains/:trainId',
       summary: 'Delete a train with its units, their geometry history and signal mappings',
       params: trainParams,
       response: deletedOut,
-      handler: (req: Request) => model.removeTrain(who(req), pid(req), params<{ trainId: number }>(req).trainId),
-    },
-    {
+      handler: ({ params, principal }) => model.removeTrain(principal, params.plantId, params.trainId),
+    }),
+    defineRoute({
       ...w,
       method: 'post',
       path: '/plants/:plantId/basins',
@@ -148,9 +125,9 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: basinCreate,
       response: basinOut,
-      handler: (req: Request) => model.createBasin(who(req), pid(req), body<BasinCreate>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.createBasin(principal, params.plantId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'patch',
       path: '/plants/:plantId/basins/:basinId',
@@ -158,18 +135,18 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: basinParams,
       body: basinPatch,
       response: basinOut,
-      handler: (req: Request) => model.patchBasin(who(req), pid(req), params<{ basinId: number }>(req).basinId, body<BasinPatch>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.patchBasin(principal, params.plantId, params.basinId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'delete',
       path: '/plants/:plantId/basins/:basinId',
       summary: 'Delete a basin with its geometry history and mappings (to keep history, set inService false instead)',
       params: basinParams,
       response: deletedOut,
-      handler: (req: Request) => model.removeUnit(who(req), pid(req), 'basin', params<{ basinId: number }>(req).basinId),
-    },
-    {
+      handler: ({ params, principal }) => model.removeUnit(principal, params.plantId, 'basin', params.basinId),
+    }),
+    defineRoute({
       ...w,
       method: 'post',
       path: '/plants/:plantId/clarifiers',
@@ -178,9 +155,9 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: clarifierCreate,
       response: clarifierOut,
-      handler: (req: Request) => model.createClarifier(who(req), pid(req), body<ClarifierCreate>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.createClarifier(principal, params.plantId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'patch',
       path: '/plants/:plantId/clarifiers/:clarifierId',
@@ -188,18 +165,18 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: clarifierParams,
       body: clarifierPatch,
       response: clarifierOut,
-      handler: (req: Request) => model.patchClarifier(who(req), pid(req), params<{ clarifierId: number }>(req).clarifierId, body<ClarifierPatch>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.patchClarifier(principal, params.plantId, params.clarifierId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'delete',
       path: '/plants/:plantId/clarifiers/:clarifierId',
       summary: 'Delete a clarifier with its geometry history and mappings',
       params: clarifierParams,
       response: deletedOut,
-      handler: (req: Request) => model.removeUnit(who(req), pid(req), 'clarifier', params<{ clarifierId: number }>(req).clarifierId),
-    },
-    {
+      handler: ({ params, principal }) => model.removeUnit(principal, params.plantId, 'clarifier', params.clarifierId),
+    }),
+    defineRoute({
       ...w,
       method: 'post',
       path: '/plants/:plantId/pumps',
@@ -208,9 +185,9 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: pumpCreate,
       response: pumpOut,
-      handler: (req: Request) => model.createPump(who(req), pid(req), body<PumpCreate>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.createPump(principal, params.plantId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'patch',
       path: '/plants/:plantId/pumps/:pumpId',
@@ -218,27 +195,27 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       params: pumpParams,
       body: pumpPatch,
       response: pumpOut,
-      handler: (req: Request) => model.patchPump(who(req), pid(req), params<{ pumpId: number }>(req).pumpId, body<PumpPatch>(req)),
-    },
-    {
+      handler: ({ params, body, principal }) => model.patchPump(principal, params.plantId, params.pumpId, body),
+    }),
+    defineRoute({
       ...w,
       method: 'delete',
       path: '/plants/:plantId/pumps/:pumpId',
       summary: 'Delete a pump with its geometry history and mappings',
       params: pumpParams,
       response: deletedOut,
-      handler: (req: Request) => model.removeUnit(who(req), pid(req), 'pump', params<{ pumpId: number }>(req).pumpId),
-    },
-    {
+      handler: ({ params, principal }) => model.removeUnit(principal, params.plantId, 'pump', params.pumpId),
+    }),
+    defineRoute({
       ...w,
       method: 'get',
       path: '/plants/:plantId/config',
       summary: 'The plant as one configuration document (formatVersion 1): plant, model with geometry history, own settings, sources (secrets replaced by {secretRequired: true}), tags, signal map; units by code',
       params: plantParams,
       response: plantConfig,
-      handler: (req: Request) => config.export(who(req), pid(req)),
-    },
-    {
+      handler: ({ params, principal }) => config.export(principal, params.plantId),
+    }),
+    defineRoute({
       ...w,
       method: 'put',
       path: '/plants/:plantId/config',
@@ -247,7 +224,7 @@ export function plantModelRoutes(ctx: AppContext): RouteDef[] {
       query: configPutQuery,
       body: plantConfig,
       response: configPutOut,
-      handler: (req: Request) => config.put(who(req), pid(req), body<PlantConfig>(req), (req.valid.query as { dryRun?: string }).dryRun === '1'),
-    },
+      handler: ({ params, body, query, principal }) => config.put(principal, params.plantId, body, query.dryRun === '1'),
+    }),
   ];
 }

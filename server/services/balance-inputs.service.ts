@@ -1,11 +1,11 @@
 import type { BalanceRepository } from '../repositories/balance.repository.ts';
 import type { EffectiveSettings } from '../../shared/contracts/settings.ts';
-import type { BalanceEngineInputs } from './balance.service.ts';
+import type { BalanceEngineInputs } from '../../shared/domain/balance/inputs.ts';
 
 /**
  * Gathers what computeBalance needs for one plant: the layout valid at the plant clock, latest value of every mapped signal,
  * rollup_1m series over the longest window any figure uses (ending at the plant clock, the
- * newest sample time — see balance.service.ts on the two clocks), the latest SVI/DSVI and the
+ * newest sample time — see shared/domain/balance/signals.ts on the two clocks), the latest SVI/DSVI and the
  * newest receive time. Returns null for an unknown plant.
  */
 export async function readBalanceInputs(repo: BalanceRepository, plantId: number, s: EffectiveSettings, now_ms: number): Promise<BalanceEngineInputs | null> {

@@ -1,65 +1,108 @@
-import fs from 'node:fs/promises';
-import path from 'node:path';
-import type { Request } from 'express';
-import { INGEST_HEARTBEAT_MAX_AGE_S, ingestStatusFile, type IngestStatusOut } from '../../shared/contracts/wiring.ts';
-import type { AppContext } from '../app-context.ts';
-import { wiringRepository } from '../repositories/wiring.repository.ts';
+import { INGEST_HEARTBEAT_PERIODS, ingestWorkerStatus, type IngestStatusOut, type IngestWorkerOut, type IngestWorkerStatus } from '../../shared/contracts/wiring.ts';
+import type { Clock } from '../app-context.ts';
+import type { Principal } from '../auth/principal.ts';
+import type { IngestRepository, IngestWorkerRow } from '../repositories/ingest.repository.ts';
+import type { WiringRepository } from '../repositories/wiring.repository.ts';
 
 const HOUR_MS = 3_600_000;
 
-/**
- * The ingest process's health as the API reports it: the status file ingest rewrites every few
- * seconds (`<dataDir>/ingest-status.json`, read and validated here, never imported from
- * ingest/), plus dead-letter counts from the database. Ingest is `running` only while its
- * heartbeat is at most 10 s old; otherwise the last known figures are returned with the reason.
- * A plant-scoped token sees only the sources (and dead letters) of its plants.
- */
-export function ingestStatusService(ctx: AppContext) {
-  const repo = wiringRepository(ctx.db.db);
-  const file = path.join(ctx.config.dataDir, 'ingest-status.json');
+export interface IngestStatusDeps {
+  ingest: Pick<IngestRepository, 'workers'>;
+  wiring: Pick<WiringRepository, 'deadLetterCounts' | 'sourcePlants'>;
+  clock: Clock;
+}
 
+/** A worker runs while its heartbeat is younger than three of its periods and it has not stopped. */
+export function workerRunning(w: Pick<IngestWorkerRow, 'heartbeatAge_s' | 'heartbeat_ms' | 'stoppedAt'>): boolean {
+  return w.stoppedAt === null && w.heartbeatAge_s * 1000 < INGEST_HEARTBEAT_PERIODS * w.heartbeat_ms;
+}
+
+/**
+ * The ingest workers' health as the API reports it, from the `ingest_workers` rows each worker
+ * rewrites with its heartbeat (on any host), plus dead-letter counts. Ingest is `running` while
+ * at least one worker is; the top-level figures keep the single-process contract (the worker
+ * with the latest heartbeat; rates summed and lags the worst over running workers) and
+ * `workers` lists each. A plant-scoped principal sees only the sources (and dead letters) of
+ * its plants.
+ */
+export function createIngestStatusService(deps: IngestStatusDeps) {
   return {
-    async status(req: Request, now = Date.now()): Promise<IngestStatusOut> {
-      const scope = req.principal?.plantIds ?? null;
-      const deadLetters = await repo.deadLetterCounts(new Date(now - HOUR_MS), scope);
-      const empty = { heartbeatAt: null, heartbeatAge_s: null, pid: null, startedAt: null, samplesPerSec: null, lagMs: null, spool: null, writer: null, loadError: null, sources: [], deadLetters };
-      let text: string;
-      try {
-        text = await fs.readFile(file, 'utf8');
-      } catch {
-        return { running: false, reason: 'ingest has not written its status file (ingest-status.json in the data folder): the ingest process is not running or has not started yet', ...empty };
-      }
-      let json: unknown;
-      try {
-        json = JSON.parse(text);
-      } catch {
-        json = undefined;
-      }
-      const r = ingestStatusFile.safeParse(json);
-      if (!r.success) return { running: false, reason: 'the ingest status file could not be read (partly written, or from a different ingest version)', ...empty };
-      const s = r.data;
-      let sources = s.sources;
+    async status(principal: Pick<Principal, 'plantIds'> | undefined): Promise<IngestStatusOut> {
+      const scope = principal?.plantIds ?? null;
+      const [deadLetters, rows] = await Promise.all([deps.wiring.deadLetterCounts(new Date(deps.clock() - HOUR_MS), scope), deps.ingest.workers()]);
+      const workers = rows.map((w) => ({ row: w, running: workerRunning(w), status: readStatus(w.status) }));
       if (scope) {
-        const plantOf = await repo.sourcePlants(sources.map((x) => x.sourceId));
-        sources = sources.filter((x) => scope.includes(plantOf.get(x.sourceId) ?? -1));
+        const plantOf = await deps.wiring.sourcePlants([...new Set(workers.flatMap((w) => w.status?.sources.map((s) => s.sourceId) ?? []))]);
+        for (const w of workers) if (w.status) w.status = { ...w.status, sources: w.status.sources.filter((s) => scope.includes(plantOf.get(s.sourceId) ?? -1)) };
       }
-      const age_s = Math.round((now - Date.parse(s.heartbeatAt)) / 100) / 10;
-      const running = age_s <= INGEST_HEARTBEAT_MAX_AGE_S;
-      return {
+      const out: IngestWorkerOut[] = workers.map(({ row, running, status }) => ({
+        id: row.id,
+        host: row.host,
+        pid: row.pid,
+        startedAt: row.startedAt.toISOString(),
+        heartbeatAt: row.heartbeatAt.toISOString(),
+        heartbeatAge_s: row.heartbeatAge_s,
+        heartbeat_ms: row.heartbeat_ms,
         running,
-        ...(running ? {} : { reason: `the last ingest heartbeat is ${age_s} s old (more than ${INGEST_HEARTBEAT_MAX_AGE_S} s): ingest has stopped or is stuck; the figures below are its last` }),
-        heartbeatAt: s.heartbeatAt,
-        heartbeatAge_s: age_s,
-        pid: s.pid,
-        startedAt: s.startedAt,
-        samplesPerSec: s.samplesPerSec,
-        lagMs: s.lagMs,
-        spool: s.spool,
-        writer: s.writer,
-        loadError: s.loadError,
-        sources,
+        stoppedAt: row.stoppedAt?.toISOString() ?? null,
+        samplesPerSec: status?.samplesPerSec ?? null,
+        lagMs: status?.lagMs ?? null,
+        spool: status?.spool ?? null,
+        sourceIds: status?.sources.map((s) => s.sourceId) ?? [],
+        loadError: status?.loadError ?? null,
+      }));
+      const latest = workers[0];
+      if (!latest) {
+        return {
+          running: false,
+          reason: 'no ingest worker has written a heartbeat in the last day: the ingest process is not running or has not started yet',
+          heartbeatAt: null,
+          heartbeatAge_s: null,
+          pid: null,
+          startedAt: null,
+          samplesPerSec: null,
+          lagMs: null,
+          spool: null,
+          writer: null,
+          loadError: null,
+          sources: [],
+          deadLetters,
+          workers: [],
+        };
+      }
+      const live = workers.filter((w) => w.running);
+      const shown = live.length ? live : [latest];
+      const statuses = shown.map((w) => w.status).filter((s): s is IngestWorkerStatus => s !== null);
+      const sum = (f: (s: IngestWorkerStatus) => number) => statuses.reduce((a, s) => a + f(s), 0);
+      const r = latest.row;
+      return {
+        running: live.length > 0,
+        ...(live.length ? {} : { reason: notRunningReason(latest.row, latest.status) }),
+        heartbeatAt: r.heartbeatAt.toISOString(),
+        heartbeatAge_s: r.heartbeatAge_s,
+        pid: r.pid,
+        startedAt: r.startedAt.toISOString(),
+        samplesPerSec: statuses.length ? sum((s) => s.samplesPerSec) : null,
+        lagMs: statuses.length ? Math.max(...statuses.map((s) => s.lagMs)) : null,
+        spool: statuses.length ? { bytes: sum((s) => s.spool.bytes), files: sum((s) => s.spool.files) } : null,
+        writer: latest.status?.writer ?? null,
+        loadError: statuses.find((s) => s.loadError)?.loadError ?? null,
+        sources: statuses.flatMap((s) => s.sources),
         deadLetters,
+        workers: out,
       };
     },
   };
+}
+
+function readStatus(json: unknown): IngestWorkerStatus | null {
+  const r = ingestWorkerStatus.safeParse(json);
+  return r.success ? r.data : null;
+}
+
+function notRunningReason(w: IngestWorkerRow, status: IngestWorkerStatus | null): string {
+  const unread = status ? '' : ' (its status could not be read: a different ingest version?)';
+  if (w.stoppedAt) return `ingest stopped at ${w.stoppedAt.toISOString()} (worker ${w.id} on ${w.host}); the figures below are its last${unread}`;
+  const limit_s = (INGEST_HEARTBEAT_PERIODS * w.heartbeat_ms) / 1000;
+  return `the last ingest heartbeat is ${w.heartbeatAge_s} s old (more than ${INGEST_HEARTBEAT_PERIODS} periods, ${limit_s} s): ingest has stopped or is stuck; the figures below are its last${unread}`;
 }

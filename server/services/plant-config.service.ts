@@ -1,6 +1,7 @@
 import { plantConfig, type ConfigChange, type PlantConfig, type PlantConfigInput } from '../../shared/contracts/plant-config.ts';
 import { SETTINGS, type SettingKey } from '../../shared/contracts/settings.ts';
 import { versionAt } from '../../shared/domain/geometry-versions.ts';
+import type { Clock } from '../app-context.ts';
 import type { Principal } from '../auth/principal.ts';
 import { ConflictError, ForbiddenError, NotFoundError, ValidationError } from '../http/errors.ts';
 import { zodFields } from '../http/validate.ts';
@@ -117,13 +118,14 @@ export function diffEntries(current: Entry[], wanted: Entry[]): Change[] {
 
 const publicChange = ({ entry: _e, ...c }: Change): ConfigChange => c;
 
-export interface PlantConfigServiceOptions {
-  now?: () => Date;
+export interface PlantConfigServiceDeps {
+  modelRepo: PlantModelRepository;
+  clock: Clock;
 }
 
 /** Export, create from, compare with and apply configuration documents. */
-export function plantConfigService(repo: PlantModelRepository, opts: PlantConfigServiceOptions = {}) {
-  const now = opts.now ?? (() => new Date());
+export function createPlantConfigService({ modelRepo: repo, clock }: PlantConfigServiceDeps) {
+  const now = () => new Date(clock());
 
   /** The document of a plant as stored (through `r`, so it can run inside a transaction). */
   async function exportFrom(r: PlantModelTx, plantId: number, at: Date): Promise<PlantConfig | undefined> {
@@ -381,4 +383,4 @@ export function plantConfigService(repo: PlantModelRepository, opts: PlantConfig
     },
   };
 }
-export type PlantConfigService = ReturnType<typeof plantConfigService>;
+export type PlantConfigService = ReturnType<typeof createPlantConfigService>;

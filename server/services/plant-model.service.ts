@@ -1,5 +1,8 @@
 import type {
   BasinCreate,
+  BasinOut,
+  ClarifierOut,
+  PumpOut,
   BasinPatch,
   ClarifierCreate,
   ClarifierPatch,
@@ -14,13 +17,15 @@ import type {
   TrainPatch,
 } from '../../shared/contracts/plant-model.ts';
 import { versionAt } from '../../shared/domain/geometry-versions.ts';
+import type { Clock } from '../app-context.ts';
 import type { Principal } from '../auth/principal.ts';
 import { ConflictError, ForbiddenError, NotFoundError, ValidationError } from '../http/errors.ts';
 import type { BasinGeom, ClarifierGeom, ModelRows, PlantModelRepository, PlantModelTx, PlantRow, PumpGeom, UnitKind, Versioned } from '../repositories/plant-model.repository.ts';
 
-export interface PlantModelServiceOptions {
-  /** Clock for the default `effectiveFrom` (tests inject one). */
-  now?: () => Date;
+export interface PlantModelServiceDeps {
+  modelRepo: PlantModelRepository;
+  /** Wall clock for the default `effectiveFrom` (tests inject one). */
+  clock: Clock;
 }
 
 /** 403 when a plant-scoped token asks for a plant outside its scope (before existence, so scopes do not reveal plants). */
@@ -63,6 +68,12 @@ export function modelOut(plant: PlantRow, m: ModelRows, at: Date): PlantModelOut
   };
 }
 
+interface UnitOutOf {
+  basin: BasinOut;
+  clarifier: ClarifierOut;
+  pump: PumpOut;
+}
+
 /** Keys of a patch that are geometry (a new effective-dated version), not identity. */
 const pickDefined = <T extends object, K extends keyof T>(o: T, keys: readonly K[]): Partial<Pick<T, K>> => {
   const out: Partial<Pick<T, K>> = {};
@@ -75,8 +86,8 @@ const pickDefined = <T extends object, K extends keyof T>(o: T, keys: readonly K
  * pumps with effective-dated geometry. Takes the caller and validated input; every write is
  * audited in the transaction that makes it.
  */
-export function plantModelService(repo: PlantModelRepository, opts: PlantModelServiceOptions = {}) {
-  const now = opts.now ?? (() => new Date());
+export function createPlantModelService({ modelRepo: repo, clock }: PlantModelServiceDeps) {
+  const now = () => new Date(clock());
 
   async function requirePlant(p: Principal, plantId: number): Promise<PlantRow> {
     assertScope(p, plantId);
@@ -114,10 +125,12 @@ export function plantModelService(repo: PlantModelRepository, opts: PlantModelSe
   }
 
   /** One unit as the model answers it (geometry now, history). */
-  async function unitOut(plant: PlantRow, kind: UnitKind, id: number) {
+  async function unitOut<K extends UnitKind>(plant: PlantRow, kind: K, id: number): Promise<UnitOutOf[K]> {
     const out = modelOut(plant, await repo.model(plant.id), now());
-    const all = out.trains.flatMap((t): Array<{ id: number }> => (kind === 'basin' ? t.basins : kind === 'clarifier' ? t.clarifiers : t.pumps) as Array<{ id: number }>);
-    return all.find((u) => u.id === id)!;
+    const lists: { [U in UnitKind]: UnitOutOf[U][] } = { basin: out.trains.flatMap((t) => t.basins), clarifier: out.trains.flatMap((t) => t.clarifiers), pump: out.trains.flatMap((t) => t.pumps) };
+    const found = lists[kind].find((u) => u.id === id);
+    if (!found) throw new NotFoundError(`no ${kind} ${id} in this plant`);
+    return found;
   }
 
   return {
@@ -317,4 +330,4 @@ export function plantModelService(repo: PlantModelRepository, opts: PlantModelSe
 
   };
 }
-export type PlantModelService = ReturnType<typeof plantModelService>;
+export type PlantModelService = ReturnType<typeof createPlantModelService>;

@@ -10,8 +10,8 @@ import { SIGNAL_KINDS, signalKind } from './plant-layout.ts';
  * only `hasSecret`. Option objects are the ones the ingest process reads from `sources.options`
  * (it strips unknown keys, so only keys it honours are accepted here).
  *
- * The ingest status and MQTT discovery files are written by the ingest process; the server only
- * reads them, so their shapes are re-declared here (validated on read, never imported).
+ * The ingest status rows (`ingest_workers.status`) and the MQTT discovery rows are written by the
+ * ingest process and read by the server; their shapes live here, validated on read.
  */
 
 const id = (what: string) => z.coerce.number().int().positive().max(2_147_483_647).meta({ description: what });
@@ -48,32 +48,60 @@ export function sourceUrlIssue(kind: SourceKind, url: string): string | null {
 }
 
 // ---- options per kind ----
-/** `sources.options` of an MQTT source (the keys the ingest connector reads). */
-export const mqttOptionsInput = z
+// One definition per kind, used by the API (input, strict: an unknown key is a mistake), by
+// ingest (stored rows, unknown keys dropped and defaults applied) and by the API's connection
+// test, which connects exactly as ingest does (ingest/mqtt/mqtt-connection.ts).
+
+const mqttOptionFields = {
+  topics: z.array(z.string().min(1).max(1024)).min(1).max(100).meta({ description: 'topic filters to subscribe to (default ["#"], which lets discovery see everything)' }),
+  protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).meta({ description: '5 = MQTT 5.0, 4 = MQTT 3.1.1, auto (default) = 5.0 falling back to 3.1.1' }),
+  clientId: z
+    .string()
+    .regex(/^[0-9A-Za-z_.-]{1,64}$/, 'letters, digits, _ . - only (MQTT 5.0 §3.1.3.1 guarantees 0-9a-zA-Z; 64 characters at most)')
+    .meta({ description: 'client identifier of the ingest session (default flocstream-ingest-<source id>); keep it stable so the broker keeps the session' }),
+  keepalive_s: z.number().int().min(5).max(3600).meta({ description: 'Keep Alive [s] (MQTT 5.0 §3.1.2.10)' }),
+  tlsCa_pem: z
+    .string()
+    .max(65_536)
+    .regex(/-----BEGIN CERTIFICATE-----/, 'a PEM certificate (-----BEGIN CERTIFICATE-----)')
+    .meta({ description: 'PEM certificate(s) of the CA that signed the broker’s certificate, for mqtts:// and wss:// when it is not a public CA' }),
+};
+
+/** `sources.options` of an MQTT source as the API accepts it. */
+export const mqttOptionsInput = z.object(mqttOptionFields).partial().strict();
+
+/** `sources.options` of an MQTT source as it is used: defaults applied, unknown keys dropped. */
+export const mqttSourceOptions = z
   .object({
-    topics: z.array(z.string().min(1).max(1024)).min(1).max(100).optional().meta({ description: 'topic filters to subscribe to (default ["#"], which lets discovery see everything)' }),
-    protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).optional().meta({ description: '5 = MQTT 5.0, 4 = MQTT 3.1.1, auto (default) = 5.0 falling back to 3.1.1' }),
-    clientId: z
-      .string()
-      .regex(/^[0-9A-Za-z_.-]{1,64}$/, 'letters, digits, _ . - only (MQTT 5.0 §3.1.3.1 guarantees 0-9a-zA-Z; 64 characters at most)')
-      .optional()
-      .meta({ description: 'client identifier of the ingest session (default flocstream-ingest-<source id>); keep it stable so the broker keeps the session' }),
-    keepalive_s: z.number().int().min(5).max(3600).optional().meta({ description: 'Keep Alive [s] (MQTT 5.0 §3.1.2.10)' }),
+    ...mqttOptionFields,
+    topics: mqttOptionFields.topics.default(['#']),
+    protocolVersion: mqttOptionFields.protocolVersion.default('auto'),
+    clientId: mqttOptionFields.clientId.optional(),
+    keepalive_s: mqttOptionFields.keepalive_s.default(30),
+    tlsCa_pem: mqttOptionFields.tlsCa_pem.optional(),
   })
-  .strict();
+  .strip();
+export type MqttSourceOptions = z.infer<typeof mqttSourceOptions>;
 
 export const OPCUA_SECURITY_MODES = ['None', 'Sign', 'SignAndEncrypt'] as const;
 export const OPCUA_SECURITY_POLICIES = ['None', 'Basic256Sha256', 'Aes128_Sha256_RsaOaep', 'Aes256_Sha256_RsaPss'] as const;
 
-/** `sources.options` of an OPC UA source (OPC 10000-4 §7.15 MessageSecurityMode, §7.36 SecurityPolicy). */
+const opcuaOptionFields = {
+  securityMode: z.enum(OPCUA_SECURITY_MODES),
+  securityPolicy: z.enum(OPCUA_SECURITY_POLICIES),
+  publishingInterval_ms: z.number().int().min(50).max(60_000).meta({ description: 'subscription publishing interval [ms] (OPC 10000-4 §5.13.2)' }),
+  samplingInterval_ms: z.number().int().min(0).max(3_600_000).meta({ description: 'default sampling interval of tags without their own [ms] (OPC 10000-4 §5.12.1.2)' }),
+  /**
+   * Trust a server certificate not yet in `<pki>/trusted` (otherwise it is put in `<pki>/rejected`
+   * for an integrator to move). Only relevant with Sign or SignAndEncrypt.
+   */
+  acceptUnknownServerCertificate: z.boolean().meta({ description: 'trust a server certificate not yet in the trusted folder' }),
+};
+
+/** `sources.options` of an OPC UA source as the API accepts it (OPC 10000-4 §7.15 MessageSecurityMode, §7.36 SecurityPolicy). */
 export const opcuaOptionsInput = z
-  .object({
-    securityMode: z.enum(OPCUA_SECURITY_MODES).optional(),
-    securityPolicy: z.enum(OPCUA_SECURITY_POLICIES).optional(),
-    publishingInterval_ms: z.number().int().min(50).max(60_000).optional().meta({ description: 'subscription publishing interval [ms] (OPC 10000-4 §5.13.2)' }),
-    samplingInterval_ms: z.number().int().min(0).max(3_600_000).optional().meta({ description: 'default sampling interval of tags without their own [ms] (OPC 10000-4 §5.12.1.2)' }),
-    acceptUnknownServerCertificate: z.boolean().optional().meta({ description: 'trust a server certificate not yet in the trusted folder' }),
-  })
+  .object(opcuaOptionFields)
+  .partial()
   .strict()
   .superRefine((o, ctx) => {
     // A secure channel with mode None uses policy None, and Sign/SignAndEncrypt need a real
@@ -83,6 +111,18 @@ export const opcuaOptionsInput = z
     if (mode === 'None' && policy !== 'None') ctx.addIssue({ code: 'custom', path: ['securityPolicy'], message: 'securityMode None goes with securityPolicy None' });
     if (mode !== 'None' && policy === 'None') ctx.addIssue({ code: 'custom', path: ['securityPolicy'], message: `securityMode ${mode} needs a securityPolicy other than None, e.g. Basic256Sha256` });
   });
+
+/** `sources.options` of an OPC UA source as it is used: defaults applied, unknown keys dropped. */
+export const opcuaSourceOptions = z
+  .object({
+    securityMode: opcuaOptionFields.securityMode.default('None'),
+    securityPolicy: opcuaOptionFields.securityPolicy.default('None'),
+    publishingInterval_ms: opcuaOptionFields.publishingInterval_ms.default(500),
+    samplingInterval_ms: opcuaOptionFields.samplingInterval_ms.default(1_000),
+    acceptUnknownServerCertificate: opcuaOptionFields.acceptUnknownServerCertificate.default(false),
+  })
+  .strip();
+export type OpcuaSourceOptions = z.infer<typeof opcuaSourceOptions>;
 
 export const sourceOptionsSchema: Record<SourceKind, z.ZodType> = { mqtt: mqttOptionsInput, opcua: opcuaOptionsInput };
 
@@ -160,12 +200,18 @@ export const browseNode = z.object({
 export type BrowseNode = z.infer<typeof browseNode>;
 export const browseOut = z.object({ sourceId: z.number().int(), nodeId: z.string(), children: z.array(browseNode) });
 
-// ---- MQTT discovery (file written by ingest) ----
-export const discoveredTopic = z.object({ topic: z.string(), lastPayload: z.string(), lastSeen: z.string(), count: z.number(), tagId: z.number().nullable() });
-export const discoveryFile = z.array(discoveredTopic);
+// ---- MQTT discovery (table mqtt_discovery, written by ingest) ----
+export const discoveredTopic = z.object({
+  topic: z.string(),
+  lastPayload: z.string().meta({ description: 'first 256 characters of the last payload' }),
+  firstSeen: z.string().optional(),
+  lastSeen: z.string(),
+  count: z.number().meta({ description: 'messages seen, summed over every ingest worker' }),
+  tagId: z.number().nullable(),
+});
 export const discoveryOut = z.object({
   sourceId: z.number().int(),
-  asOf: z.string().nullable().meta({ description: 'when ingest wrote the list; null when it has not' }),
+  asOf: z.string().nullable().meta({ description: 'the latest lastSeen of the list; null when ingest has listed no topic yet' }),
   topics: z.array(discoveredTopic),
   note: z.string().optional(),
 });
@@ -331,8 +377,8 @@ export const tagImportOut = z.object({
 });
 export type TagImportOut = z.infer<typeof tagImportOut>;
 
-// ---- ingest status (file written by ingest) ----
-export const connectorStatusFile = z
+// ---- ingest status (table ingest_workers, written by ingest) ----
+export const connectorStatus = z
   .object({
     sourceId: z.number(),
     name: z.string(),
@@ -353,37 +399,56 @@ export const connectorStatusFile = z
     details: z.record(z.string(), z.unknown()),
   })
   .loose();
-export const ingestStatusFile = z
+/** `ingest_workers.status`: what one ingest worker reports with each heartbeat. */
+export const ingestWorkerStatus = z
   .object({
-    pid: z.number(),
-    startedAt: z.string(),
-    heartbeatAt: z.iso.datetime({ offset: true }),
+    /** Samples committed per second over the last heartbeat period. */
     samplesPerSec: z.number(),
+    /** Receive → commit delay of the last flush [ms]. */
     lagMs: z.number(),
     spool: z.object({ bytes: z.number(), files: z.number() }),
     writer: z.record(z.string(), z.unknown()),
-    sources: z.array(connectorStatusFile),
+    sources: z.array(connectorStatus),
     loadError: z.string().nullable(),
   })
   .loose();
-export type IngestStatusFile = z.infer<typeof ingestStatusFile>;
+export type IngestWorkerStatus = z.infer<typeof ingestWorkerStatus>;
 
-/** Heartbeat older than this → ingest is reported as not running [s]. */
-export const INGEST_HEARTBEAT_MAX_AGE_S = 10;
+/** A worker runs while its last heartbeat is younger than this many of its heartbeat periods. */
+export const INGEST_HEARTBEAT_PERIODS = 3;
+
+export const ingestWorkerOut = z.object({
+  id: z.string(),
+  host: z.string(),
+  pid: z.number().int(),
+  startedAt: z.string(),
+  heartbeatAt: z.string(),
+  heartbeatAge_s: z.number(),
+  heartbeat_ms: z.number().int().meta({ description: 'the worker\'s heartbeat period [ms]' }),
+  running: z.boolean().meta({ description: `heartbeat younger than ${INGEST_HEARTBEAT_PERIODS} periods and not stopped` }),
+  stoppedAt: z.string().nullable().meta({ description: 'set by a clean stop' }),
+  samplesPerSec: z.number().nullable(),
+  lagMs: z.number().nullable(),
+  spool: z.object({ bytes: z.number(), files: z.number() }).nullable(),
+  sourceIds: z.array(z.number().int()),
+  loadError: z.string().nullable(),
+});
+export type IngestWorkerOut = z.infer<typeof ingestWorkerOut>;
 
 export const ingestStatusOut = z.object({
-  running: z.boolean(),
+  running: z.boolean().meta({ description: 'at least one ingest worker has a fresh heartbeat' }),
   reason: z.string().optional().meta({ description: 'why running is false' }),
-  heartbeatAt: z.string().nullable(),
+  heartbeatAt: z.string().nullable().meta({ description: 'the latest heartbeat of any worker' }),
   heartbeatAge_s: z.number().nullable(),
-  pid: z.number().nullable(),
+  pid: z.number().nullable().meta({ description: 'the worker with the latest heartbeat' }),
   startedAt: z.string().nullable(),
-  samplesPerSec: z.number().nullable(),
-  lagMs: z.number().nullable().meta({ description: 'receive → commit delay of the last flush [ms]' }),
-  spool: z.object({ bytes: z.number(), files: z.number() }).nullable(),
-  writer: z.record(z.string(), z.unknown()).nullable(),
+  samplesPerSec: z.number().nullable().meta({ description: 'summed over running workers (the last worker\'s figure when none runs)' }),
+  lagMs: z.number().nullable().meta({ description: 'receive → commit delay of the last flush [ms], the largest of the running workers' }),
+  spool: z.object({ bytes: z.number(), files: z.number() }).nullable().meta({ description: 'summed over the workers shown' }),
+  writer: z.record(z.string(), z.unknown()).nullable().meta({ description: 'writer counters of the worker with the latest heartbeat' }),
   loadError: z.string().nullable(),
-  sources: z.array(connectorStatusFile),
+  sources: z.array(connectorStatus).meta({ description: 'connection state per source, from every running worker (the last worker when none runs)' }),
   deadLetters: z.object({ lastHour: z.number().int(), total: z.number().int() }).meta({ description: 'rows in dead_letters (undecodable or unmapped messages)' }),
+  workers: z.array(ingestWorkerOut).meta({ description: 'every worker heard from in the last day, latest heartbeat first' }),
 });
 export type IngestStatusOut = z.infer<typeof ingestStatusOut>;

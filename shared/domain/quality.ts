@@ -5,6 +5,7 @@
  * `good` ↔ Good, `estimated` ↔ Uncertain, `unavailable` ↔ Bad. A figure that cannot be
  * computed is `unavailable` with a null value — never NaN, Infinity or a silent zero.
  */
+import type { FigureOut } from '../contracts/balance.js';
 import type { QualityGrade } from '../contracts/sample-quality.js';
 
 export type Quality = 'good' | 'estimated' | 'unavailable';
@@ -88,4 +89,37 @@ export function qualityFromSampleGrade(grade: QualityGrade): Quality {
 /** A figure built from a finite number, or unavailable with `reason` if it is not finite. */
 export function finiteFigure(value: number, reason: string): Figure<number> {
   return Number.isFinite(value) ? { value, quality: 'good', reasons: [] } : unavailable(reason);
+}
+
+/**
+ * Applies `fn` to the values of input figures given as a list (the positional sibling of
+ * {@link lift}). If any input is unavailable the result is unavailable with the inputs' reasons
+ * and fn is not called; otherwise fn's result (a number is taken as good) is downgraded by the
+ * inputs' qualities.
+ */
+export function fromFigures(inputs: readonly Figure<number>[], fn: (...values: number[]) => number | Figure<number>): Figure<number> {
+  if (inputs.some((i) => i.value === null)) return unavailable(...combineQuality(...inputs).reasons);
+  const r = fn(...inputs.map((i) => i.value as number));
+  return propagate(typeof r === 'number' ? good(r) : r, ...inputs);
+}
+
+/**
+ * Sum of figures (e.g. the masses of several basins): worst quality, reasons united. Unavailable
+ * if any part is — a partial sum would be a silent under-count — and when there is no part
+ * (`what` names the missing parts in the reason).
+ */
+export function sumFigures(parts: readonly Figure<number>[], what: string): Figure<number> {
+  if (parts.length === 0) return unavailable(`no ${what} configured`);
+  return fromFigures(parts, (...v) => v.reduce((a, b) => a + b, 0));
+}
+
+/** Arithmetic mean of figures, quality as {@link sumFigures}. */
+export function meanFigures(parts: readonly Figure<number>[], what: string): Figure<number> {
+  if (parts.length === 0) return unavailable(`no ${what} configured`);
+  return fromFigures(parts, (...v) => v.reduce((a, b) => a + b, 0) / v.length);
+}
+
+/** A figure with its unit, as the contracts carry it (shared/contracts/balance.ts FigureOut). */
+export function withUnit(f: Figure<number>, unit: string): FigureOut {
+  return { value: f.value, quality: f.quality, reasons: [...f.reasons], unit };
 }

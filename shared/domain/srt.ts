@@ -64,14 +64,27 @@ export interface TimedSample {
 }
 export type TimeSeries = readonly TimedSample[];
 
+/**
+ * One place where solids leave the system — typically one train: its waste stream Q_W·X_W and
+ * its effluent stream Q_e·X_e, each as measured series.
+ */
+export interface SolidsOutlet {
+  wasFlow_m3h: TimeSeries;
+  wasTss_gL: TimeSeries;
+  effluentFlow_m3h: TimeSeries;
+  /**
+   * Omitted when the effluent TSS is not measured: X_e is then taken as 0, which overstates the
+   * SRT, and the result is estimated and says so.
+   */
+  effluentTss_gL?: TimeSeries;
+}
+
 export interface RollingSrtInputs {
   aerationMass_kg: TimeSeries;
   /** Optional: clarifier mass series; omitted means the aeration-only SRT equals the total. */
   clarifierMass_kg?: TimeSeries;
-  wasFlow_m3h: TimeSeries;
-  wasTss_gL: TimeSeries;
-  effluentFlow_m3h: TimeSeries;
-  effluentTss_gL: TimeSeries;
+  /** Where solids leave (at least one); the loss is Σ (Q_W·X_W + Q_e·X_e) over the outlets. */
+  outlets: readonly SolidsOutlet[];
   /** End of the window (epoch ms). */
   end_ms: number;
   /** Window length [h]; default 24. */
@@ -118,24 +131,35 @@ function interp(s: CleanSeries, t: number, maxGap_ms: number): number | null {
 
 /**
  * Rolling SRT over a window (design §3 item 5): the wasting rate is the flow-weighted mean
- * (1/T)·∫(Q_W·X_W + Q_e·X_e)dt and the inventory the time-weighted mean mass over the window,
- * both by the trapezoidal rule on linearly interpolated series (union of sample times). Samples
- * that are null or 'unavailable' are dropped; gaps wider than maxGap_h are not bridged; the
- * result is estimated when coverage < 95 % or any estimated sample was used, and unavailable
- * below minCoverage. Returns total and aeration-only SRT in days.
+ * (1/T)·∫Σ(Q_W·X_W + Q_e·X_e)dt over the outlets and the inventory the time-weighted mean mass
+ * over the window, both by the trapezoidal rule on linearly interpolated series (union of sample
+ * times); an interval counts where every series has a value at both ends. Samples that are null
+ * or 'unavailable' are dropped; gaps wider than maxGap_h are not bridged; the result is
+ * estimated when coverage < 95 %, any estimated sample was used or an outlet's effluent TSS is
+ * not measured, and unavailable below minCoverage. Returns total and aeration-only SRT in days.
  */
 export function rollingSrt(inp: RollingSrtInputs): { total_d: Figure<number>; aeration_d: Figure<number>; coverage: number } {
   const window_ms = (inp.window_h ?? 24) * 3_600_000;
   const maxGap_ms = (inp.maxGap_h ?? 2) * 3_600_000;
   const minCov = inp.minCoverage ?? 0.5;
   const start = inp.end_ms - window_ms;
-  const names = ['aerationMass_kg', 'wasFlow_m3h', 'wasTss_gL', 'effluentFlow_m3h', 'effluentTss_gL'] as const;
-  const series = names.map((n) => clean(inp[n]));
-  const clar = inp.clarifierMass_kg ? clean(inp.clarifierMass_kg) : null;
   if (!(window_ms > 0) || !Number.isFinite(inp.end_ms)) {
     const u = unavailable<number>('window must be positive and end time finite');
     return { total_d: u, aeration_d: u, coverage: 0 };
   }
+  if (inp.outlets.length === 0) {
+    const u = unavailable<number>('no solids outlet given: the wasting rate is unknown');
+    return { total_d: u, aeration_d: u, coverage: 0 };
+  }
+  const mass = clean(inp.aerationMass_kg);
+  const outlets = inp.outlets.map((o) => ({
+    qw: clean(o.wasFlow_m3h),
+    xw: clean(o.wasTss_gL),
+    qe: clean(o.effluentFlow_m3h),
+    xe: o.effluentTss_gL ? clean(o.effluentTss_gL) : null,
+  }));
+  const series = [mass, ...outlets.flatMap((o) => [o.qw, o.xw, o.qe, ...(o.xe ? [o.xe] : [])])];
+  const clar = inp.clarifierMass_kg ? clean(inp.clarifierMass_kg) : null;
   const grid = new Set<number>([start, inp.end_ms]);
   for (const s of [...series, ...(clar ? [clar] : [])]) for (const t of s.t) if (t > start && t < inp.end_ms) grid.add(t);
   const ts = [...grid].sort((a, b) => a - b);
@@ -145,9 +169,18 @@ export function rollingSrt(inp: RollingSrtInputs): { total_d: Figure<number>; ae
   let covered = 0;
   let clarCovered = 0;
   const at = (t: number) => {
-    const [m, qw, xw, qe, xe] = series.map((s) => interp(s, t, maxGap_ms));
-    if (m == null || qw == null || xw == null || qe == null || xe == null) return null;
-    return { m, loss: qw * xw + qe * xe };
+    const m = interp(mass, t, maxGap_ms);
+    if (m === null) return null;
+    let loss = 0;
+    for (const o of outlets) {
+      const qw = interp(o.qw, t, maxGap_ms);
+      const xw = interp(o.xw, t, maxGap_ms);
+      const qe = interp(o.qe, t, maxGap_ms);
+      const xe = o.xe ? interp(o.xe, t, maxGap_ms) : 0;
+      if (qw === null || xw === null || qe === null || xe === null) return null;
+      loss += qw * xw + qe * xe;
+    }
+    return { m, loss };
   };
   for (let i = 0; i + 1 < ts.length; i++) {
     const a = ts[i]!;
@@ -186,6 +219,7 @@ export function rollingSrt(inp: RollingSrtInputs): { total_d: Figure<number>; ae
     const u = unavailable<number>('no solids left the system during the window: SRT is unbounded', ...reasons);
     return { total_d: u, aeration_d: u, coverage };
   }
+  if (outlets.some((o) => o.xe === null)) reasons.push(EFFLUENT_TSS_NOT_MEASURED);
   let meanClar = 0;
   if (clar) {
     if (clarCovered / window_ms < minCov) reasons.push('clarifier mass series too sparse: total SRT counts aeration mass only');
@@ -194,6 +228,9 @@ export function rollingSrt(inp: RollingSrtInputs): { total_d: Figure<number>; ae
   const mk = (v: number): Figure<number> => (reasons.length || est ? estimated(v, ...reasons) : good(v));
   return { total_d: mk((meanMass + meanClar) / meanLoss / 24), aeration_d: mk(meanMass / meanLoss / 24), coverage };
 }
+
+/** The reason carried by an SRT computed with an outlet whose effluent TSS is not measured. */
+export const EFFLUENT_TSS_NOT_MEASURED = 'effluent TSS not measured in some train: effluent solids taken as 0 (SRT overstated)';
 
 export interface DynamicSrtSample {
   ts_ms: number;

@@ -2,7 +2,7 @@ import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { seedDemoPlant } from '../helpers/plants.ts';
-import { settingsService } from '../../server/services/settings.service.ts';
+import { services } from '../../server/app-context.ts';
 import { startTestServer } from '../helpers/server.ts';
 import { E2E_ADMIN as ADMIN, launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
@@ -63,7 +63,7 @@ describe('admin in Debian Chromium', () => {
     await shot(page, 'admin-user-created');
 
     // The new operator gets the shift summary; the engine mails it to the catcher.
-    await settingsService(env.server.ctx).put(null, { plantId, values: { 'mail.recipients': [NEW_USER.email] } });
+    await services(env.server.ctx).settings.put(null, { plantId, values: { 'mail.recipients': [NEW_USER.email] } });
     expect(await engine.shiftSummary(plantId)).toBe(true);
 
     await nav.getByRole('link', { name: 'Outbox' }).click();

@@ -236,7 +236,7 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
     expect(await tagHeader.getAttribute('aria-sort')).toBe('descending');
     await scroller.evaluate((el) => (el.scrollTop = 0));
     await expect.poll(() => rows.first().getAttribute('data-tag-id')).not.toBeNull();
-    await expect.poll(async () => (await rows.first().innerText()).split('\n')[0]).toBe('BULK_09999');
+    await expect.poll(() => rows.first().locator('td').first().innerText()).toBe('BULK_09999');
 
     // text filter, then a live value arriving through tag_latest (as ingest writes it) shows in place
     await page.getByLabel('Find in name or description').fill('BULK_00042');

@@ -2,7 +2,7 @@ import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { seedDemoPlant } from '../helpers/plants.ts';
-import { settingsService } from '../../server/services/settings.service.ts';
+import { services } from '../../server/app-context.ts';
 import { startTestServer } from '../helpers/server.ts';
 import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
@@ -57,7 +57,7 @@ async function seedKestrelBend(env: Env): Promise<number> {
     );
   }
   // Raise alarms on the first balance that meets a condition (the default on-delay is 60 s).
-  await settingsService(ctx).put(null, { plantId, values: { 'alarm.on_delay_s': 0 } });
+  await services(ctx).settings.put(null, { plantId, values: { 'alarm.on_delay_s': 0 } });
   return plantId;
 }
 

@@ -32,7 +32,7 @@ describe('what-if pre-filled from the live plant', () => {
     const storm = page.getByRole('region', { name: 'Storm projection' });
     await storm.getByRole('button', { name: 'Fill from live plant' }).click();
     await storm.getByTestId('storm-prefill').waitFor();
-    const val = (name: string) => storm.locator(`input[name="storm.${name}"]`).inputValue();
+    const val = (name: string) => storm.locator(`input[name="${name}"]`).inputValue();
     expect(await val('influentFlow_m3h')).toBe('3100');
     expect(await val('rasFlow_m3h')).toBe('1690');
     expect(await val('mlss_gL')).toBe('3.1'); // volume-weighted mean of 3.0 and 3.2 over equal basins

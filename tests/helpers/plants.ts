@@ -1,12 +1,10 @@
-import type { AppContext } from '../../server/app-context.ts';
-import { plantModelRepository } from '../../server/repositories/plant-model.repository.ts';
-import { plantConfigService } from '../../server/services/plant-config.service.ts';
+import { services, type AppContext } from '../../server/app-context.ts';
 import type { PlantConfigInput } from '../../shared/contracts/plant-config.ts';
 import { kestrelBendConfig, type DemoEndpoints } from '../../simulators/plant/kestrel-bend.config.ts';
 
 /** A plant from a configuration document, through the service behind POST /api/v1/plants (as `npm start` does). */
 export function seedPlantConfig(ctx: AppContext, doc: PlantConfigInput): Promise<{ plantId: number; created: boolean }> {
-  return plantConfigService(plantModelRepository(ctx.db.db)).ensure(null, doc);
+  return services(ctx).plantConfig.ensure(null, doc);
 }
 
 /** The demo plant Kestrel Bend with its sources pointed at `ep`. */

@@ -7,7 +7,7 @@ import { seedPlantConfig } from '../helpers/plants.ts';
  * One-train plant in the database with steady signals written straight into tag_latest and
  * rollup_1m (no broker, no ingest): Q 800 m³/h, Q_R 600, Q_W 20, MLSS 3.0 g/L, underflow
  * 8.0 g/L, effluent 10 mg/L, blanket 1.0 m, SVI 120 mL/g — the same numbers as the unit-test
- * fixture, whose hand computation (tests/unit/server/balance.service.test.ts) applies here.
+ * fixture, whose hand computation (tests/unit/domain/balance-assemble.test.ts) applies here.
  * Created from a configuration document, the path POST /api/v1/plants takes.
  */
 const FIXTURE_TAGS: Array<{ name: string; unit: string; kind: SignalKindName; target: string; period: number }> = [
@@ -57,18 +57,22 @@ export async function seedFixturePlant(ctx: AppContext, opts: { code?: string; s
   return { plantId, tagIds };
 }
 
-/** Writes the latest values (received now, unless told otherwise) and 24 h of steady minute rollups. */
-export async function writeSignals(ctx: AppContext, tagIds: Record<string, number>, values: Record<string, number> = FIXTURE_VALUES, opts: { receivedAgo_s?: Record<string, number>; quality?: Record<string, number>; history_h?: number } = {}) {
-  const now = await ctx.db.pool.query<{ now: Date }>('SELECT date_trunc($1, now()) AS now', ['second']);
-  const t = now.rows[0]!.now;
+/**
+ * Writes the latest values (received now, unless told otherwise) and 24 h of steady minute
+ * rollups. `at` is "now" for a test that runs the engine on an injected clock (default: the
+ * database's clock).
+ */
+export async function writeSignals(ctx: AppContext, tagIds: Record<string, number>, values: Record<string, number> = FIXTURE_VALUES, opts: { receivedAgo_s?: Record<string, number>; quality?: Record<string, number>; history_h?: number; at?: Date } = {}) {
+  const now = await ctx.db.pool.query<{ now: Date; t: Date }>('SELECT n AS now, date_trunc($1, n) AS t FROM COALESCE($2::timestamptz, now()) AS n', ['second', opts.at ?? null]);
+  const { now: receivedNow, t } = now.rows[0]!;
   for (const [name, id] of Object.entries(tagIds)) {
     const v = values[name];
     if (v === undefined) continue;
     const ago = opts.receivedAgo_s?.[name] ?? 0;
     await ctx.db.pool.query(
-      `INSERT INTO tag_latest (tag_id, ts, value, quality, received_at) VALUES ($1, $2, $3, $4, now() - make_interval(secs => $5::float8))
+      `INSERT INTO tag_latest (tag_id, ts, value, quality, received_at) VALUES ($1, $2, $3, $4, $6::timestamptz - make_interval(secs => $5::float8))
        ON CONFLICT (tag_id) DO UPDATE SET ts = excluded.ts, value = excluded.value, quality = excluded.quality, received_at = excluded.received_at`,
-      [id, t, v, opts.quality?.[name] ?? 0, ago],
+      [id, t, v, opts.quality?.[name] ?? 0, ago, receivedNow],
     );
     const hours = opts.history_h ?? 24;
     await ctx.db.pool.query(

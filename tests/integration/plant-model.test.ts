@@ -2,10 +2,10 @@ import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { balanceRepository } from '../../server/repositories/balance.repository.ts';
 import { plantModelRepository } from '../../server/repositories/plant-model.repository.ts';
-import { computeBalance } from '../../server/services/balance.service.ts';
+import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import { defaultSettings } from '../../shared/contracts/settings.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
-import { fixtureInputs } from '../unit/server/balance-fixture.ts';
+import { fixtureInputs } from '../unit/domain/balance-fixture.ts';
 
 type Agent = Awaited<ReturnType<TestApp['agent']>>;
 

@@ -194,7 +194,7 @@ describe('wiring API', () => {
     const secure = await integ.post(`/api/v1/plants/${plant}/sources`).send({ name: 'ua-secure', kind: 'opcua', url: opcuaUrl, options: { securityMode: 'SignAndEncrypt', securityPolicy: 'Basic256Sha256', acceptUnknownServerCertificate: true } });
     const st = await integ.post(`/api/v1/sources/${secure.body.id}/test`);
     expect(st.body.ok, JSON.stringify(st.body)).toBe(true);
-    expect(fs.existsSync(path.join(h.ctx.config.dataDir, 'pki', 'server-client', 'own', 'certs', 'client_certificate.pem'))).toBe(true);
+    expect(fs.existsSync(path.join(h.ctx.config.dataDir, 'pki', 'opcua-client', 'own', 'certs', 'client_certificate.pem'))).toBe(true);
 
     const down = await integ.post(`/api/v1/plants/${plant}/sources`).send({ name: 'ua-down', kind: 'opcua', url: `opc.tcp://127.0.0.1:${await closedPort()}` });
     const dt = await integ.post(`/api/v1/sources/${down.body.id}/test`);
@@ -204,19 +204,24 @@ describe('wiring API', () => {
     expect((await integ.get(`/api/v1/sources/${down.body.id}/browse`)).status).toBe(502);
   });
 
-  it('discovery: empty list with a note before ingest wrote it, the topics once the file exists; 422 for an OPC UA source', async () => {
+  it('discovery: empty list with a note before ingest listed topics, the rows of mqtt_discovery once it has; 422 for an OPC UA source', async () => {
     const src = await mqttSource({ name: 'disc' });
     const empty = await integ.get(`/api/v1/sources/${src.body.id}/discovery`);
     expect(empty.status).toBe(200);
     expect(empty.body).toMatchObject({ topics: [], asOf: null });
     expect(empty.body.note).toMatch(/not listed topics/);
-    const dir = path.join(h.ctx.config.dataDir, 'ingest-discovery');
-    fs.mkdirSync(dir, { recursive: true });
-    const topics = [{ topic: 'alder/ab1/mlss', lastPayload: '{"v":3.1}', lastSeen: '2026-03-01T00:00:00.000Z', count: 12, tagId: null }];
-    fs.writeFileSync(path.join(dir, `source-${src.body.id}.json`), JSON.stringify(topics));
+    await q(
+      `INSERT INTO mqtt_discovery (source_id, topic, last_payload, first_seen, last_seen, count, tag_id) VALUES
+       ($1, 'alder/ab1/mlss', '{"v":3.1}', '2026-02-28T00:00:00Z', '2026-03-01T00:00:00Z', 12, NULL),
+       ($1, 'alder/ab1/do', '1.9', '2026-02-28T00:00:00Z', '2026-03-01T00:00:05Z', 3, NULL)`,
+      [src.body.id],
+    );
     const full = await integ.get(`/api/v1/sources/${src.body.id}/discovery`);
-    expect(full.body.topics).toEqual(topics);
-    expect(full.body.asOf).toMatch(/^\d{4}-/);
+    expect(full.body.topics).toEqual([
+      { topic: 'alder/ab1/do', lastPayload: '1.9', firstSeen: '2026-02-28T00:00:00.000Z', lastSeen: '2026-03-01T00:00:05.000Z', count: 3, tagId: null },
+      { topic: 'alder/ab1/mlss', lastPayload: '{"v":3.1}', firstSeen: '2026-02-28T00:00:00.000Z', lastSeen: '2026-03-01T00:00:00.000Z', count: 12, tagId: null },
+    ]);
+    expect(full.body.asOf).toBe('2026-03-01T00:00:05.000Z');
     const ua = await integ.post(`/api/v1/plants/${plant}/sources`).send({ name: 'ua-disc', kind: 'opcua', url: 'opc.tcp://127.0.0.1:4840' });
     expect((await integ.get(`/api/v1/sources/${ua.body.id}/discovery`)).status).toBe(422);
   });
@@ -371,20 +376,16 @@ describe('wiring API', () => {
     });
   });
 
-  it('ingest status: running while the heartbeat is fresh, running:false with the reason when missing or stale; dead letters counted from the table', async () => {
+  it('ingest status: running while a worker heartbeat is younger than three periods, running:false with the reason when none or stale; several workers; dead letters counted from the table', async () => {
     const analyst = await h.agent('analyst');
-    const file = path.join(h.ctx.config.dataDir, 'ingest-status.json');
-    fs.rmSync(file, { force: true });
+    await q(`DELETE FROM ingest_workers`);
     const missing = await analyst.get('/api/v1/ingest/status');
     expect(missing.status).toBe(200);
-    expect(missing.body).toMatchObject({ running: false, sources: [], heartbeatAt: null });
-    expect(missing.body.reason).toMatch(/not written its status file/);
+    expect(missing.body).toMatchObject({ running: false, sources: [], heartbeatAt: null, workers: [] });
+    expect(missing.body.reason).toMatch(/no ingest worker has written a heartbeat/);
 
     await q(`INSERT INTO dead_letters (ts, source_id, address, payload, reason) VALUES (now() - interval '2 hours', NULL, 'a', 'x', 'old'), (now(), NULL, 'a', 'y', 'new'), (now(), NULL, 'b', 'z', 'new')`);
     const status = {
-      pid: 4242,
-      startedAt: new Date(Date.now() - 60_000).toISOString(),
-      heartbeatAt: new Date(Date.now() - 1_000).toISOString(),
       samplesPerSec: 180,
       lagMs: 35,
       spool: { bytes: 2048, files: 1 },
@@ -392,21 +393,46 @@ describe('wiring API', () => {
       sources: [{ sourceId: 7, name: 'broker', kind: 'mqtt', state: 'connected', lastError: null, connectedAt: null, lastMessageAt: null, messages: 5, samples: 5, unmapped: 0, deadLetters: 2, suppressed: 0, unacknowledged: 0, tags: 3, staleTags: 0, reconnects: 1, details: {} }],
       loadError: null,
     };
-    fs.writeFileSync(file, JSON.stringify(status));
+    // Heartbeat ages are set on the database's clock, as ingest writes them (heartbeat_at = now()).
+    const worker = (id: string, ageS: number, st: object = status, host = 'ingest-a') =>
+      q(
+        `INSERT INTO ingest_workers (id, host, pid, started_at, heartbeat_at, heartbeat_ms, status) VALUES ($1, $2, 4242, now() - interval '60 s', now() - make_interval(secs => $3), 2000, $4)
+         ON CONFLICT (id) DO UPDATE SET heartbeat_at = excluded.heartbeat_at, status = excluded.status`,
+        [id, host, ageS, JSON.stringify(st)],
+      );
+    await worker('w1', 1);
     const fresh = ingestStatusOut.parse((await analyst.get('/api/v1/ingest/status')).body);
     expect(fresh).toMatchObject({ running: true, pid: 4242, samplesPerSec: 180, lagMs: 35, spool: { bytes: 2048, files: 1 }, deadLetters: { lastHour: 2, total: 3 } });
     expect(fresh.reason).toBeUndefined();
     expect(fresh.sources[0]).toMatchObject({ sourceId: 7, state: 'connected', reconnects: 1 });
+    expect(fresh.workers).toEqual([expect.objectContaining({ id: 'w1', host: 'ingest-a', running: true, heartbeat_ms: 2000, sourceIds: [7] })]);
 
-    fs.writeFileSync(file, JSON.stringify({ ...status, heartbeatAt: new Date(Date.now() - 30_000).toISOString() }));
+    // Three periods of 2 s: 5 s old still runs, 7 s old does not.
+    await worker('w1', 5);
+    expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ running: true });
+    await worker('w1', 30);
     const stale = await analyst.get('/api/v1/ingest/status');
-    expect(stale.body).toMatchObject({ running: false, pid: 4242 });
-    expect(stale.body.reason).toMatch(/heartbeat is 3\d(\.\d)? s old/);
+    expect(stale.body).toMatchObject({ running: false, pid: 4242, samplesPerSec: 180 });
+    expect(stale.body.reason).toMatch(/heartbeat is 30 s old \(more than 3 periods, 6 s\)/);
+
+    // A second worker on another host: rates add up, the worst lag counts, both are listed; the stale one's sources are not shown.
+    await worker('w2', 0, { ...status, samplesPerSec: 20, lagMs: 90, sources: [{ ...status.sources[0], sourceId: 8 }] }, 'ingest-b');
+    await worker('w3', 1, { ...status, samplesPerSec: 30, lagMs: 10, spool: { bytes: 0, files: 0 }, sources: [] }, 'ingest-c');
+    const two = ingestStatusOut.parse((await analyst.get('/api/v1/ingest/status')).body);
+    expect(two).toMatchObject({ running: true, samplesPerSec: 50, lagMs: 90, spool: { bytes: 2048, files: 1 } });
+    expect(two.sources.map((x) => x.sourceId)).toEqual([8]);
+    expect(two.workers.map((w) => [w.id, w.running])).toEqual([
+      ['w2', true],
+      ['w3', true],
+      ['w1', false],
+    ]);
+    await q(`DELETE FROM ingest_workers WHERE id <> 'w1'`);
+    await worker('w1', 1);
 
     // A token scoped to another plant sees neither this plant's sources in the status nor their dead letters.
     const ours = (await mqttSource({ name: 'scoped' })).body.id;
     await q(`INSERT INTO dead_letters (source_id, address, payload, reason) VALUES ($1, 'c', 'w', 'ours')`, [ours]);
-    fs.writeFileSync(file, JSON.stringify({ ...status, sources: [{ ...status.sources[0], sourceId: ours }] }));
+    await worker('w1', 1, { ...status, sources: [{ ...status.sources[0], sourceId: ours }] });
     const made = await integ.post('/api/v1/tokens').send({ name: 'other-plant', role: 'integrator', expiresInDays: 1, plantIds: [other] });
     expect(made.status).toBe(201);
     const bearer = { Authorization: `Bearer ${made.body.token}` };
@@ -420,8 +446,9 @@ describe('wiring API', () => {
     expect(own.body).toMatchObject({ id: ours, name: 'scoped', hasSecret: true });
     expect(own.text).not.toContain(SECRET);
 
-    fs.writeFileSync(file, '{"pid": 1, "heartb');
-    expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ running: false, reason: expect.stringMatching(/could not be read/) });
+    // A row this API cannot read (another ingest version) still counts as a heartbeat, without figures.
+    await worker('w1', 1, { version: 'future' });
+    expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ running: true, samplesPerSec: null, sources: [], workers: [expect.objectContaining({ id: 'w1', samplesPerSec: null })] });
     expect((await request(h.app).get('/api/v1/ingest/status')).status).toBe(401);
   });
 });

@@ -4,3 +4,4 @@ export * from './wiring.ts';
 export * from './process.ts';
 export * from './samples.ts';
 export * from './mail.ts';
+export * from './ingest.ts';

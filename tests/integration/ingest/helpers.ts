@@ -7,7 +7,6 @@ import pg from 'pg';
 import pino from 'pino';
 import { acceptConnection } from '../../../server/broker/embedded-broker.ts';
 import { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
-import { useFastPathParsers } from '../../../server/broker/publish-fast-path.ts';
 import type { IngestConfig } from '../../../ingest/config.ts';
 export { freePort } from '../../helpers/net.ts';
 
@@ -27,10 +26,6 @@ export function ingestConfig(databaseUrl: string, dataDir: string, over: Partial
  * a plain restart of the embedded broker would lose messages it had already acknowledged to
  * the publisher; this keeps the test about ingest, not about broker storage.
  */
-// As ingest/main.ts does: mqtt.js clients in these tests (ingest's and the publishers') parse
-// with the fast path, so the ingest tests run the parser ingest runs.
-useFastPathParsers();
-
 export interface TestBroker {
   url: string;
   port: number;
@@ -41,8 +36,8 @@ export interface TestBroker {
 }
 
 export async function startTestBroker(port: number): Promise<TestBroker> {
-  // The embedded broker's store (server/broker/indexed-persistence.ts), kept across restarts, its
-  // gathered writes and its parser fast path.
+  // The embedded broker's store (server/broker/indexed-persistence.ts), kept across restarts, and
+  // its connection handling.
   let broker = await Aedes.createBroker({ persistence: new IndexedMemoryPersistence() } as Parameters<typeof Aedes.createBroker>[0]);
   // Not in aedes' typings, but the documented `persistence` option takes the same object.
   const persistence: unknown = (broker as unknown as { persistence: unknown }).persistence;

@@ -1,9 +1,14 @@
+import { randomBytes, X509Certificate } from 'node:crypto';
 import fs from 'node:fs';
 import path from 'node:path';
 import { DataType, OPCUACertificateManager, OPCUAServer, StatusCodes, type StatusCode, type UAVariable } from 'node-opcua';
 import pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { IngestService } from '../../../ingest/ingest-service.ts';
+import type { AppContext } from '../../../server/app-context.ts';
+import { loadConfig } from '../../../server/config.ts';
+import { openDatabase } from '../../../server/db/client.ts';
+import { createOpcuaBrowseService } from '../../../server/services/opcua-browse.service.ts';
 import { QUALITY_FLAG, qualityFlags, qualityGrade } from '../../../shared/contracts/sample-quality.ts';
 import { createTestDatabase, type TestDatabase } from '../../helpers/db.ts';
 import { freePort, ingestConfig, scalar, seedWiring, silentLog, tempDir, waitFor } from './helpers.ts';
@@ -91,6 +96,34 @@ describe('OPC UA → PostgreSQL', () => {
     const st = svc.status().sources[0]!;
     expect(st.details.securityMode).toBe('SignAndEncrypt');
     // The client's PKI is under the data folder, not the home folder.
-    expect(fs.readdirSync(path.join(dataDir, 'pki', 'ingest-client', 'own', 'certs')).length).toBeGreaterThan(0);
+    expect(fs.existsSync(path.join(dataDir, 'pki', 'opcua-client', 'own', 'certs', 'client_certificate.pem'))).toBe(true);
+  });
+
+  it("the API's connection test and browse present ingest's client certificate, also from another data folder (another host)", async () => {
+    await waitFor('opcua connected', async () => svc.status().sources[0]?.state, (s) => s === 'connected', 30_000);
+    const ingestThumbprint = svc.status().sources[0]!.details.clientCertificateThumbprint as string;
+    expect(ingestThumbprint).toMatch(/^[0-9a-f]{40}$/);
+    // An API process with its own data folder and the same database, as on a second host.
+    const apiDataDir = tempDir('opcua-api');
+    const db = openDatabase(t.url, { max: 2 });
+    const ctx: AppContext = { db, config: loadConfig({ FLOCSTREAM_DATA_DIR: apiDataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '0' }), log: silentLog, sessionKey: randomBytes(32) };
+    try {
+      const source = { url: endpoint, username: null, secret: null, options: { securityMode: 'SignAndEncrypt', securityPolicy: 'Basic256Sha256', acceptUnknownServerCertificate: true } };
+      const probe = createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir });
+      const tested = await probe.test(source);
+      expect(tested, JSON.stringify(tested)).toMatchObject({ ok: true, details: { clientCertificateThumbprint: ingestThumbprint } });
+      const browsed = await probe.browse(source, undefined);
+      expect(browsed.children.map((c) => c.browseName)).toContain('1:IT');
+      // The server met one client certificate in all: the one ingest and the API share (its
+      // thumbprint is the SHA-1 of the DER certificate, OPC 10000-4 §7.2 / §7.36).
+      const trusted = path.join(dataDir, 'pki', 'test-server', 'server', 'trusted', 'certs');
+      const seen = fs.readdirSync(trusted).map((f) => new X509Certificate(fs.readFileSync(path.join(trusted, f))).fingerprint.replaceAll(':', '').toLowerCase());
+      expect(seen).toEqual([ingestThumbprint]);
+      expect(fs.readFileSync(path.join(apiDataDir, 'pki', 'opcua-client', 'own', 'certs', 'client_certificate.pem'), 'utf8')).toBe(
+        fs.readFileSync(path.join(dataDir, 'pki', 'opcua-client', 'own', 'certs', 'client_certificate.pem'), 'utf8'),
+      );
+    } finally {
+      await db.close();
+    }
   });
 });

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { dynamicSrt, rollingSrt, srt, wasFlowForTargetSrt_m3h, type TimedSample } from '../../../shared/domain/srt.js';
+import { dynamicSrt, EFFLUENT_TSS_NOT_MEASURED, rollingSrt, srt, wasFlowForTargetSrt_m3h, type TimedSample } from '../../../shared/domain/srt.js';
 
 const H = 3_600_000;
 
@@ -37,10 +37,7 @@ describe('rolling SRT (flow-weighted wasting over a window)', () => {
     const r = rollingSrt({
       aerationMass_kg: series(() => 36000, 24),
       clarifierMass_kg: series(() => 6000, 24),
-      wasFlow_m3h: series(() => 15, 24),
-      wasTss_gL: series(() => 8, 24),
-      effluentFlow_m3h: series(() => 1000, 24),
-      effluentTss_gL: series(() => 0.01, 24),
+      outlets: [{ wasFlow_m3h: series(() => 15, 24), wasTss_gL: series(() => 8, 24), effluentFlow_m3h: series(() => 1000, 24), effluentTss_gL: series(() => 0.01, 24) }],
       end_ms: 24 * H,
     });
     expect(r.coverage).toBeCloseTo(1, 12);
@@ -60,37 +57,70 @@ describe('rolling SRT (flow-weighted wasting over a window)', () => {
     ];
     const r = rollingSrt({
       aerationMass_kg: series(() => 36000, 24),
-      wasFlow_m3h: was,
-      wasTss_gL: series(() => 8, 24),
-      effluentFlow_m3h: series(() => 1000, 24),
-      effluentTss_gL: series(() => 0.01, 24),
+      outlets: [{ wasFlow_m3h: was, wasTss_gL: series(() => 8, 24), effluentFlow_m3h: series(() => 1000, 24), effluentTss_gL: series(() => 0.01, 24) }],
       end_ms: 24 * H,
     });
     // mean loss = (60·8·6 h + tiny ramps)/24 + 10 = 130 kg/h (ramps of 1 ms add < 1e-6)
     expect(r.total_d.value).toBeCloseTo(36000 / 130 / 24, 4);
   });
 
-  it('gaps, bad samples and short coverage downgrade the quality', () => {
-    const base = {
+  it('flow-weights X_W too: Q_W·X_W is integrated as a product, not as mean Q_W × mean X_W', () => {
+    // Q_W 30 m³/h for the first 12 h then 0; X_W 4 g/L for the first 12 h then 12 g/L.
+    // ∫Q_W·X_W dt = 30·4·12 = 1440 kg (means alone would give 15·8·24 = 2880 kg);
+    // mean loss = 1440/24 + 1000·0.01 = 70 kg/h → SRT 36 000/70/24 = 21.4286 d.
+    const step = (a: number, b: number): TimedSample[] => [...series(() => a, 12), { ts_ms: 12 * H + 1, value: b }, ...series(() => b, 11, 1, 13 * H)];
+    const r = rollingSrt({
       aerationMass_kg: series(() => 36000, 24),
-      wasFlow_m3h: series(() => 15, 24),
-      wasTss_gL: series(() => 8, 24),
-      effluentFlow_m3h: series(() => 1000, 24),
-      effluentTss_gL: series(() => 0.01, 24),
+      outlets: [{ wasFlow_m3h: step(30, 0), wasTss_gL: step(4, 12), effluentFlow_m3h: series(() => 1000, 24), effluentTss_gL: series(() => 0.01, 24) }],
       end_ms: 24 * H,
-    };
-    const half = rollingSrt({ ...base, wasFlow_m3h: series(() => 15, 16) });
+    });
+    expect(r.total_d.value).toBeCloseTo(36000 / 70 / 24, 4);
+  });
+
+  it('sums the outlets: two trains wasting 15 and 5 m³/h of 8 g/L sludge', () => {
+    // loss = (15·8 + 600·0.01) + (5·8 + 400·0.01) = 126 + 44 = 170 kg/h; SRT 42 000/170/24 = 10.2941 d
+    const r = rollingSrt({
+      aerationMass_kg: series(() => 36000, 24),
+      clarifierMass_kg: series(() => 6000, 24),
+      outlets: [
+        { wasFlow_m3h: series(() => 15, 24), wasTss_gL: series(() => 8, 24), effluentFlow_m3h: series(() => 600, 24), effluentTss_gL: series(() => 0.01, 24) },
+        { wasFlow_m3h: series(() => 5, 24), wasTss_gL: series(() => 8, 24), effluentFlow_m3h: series(() => 400, 24), effluentTss_gL: series(() => 0.01, 24) },
+      ],
+      end_ms: 24 * H,
+    });
+    expect(r.total_d).toMatchObject({ quality: 'good' });
+    expect(r.total_d.value).toBeCloseTo(42000 / 170 / 24, 9);
+  });
+
+  it('an outlet without effluent TSS counts X_e as 0 and says the SRT is overstated', () => {
+    // loss = 15·8 = 120 kg/h → 42 000/120/24 = 14.5833 d (against 13.4615 d with X_e = 0.01 g/L)
+    const r = rollingSrt({
+      aerationMass_kg: series(() => 36000, 24),
+      clarifierMass_kg: series(() => 6000, 24),
+      outlets: [{ wasFlow_m3h: series(() => 15, 24), wasTss_gL: series(() => 8, 24), effluentFlow_m3h: series(() => 1000, 24) }],
+      end_ms: 24 * H,
+    });
+    expect(r.total_d.value).toBeCloseTo(42000 / 120 / 24, 9);
+    expect(r.total_d.quality).toBe('estimated');
+    expect(r.total_d.reasons).toContain(EFFLUENT_TSS_NOT_MEASURED);
+    expect(rollingSrt({ aerationMass_kg: series(() => 36000, 24), outlets: [], end_ms: 24 * H }).total_d.value).toBeNull();
+  });
+
+  it('gaps, bad samples and short coverage downgrade the quality', () => {
+    const outlet = { wasFlow_m3h: series(() => 15, 24), wasTss_gL: series(() => 8, 24), effluentFlow_m3h: series(() => 1000, 24), effluentTss_gL: series(() => 0.01, 24) };
+    const base = { aerationMass_kg: series(() => 36000, 24), end_ms: 24 * H };
+    const half = rollingSrt({ ...base, outlets: [{ ...outlet, wasFlow_m3h: series(() => 15, 16) }] });
     expect(half.total_d.quality).toBe('estimated');
     expect(half.coverage).toBeCloseTo(16 / 24, 9);
     expect(half.total_d.value).toBeCloseTo(36000 / 130 / 24, 9);
-    const sparse = rollingSrt({ ...base, wasFlow_m3h: series(() => 15, 6) });
+    const sparse = rollingSrt({ ...base, outlets: [{ ...outlet, wasFlow_m3h: series(() => 15, 6) }] });
     expect(sparse.total_d).toMatchObject({ value: null, quality: 'unavailable' });
-    const withBad = rollingSrt({ ...base, wasTss_gL: [...series(() => 8, 24), { ts_ms: 5 * H + 1, value: null }] });
+    const withBad = rollingSrt({ ...base, outlets: [{ ...outlet, wasTss_gL: [...series(() => 8, 24), { ts_ms: 5 * H + 1, value: null }] }] });
     expect(withBad.total_d.quality).toBe('estimated');
     expect(withBad.total_d.reasons.join(' ')).toMatch(/dropped/);
-    const gap = rollingSrt({ ...base, effluentTss_gL: [{ ts_ms: 0, value: 0.01 }, { ts_ms: 24 * H, value: 0.01 }] });
+    const gap = rollingSrt({ ...base, outlets: [{ ...outlet, effluentTss_gL: [{ ts_ms: 0, value: 0.01 }, { ts_ms: 24 * H, value: 0.01 }] }] });
     expect(gap.total_d.value).toBeNull(); // one 24 h gap > 2 h maxGap: nothing covered
-    const empty = rollingSrt({ ...base, aerationMass_kg: [] });
+    const empty = rollingSrt({ ...base, aerationMass_kg: [], outlets: [outlet] });
     expect(empty.total_d.value).toBeNull();
   });
 });

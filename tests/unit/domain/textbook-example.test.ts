@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { recycleRatio, requiredRasConc_gL } from '../../../shared/domain/clarifier-balance.js';
 import { minRecycleRatio } from '../../../shared/domain/ras-margin.js';
 import { statePoint } from '../../../shared/domain/state-point.js';
-import { m3d_to_m3h } from '../../../shared/domain/units.js';
+import { toBaseUnit } from '../../../shared/domain/units.js';
 
 // Textbook worked example: Metcalf & Eddy, Wastewater Engineering: Treatment and Resource Recovery,
 // 5th ed. (McGraw-Hill, 2014), Example 8-3 (complete-mix activated sludge for BOD removal and
@@ -13,7 +13,7 @@ import { m3d_to_m3h } from '../../../shared/domain/units.js';
 // The book's answers: return ratio R = X/(X_R − X) = 0.6; area A = Q/24 = 945.8 m²; solids loading
 // (1 + R)·Q·X/A = 4.8 kg/(m²·h). Waste flow and effluent solids are neglected in that step, as here.
 const Q_m3d = 22_700;
-const Q = m3d_to_m3h(Q_m3d); // 945.83 m³/h
+const Q = toBaseUnit(Q_m3d, 'flow', 'm3/d')!; // 22 700 / 24 = 945.83 m³/h
 const X = 3.0; // g/L
 const XR = 8.0; // g/L
 const area_m2 = Q_m3d / 24; // 945.8 m²

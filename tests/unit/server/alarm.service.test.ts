@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { alarmConditions, limitState, stepAlarms, type AlarmCondition } from '../../../server/services/alarm.service.ts';
-import { computeBalance } from '../../../server/services/balance.service.ts';
-import { fixtureInputs, NOW, settings } from './balance-fixture.ts';
+import { computeBalance } from '../../../shared/domain/balance/assemble.ts';
+import { fixtureInputs, NOW, settings } from '../domain/balance-fixture.ts';
 
 const cond = (active: boolean | null): AlarmCondition => ({ rule: 'mlss-low', target: 'ab1', priority: 2, active, value: 1, limit: 2, message: 'm' });
 

@@ -1,8 +1,9 @@
 import { memo, type ReactNode } from 'react';
 import type { BalanceData } from '../../../../shared/contracts/balance.ts';
+import { sumFigures, withUnit } from '../../../../shared/domain/quality.ts';
 import { FigureValue } from '../../../components/ui/figure.tsx';
 import { formatValue } from '../../../lib/format.ts';
-import { qualityNotes, sumFigures } from '../figures.ts';
+import { qualityNotes } from '../figures.ts';
 import { Caution } from './caution.tsx';
 import { ClarifierSection, MassSplitBar } from './inventory-picture.tsx';
 import { FigureRow, Row } from './live-figure.tsx';
@@ -34,8 +35,8 @@ const samePanel = (p: TrainPanelProps, q: TrainPanelProps) =>
   p.train === q.train && p.name === q.name && p.peakFlowSource === q.peakFlowSource && sameItems(p.basins, q.basins) && sameItems(p.clarifiers, q.clarifiers);
 
 export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarifiers, peakFlowSource }: TrainPanelProps) {
-  const basinMass = sumFigures(basins.map((b) => b.mass_kg), 'kg');
-  const clarMass = sumFigures(clarifiers.map((c) => c.blanketMass_kg), 'kg');
+  const basinMass = withUnit(sumFigures(basins.map((b) => b.mass_kg), 'basins'), 'kg');
+  const clarMass = withUnit(sumFigures(clarifiers.map((c) => c.blanketMass_kg), 'clarifiers'), 'kg');
   const stored = train.storm.checks.find((c) => c.rule === 'max-stored-fraction');
   const notes = qualityNotes([
     train.influentFlow_m3h, train.rasFlow_m3h, train.wasFlow_m3h, train.mlss_gL,

@@ -1,6 +1,8 @@
-import { useState, type FormEvent } from 'react';
-import type { ConnectionTestOut, SourceCreate, SourceKind } from '../../../../shared/contracts/wiring.ts';
-import { Button, ErrorNote, Field, fieldErrors, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { useState } from 'react';
+import { useForm, useWatch } from 'react-hook-form';
+import { OPCUA_SECURITY_MODES, OPCUA_SECURITY_POLICIES, sourceCreate, type ConnectionTestOut, type SourceCreate, type SourceKind } from '../../../../shared/contracts/wiring.ts';
+import { Button, ErrorNote, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { applyServerErrors, contractResolver, fieldError } from '../../../lib/form.ts';
 import { formatAge, formatUtc } from '../../../lib/format.ts';
 import { useIngestStatus } from '../api/ingest-status.ts';
 import { useTestSource } from '../api/source-test.ts';
@@ -100,22 +102,38 @@ function IngestBadge({ running, reason }: { running: boolean | undefined; reason
   );
 }
 
+type SourceValues = {
+  kind: SourceKind;
+  name: string;
+  url: string;
+  username: string;
+  password: string;
+  options: { topics: string; securityMode: string; securityPolicy: string };
+};
+const EMPTY_SOURCE: SourceValues = { kind: 'mqtt', name: '', url: '', username: '', password: '', options: { topics: '#', securityMode: 'None', securityPolicy: 'None' } };
+
+/** The request body of the chosen kind: MQTT topic filters from a comma list, OPC UA security settings. */
+function sourceBody(v: SourceValues): Record<string, unknown> {
+  const common = { kind: v.kind, name: v.name, url: v.url.trim(), username: v.username || null, password: v.password || null };
+  return v.kind === 'mqtt'
+    ? { ...common, options: { topics: v.options.topics.split(',').map((t) => t.trim()).filter(Boolean) } }
+    : { ...common, options: { securityMode: v.options.securityMode, securityPolicy: v.options.securityPolicy } };
+}
+const sourceResolver = contractResolver(sourceCreate, sourceBody);
+
 function NewSourceForm({ plantId }: { plantId: number }) {
   const create = useCreateSource(plantId);
   const [open, setOpen] = useState(false);
-  const [kind, setKind] = useState<SourceKind>('mqtt');
-  const [f, setF] = useState({ name: '', url: '', username: '', password: '', topics: '#', securityMode: 'None', securityPolicy: 'None' });
-  const fe = fieldErrors(create.error);
-  const set = (k: keyof typeof f) => (e: { target: { value: string } }) => setF((o) => ({ ...o, [k]: e.target.value }));
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    const common = { name: f.name, url: f.url.trim(), username: f.username || null, password: f.password || null };
-    const body: SourceCreate =
-      kind === 'mqtt'
-        ? { kind, ...common, options: { topics: f.topics.split(',').map((t) => t.trim()).filter(Boolean) } }
-        : { kind, ...common, options: { securityMode: f.securityMode as 'None', securityPolicy: f.securityPolicy as 'None' } };
-    create.mutate(body, { onSuccess: () => setF((o) => ({ ...o, name: '', url: '', password: '' })) });
-  };
+  const form = useForm<SourceValues, unknown, SourceCreate>({ defaultValues: EMPTY_SOURCE, resolver: sourceResolver });
+  const { errors } = form.formState;
+  const kind = useWatch({ control: form.control, name: 'kind' });
+  const fe = (name: string) => fieldError(errors, name);
+  const submit = form.handleSubmit((body) =>
+    create.mutate(body, {
+      onSuccess: () => form.reset({ ...form.getValues(), name: '', url: '', password: '' }),
+      onError: (e) => applyServerErrors(e, form),
+    }),
+  );
   if (!open)
     return (
       <div className="mt-2">
@@ -123,44 +141,43 @@ function NewSourceForm({ plantId }: { plantId: number }) {
       </div>
     );
   return (
-    <form onSubmit={submit} aria-label="New source" className="mt-2 border-t border-edge pt-2 grid grid-cols-[repeat(auto-fill,minmax(170px,1fr))] gap-2 items-start">
-      <Field label="Kind">
-        <Select value={kind} onChange={(e) => setKind(e.target.value as SourceKind)}>
+    <form onSubmit={(e) => void submit(e)} noValidate aria-label="New source" className="mt-2 border-t border-edge pt-2 grid grid-cols-[repeat(auto-fill,minmax(170px,1fr))] gap-2 items-start">
+      <Field label="Kind" error={fe('kind')}>
+        <Select {...form.register('kind')}>
           <option value="mqtt">MQTT broker</option>
           <option value="opcua">OPC UA endpoint</option>
         </Select>
       </Field>
-      <Field label="Name" error={fe.name}>
-        <TextInput value={f.name} onChange={set('name')} required />
+      <Field label="Name" error={fe('name')}>
+        <TextInput {...form.register('name')} aria-invalid={errors.name ? true : undefined} />
       </Field>
-      <Field label="URL" error={fe.url} hint={kind === 'mqtt' ? 'mqtt://host:1883, mqtts://, ws://' : 'opc.tcp://host:4840/path'}>
-        <TextInput value={f.url} onChange={set('url')} required className="num" />
+      <Field label="URL" error={fe('url')} hint={kind === 'mqtt' ? 'mqtt://host:1883, mqtts://, ws://' : 'opc.tcp://host:4840/path'}>
+        <TextInput {...form.register('url')} className="num" aria-invalid={errors.url ? true : undefined} />
       </Field>
-      <Field label="User name" error={fe.username}>
-        <TextInput value={f.username} onChange={set('username')} autoComplete="off" />
+      <Field label="User name" error={fe('username')}>
+        <TextInput {...form.register('username')} autoComplete="off" />
       </Field>
-      <Field label="Password" error={fe.password} hint="stored on the server only">
-        <TextInput type="password" value={f.password} onChange={set('password')} autoComplete="new-password" />
+      <Field label="Password" error={fe('password')} hint="stored on the server only">
+        <TextInput type="password" {...form.register('password')} autoComplete="new-password" />
       </Field>
       {kind === 'mqtt' ? (
-        <Field label="Topic filters" error={fe['options.topics'] ?? fe.options} hint="comma-separated; # sees everything">
-          <TextInput value={f.topics} onChange={set('topics')} className="num" />
+        <Field label="Topic filters" error={fe('options.topics') ?? fe('options')} hint="comma-separated; # sees everything">
+          <TextInput {...form.register('options.topics')} className="num" />
         </Field>
       ) : (
         <>
-          <Field label="Security mode" error={fe['options.securityMode']}>
-            <Select value={f.securityMode} onChange={set('securityMode')}>
-              <option>None</option>
-              <option>Sign</option>
-              <option>SignAndEncrypt</option>
+          <Field label="Security mode" error={fe('options.securityMode')}>
+            <Select {...form.register('options.securityMode')}>
+              {OPCUA_SECURITY_MODES.map((m) => (
+                <option key={m}>{m}</option>
+              ))}
             </Select>
           </Field>
-          <Field label="Security policy" error={fe['options.securityPolicy']}>
-            <Select value={f.securityPolicy} onChange={set('securityPolicy')}>
-              <option>None</option>
-              <option>Basic256Sha256</option>
-              <option>Aes128_Sha256_RsaOaep</option>
-              <option>Aes256_Sha256_RsaPss</option>
+          <Field label="Security policy" error={fe('options.securityPolicy')}>
+            <Select {...form.register('options.securityPolicy')}>
+              {OPCUA_SECURITY_POLICIES.map((p) => (
+                <option key={p}>{p}</option>
+              ))}
             </Select>
           </Field>
         </>
@@ -173,7 +190,9 @@ function NewSourceForm({ plantId }: { plantId: number }) {
           Close
         </Button>
       </div>
-      {create.error && !Object.keys(fe).length ? <ErrorNote error={create.error} /> : null}
+      <div className="col-span-full empty:hidden">
+        <FormProblem error={create.error} root={errors.root?.server?.message} />
+      </div>
       {create.data ? (
         <p role="status" className="text-ink-2 col-span-full">
           Added {create.data.name} ({formatUtc(create.data.createdAt)}). Ingest picks it up within seconds; test the connection above.
@@ -182,4 +201,3 @@ function NewSourceForm({ plantId }: { plantId: number }) {
     </form>
   );
 }
-

@@ -1,5 +1,5 @@
 import { defaultSettings } from '../../../shared/contracts/settings.ts';
-import type { BalanceEngineInputs, SeriesPoint, SignalReading } from '../../../server/services/balance.service.ts';
+import type { BalanceEngineInputs, SeriesPoint, SignalReading } from '../../../shared/domain/balance/inputs.ts';
 
 /**
  * A one-train plant with steady signals, for hand-computed balances:

@@ -1,10 +1,11 @@
 import { describe, expect, it } from 'vitest';
 import { balanceOut } from '../../../shared/contracts/balance.ts';
-import { computeBalance, unitFactor } from '../../../server/services/balance.service.ts';
+import { computeBalance } from '../../../shared/domain/balance/assemble.ts';
+import { signalUnitFactor } from '../../../shared/domain/balance/signals.ts';
 import { fixtureInputs, NOW, settings } from './balance-fixture.ts';
 
 /**
- * Hand computations for the fixture plant (tests/unit/server/balance-fixture.ts), each from the
+ * Hand computations for the fixture plant (tests/unit/domain/balance-fixture.ts), each from the
  * design §3 formula named beside it:
  *   basin mass     X·V = 3.0 g/L × 6000 m³                         = 18 000 kg      (item 7/inventory)
  *   blanket mass   level × area × X_R = 1.0 × 1500 × 8.0            = 12 000 kg      (item 7, 'ras' method)
@@ -153,10 +154,21 @@ describe('computeBalance: missing, stale and bad inputs', () => {
     expect(short.value).toBeNull();
     expect(short.reasons.join()).toMatch(/cover only 25 %/);
   });
+  it('blanket levels above the 4 m side-water depth are left out of the SRT inventory, not counted as sludge', () => {
+    // Detector stuck at 4.5 m for the whole window (latest value 1.0 m): no usable clarifier minute,
+    // so the total SRT counts aeration mass only: 18 000/167.8/24 = 4.46961 d. Counting the fault as
+    // sludge (4.5 × 1500 × 8 = 54 000 kg) would have given (18 000 + 54 000)/167.8/24 = 17.878 d.
+    const inp = fixtureInputs();
+    inp.series.set(3, inp.series.get(3)!.map((p) => ({ ...p, mean: 4.5 })));
+    const b = computeBalance(inp, settings());
+    expect(b.data.srt.total_d.value).toBeCloseTo(18_000 / 167.8 / 24, 6);
+    expect(b.data.srt.total_d.reasons).toContain('clarifier mass series too sparse: total SRT counts aeration mass only');
+    expect(b.data.clarifiers[0]!.blanketMass_kg.value).toBeCloseTo(12_000, 6);
+  });
   it('units: known equivalents convert, a unit of the wrong dimension is refused', () => {
-    expect(unitFactor('clarifier.effluentTss', 'mg/L')).toBe(1e-3);
-    expect(unitFactor('pump.flow', 'L/s')).toBe(3.6);
-    expect(unitFactor('basin.mlss', 'm')).toBeNull();
+    expect(signalUnitFactor('clarifier.effluentTss', 'mg/L')).toBe(1e-3);
+    expect(signalUnitFactor('pump.flow', 'L/s')).toBeCloseTo(3.6, 12);
+    expect(signalUnitFactor('basin.mlss', 'm')).toBeNull();
     const b = computeBalance(fixtureInputs({ override: { x: { unit: 'm' } } }), settings());
     expect(b.data.basins[0]!.mlss_gL.reasons.join()).toMatch(/unit 'm' does not fit signal basin.mlss/);
   });
