@@ -115,7 +115,9 @@ export function EditUnitForm({ plantId, kind, unit, system, onDone }: { plantId:
   const fields = FIELDS[kind];
   const defaults: Values = { effectiveFrom: localInput(new Date()), inService: unit.inService };
   for (const f of fields) defaults[f.name] = show(system, f.quantity, unit[f.name] as number | null);
-  const toBody = (v: Values) => ({ ...geometry(system, fields, v), inService: v.inService === true, effectiveFrom: effectiveFrom(v) });
+  // The field shows now to the minute; left as shown it means "now" (the server's clock), not the
+  // start of the minute, which could fall before a version made seconds ago.
+  const toBody = (v: Values) => ({ ...geometry(system, fields, v), inService: v.inService === true, effectiveFrom: v.effectiveFrom === defaults.effectiveFrom ? undefined : effectiveFrom(v) });
   const form = useForm<Values, unknown, object>({ defaultValues: defaults, resolver: contractResolver(PATCH[kind], toBody) });
   const { register, handleSubmit, formState } = form;
   const onSubmit = handleSubmit((body) => patch.mutate({ id: unit.id, body }, { onSuccess: onDone, onError: (e) => applyServerErrors(e, form) }));
