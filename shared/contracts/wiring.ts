@@ -399,6 +399,19 @@ export const connectorStatus = z
     details: z.record(z.string(), z.unknown()),
   })
   .loose();
+/**
+ * A worker's spool (ingest/sink/spool.ts): batches fsync'd while PostgreSQL could not take them.
+ * Unreadable files are kept and listed; a reached size cap holds acknowledgements (backpressure).
+ * Both are `ingest` alarm conditions.
+ */
+export const spoolStatus = z.object({
+  bytes: z.number(),
+  files: z.number(),
+  unreadable: z.array(z.object({ file: z.string(), bytes: z.number(), atByte: z.number(), error: z.string() })).default([]),
+  capReached: z.boolean().default(false),
+});
+export type SpoolStatusOut = z.output<typeof spoolStatus>;
+
 /** `ingest_workers.status`: what one ingest worker reports with each heartbeat. */
 export const ingestWorkerStatus = z
   .object({
@@ -406,7 +419,7 @@ export const ingestWorkerStatus = z
     samplesPerSec: z.number(),
     /** Receive → commit delay of the last flush [ms]. */
     lagMs: z.number(),
-    spool: z.object({ bytes: z.number(), files: z.number() }),
+    spool: spoolStatus,
     writer: z.record(z.string(), z.unknown()),
     sources: z.array(connectorStatus),
     loadError: z.string().nullable(),
@@ -429,7 +442,7 @@ export const ingestWorkerOut = z.object({
   stoppedAt: z.string().nullable().meta({ description: 'set by a clean stop' }),
   samplesPerSec: z.number().nullable(),
   lagMs: z.number().nullable(),
-  spool: z.object({ bytes: z.number(), files: z.number() }).nullable(),
+  spool: spoolStatus.nullable(),
   sourceIds: z.array(z.number().int()),
   loadError: z.string().nullable(),
 });
@@ -444,7 +457,7 @@ export const ingestStatusOut = z.object({
   startedAt: z.string().nullable(),
   samplesPerSec: z.number().nullable().meta({ description: 'summed over running workers (the last worker\'s figure when none runs)' }),
   lagMs: z.number().nullable().meta({ description: 'receive → commit delay of the last flush [ms], the largest of the running workers' }),
-  spool: z.object({ bytes: z.number(), files: z.number() }).nullable().meta({ description: 'summed over the workers shown' }),
+  spool: spoolStatus.nullable().meta({ description: 'summed over the workers shown; unreadable files listed, capReached if any worker reached its cap' }),
   writer: z.record(z.string(), z.unknown()).nullable().meta({ description: 'writer counters of the worker with the latest heartbeat' }),
   loadError: z.string().nullable(),
   sources: z.array(connectorStatus).meta({ description: 'connection state per source, from every running worker (the last worker when none runs)' }),
