@@ -69,6 +69,9 @@ export class Spool {
   private currentBytes = 0;
   private files: number[] = [];
   private sizes = new Map<number, number>();
+  /** Sums of `sizes`, all files and unreadable ones, kept as counters: the writer asks on every enqueue. */
+  private totalBytes = 0;
+  private unreadableBytes = 0;
   /** Bytes of each file already applied in this process (a replay that failed resumes there). */
   private applied = new Map<number, number>();
   private unreadable = new Map<number, UnreadableSpoolFile>();
@@ -93,9 +96,9 @@ export class Spool {
       .sort((a, b) => a - b);
     for (const seq of s.files) {
       try {
-        s.sizes.set(seq, (await fsp.stat(s.file(seq))).size);
+        s.setSize(seq, (await fsp.stat(s.file(seq))).size);
       } catch (err) {
-        s.sizes.set(seq, 0);
+        s.setSize(seq, 0);
         s.markUnreadable(seq, 0, err);
       }
     }
@@ -109,16 +112,17 @@ export class Spool {
 
   /** Bytes in all spool files, unreadable ones included. */
   get sizeBytes(): number {
-    let n = 0;
-    for (const b of this.sizes.values()) n += b;
-    return n;
+    return this.totalBytes;
   }
 
   /** Bytes in the files still to replay (what the cap counts). */
   get pendingBytes(): number {
-    let n = 0;
-    for (const [seq, b] of this.sizes) if (!this.unreadable.has(seq)) n += b;
-    return n;
+    return this.totalBytes - this.unreadableBytes;
+  }
+
+  private setSize(seq: number, bytes: number): void {
+    this.totalBytes += bytes - (this.sizes.get(seq) ?? 0);
+    this.sizes.set(seq, bytes);
   }
 
   get fileCount(): number {
@@ -154,7 +158,7 @@ export class Spool {
       this.fh = await fsp.open(this.file(seq), 'a');
       this.currentBytes = (await this.fh.stat()).size;
       if (!this.files.includes(seq)) this.files.push(seq);
-      this.sizes.set(seq, this.currentBytes);
+      this.setSize(seq, this.currentBytes);
       // The new directory entry must be durable too (POSIX fsync(2) on the directory).
       await syncDir(this.dir);
     }
@@ -170,7 +174,7 @@ export class Spool {
       throw err;
     }
     this.currentBytes = before + head.length + body.length;
-    this.sizes.set(seq, this.currentBytes);
+    this.setSize(seq, this.currentBytes);
     if (this.currentBytes >= this.fileBytes) await this.rotate();
   }
 
@@ -255,12 +259,14 @@ export class Spool {
       }
       await fsp.rm(name, { force: true });
       this.files = this.files.filter((s) => s !== seq);
+      this.setSize(seq, 0);
       this.sizes.delete(seq);
       this.applied.delete(seq);
     }
   }
 
   private markUnreadable(seq: number, atByte: number, err: unknown): void {
+    if (!this.unreadable.has(seq)) this.unreadableBytes += this.sizes.get(seq) ?? 0;
     this.unreadable.set(seq, { file: this.file(seq), bytes: this.sizes.get(seq) ?? 0, atByte, error: (err as Error)?.message ?? String(err) });
   }
 
