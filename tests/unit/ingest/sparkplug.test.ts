@@ -116,7 +116,8 @@ describe('SparkplugState', () => {
   it('counts each missing seq number, 255 wrapping to 0 (tck-id-payloads-sequence-num-incrementing)', () => {
     const s = new SparkplugState();
     const e = new TestEdgeNode('g', 'n');
-    const { nb } = births(e);
+    const birth = () => e.nbirth(T0, [{ name: 'm', alias: 10, type: 'Double', value: 0, timestamp: T0 }]);
+    const nb = birth();
     s.handle(nb.topic, nb.payload, T0); // seq 0
     const send = () => {
       const m = e.ndata(T0, [{ alias: 10, type: 'Double', value: 1 }]);
@@ -135,8 +136,8 @@ describe('SparkplugState', () => {
     send(); // 4
     expect(s.status().seqGaps).toBe(2 + 249 + 3);
     // A new NBIRTH restarts at 0 without counting a gap.
-    const again = births(e);
-    s.handle(again.nb.topic, again.nb.payload, T0);
+    const again = birth();
+    s.handle(again.topic, again.payload, T0);
     expect(s.status().seqGaps).toBe(254);
     expect(s.status().edgeNodes[0]).toMatchObject({ edgeNode: 'g/n', online: true, seq: 0, seqGaps: 254 });
   });
