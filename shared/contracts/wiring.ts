@@ -234,7 +234,7 @@ const finite = (description: string) => z.number().finite().meta({ description }
 const tagFields = {
   name: z.string().trim().min(1).max(64).meta({ description: 'unique within the plant' }),
   sourceId: z.number().int().positive(),
-  address: z.string().min(1).max(1024).meta({ description: 'MQTT topic (or filter with + and #) or OPC UA NodeId (ns=…;s=…)' }),
+  address: z.string().min(1).max(1024).meta({ description: 'MQTT topic (or filter with + and #), Sparkplug B metric path group/node/device/metric (device empty for node metrics), or OPC UA NodeId (ns=…;s=…)' }),
   unit: z.string().trim().min(1).max(16),
   description: z.string().max(200),
   scaleGain: finite('engineering value = raw × scaleGain + scaleOffset'),
