@@ -329,6 +329,13 @@ export class SparkplugState {
       const type = m.type ?? def.type;
       const address = sparkplugAddress(t.group, t.node, t.device, def.name);
       const meta = { type, unit: def.unit, alias };
+      if (m.type === undefined && !birth) {
+        // The datatype is optional outside births (tck-id-payloads-metric-datatype-req), but
+        // sparkplug-payload reads a value only by the datatype its own message carries: without
+        // one it reports null, which must not be stored as a null reading.
+        out.unreadable.push({ address, reason: `${def.name}: metric without a datatype in this ${t.type}; its value cannot be read`, meta });
+        continue;
+      }
       const val = metricNumber(type, m.value);
       if ('reason' in val) {
         out.unreadable.push({ address, reason: `${def.name}: ${val.reason}`, meta });

@@ -182,6 +182,19 @@ describe('SparkplugState', () => {
     expect(s.status().deaths).toBe(1);
   });
 
+  it('a DATA metric without a datatype is unreadable, not a null reading', () => {
+    const s = new SparkplugState();
+    const e = new TestEdgeNode('g', 'n');
+    const { nb, db } = births(e);
+    s.handle(nb.topic, nb.payload, T0);
+    s.handle(db.topic, db.payload, T0);
+    // The package encodes an unknown type name as DataType 0 (Unknown) and then sets no value.
+    const d = e.ddata('RAS1', T0 + 5, [{ alias: 20, type: 'Unknown' as never, value: 5 }]);
+    const r = s.handle(d.topic, d.payload, T0 + 9);
+    expect(r.readings).toEqual([]);
+    expect(r.unreadable).toEqual([{ address: 'g/n/RAS1/Flow', reason: 'Flow: metric without a datatype in this DDATA; its value cannot be read', meta: { type: 'Float', unit: 'm3/h', alias: 20 } }]);
+  });
+
   it('dead-letters a payload that is not Sparkplug B protobuf', () => {
     const r = new SparkplugState().handle('spBv1.0/g/NDATA/n', Buffer.from([0xff, 0xff, 0xff, 0xff, 0xff]), T0);
     expect(r.deadLetter).toMatch(/not a Sparkplug B payload/);
