@@ -57,8 +57,20 @@ const envSchema = z.object({
   INGEST_STATUS_MS: positiveInt.default(2_000),
   /** MQTT client identifier prefix; the source id is appended so each session is stable across restarts. */
   INGEST_MQTT_CLIENT_ID: z.string().min(1).max(16).default('flocstream-ingest'),
+  /**
+   * How MQTT PUBACKs leave after the commit (ingest/mqtt/mqtt-connector.ts AckMode): `serial` is
+   * mqtt.js's stock way, one message per commit, for `npm run bench:ingest -- --stock` only.
+   */
+  INGEST_MQTT_ACKS: z.enum(['pipelined', 'serial']).default('pipelined'),
   /** The `debug` package's namespaces; mqtt.js traces each packet only when it names `mqttjs`. */
   DEBUG: z.string().optional(),
+  /** A new spool file is started once the current one holds this many bytes (default 64 MiB). */
+  INGEST_SPOOL_FILE_BYTES: positiveInt.optional(),
+  /**
+   * Spool size cap [bytes] (default 2 GiB): at the cap the writer holds its batch
+   * unacknowledged and sources pause (the broker keeps the rest); status shows `capReached`.
+   */
+  INGEST_SPOOL_MAX_BYTES: positiveInt.optional(),
 });
 
 export interface IngestConfig {
@@ -76,6 +88,11 @@ export interface IngestConfig {
   mqttClientIdPrefix: string;
   /** mqtt.js's per-packet trace through `debug` (DEBUG=mqttjs*); off, it costs nothing per packet. */
   mqttTrace: boolean;
+  /** Undefined: pipelined (the product's); `serial` only for the benchmark's stock reference. */
+  mqttAcks?: 'pipelined' | 'serial';
+  /** Undefined: the spool's defaults (ingest/sink/spool.ts). */
+  spoolFileBytes?: number;
+  spoolMaxBytes?: number;
 }
 
 export class IngestConfigError extends Error {}
@@ -100,6 +117,9 @@ export function loadIngestConfig(env: NodeJS.ProcessEnv = process.env): IngestCo
     statusMs: e.INGEST_STATUS_MS,
     mqttClientIdPrefix: e.INGEST_MQTT_CLIENT_ID,
     mqttTrace: /mqttjs/.test(e.DEBUG ?? ''),
+    ...(e.INGEST_MQTT_ACKS === 'serial' ? { mqttAcks: 'serial' as const } : {}),
+    ...(e.INGEST_SPOOL_FILE_BYTES ? { spoolFileBytes: e.INGEST_SPOOL_FILE_BYTES } : {}),
+    ...(e.INGEST_SPOOL_MAX_BYTES ? { spoolMaxBytes: e.INGEST_SPOOL_MAX_BYTES } : {}),
   };
 }
 

@@ -80,7 +80,7 @@ export class IngestService {
 
   static async start(cfg: IngestConfig, log: Logger): Promise<IngestService> {
     const paths = ingestPaths(cfg.dataDir);
-    const spool = await Spool.open(paths.spoolDir);
+    const spool = await Spool.open(paths.spoolDir, { fileBytes: cfg.spoolFileBytes, maxBytes: cfg.spoolMaxBytes });
     if (!spool.isEmpty) log.info({ files: spool.fileCount, bytes: spool.sizeBytes }, 'spool from a previous run will be replayed');
     // Partition upkeep has a connection of its own: on a writer's it could land inside a batch's transaction.
     const store = new SampleStore(cfg.databaseUrl, { retentionDays: cfg.retentionDays });
@@ -189,7 +189,7 @@ export class IngestService {
       // A reconnected source keeps what it saw: the topics are the broker's, not the connection's.
       let discovery = this.discoveries.get(s.id);
       if (!discovery) this.discoveries.set(s.id, (discovery = new Discovery()));
-      return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log, trace: this.cfg.mqttTrace, discovery });
+      return new MqttConnector(s, tags, this.writer, { clientIdPrefix: this.cfg.mqttClientIdPrefix, log: this.log, trace: this.cfg.mqttTrace, discovery, acks: this.cfg.mqttAcks });
     }
     // node-opcua is large (≈ 100 MB resident once loaded): only load it when a source needs it.
     const { OpcuaConnector } = await import('./opcua/opcua-connector.ts');
@@ -202,7 +202,7 @@ export class IngestService {
     return {
       samplesPerSec: Math.round(this.rate),
       lagMs: this.writer.stats.lastLagMs,
-      spool: { bytes: this.writer.spoolBytes, files: this.writer.spoolFiles },
+      spool: this.writer.spoolStatus,
       writer: { ...this.writer.stats },
       sources: [...this.connectors.values()].map((x) => x.c.status(now)),
       loadError: this.loadError,

@@ -83,9 +83,15 @@ export function spawnTs(
 export function waitForLine(proc: ChildProcess, name: string, re: RegExp, timeout_ms = 30_000): Promise<RegExpMatchArray> {
   return new Promise((resolve, reject) => {
     const lines = readline.createInterface({ input: proc.stdout! });
+    const onLine = (l: string) => {
+      const m = re.exec(l);
+      if (m) finish(null, m);
+    };
+    // Detach, not close(): closing a readline interface pauses its input, and the child's other
+    // reader (its log lines) would stop — and a child blocks once its stdout pipe is full.
     const finish = (err: Error | null, m?: RegExpMatchArray) => {
       clearTimeout(t);
-      lines.close();
+      lines.off('line', onLine);
       proc.off('exit', onExit);
       if (err) reject(err);
       else resolve(m!);
@@ -93,9 +99,6 @@ export function waitForLine(proc: ChildProcess, name: string, re: RegExp, timeou
     const onExit = (code: number | null) => finish(new Error(`${name} exited (code ${code}) before it was ready`));
     const t = setTimeout(() => finish(new Error(`${name} was not ready within ${timeout_ms / 1000} s`)), timeout_ms);
     proc.once('exit', onExit);
-    lines.on('line', (l) => {
-      const m = re.exec(l);
-      if (m) finish(null, m);
-    });
+    lines.on('line', onLine);
   });
 }

@@ -2,20 +2,21 @@ import fs from 'node:fs';
 import { aptGet } from '../server/db/apt.ts';
 import { findPgBinDir } from '../server/db/local-postgres.ts';
 
-/** Debian packages the tests need, with how to tell each is there. */
-const NEEDS = [
-  { pkg: 'postgresql', present: () => findPgBinDir() !== null },
-  { pkg: 'chromium', present: () => fs.existsSync(chromiumPath()) },
-];
+/** Debian packages the tests may need, with how to tell each is there. */
+const PRESENT = {
+  postgresql: () => findPgBinDir() !== null,
+  chromium: () => fs.existsSync(chromiumPath()),
+};
+export type SystemPackage = keyof typeof PRESENT;
 
 export function chromiumPath(): string {
   // The real binary avoids a harmless warning the /usr/bin/chromium wrapper prints.
   return fs.existsSync('/usr/lib/chromium/chromium') ? '/usr/lib/chromium/chromium' : '/usr/bin/chromium';
 }
 
-/** Installs the missing Debian packages with apt-get when root; otherwise says the exact command. */
-export function ensureSystemDeps(say: (m: string) => void): void {
-  const missing = NEEDS.filter((n) => !n.present()).map((n) => n.pkg);
+/** Installs those of `packages` that are missing with apt-get when root; otherwise says the exact command. */
+export function ensureSystemDeps(say: (m: string) => void, packages: readonly SystemPackage[]): void {
+  const missing = packages.filter((p) => !PRESENT[p]());
   if (!missing.length) return;
   const cmd = `apt-get update && apt-get install -y --no-install-recommends ${missing.join(' ')}`;
   if (process.getuid?.() !== 0) throw new Error(`missing system packages; install them with: sudo ${cmd}`);

@@ -1,12 +1,134 @@
+import { credentialChanged } from './auth/credential-cache.ts';
 import type { Logger } from 'pino';
 import type { Config } from './config.ts';
 import type { Database } from './db/client.ts';
+import { dummyPasswordHash, hashPassword, randomPassword, verifyPassword } from './auth/passwords.ts';
+import { outboxReader } from './mail/outbox.ts';
+import { signSession } from './auth/session.ts';
+import { alarmRepository } from './repositories/alarm.repository.ts';
+import { auditRepository } from './repositories/audit.repository.ts';
+import { balanceRepository } from './repositories/balance.repository.ts';
+import { notificationRepository } from './repositories/notification.repository.ts';
+import { plantModelRepository } from './repositories/plant-model.repository.ts';
+import { streamRepository } from './repositories/stream.repository.ts';
+import { wiringRepository } from './repositories/wiring.repository.ts';
+import { ingestRepository } from './repositories/ingest.repository.ts';
+import { labRepository } from './repositories/lab.repository.ts';
+import { plantRepository } from './repositories/plant.repository.ts';
+import { seriesRepository } from './repositories/series.repository.ts';
+import { settingsRepository } from './repositories/settings.repository.ts';
+import { tokenRepository, userRepository } from './repositories/user.repository.ts';
+import { createAlarmService } from './services/alarm.service.ts';
+import { createAuditLog } from './services/audit.service.ts';
+import { createStreamService, streamHub } from './services/stream.service.ts';
+import { createAuthService } from './services/auth.service.ts';
+import { createBootstrapService } from './services/bootstrap.service.ts';
+import { createIngestStatusService } from './services/ingest-status.service.ts';
+import { createOutboxService } from './services/outbox.service.ts';
+import { createPlantConfigService } from './services/plant-config.service.ts';
+import { createPlantModelService } from './services/plant-model.service.ts';
+import { createLabService } from './services/lab.service.ts';
+import { createPlantAccess, createPlantService } from './services/plant.service.ts';
+import { createSeriesService } from './services/series.service.ts';
+import { createSettingsService } from './services/settings.service.ts';
+import { createTokenService } from './services/token.service.ts';
+import { createUserService } from './services/user.service.ts';
+import { createOpcuaBrowseService } from './services/opcua-browse.service.ts';
+import { createWiringService } from './services/wiring.service.ts';
 
-/** What every route module and service gets: passed in, never imported as a global. */
+/** What every route module gets: passed in, never imported as a global. */
 export interface AppContext {
   db: Database;
   config: Config;
   log: Logger;
   /** Secret that signs session JWTs (HS256). */
   sessionKey: Uint8Array;
+}
+
+/** Wall clock in epoch ms; services take it as a dependency so a test can set the time. */
+export type Clock = () => number;
+export const systemClock: Clock = () => Date.now();
+
+/**
+ * The composition root: every repository built once on the context's database, every service
+ * built once from the repositories and services it names (nothing else), for the life of the
+ * context. Routes, jobs and scripts take their services from here; a unit test builds a
+ * service with its own fakes instead (tests/unit/server/*.service.test.ts).
+ */
+function compose(ctx: AppContext) {
+  const { db, pool } = ctx.db;
+  const clock = systemClock;
+  const repos = {
+    audit: auditRepository(db),
+    users: userRepository(db),
+    tokens: tokenRepository(db),
+    plants: plantRepository(db, pool),
+    settings: settingsRepository(db),
+    series: seriesRepository(pool),
+    lab: labRepository(db),
+    wiring: wiringRepository(db),
+    ingest: ingestRepository(db),
+    alarms: alarmRepository(db),
+    stream: streamRepository(pool),
+    balance: balanceRepository(ctx.db),
+    notifications: notificationRepository(db),
+    plantModel: plantModelRepository(db),
+    outbox: outboxReader(db),
+  };
+  const audit = createAuditLog({ auditRepo: repos.audit });
+  const plantAccess = createPlantAccess({ plantRepo: repos.plants });
+  const services = {
+    audit,
+    auth: createAuthService({
+      userRepo: repos.users,
+      audit,
+      clock,
+      passwords: { verify: verifyPassword, dummyHash: dummyPasswordHash },
+      signSession: (userId) => signSession(ctx.sessionKey, userId),
+    }),
+    bootstrap: createBootstrapService({
+      userRepo: repos.users,
+      audit,
+      passwords: { hash: hashPassword, random: randomPassword },
+      admin: { email: ctx.config.adminEmail, password: ctx.config.adminPassword },
+    }),
+    users: createUserService({ userRepo: repos.users, audit, hashPassword, credentialsChanged: (c) => credentialChanged(ctx, c) }),
+    tokens: createTokenService({ tokenRepo: repos.tokens, audit, clock, credentialsChanged: (c) => credentialChanged(ctx, c) }),
+    settings: createSettingsService({ settingsRepo: repos.settings, plantRepo: repos.plants, audit }),
+    plantAccess,
+    plantModel: createPlantModelService({ modelRepo: repos.plantModel, clock }),
+    plantConfig: createPlantConfigService({ modelRepo: repos.plantModel, clock }),
+    ingestStatus: createIngestStatusService({ ingest: repos.ingest, wiring: repos.wiring, clock }),
+    outbox: createOutboxService({ outbox: repos.outbox }),
+    plants: createPlantService({ plantRepo: repos.plants, plantAccess, clock }),
+    series: createSeriesService({ seriesRepo: repos.series, plantRepo: repos.plants, plantAccess, clock }),
+    lab: createLabService({ labRepo: repos.lab, plantAccess, audit }),
+    stream: createStreamService({ hub: streamHub(ctx), plantAccess }),
+    alarms: createAlarmService({
+      alarmRepo: repos.alarms,
+      audit,
+      clock,
+      changed: (a, change) => repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
+    }),
+    wiring: createWiringService({ wiringRepo: repos.wiring, plantAccess, audit, log: ctx.log, ingestRepo: repos.ingest, opcua: createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir }) }),
+  };
+  return { repos, services, clock };
+}
+export type Composition = ReturnType<typeof compose>;
+
+const composed = new WeakMap<AppContext, Composition>();
+function composition(ctx: AppContext): Composition {
+  let c = composed.get(ctx);
+  if (!c) composed.set(ctx, (c = compose(ctx)));
+  return c;
+}
+
+/** The services of this context, wired once. */
+export function services(ctx: AppContext): Composition['services'] {
+  return composition(ctx).services;
+}
+
+/** The repositories of this context (for jobs that build a service with hooks of their own). */
+export function repositories(ctx: AppContext): Composition['repos'] {
+  return composition(ctx).repos;
 }

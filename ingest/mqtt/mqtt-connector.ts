@@ -1,30 +1,23 @@
 import { createHash } from 'node:crypto';
-import mqtt, { type IClientOptions, type MqttClient, type Packet } from 'mqtt';
+import mqtt, { type IPublishPacket, type MqttClient } from 'mqtt';
+import mqttPacket from 'mqtt-packet';
 import type { Logger } from 'pino';
-import { z } from 'zod';
+import type { MqttSourceOptions } from '../../shared/contracts/wiring.ts';
 import { sourceStatusBase, type Connector, type ConnectorStatus, type ConnectionState, type SourceConfig } from '../connector.ts';
 import { TagSet } from '../pipeline/tag-set.ts';
 import type { TagConfig } from '../pipeline/types.ts';
 import type { BatchWriter } from '../sink/batch-writer.ts';
 import type { Discovery } from './discovery.ts';
 import { MqttMessageHandler } from './message-handler.ts';
+import { ncmdTopic, rebirthPayload } from './sparkplug.ts';
+import { connectOptions, fallbackProtocol, firstProtocol, mqttOptionsOf, type ProtocolLevel } from './mqtt-connection.ts';
 
-/** `sources.options` for an MQTT source, validated (house rule 3). */
-export const mqttSourceOptions = z
-  .object({
-    /** Topic filters to subscribe to; `#` lets discovery list everything the broker carries. */
-    topics: z.array(z.string().min(1)).min(1).default(['#']),
-    /** 5 = MQTT 5.0, 4 = MQTT 3.1.1, 'auto' = try 5.0 and fall back to 3.1.1 if the broker refuses it. */
-    protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).default('auto'),
-    /** Overrides the generated client identifier (it must be stable for the session to persist). */
-    clientId: z.string().min(1).max(128).optional(),
-    keepalive_s: z.number().int().min(5).max(3600).default(30),
-  })
-  .strip();
-export type MqttSourceOptions = z.infer<typeof mqttSourceOptions>;
-
-/** MQTT 3.1.1 CONNACK return code 1 and MQTT 5.0 reason code 0x84: protocol version refused. */
-const UNSUPPORTED_PROTOCOL = new Set([1, 0x84]);
+/**
+ * How a held PUBACK leaves (see the class comment). `pipelined` is the product's;
+ * `serial` holds mqtt.js's handleMessage callback until the commit, the stock way, and exists so
+ * tests/bench/ingest.bench.ts (`--stock`) can measure what pipelining is worth.
+ */
+export type AckMode = 'pipelined' | 'serial';
 
 interface HeldAck {
   messageId: number;
@@ -32,6 +25,8 @@ interface HeldAck {
   /** Kept to fingerprint the message if its connection closes before the PUBACK (rare; hashed only then). */
   topic: string;
   payload: Buffer;
+  /** serial mode: mqtt.js's handleMessage callback, which sends the PUBACK. */
+  release?: () => void;
 }
 
 function fingerprint(topic: string, payload: Buffer): string {
@@ -41,14 +36,12 @@ function fingerprint(topic: string, payload: Buffer): string {
 /** How many committed-but-unacknowledged messages are remembered across a reconnect. */
 const MAX_REMEMBERED = 100_000;
 
-/** The mqtt.js 5.16 internal every outgoing packet goes through (private in its typings). */
-interface PacketSender {
-  _sendPacket(packet: Packet, cb?: (err?: Error) => void, cbStorePut?: () => void, noStore?: boolean): void;
-}
-type AckingClient = MqttClient;
-function sender(c: MqttClient): PacketSender {
-  return c as unknown as PacketSender;
-}
+/**
+ * What handleMessage passes to its callback for a message whose PUBACK ingest sends itself:
+ * mqtt.js then sends no PUBACK and goes on to the next packet (mqtt.js 5.16
+ * lib/handlers/publish.js, QoS 1: `if (err) return done(err)` before `_sendPacket(puback)`).
+ */
+const ACK_HELD = new Error('PUBACK held until the message is committed');
 
 /**
  * One MQTT source: a persistent session and QoS 1 subscriptions, acknowledging each PUBLISH only
@@ -57,22 +50,27 @@ function sender(c: MqttClient): PacketSender {
  * - Session: Clean Start = 0 with a fixed Client Identifier (MQTT 5.0 §3.1.2.4, §3.1.3.1) and,
  *   on 5.0, Session Expiry Interval = 0xFFFFFFFF (§3.1.2.11.2) so the broker keeps the
  *   subscriptions and queued QoS 1 messages while ingest is away; on reconnect it resends every
- *   PUBLISH that was not acknowledged (§4.4).
- * - Acknowledgement: mqtt.js 5.16 handles incoming packets one at a time and only moves on once
- *   the handler of the current one completes, so delaying its `customHandleAcks` callback until
- *   a batch commits would admit one message per batch (and that option is ignored on MQTT
- *   3.1.1 anyway). Instead the message is taken from the 'message' event, which mqtt.js emits
- *   synchronously before it sends the PUBACK; the PUBACK is then intercepted and held, and
- *   written when the batch writer acknowledges the message. Acks are released in the order messages arrived, as
- *   required for QoS 1 (§4.6). PUBACKs held for a connection that has since closed are dropped:
- *   the broker will resend those messages and the primary key turns the copy into a no-op.
+ *   PUBLISH that was not acknowledged (§4.4). Connect options and the 5.0 → 3.1.1 fallback come
+ *   from ./mqtt-connection.ts, as for the API's connection test.
+ * - Acknowledgement, through mqtt.js's public hook `handleMessage(packet, callback)`: mqtt.js
+ *   handles incoming packets strictly one at a time and sends a QoS 1 PUBACK, then reads the next
+ *   packet, only when that callback is called (lib/client.js `work`/`nextTickWork`). Holding the
+ *   callback until the commit (`serial`) would therefore admit one message per batch commit.
+ *   Instead (`pipelined`) the callback is called at once with ACK_HELD, so mqtt.js sends no
+ *   PUBACK and moves on, and the PUBACK is written after the commit with mqtt-packet's public
+ *   `generate` onto the client's `stream`; all PUBACKs one commit releases leave as one write.
+ *   Acks are released in the order messages arrived, as required for QoS 1 (MQTT 3.1.1 §4.6).
+ *   PUBACKs held for a connection that has since closed are dropped: the broker will resend
+ *   those messages and they are recognised (committedUnacked) or absorbed by the primary key.
  * - Flow control: Receive Maximum (§3.1.2.11.3) is set to the maximum so a batch of held acks
  *   does not stall delivery; the writer's time-based flush bounds how long any ack is held.
+ * - Backpressure (BatchWriter.onPressure): while the writer's backlog is high the handleMessage
+ *   callback is held, so mqtt.js reads no further; TCP flow control keeps the excess in the broker.
  * - Reconnect: exponential back-off from 1 s to 30 s.
  */
 export class MqttConnector implements Connector {
   readonly sourceId: number;
-  private client: AckingClient | null = null;
+  private client: MqttClient | null = null;
   private tags = new TagSet();
   private handler: MqttMessageHandler;
   private opts: MqttSourceOptions;
@@ -85,13 +83,15 @@ export class MqttConnector implements Connector {
    * samples would be absorbed by the primary key, dead letters would not.
    */
   private committedUnacked = new Map<number, string>();
-  private protocol: 4 | 5;
+  private protocol: ProtocolLevel;
   private state: ConnectionState = 'connecting';
   private lastError: string | null = null;
   private connectedAt: number | null = null;
   private lastMessageAt: number | null = null;
   private counters = { messages: 0, samples: 0, unmapped: 0, deadLetters: 0, suppressed: 0, reconnects: 0, outstanding: 0, redelivered: 0 };
   private closing = false;
+  /** The message the 'message' event just took and whether ingest holds its PUBACK; read by handleMessage. */
+  private current: { packet: IPublishPacket; held: boolean } | null = null;
   /** mqtt.js's callback for the message being handled while intake is paused (at most one). */
   private stalled: (() => void) | null = null;
   /** Messages whose PUBACK is written at the end of this tick (see flushAcks). */
@@ -102,15 +102,15 @@ export class MqttConnector implements Connector {
     private source: SourceConfig,
     tags: readonly TagConfig[],
     private writer: BatchWriter,
-    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean; discovery?: Discovery },
+    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean; discovery?: Discovery; acks?: AckMode },
   ) {
     this.sourceId = source.id;
-    const parsed = mqttSourceOptions.safeParse(source.options ?? {});
-    this.opts = parsed.success ? parsed.data : mqttSourceOptions.parse({});
-    if (!parsed.success) this.lastError = `invalid source options, using defaults: ${parsed.error.issues.map((i) => i.message).join('; ')}`;
-    this.protocol = this.opts.protocolVersion === 4 ? 4 : 5;
+    const { options, error } = mqttOptionsOf(source);
+    this.opts = options;
+    this.lastError = error;
+    this.protocol = firstProtocol(this.opts);
     this.tags.update(tags);
-    this.handler = new MqttMessageHandler(source.id, this.tags, ctx.discovery);
+    this.handler = new MqttMessageHandler(source.id, this.tags, ctx.discovery, { payload: this.opts.payload, requestRebirth: this.opts.requestRebirth });
     this.offPressure = writer.onPressure((high) => {
       if (high) return;
       const resume = this.stalled;
@@ -124,43 +124,39 @@ export class MqttConnector implements Connector {
     return this.opts.clientId ?? `${this.ctx.clientIdPrefix}-${this.source.id}`;
   }
 
+  private get serial(): boolean {
+    return this.ctx.acks === 'serial';
+  }
+
   private connect(): void {
-    const options: IClientOptions = {
-      clientId: this.clientId,
-      clean: false,
-      protocolVersion: this.protocol,
-      keepalive: this.opts.keepalive_s,
-      reconnectPeriod: 1_000,
-      connectTimeout: 10_000,
-      resubscribe: false,
-      queueQoSZero: false,
-      // mqtt.js calls its `debug` logger several times per packet even when tracing is off;
-      // a no-op logger saves that at 50 000 messages a second (DEBUG=mqttjs* turns it back on).
-      ...(this.ctx.trace ? {} : { log: () => {} }),
-      ...(this.source.username ? { username: this.source.username } : {}),
-      ...(this.source.secret ? { password: this.source.secret } : {}),
-      ...(this.protocol === 5 ? { properties: { sessionExpiryInterval: 0xffffffff, receiveMaximum: 65535 } } : {}),
-    };
-    const client = mqtt.connect(this.source.url, options);
+    const client = mqtt.connect(
+      this.source.url,
+      connectOptions(this.source, this.opts, this.protocol, {
+        clientId: this.clientId,
+        clean: false,
+        reconnectPeriod: 1_000,
+        connectTimeout: 10_000,
+        resubscribe: false,
+        queueQoSZero: false,
+        // mqtt.js calls its `log` function several times per packet even when tracing is off;
+        // a no-op one (a public option) saves that at 50 000 messages a second (DEBUG=mqttjs* turns it back on).
+        ...(this.ctx.trace ? {} : { log: () => {} }),
+        ...(this.protocol === 5 ? { properties: { sessionExpiryInterval: 0xffffffff, receiveMaximum: 65535 } } : {}),
+      }),
+    );
     this.client = client;
-    const internals = sender(client);
-    const send = internals._sendPacket.bind(client);
-    internals._sendPacket = (packet, cb, cbStorePut, noStore) => {
-      if (packet.cmd === 'puback' && packet.messageId !== undefined && this.held.has(packet.messageId)) {
-        cb?.();
-        return;
-      }
-      send(packet, cb, cbStorePut, noStore);
-    };
-    // Backpressure (BatchWriter.onPressure): mqtt.js handles incoming packets one at a time and
-    // reads no further until handleMessage calls back, so holding the callback while the writer's
-    // backlog is high stops reading the socket; TCP flow control then keeps the excess in the
-    // broker. The callback of a connection that has closed is dropped with it (a new connection
-    // gets a new parser).
-    client.handleMessage = (_packet, callback) => {
-      if (!this.writer.underPressure || this.client !== client) return callback();
+    // Called by mqtt.js right after the 'message' event of the same PUBLISH (lib/handlers/publish.js).
+    client.handleMessage = (packet, callback) => {
+      const cur = this.current;
+      this.current = null;
+      const held = cur !== null && cur.packet === packet && cur.held;
+      // serial: the callback (mqtt.js's PUBACK) waits in the HeldAck until the commit.
+      const go = held && this.serial ? () => {} : held ? () => callback(ACK_HELD) : () => callback();
+      if (held && this.serial) this.held.get((packet as IPublishPacket).messageId!)!.release = () => callback();
+      if (!this.writer.underPressure || this.client !== client) return go();
+      // The callback of a connection that has closed is dropped with it (a new connection gets a new parser).
       this.stalled = () => {
-        if (this.client === client && client.connected) callback();
+        if (this.client === client && client.connected) go();
       };
     };
     client.on('connect', (connack) => {
@@ -184,6 +180,7 @@ export class MqttConnector implements Connector {
       this.generation++;
       this.held.clear();
       this.stalled = null;
+      this.current = null;
       if (this.closing) return;
       this.state = 'reconnecting';
     });
@@ -192,37 +189,36 @@ export class MqttConnector implements Connector {
     });
     client.on('error', (err) => {
       this.lastError = err.message;
-      const code = (err as { code?: number }).code;
-      if (this.opts.protocolVersion === 'auto' && this.protocol === 5 && typeof code === 'number' && UNSUPPORTED_PROTOCOL.has(code)) {
+      const next = fallbackProtocol(this.opts, this.protocol, err);
+      if (next !== null) {
         this.ctx.log.info({ source: this.source.id }, 'broker refused MQTT 5.0; using MQTT 3.1.1');
-        this.protocol = 4;
+        this.protocol = next;
         client.end(true);
         this.connect();
         return;
       }
       this.state = 'error';
     });
-    client.on('message', (_topic, payload, packet) => {
+    client.on('message', (topic, payload, packet) => {
+      this.current = { packet, held: false };
       if (packet.qos === 1 && packet.messageId !== undefined) {
-        // Registered before mqtt.js sends the PUBACK, which the _sendPacket wrapper then holds.
         // Only a packet identifier left over from a closed connection can be a redelivery of a
         // stored message; the digest is computed just for those.
         const remembered = this.committedUnacked.size ? this.committedUnacked.get(packet.messageId) : undefined;
-        if (remembered !== undefined && remembered === fingerprint(packet.topic, payload)) {
-          // Already stored: let mqtt.js send its PUBACK now and write nothing.
+        if (remembered !== undefined && remembered === fingerprint(topic, payload)) {
+          // Already stored: mqtt.js sends its PUBACK now and nothing is written.
           this.committedUnacked.delete(packet.messageId);
           this.counters.redelivered++;
           return;
         }
-        const h: HeldAck = { messageId: packet.messageId, generation: this.generation, topic: packet.topic, payload };
+        const h: HeldAck = { messageId: packet.messageId, generation: this.generation, topic, payload };
         this.held.set(packet.messageId, h);
-        // Nothing to store (unmapped, deadband): mqtt.js's own PUBACK, which follows this event,
-        // is let through — releasing it here as well would acknowledge the identifier twice, and
-        // a second PUBACK could acknowledge the broker's next message under the reused identifier.
-        if (!this.process(packet.topic, payload, h)) this.held.delete(packet.messageId);
+        // Nothing to store (unmapped, deadband): mqtt.js's own PUBACK goes at once.
+        if (this.process(topic, payload, h)) this.current.held = true;
+        else this.held.delete(packet.messageId);
       } else {
         // QoS 0 has no acknowledgement (we subscribe with QoS 1, so the broker downgrades QoS 2 to 1).
-        this.process(packet.topic, payload, undefined);
+        this.process(topic, payload, undefined);
       }
     });
   }
@@ -244,6 +240,7 @@ export class MqttConnector implements Connector {
     this.counters.unmapped += r.unmapped;
     this.counters.deadLetters += r.deadLetters.length;
     this.counters.suppressed += r.suppressed;
+    if (r.rebirth) this.requestRebirth(r.rebirth.group, r.rebirth.node, now);
     if (r.samples.length === 0 && r.deadLetters.length === 0) return false;
     if (!held) {
       this.writer.enqueue(r.samples, r.deadLetters);
@@ -257,6 +254,23 @@ export class MqttConnector implements Connector {
     return true;
   }
 
+  /**
+   * The one message ingest ever publishes, and only on a source with `requestRebirth: true` (the
+   * handler returns a rebirth only then, at most once per edge node per minute): the Sparkplug
+   * rebirth command to an edge node whose aliases ingest does not know (Sparkplug 3.0 §4.2.1
+   * NCMD, QoS 0 and retain false per tck-id-topics-ncmd-mqtt).
+   */
+  private requestRebirth(group: string, node: string, now: number): void {
+    const client = this.client;
+    if (!this.opts.requestRebirth || !client?.connected) return;
+    const topic = ncmdTopic(group, node);
+    client.publish(topic, rebirthPayload(now), { qos: 0, retain: false }, (err) => {
+      if (err) this.ctx.log.warn({ source: this.source.id, topic, err: err.message }, 'rebirth request not sent');
+    });
+    this.handler.sparkplug?.rebirthSent();
+    this.ctx.log.info({ source: this.source.id, topic }, 'Sparkplug rebirth requested');
+  }
+
   /** Sends a held PUBACK if its connection is still the current one. */
   private release(h: HeldAck): void {
     if (h.generation !== this.generation) {
@@ -265,6 +279,7 @@ export class MqttConnector implements Connector {
     }
     if (this.held.get(h.messageId) !== h) return;
     this.held.delete(h.messageId);
+    if (h.release) return h.release();
     if (this.ackQueue.length === 0) process.nextTick(this.flushAcks);
     this.ackQueue.push(h);
   }
@@ -276,14 +291,10 @@ export class MqttConnector implements Connector {
   }
 
   /**
-   * Writes the PUBACKs released in this tick as one buffer. A commit releases thousands at once;
-   * one write of 4 bytes each instead of an encoder call, a cork and a socket write apiece —
-   * about a tenth of ingest's CPU per message in tests/bench/ingest.bench.ts. The encoding is
-   * the same for both protocol levels: MQTT 3.1.1 §3.4 (type 4, remaining length 2, packet
-   * identifier) and MQTT 5.0 §3.4.2.1, where a remaining length of 2 means reason code 0x00
-   * (Success) with no properties. The packets go in arrival order (§4.6). All of one tick's
-   * PUBACKs belong to one connection; if it closed before this runs, they are remembered as
-   * release() remembers a late commit.
+   * Writes the PUBACKs released in this tick, encoded by mqtt-packet for the session's protocol
+   * level (MQTT 3.1.1 §3.4; MQTT 5.0 §3.4, reason code Success), in arrival order (§4.6), as one
+   * buffer: a commit releases thousands at once. All of one tick's PUBACKs belong to one
+   * connection; if it closed before this runs, they are remembered as release() remembers a late commit.
    */
   private flushAcks = (): void => {
     const held = this.ackQueue;
@@ -293,13 +304,8 @@ export class MqttConnector implements Connector {
       for (const h of held) this.remember(h);
       return;
     }
-    const buf = Buffer.allocUnsafe(held.length * 4);
-    for (let i = 0, o = 0; i < held.length; i++, o += 4) {
-      buf[o] = 0x40;
-      buf[o + 1] = 0x02;
-      buf.writeUInt16BE(held[i]!.messageId, o + 2);
-    }
-    client.stream.write(buf);
+    const opts = { protocolVersion: this.protocol };
+    client.stream.write(Buffer.concat(held.map((h) => mqttPacket.generate({ cmd: 'puback', messageId: h.messageId }, opts))));
   };
 
   updateTags(tags: readonly TagConfig[]): void {
@@ -324,6 +330,8 @@ export class MqttConnector implements Connector {
         invalidFilters: this.handler.invalidFilters,
         /** Redeliveries of messages already stored, acknowledged without writing them again. */
         redelivered: this.counters.redelivered,
+        payload: this.opts.payload,
+        ...(this.handler.sparkplug ? { sparkplug: this.handler.sparkplug.status() } : {}),
       },
     };
   }

@@ -1,4 +1,4 @@
-import { createHash, randomBytes } from 'node:crypto';
+import { hash, randomBytes } from 'node:crypto';
 
 /** Token secrets: "fst_" + 32 random bytes. 256 bits of entropy make a plain SHA-256 a safe stored form. */
 export function newTokenSecret(): string {
@@ -6,7 +6,8 @@ export function newTokenSecret(): string {
 }
 
 export function hashToken(secret: string): string {
-  return createHash('sha256').update(secret).digest('hex');
+  // One-shot hash (no Hash object per request; same digest as createHash).
+  return hash('sha256', secret, 'hex');
 }
 
 export function tokenPrefix(secret: string): string {

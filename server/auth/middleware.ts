@@ -4,8 +4,11 @@ import type { AppContext } from '../app-context.ts';
 import { ForbiddenError, UnauthorizedError } from '../http/errors.ts';
 import { tokenRepository, userRepository } from '../repositories/user.repository.ts';
 import { hashToken } from './api-tokens.ts';
-import { SESSION_COOKIE, verifySession } from './session.ts';
+import { CredentialCache, credentialCache } from './credential-cache.ts';
+import { SESSION_COOKIE, verifySessionClaims } from './session.ts';
 import type { Principal } from './principal.ts';
+
+const TOUCH_EVERY_MS = 60_000;
 
 function minRole(a: Role, b: Role): Role {
   return roleRank(a) <= roleRank(b) ? a : b;
@@ -14,27 +17,48 @@ function minRole(a: Role, b: Role): Role {
 /**
  * Resolves the caller from `Authorization: Bearer <token>` or the session cookie and puts it on
  * `req.principal`. It never rejects by itself: `requireRole` decides. A Bearer header that does
- * not resolve is remembered so the 401 can say why.
+ * not resolve is remembered so the 401 can say why. Resolved callers are kept a short while in
+ * the credential cache (`credential-cache.ts`: dropped at once on revocation or user change).
  */
 export function authenticate(ctx: AppContext) {
   const users = userRepository(ctx.db.db);
   const tokens = tokenRepository(ctx.db.db);
+  const cache = credentialCache(ctx);
+  /** Token id → when its last-used time was last written by this process [epoch ms]. */
+  const touched = new Map<number, number>();
   return async (req: Request, _res: Response, next: NextFunction) => {
     const header = req.headers.authorization;
     if (header !== undefined) {
       const m = /^Bearer\s+(\S+)$/i.exec(header);
-      const row = m ? await tokens.byHashWithUser(hashToken(m[1]!)) : undefined;
-      const now = Date.now();
-      if (row && !row.token.revokedAt && row.token.expiresAt.getTime() > now && !row.user.disabled) {
-        req.principal = {
-          userId: row.user.id,
-          email: row.user.email,
-          role: minRole(row.token.role, row.user.role),
-          tokenId: row.token.id,
-          plantIds: row.token.plantIds ?? null,
-        } satisfies Principal;
-        // Last-used is informative; do not hold the request for it.
-        tokens.touch(row.token.id).catch(() => {});
+      const tokenHash = m ? hashToken(m[1]!) : null;
+      const key = tokenHash ? CredentialCache.tokenKey(tokenHash) : null;
+      let principal = key ? cache.get(key) : undefined;
+      if (!principal && tokenHash) {
+        const generation = cache.generation;
+        const row = await tokens.byHashWithUser(tokenHash);
+        const now = Date.now();
+        if (row && !row.token.revokedAt && row.token.expiresAt.getTime() > now && !row.user.disabled) {
+          principal = {
+            userId: row.user.id,
+            email: row.user.email,
+            role: minRole(row.token.role, row.user.role),
+            tokenId: row.token.id,
+            plantIds: row.token.plantIds ?? null,
+          } satisfies Principal;
+          cache.set(key!, principal, generation, row.token.expiresAt.getTime());
+        }
+      }
+      if (principal) {
+        req.principal = principal;
+        // Last-used is informative (shown in the token list): written at most once a minute per
+        // token, and the request does not wait for it.
+        const now = Date.now();
+        const tokenId = principal.tokenId!;
+        if (now - (touched.get(tokenId) ?? 0) >= TOUCH_EVERY_MS) {
+          if (touched.size >= 10_000) touched.clear();
+          touched.set(tokenId, now);
+          tokens.touch(tokenId).catch(() => {});
+        }
       } else {
         (req as Request & { authFailure?: string }).authFailure = 'the API token is unknown, revoked or expired';
       }
@@ -42,10 +66,18 @@ export function authenticate(ctx: AppContext) {
     }
     const cookie = (req.cookies as Record<string, string> | undefined)?.[SESSION_COOKIE];
     if (cookie) {
-      const userId = await verifySession(ctx.sessionKey, cookie);
-      const user = userId ? await users.byId(userId) : undefined;
-      if (user && !user.disabled) {
+      const key = CredentialCache.sessionKey(cookie);
+      const cached = cache.get(key);
+      if (cached) {
+        req.principal = cached;
+        return next();
+      }
+      const generation = cache.generation;
+      const claims = await verifySessionClaims(ctx.sessionKey, cookie);
+      const user = claims ? await users.byId(claims.userId) : undefined;
+      if (claims && user && !user.disabled) {
         req.principal = { userId: user.id, email: user.email, role: user.role, tokenId: null, plantIds: null };
+        cache.set(key, req.principal, generation, claims.expiresAt_ms);
       }
     }
     next();

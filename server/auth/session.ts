@@ -29,10 +29,16 @@ export async function signSession(key: Uint8Array, userId: number): Promise<stri
 
 /** The user id of a valid session token, or null (expired, forged, malformed). */
 export async function verifySession(key: Uint8Array, token: string): Promise<number | null> {
+  return (await verifySessionClaims(key, token))?.userId ?? null;
+}
+
+/** The user id and expiry [epoch ms] of a valid session token, or null (expired, forged, malformed). */
+export async function verifySessionClaims(key: Uint8Array, token: string): Promise<{ userId: number; expiresAt_ms: number } | null> {
   try {
     const { payload } = await jwtVerify(token, key, { issuer: 'flocstream', algorithms: ['HS256'] });
     const id = Number(payload.sub);
-    return Number.isInteger(id) && id > 0 ? id : null;
+    if (!Number.isInteger(id) || id <= 0 || payload.exp === undefined) return null;
+    return { userId: id, expiresAt_ms: payload.exp * 1000 };
   } catch {
     return null;
   }

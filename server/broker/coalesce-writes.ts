@@ -16,6 +16,13 @@
  * 'drain' before it delivers more to a slow client); `end()` sends what is gathered first.
  * A connection that is destroyed drops what is gathered, as a destroyed socket drops its
  * buffered writes. Latency: at most one turn of the event loop.
+ *
+ * How: the embedded broker creates the socket and wraps its public `write()` and `end()` before
+ * handing it to aedes (`broker.handle(stream)` takes any duplex stream); nothing of aedes,
+ * mqtt-packet or Node's stream internals is touched. Measured with `npm run bench:ingest --
+ * --stock` (2026-12-02, host under heavy load, medians of three rounds): single-value QoS 1
+ * 10 278/s kept against 7 199/s with aedes writing to the socket itself (+43 %); broker CPU
+ * 12 against 17 µs per message, ingest 12 against 15 (fewer, larger TCP segments to read).
  */
 import type net from 'node:net';
 

@@ -3,8 +3,8 @@
  * `await Aedes.createBroker()`; the old default-export factory throws) on a plain TCP server,
  * in-memory persistence: aedes-persistence's memory store with indexed outgoing queues
  * (./indexed-persistence.ts — the stock one slows down quadratically with messages in flight),
- * each connection's writes gathered per turn of the event loop (./coalesce-writes.ts), and its
- * PUBLISH and PUBACK packets parsed in place (./publish-fast-path.ts).
+ * and each connection's writes gathered per turn of the event loop (./coalesce-writes.ts).
+ * Packets are parsed and written by aedes and mqtt-packet as they ship.
  *
  * Protocol versions: aedes 1.2 speaks MQTT 3.1 and 3.1.1 only; an MQTT 5 CONNECT is refused
  * with CONNACK return code 1, "unacceptable protocol version" (aedes README: "MQTT 5.0 — not
@@ -18,7 +18,6 @@ import net from 'node:net';
 import { Aedes } from 'aedes';
 import { coalesceWrites } from './coalesce-writes.ts';
 import { IndexedMemoryPersistence } from './indexed-persistence.ts';
-import { fastPathForAedesClient } from './publish-fast-path.ts';
 
 export interface EmbeddedBroker {
   url: string;
@@ -27,23 +26,36 @@ export interface EmbeddedBroker {
 }
 
 /**
- * What the embedded broker does with each new TCP connection: its writes gathered, then aedes'
- * client for it with the parser fast path in front. The durable test broker
- * (tests/integration/ingest/helpers.ts) accepts its connections the same way.
+ * The two adapters the embedded broker runs on, each switchable to aedes' stock behaviour so
+ * tests/bench/ingest.bench.ts (`--stock`) can measure what each is worth in the same run.
  */
-export function acceptConnection(broker: Aedes, conn: net.Socket): void {
-  coalesceWrites(conn);
-  fastPathForAedesClient(broker.handle(conn) as unknown as Parameters<typeof fastPathForAedesClient>[0]);
+export interface BrokerAdapters {
+  /** ./indexed-persistence.ts instead of aedes-persistence's memory store. */
+  indexedPersistence: boolean;
+  /** ./coalesce-writes.ts on every connection instead of aedes writing to the socket itself. */
+  gatheredWrites: boolean;
 }
 
-export async function startEmbeddedBroker(opts: { host?: string; port: number }): Promise<EmbeddedBroker> {
+export const KEPT_ADAPTERS: BrokerAdapters = { indexedPersistence: true, gatheredWrites: true };
+
+/**
+ * What the embedded broker does with each new TCP connection. The durable test broker
+ * (tests/integration/ingest/helpers.ts) accepts its connections the same way.
+ */
+export function acceptConnection(broker: Aedes, conn: net.Socket, adapters: BrokerAdapters = KEPT_ADAPTERS): void {
+  if (adapters.gatheredWrites) coalesceWrites(conn);
+  broker.handle(conn);
+}
+
+export async function startEmbeddedBroker(opts: { host?: string; port: number; adapters?: BrokerAdapters }): Promise<EmbeddedBroker> {
   const host = opts.host ?? '127.0.0.1';
-  const broker = await Aedes.createBroker({ persistence: new IndexedMemoryPersistence() });
+  const adapters = opts.adapters ?? KEPT_ADAPTERS;
+  const broker = await Aedes.createBroker(adapters.indexedPersistence ? { persistence: new IndexedMemoryPersistence() } : {});
   // A misbehaving client must never take the process down: aedes reports per-client errors
   // as events; without a listener Node would throw them.
   broker.on('clientError', () => {});
   broker.on('connectionError', () => {});
-  const server = net.createServer((conn) => acceptConnection(broker, conn));
+  const server = net.createServer((conn) => acceptConnection(broker, conn, adapters));
   const sockets = new Set<net.Socket>();
   server.on('connection', (s) => {
     sockets.add(s);

@@ -10,6 +10,9 @@
  * so thousands of messages are in flight at once and delivery became quadratic: a persistent
  * QoS 1 subscriber got about 14 000 messages/s where a clean-session one got 30 000
  * (tests/bench/ingest.bench.ts). Here both lookups are hash lookups and removal is O(1).
+ * `npm run bench:ingest -- --stock` (2026-12-02, host under heavy load, medians of three
+ * rounds): single-value QoS 1 10 278/s against 7 367/s with the stock store (+40 %); broker CPU
+ * 12 against 28 µs per message. It plugs in through aedes' documented `persistence` option.
  *
  * Semantics kept from the stock store (MQTT 3.1.1 §4.4, message delivery retry; §4.6 ordering):
  * the queue is kept in arrival order and streamed in that order on reconnect; outgoingUpdate

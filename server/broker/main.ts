@@ -1,18 +1,30 @@
 /**
  * The embedded broker as a process of its own:
  *
- *   node <BROKER_NODE_ARGS> --import tsx server/broker/main.ts <host> <port>
+ *   node <BROKER_NODE_ARGS> --import tsx server/broker/main.ts <host> <port> [--stock-persistence] [--stock-writes]
  *
  * A process of its own gives the broker a core's worth of event loop that the API's requests do
  * not share (at tens of thousands of messages a second the broker is the busiest thing on the
  * machine) and its own garbage-collection settings (./process.ts). Prints one line matching
  * BROKER_READY once listening. SIGTERM or SIGINT closes the broker (clients are disconnected, the
- * port is freed) and exits 0; a port that cannot be bound is reported and exits 1.
+ * port is freed) and exits 0; a port that cannot be bound is reported and exits 1. The two
+ * `--stock-…` switches run aedes' own store or socket writes instead of an adapter
+ * (./embedded-broker.ts BrokerAdapters): only `npm run bench:ingest -- --stock` passes them.
  */
-import './quiet-debug.ts';
-import { startEmbeddedBroker } from './embedded-broker.ts';
+import { KEPT_ADAPTERS, startEmbeddedBroker } from './embedded-broker.ts';
 
-const [host = '127.0.0.1', portArg = ''] = process.argv.slice(2);
+const args = process.argv.slice(2);
+const flags = new Set(args.filter((a) => a.startsWith('--')));
+const [host = '127.0.0.1', portArg = ''] = args.filter((a) => !a.startsWith('--'));
+const unknown = [...flags].filter((f) => f !== '--stock-persistence' && f !== '--stock-writes');
+if (unknown.length) {
+  console.error(`unknown option ${unknown.join(', ')}; known: --stock-persistence, --stock-writes`);
+  process.exit(2);
+}
+const adapters = {
+  indexedPersistence: KEPT_ADAPTERS.indexedPersistence && !flags.has('--stock-persistence'),
+  gatheredWrites: KEPT_ADAPTERS.gatheredWrites && !flags.has('--stock-writes'),
+};
 const port = Number(portArg);
 if (!Number.isInteger(port) || port < 0 || port > 65_535) {
   console.error(`usage: server/broker/main.ts <host> <port>; "${portArg}" is not a TCP port`);
@@ -20,7 +32,7 @@ if (!Number.isInteger(port) || port < 0 || port > 65_535) {
 }
 
 try {
-  const broker = await startEmbeddedBroker({ host, port });
+  const broker = await startEmbeddedBroker({ host, port, adapters });
   console.log(`embedded MQTT broker listening at ${broker.url}`);
   let closing = false;
   const close = () => {

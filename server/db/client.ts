@@ -1,5 +1,7 @@
 import { drizzle, type NodePgDatabase } from 'drizzle-orm/node-postgres';
 import pg from 'pg';
+import type { Logger } from 'pino';
+import { PgListener } from './pg-listener.ts';
 import * as schema from './schema/index.ts';
 
 export type Db = NodePgDatabase<typeof schema>;
@@ -7,6 +9,8 @@ export type Db = NodePgDatabase<typeof schema>;
 export interface Database {
   pool: pg.Pool;
   db: Db;
+  /** The one LISTEN connection of this database (made on first call, ended by `close()`). */
+  listener(log: Logger): PgListener;
   close(): Promise<void>;
 }
 
@@ -18,5 +22,14 @@ export function openDatabase(url: string, opts: { max?: number } = {}): Database
   // An idle client losing its connection (database restart) must not crash the process.
   pool.on('error', () => {});
   const db = drizzle(pool, { schema });
-  return { pool, db, close: () => pool.end() };
+  let listener: PgListener | undefined;
+  return {
+    pool,
+    db,
+    listener: (log) => (listener ??= new PgListener(url, log)),
+    close: async () => {
+      await listener?.stop();
+      await pool.end();
+    },
+  };
 }

@@ -38,6 +38,11 @@ export class NotFoundError extends HttpError {
     super(404, 'not_found', message);
   }
 }
+export class UnsupportedMediaTypeError extends HttpError {
+  constructor(message: string) {
+    super(415, 'unsupported_media_type', message);
+  }
+}
 export class ConflictError extends HttpError {
   constructor(message: string) {
     super(409, 'conflict', message);

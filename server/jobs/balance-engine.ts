@@ -1,17 +1,13 @@
 import { Queue, Worker, createPostgresBackend, type Job } from 'bullmq';
 import type { AlarmOut } from '../../shared/contracts/alarm.ts';
 import type { Balance } from '../../shared/contracts/balance.ts';
-import type { AppContext } from '../app-context.ts';
+import { repositories, services, type AppContext } from '../app-context.ts';
 import { NotFoundError } from '../http/errors.ts';
 import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
-import { balanceRepository } from '../repositories/balance.repository.ts';
-import { alarmService } from '../services/alarm.service.ts';
+import { createAlarmService } from '../services/alarm.service.ts';
 import { readBalanceInputs } from '../services/balance-inputs.service.ts';
-import { labRepository } from '../repositories/lab.repository.ts';
 import { computeBalance } from '../../shared/domain/balance/assemble.ts';
-import { mailService } from '../services/mail.service.ts';
-import { settingsService } from '../services/settings.service.ts';
-import { notifyStream } from '../services/stream.service.ts';
+import { createMailService, smtpTransport } from '../services/mail.service.ts';
 
 export const BALANCE_QUEUE = 'flocstream-balance';
 /** How often the plant list and the intervals/cron settings are re-read into job schedulers [ms]. */
@@ -105,9 +101,10 @@ function balanceHeadline(id: number, b: Balance) {
  */
 export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOptions = {}): Promise<BalanceEngine> {
   const now = opts.now ?? Date.now;
-  const settings = settingsService(ctx);
-  const repo = balanceRepository(ctx.db);
-  const lab = labRepository(ctx.db.db);
+  const { settings, audit } = services(ctx);
+  const repos = repositories(ctx);
+  const repo = repos.balance;
+  const lab = repos.lab;
   let catcher: MailCatcher | null = null;
   if (!ctx.config.smtpUrl && opts.mailCatcher !== false) {
     const port = opts.catcherPort ?? (await settings.effective(0))['mail.catcher_port'];
@@ -115,13 +112,15 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
     ctx.log.info({ url: catcher.url }, 'mail catcher listening (messages stored in mail_outbox)');
   }
   const mailUrl = ctx.config.smtpUrl ?? catcher?.url ?? null;
-  const mail = mailUrl ? mailService(ctx, mailUrl, { catcher: !ctx.config.smtpUrl }) : null;
+  const mail = mailUrl
+    ? createMailService({ transport: smtpTransport(mailUrl, { catcher: !ctx.config.smtpUrl }), settings, notificationRepo: repos.notifications, balanceRepo: repo, alarmRepo: repos.alarms, log: ctx.log })
+    : null;
 
   const onAlarm = async (a: AlarmOut, change: 'raised' | 'acknowledged' | 'cleared') => {
-    await notifyStream(ctx.db.pool, a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed'));
+    await repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed'));
     if (change === 'raised' && mail) await mail.alarm(a);
   };
-  const alarms = alarmService(ctx, { changed: onAlarm });
+  const alarms = createAlarmService({ alarmRepo: repos.alarms, audit, clock: now, changed: onAlarm });
 
   async function runOnce(plantId: number): Promise<Balance> {
     const s = await settings.effective(plantId);
@@ -130,7 +129,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
     if (!inputs) throw new NotFoundError(`no plant ${plantId}`);
     const b = computeBalance(inputs, s);
     const id = await repo.insert(b);
-    await notifyStream(ctx.db.pool, plantId, 'balance', balanceHeadline(id, b)).catch((err) => ctx.log.warn({ err }, 'balance notify failed'));
+    await repos.stream.notify(plantId, 'balance', balanceHeadline(id, b)).catch((err) => ctx.log.warn({ err }, 'balance notify failed'));
     await alarms.evaluate(b, s, t);
     return { ...b, id };
   }

@@ -47,3 +47,4 @@ export function alarmRepository(db: Db) {
     },
   };
 }
+export type AlarmRepository = ReturnType<typeof alarmRepository>;

@@ -44,3 +44,4 @@ export function labRepository(db: Db) {
     },
   };
 }
+export type LabRepository = ReturnType<typeof labRepository>;

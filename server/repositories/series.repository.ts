@@ -89,3 +89,4 @@ export function seriesRepository(pool: pg.Pool) {
     },
   };
 }
+export type SeriesRepository = ReturnType<typeof seriesRepository>;

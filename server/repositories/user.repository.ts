@@ -95,3 +95,5 @@ export function tokenRepository(db: Db) {
     },
   };
 }
+export type UserRepository = ReturnType<typeof userRepository>;
+export type TokenRepository = ReturnType<typeof tokenRepository>;

@@ -1,19 +1,12 @@
-import type { Request } from 'express';
-import type { z } from 'zod';
 import { alarmAckParams, alarmAckRequest, alarmOut } from '../../shared/contracts/alarm.ts';
-import type { AppContext } from '../app-context.ts';
-import { assertPlantAccess } from '../auth/middleware.ts';
-import type { RouteDef } from '../http/route.ts';
-import { alarmService } from '../services/alarm.service.ts';
-import { notifyStream } from '../services/stream.service.ts';
+import { services, type AppContext } from '../app-context.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 
 /** Alarm actions (the alarm list is GET /plants/:plantId/alarms in plants.routes.ts). */
 export function alarmsRoutes(ctx: AppContext): RouteDef[] {
-  const svc = alarmService(ctx, {
-    changed: (a, change) => notifyStream(ctx.db.pool, a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
-  });
+  const { alarms } = services(ctx);
   return [
-    {
+    defineRoute({
       method: 'post',
       path: '/plants/:plantId/alarms/:alarmId/ack',
       role: 'operator',
@@ -22,11 +15,7 @@ export function alarmsRoutes(ctx: AppContext): RouteDef[] {
       params: alarmAckParams,
       body: alarmAckRequest,
       response: alarmOut,
-      handler: (req: Request) => {
-        const p = req.valid.params as z.infer<typeof alarmAckParams>;
-        assertPlantAccess(req, p.plantId);
-        return svc.acknowledge(req, p.plantId, p.alarmId, (req.valid.body as z.infer<typeof alarmAckRequest>).comment);
-      },
-    },
+      handler: ({ params, body, principal }) => alarms.acknowledge(principal, params.plantId, params.alarmId, body.comment),
+    }),
   ];
 }

@@ -1,4 +1,3 @@
-import type { Request } from 'express';
 import type { z } from 'zod';
 import {
   dynamicSrtRequest,
@@ -18,23 +17,24 @@ import {
 } from '../../shared/contracts/calc.ts';
 import { calcDynamicSrt, calcSettler, calcStormTimeline, calcSrt, calcStatePoint, calcStorm, calcSvi } from '../../shared/domain/calculators.ts';
 import type { AppContext } from '../app-context.ts';
-import type { RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 
 /**
  * Stateless calculators: the same shared/domain code the live balance engine runs. Any signed-in
  * role or token may call them; they read nothing and write nothing, so they are not audited.
  */
 export function calcRoutes(_ctx: AppContext): RouteDef[] {
-  const calc = <Req extends z.ZodType, Res extends z.ZodType>(path: string, summary: string, body: Req, response: Res, fn: (r: z.infer<Req>) => z.infer<Res>): RouteDef => ({
-    method: 'post',
-    path: `/calc/${path}`,
-    role: 'analyst',
-    tag: 'calculators',
-    summary,
-    body,
-    response,
-    handler: (req: Request) => fn(req.valid.body as z.infer<Req>),
-  });
+  const calc = <Req extends z.ZodType, Res extends z.ZodType>(path: string, summary: string, body: Req, response: Res, fn: (r: z.output<Req>) => z.input<Res>): RouteDef =>
+    defineRoute({
+      method: 'post',
+      path: `/calc/${path}`,
+      role: 'analyst',
+      tag: 'calculators',
+      summary,
+      body,
+      response,
+      handler: ({ body }) => fn(body),
+    });
   return [
     calc('storm', 'Storm projection: RAS concentration needed, equilibrium MLSS with the return flow held, sludge moved to the clarifiers, checks', stormRequest, stormResponse, calcStorm),
     calc('state-point', 'State point analysis (solids-flux theory with Vesilind settling)', statePointRequest, statePointResponse, calcStatePoint),

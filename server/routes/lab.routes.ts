@@ -1,12 +1,10 @@
-import express, { type Request, type Response } from 'express';
-import { labImportResponse, labResultInput, labResultOut, labResultsQuery, labResultsResponse, type LabResultInput, type LabResultsQuery } from '../../shared/contracts/lab.ts';
-import { plantParams, type PlantParams } from '../../shared/contracts/plant-api.ts';
-import type { AppContext } from '../app-context.ts';
+import express from 'express';
+import { labImportResponse, labResultInput, labResultOut, labResultsQuery, labResultsResponse } from '../../shared/contracts/lab.ts';
+import { plantParams } from '../../shared/contracts/plant-api.ts';
+import { services, type AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
-import { HttpError } from '../http/errors.ts';
-import type { RouteDef } from '../http/route.ts';
-import { LAB_CSV_EXPORT_COLUMNS, labCsvRows, labService } from '../services/lab.service.ts';
-import { plantService } from '../services/plant.service.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
+import { LAB_CSV_EXPORT_COLUMNS, labCsvRows } from '../services/lab.service.ts';
 
 /** Largest CSV upload [bytes]; 1 MiB holds far more than the row limit of a day's lab sheet. */
 export const LAB_CSV_MAX_BYTES = 1 << 20;
@@ -20,11 +18,9 @@ const csvBody = express.text({ type: ['text/csv', 'text/plain', 'application/csv
  * audited. Import policy: all or nothing (see the import summary).
  */
 export function labRoutes(ctx: AppContext): RouteDef[] {
-  const plants = plantService(ctx);
-  const lab = labService(ctx);
-  const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
+  const { lab } = services(ctx);
   return [
-    {
+    defineRoute({
       method: 'get',
       path: '/plants/:plantId/lab-results',
       role: 'analyst',
@@ -34,16 +30,14 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       query: labResultsQuery,
       csv: true,
       response: labResultsResponse,
-      handler: async (req: Request, res: Response) => {
-        const q = req.valid.query as LabResultsQuery;
-        await plants.requirePlant(req, pid(req));
-        const out = await lab.list(pid(req), q, q.limit ?? DEFAULT_LIMIT);
+      handler: async ({ params, query, principal, req, res }) => {
+        const out = await lab.list(principal, params.plantId, query, query.limit ?? DEFAULT_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-lab-results.csv`, LAB_CSV_EXPORT_COLUMNS, labCsvRows(out.results));
       },
-    },
-    {
+    }),
+    defineRoute({
       method: 'post',
       path: '/plants/:plantId/lab-results',
       role: 'operator',
@@ -54,12 +48,9 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: labResultInput,
       response: labResultOut,
-      handler: async (req: Request) => {
-        await plants.requirePlant(req, pid(req));
-        return lab.create(req, pid(req), req.valid.body as LabResultInput);
-      },
-    },
-    {
+      handler: ({ params, body, principal }) => lab.create(principal, params.plantId, body),
+    }),
+    defineRoute({
       method: 'post',
       path: '/plants/:plantId/lab-results/import',
       role: 'operator',
@@ -70,11 +61,7 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       before: [csvBody],
       response: labImportResponse,
-      handler: async (req: Request) => {
-        await plants.requirePlant(req, pid(req));
-        if (typeof req.body !== 'string') throw new HttpError(415, 'unsupported_media_type', 'send the file as the request body with Content-Type: text/csv');
-        return lab.importCsv(req, pid(req), req.body);
-      },
-    },
+      handler: ({ params, principal, req }) => lab.importCsv(principal, params.plantId, typeof req.body === 'string' ? req.body : undefined),
+    }),
   ];
 }

@@ -1,4 +1,3 @@
-import type { Request, Response } from 'express';
 import { z } from 'zod';
 import {
   alarmsQuery,
@@ -14,18 +13,13 @@ import {
   tableQuery,
   tagParams,
   tagsResponse,
-  type AlarmsQuery,
-  type BalanceHistoryQuery,
-  type PlantParams,
-  type SamplesQuery,
-  type TagParams,
 } from '../../shared/contracts/plant-api.ts';
-import type { AppContext } from '../app-context.ts';
+import { services, type AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
-import type { RouteDef } from '../http/route.ts';
-import { flattenRows } from '../services/csv.service.ts';
-import { ALARM_CSV_COLUMNS, plantService } from '../services/plant.service.ts';
-import { SAMPLE_CSV_COLUMNS, sampleCsvRows, seriesService } from '../services/series.service.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
+import { displayColumns, flattenRows, sampleCsv } from '../services/csv.service.ts';
+import { ALARM_CSV_COLUMNS, assertPlantScope } from '../services/plant.service.ts';
+import { liveBalanceCache } from '../services/live-balance-cache.ts';
 
 const DEFAULT_LIST_LIMIT = 500;
 const DEFAULT_HISTORY_LIMIT = 5000;
@@ -37,12 +31,11 @@ const DEFAULT_HISTORY_LIMIT = 5000;
  * `cursor` + `limit` (nextCursor in the JSON body, `Link: rel="next"` and `X-Next-Cursor` headers).
  */
 export function plantsRoutes(ctx: AppContext): RouteDef[] {
-  const plants = plantService(ctx);
-  const series = seriesService(ctx);
+  const { plants, series, plantAccess } = services(ctx);
+  const live = liveBalanceCache(ctx);
   const common = { role: 'analyst' as const, tag: 'plants' };
-  const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
   return [
-    {
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants',
@@ -50,22 +43,22 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: tableQuery,
       csv: true,
       response: z.array(plantSummary),
-      handler: async (req: Request, res: Response) => {
-        const list = await plants.list(req);
+      handler: async ({ principal, req, res }) => {
+        const list = await plants.list(principal);
         if (!wantsCsv(req)) return list;
         sendCsv(res, 'plants.csv', ['id', 'code', 'name', 'timezone', 'peakFlow_m3h', 'createdAt'], list.map((p) => [p.id, p.code, p.name, p.timezone, p.peakFlow_m3h, p.createdAt]));
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId',
       summary: 'A plant and its layout: trains with basins, clarifiers and pumps; peak flow',
       params: plantParams,
       response: plantLayoutOut,
-      handler: (req: Request) => plants.layout(req, pid(req)),
-    },
-    {
+      handler: ({ params, principal }) => plants.layout(principal, params.plantId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/tags',
@@ -74,8 +67,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: tableQuery,
       csv: true,
       response: tagsResponse,
-      handler: async (req: Request, res: Response) => {
-        const out = await plants.tags(req, pid(req));
+      handler: async ({ params, principal, req, res }) => {
+        const out = await plants.tags(principal, params.plantId);
         if (!wantsCsv(req)) return out;
         const cols = ['id', 'name', 'unit', 'value', 'ts', 'age_s', 'stale', 'quality', 'qualityCode', 'qualityFlags', 'sourceKind', 'sourceName', 'signals', 'expectedPeriod_s', 'enabled', 'description'];
         sendCsv(
@@ -88,8 +81,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
           ]),
         );
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/tags/:tagId/samples',
@@ -99,26 +92,36 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: samplesQuery,
       csv: true,
       response: samplesResponse,
-      handler: async (req: Request, res: Response) => {
-        const { plantId, tagId } = req.valid.params as TagParams;
-        await plants.requirePlant(req, plantId);
-        const out = await series.samples(plantId, tagId, req.valid.query as SamplesQuery);
+      handler: async ({ params: { plantId, tagId }, query, principal, req, res }) => {
+        const out = await series.samples(principal, plantId, tagId, query);
         setNextPage(req, res, out.nextCursor);
         res.setHeader('X-Resolution', out.resolution);
         if (!wantsCsv(req)) return out;
-        sendCsv(res, `tag-${tagId}-samples.csv`, SAMPLE_CSV_COLUMNS, sampleCsvRows(out.points));
+        // CSV is for people: in the plant's unit system, the unit in the header (JSON stays SI).
+        const plant = await plantAccess.requirePlant(principal, plantId);
+        const csv = sampleCsv(out.points, out.unit, plant.unitSystem);
+        sendCsv(res, `tag-${tagId}-samples.csv`, csv.columns, csv.cells);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/balance/live',
       summary: 'The latest balance computation; 200 with balance: null and a reason when none has been computed yet (404 only for an unknown plant)',
       params: plantParams,
       response: balanceLiveResponse,
-      handler: (req: Request) => plants.balanceLive(req, pid(req)),
-    },
-    {
+      handler: async ({ params, principal, res }) => {
+        // The plant scope first (403 before anything is read); a balance in memory means the plant exists.
+        assertPlantScope(principal, params.plantId);
+        const text = live.answer(params.plantId);
+        if (text !== undefined) return void res.type('json').send(text);
+        const generation = live.generation(params.plantId);
+        const out = await plants.balanceLive(principal, params.plantId);
+        if (out.balance) live.store(params.plantId, out.balance, generation);
+        return out;
+      },
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/balance/history',
@@ -127,16 +130,16 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: balanceHistoryQuery,
       csv: true,
       response: balanceHistoryResponse,
-      handler: async (req: Request, res: Response) => {
-        const q = req.valid.query as BalanceHistoryQuery;
-        const out = await plants.balanceHistory(req, pid(req), q, q.limit ?? DEFAULT_HISTORY_LIMIT);
+      handler: async ({ params, query: q, principal, req, res }) => {
+        const out = await plants.balanceHistory(principal, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
-        const flat = flattenRows(out.rows);
+        const plant = await plantAccess.requirePlant(principal, params.plantId);
+        const flat = displayColumns(flattenRows(out.rows), plant.unitSystem);
         sendCsv(res, `plant-${out.plantId}-balances.csv`, flat.columns, flat.cells);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/alarms',
@@ -145,13 +148,12 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       query: alarmsQuery,
       csv: true,
       response: alarmsResponse,
-      handler: async (req: Request, res: Response) => {
-        const q = req.valid.query as AlarmsQuery;
-        const out = await plants.alarms(req, pid(req), q, q.limit ?? DEFAULT_LIST_LIMIT);
+      handler: async ({ params, query: q, principal, req, res }) => {
+        const out = await plants.alarms(principal, params.plantId, q, q.limit ?? DEFAULT_LIST_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-alarms.csv`, ALARM_CSV_COLUMNS, out.alarms.map((a) => ALARM_CSV_COLUMNS.map((c) => a[c])));
       },
-    },
+    }),
   ];
 }

@@ -1,13 +1,13 @@
-import type { Request } from 'express';
-import { putSettingsRequest, settingsOut, settingsQuery, type PutSettingsRequest } from '../../shared/contracts/settings.ts';
-import type { AppContext } from '../app-context.ts';
-import type { RouteDef } from '../http/route.ts';
-import { settingsService } from '../services/settings.service.ts';
+import { putSettingsRequest, settingsOut, settingsQuery } from '../../shared/contracts/settings.ts';
+import { services, type AppContext } from '../app-context.ts';
+import { ForbiddenError } from '../http/errors.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
+import { assertPlantScope } from '../services/plant.service.ts';
 
 export function settingsRoutes(ctx: AppContext): RouteDef[] {
-  const svc = settingsService(ctx);
+  const svc = services(ctx).settings;
   return [
-    {
+    defineRoute({
       method: 'get',
       path: '/settings',
       role: 'analyst',
@@ -15,9 +15,13 @@ export function settingsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Effective settings (thresholds, SRT target, windows, mail) for a plant (?plantId=, 0 = global), with defaults and where each value comes from',
       query: settingsQuery,
       response: settingsOut,
-      handler: (req: Request) => svc.describe((req.valid.query as { plantId: number }).plantId),
-    },
-    {
+      handler: ({ query, principal }) => {
+        // A plant-scoped token reads its plants' settings (and the global level), no others.
+        if (query.plantId !== 0) assertPlantScope(principal, query.plantId);
+        return svc.describe(query.plantId);
+      },
+    }),
+    defineRoute({
       method: 'put',
       path: '/settings',
       role: 'admin',
@@ -25,7 +29,11 @@ export function settingsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Set values for a plant (plantId 0 = global); null removes an override; audited',
       body: putSettingsRequest,
       response: settingsOut,
-      handler: (req: Request) => svc.put(req, req.valid.body as PutSettingsRequest),
-    },
+      handler: ({ body, principal }) => {
+        if (body.plantId === 0 && principal.plantIds) throw new ForbiddenError('a plant-scoped token cannot change the global settings');
+        if (body.plantId !== 0) assertPlantScope(principal, body.plantId);
+        return svc.put(principal, body);
+      },
+    }),
   ];
 }

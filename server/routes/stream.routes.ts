@@ -1,16 +1,13 @@
-import type { Request, Response } from 'express';
-import { plantParams, streamQuery, STREAM_EVENTS, type PlantParams, type StreamEventName } from '../../shared/contracts/plant-api.ts';
-import type { AppContext } from '../app-context.ts';
-import type { RouteDef } from '../http/route.ts';
-import { plantService } from '../services/plant.service.ts';
-import { serveStream, streamHub } from '../services/stream.service.ts';
+import { plantParams, streamQuery, STREAM_EVENTS, type StreamEventName } from '../../shared/contracts/plant-api.ts';
+import { services, type AppContext } from '../app-context.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
+import { sendSse } from '../http/sse.ts';
 
 /** Live stream of a plant as Server-Sent Events (server/services/stream.service.ts has the wire details). */
 export function streamRoutes(ctx: AppContext): RouteDef[] {
-  const plants = plantService(ctx);
-  const hub = streamHub(ctx);
+  const { stream } = services(ctx);
   return [
-    {
+    defineRoute({
       method: 'get',
       path: '/plants/:plantId/stream',
       role: 'analyst',
@@ -20,13 +17,10 @@ export function streamRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       query: streamQuery,
       produces: 'text/event-stream',
-      handler: async (req: Request, res: Response) => {
-        const { plantId } = req.valid.params as PlantParams;
-        await plants.requirePlant(req, plantId);
-        const wanted = (req.valid.query as { events?: string }).events;
-        const events = new Set<StreamEventName>(wanted ? (wanted.split(',') as StreamEventName[]) : STREAM_EVENTS);
-        await serveStream(hub, req, res, plantId, events);
+      handler: async ({ params, query, principal, req, res }) => {
+        const events = new Set<StreamEventName>(query.events ? (query.events.split(',') as StreamEventName[]) : STREAM_EVENTS);
+        await sendSse(req, res, await stream.open(principal, params.plantId, events));
       },
-    },
+    }),
   ];
 }

@@ -1,39 +1,22 @@
-import type { Request } from 'express';
 import { z } from 'zod';
-import { createTokenRequest, createTokenResponse, idParam, tokenOut, type CreateTokenRequest, type TokenOut } from '../../shared/contracts/auth.ts';
-import { roleAtLeast } from '../../shared/contracts/roles.ts';
-import type { AppContext } from '../app-context.ts';
-import { hashToken, newTokenSecret, tokenPrefix } from '../auth/api-tokens.ts';
-import { ForbiddenError, NotFoundError } from '../http/errors.ts';
-import type { RouteDef } from '../http/route.ts';
-import { tokenRepository } from '../repositories/user.repository.ts';
-import { audit } from '../services/audit.service.ts';
-
-type TokenRow = Awaited<ReturnType<ReturnType<typeof tokenRepository>['listForUser']>>[number];
-function out(t: TokenRow): TokenOut {
-  return {
-    ...t,
-    expiresAt: t.expiresAt.toISOString(),
-    revokedAt: t.revokedAt?.toISOString() ?? null,
-    lastUsedAt: t.lastUsedAt?.toISOString() ?? null,
-    createdAt: t.createdAt.toISOString(),
-  };
-}
+import { createTokenRequest, createTokenResponse, idParam, tokenOut } from '../../shared/contracts/auth.ts';
+import { services, type AppContext } from '../app-context.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 
 /** The caller's own API tokens. Any role may hold tokens, with a role no higher than its own. */
 export function tokensRoutes(ctx: AppContext): RouteDef[] {
-  const repo = tokenRepository(ctx.db.db);
+  const { tokens } = services(ctx);
   const common = { role: 'analyst' as const, sessionOnly: true, tag: 'tokens' };
   return [
-    {
+    defineRoute({
       ...common,
       method: 'get',
       path: '/tokens',
       summary: 'List my API tokens (secrets are never shown again)',
       response: z.array(tokenOut),
-      handler: async (req: Request) => (await repo.listForUser(req.principal!.userId)).map(out),
-    },
-    {
+      handler: ({ principal }) => tokens.list(principal),
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/tokens',
@@ -41,30 +24,16 @@ export function tokensRoutes(ctx: AppContext): RouteDef[] {
       status: 201,
       body: createTokenRequest,
       response: createTokenResponse,
-      handler: async (req: Request) => {
-        const body = req.valid.body as CreateTokenRequest;
-        const p = req.principal!;
-        if (!roleAtLeast(p.role, body.role)) throw new ForbiddenError(`a token cannot have a higher role (${body.role}) than yours (${p.role})`);
-        const secret = newTokenSecret();
-        const expiresAt = new Date(Date.now() + body.expiresInDays * 86_400_000);
-        const row = await repo.insert({ userId: p.userId, name: body.name, role: body.role, tokenHash: hashToken(secret), prefix: tokenPrefix(secret), plantIds: body.plantIds ?? null, expiresAt });
-        await audit(ctx, req, 'token.create', `token:${row.id}`, { name: body.name, role: body.role, expiresAt: expiresAt.toISOString(), plantIds: body.plantIds ?? null });
-        return { id: row.id, token: secret, expiresAt: expiresAt.toISOString() };
-      },
-    },
-    {
+      handler: ({ body, principal }) => tokens.create(principal, body),
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/tokens/:id',
       summary: 'Revoke one of my API tokens',
       params: idParam,
       response: z.object({ ok: z.literal(true) }),
-      handler: async (req: Request) => {
-        const { id } = req.valid.params as { id: number };
-        if (!(await repo.revoke(req.principal!.userId, id))) throw new NotFoundError(`no active token ${id} of yours`);
-        await audit(ctx, req, 'token.revoke', `token:${id}`);
-        return { ok: true as const };
-      },
-    },
+      handler: ({ params, principal }) => tokens.revoke(principal, params.id),
+    }),
   ];
 }

@@ -1,16 +1,14 @@
-import type { Request } from 'express';
 import { z } from 'zod';
 import { createUserRequest, idParam, updateUserRequest, userOut } from '../../shared/contracts/auth.ts';
-import type { AppContext } from '../app-context.ts';
-import type { RouteDef } from '../http/route.ts';
-import { userService } from '../services/user.service.ts';
+import { services, type AppContext } from '../app-context.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 
 export function usersRoutes(ctx: AppContext): RouteDef[] {
-  const svc = userService(ctx);
+  const svc = services(ctx).users;
   const common = { role: 'admin' as const, sessionOnly: true, tag: 'users' };
   return [
-    { ...common, method: 'get', path: '/users', summary: 'List users', response: z.array(userOut), handler: () => svc.list() },
-    {
+    defineRoute({ ...common, method: 'get', path: '/users', summary: 'List users', response: z.array(userOut), handler: () => svc.list() }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/users',
@@ -18,9 +16,9 @@ export function usersRoutes(ctx: AppContext): RouteDef[] {
       status: 201,
       body: createUserRequest,
       response: userOut,
-      handler: (req: Request) => svc.create(req, req.valid.body as z.infer<typeof createUserRequest>),
-    },
-    {
+      handler: ({ body, principal }) => svc.create(principal, body),
+    }),
+    defineRoute({
       ...common,
       method: 'patch',
       path: '/users/:id',
@@ -28,16 +26,16 @@ export function usersRoutes(ctx: AppContext): RouteDef[] {
       params: idParam,
       body: updateUserRequest,
       response: userOut,
-      handler: (req: Request) => svc.update(req, (req.valid.params as { id: number }).id, req.valid.body as z.infer<typeof updateUserRequest>),
-    },
-    {
+      handler: ({ params, body, principal }) => svc.update(principal, params.id, body),
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/users/:id',
       summary: 'Delete a user (and its tokens)',
       params: idParam,
       response: z.object({ ok: z.literal(true) }),
-      handler: (req: Request) => svc.remove(req, (req.valid.params as { id: number }).id),
-    },
+      handler: ({ params, principal }) => svc.remove(principal, params.id),
+    }),
   ];
 }

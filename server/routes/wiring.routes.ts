@@ -1,6 +1,6 @@
-import express, { type Request } from 'express';
+import express from 'express';
 import { z } from 'zod';
-import { plantParams, type PlantParams } from '../../shared/contracts/plant-api.ts';
+import { plantParams } from '../../shared/contracts/plant-api.ts';
 import {
   browseOut,
   browseQuery,
@@ -22,17 +22,9 @@ import {
   tagImportQuery,
   tagPatch,
   tagsConfigResponse,
-  type MappingPut,
-  type SourceCreate,
-  type SourcePatch,
-  type TagCreate,
-  type TagPatch,
 } from '../../shared/contracts/wiring.ts';
-import type { AppContext } from '../app-context.ts';
-import { HttpError } from '../http/errors.ts';
-import type { RouteDef } from '../http/route.ts';
-import { plantService } from '../services/plant.service.ts';
-import { wiringService } from '../services/wiring.service.ts';
+import { services, type AppContext } from '../app-context.ts';
+import { defineRoute, type RouteDef } from '../http/route.ts';
 
 /** Largest tag-list upload [bytes]. */
 export const TAG_CSV_MAX_BYTES = 1 << 20;
@@ -45,26 +37,19 @@ const deleted = z.object({ deleted: z.literal(true), id: z.number().int() });
  * audited; source passwords are write-only.
  */
 export function wiringRoutes(ctx: AppContext): RouteDef[] {
-  const plants = plantService(ctx);
-  const wiring = wiringService(ctx);
-  const pid = (req: Request) => (req.valid.params as PlantParams).plantId;
-  const sid = (req: Request) => (req.valid.params as { sourceId: number }).sourceId;
-  const tid = (req: Request) => (req.valid.params as { tagId: number }).tagId;
+  const { wiring } = services(ctx);
   const common = { role: 'integrator', tag: 'wiring' } as const;
   return [
-    {
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/sources',
       summary: 'Sources of a plant (MQTT brokers, OPC UA endpoints); passwords are never returned, hasSecret says whether one is stored',
       params: plantParams,
       response: sourcesResponse,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.listSources(pid(req));
-      },
-    },
-    {
+      handler: ({ params, principal }) => wiring.listSources(principal, params.plantId),
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/plants/:plantId/sources',
@@ -74,21 +59,18 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: sourceCreate,
       response: sourceOut,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.createSource(req, pid(req), req.valid.body as SourceCreate);
-      },
-    },
-    {
+      handler: ({ params, body, principal }) => wiring.createSource(principal, params.plantId, body),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/sources/:sourceId',
       summary: 'One source with its tag count; the password is never returned (hasSecret)',
       params: sourceParams,
       response: sourceOut,
-      handler: (req) => wiring.getSource(req, sid(req)),
-    },
-    {
+      handler: ({ params, principal }) => wiring.getSource(principal, params.sourceId),
+    }),
+    defineRoute({
       ...common,
       method: 'patch',
       path: '/sources/:sourceId',
@@ -96,9 +78,9 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       body: sourcePatch,
       response: sourceOut,
-      handler: (req) => wiring.updateSource(req, sid(req), req.valid.body as SourcePatch),
-    },
-    {
+      handler: ({ params, body, principal }) => wiring.updateSource(principal, params.sourceId, body),
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/sources/:sourceId',
@@ -106,18 +88,18 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       query: sourceDeleteQuery,
       response: deleted.extend({ tagsDeleted: z.number().int() }),
-      handler: (req) => wiring.deleteSource(req, sid(req), (req.valid.query as { force?: string }).force === '1'),
-    },
-    {
+      handler: ({ params, query, principal }) => wiring.deleteSource(principal, params.sourceId, query.force === '1'),
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/sources/:sourceId/test',
       summary: 'Test the connection with the stored settings: MQTT CONNECT/CONNACK within 5 s, OPC UA secure channel and session within 8 s; answers ok:false with the error (still 200) when the far end fails',
       params: sourceParams,
       response: connectionTestOut,
-      handler: (req) => wiring.testSource(req, sid(req)),
-    },
-    {
+      handler: ({ params, principal }) => wiring.testSource(principal, params.sourceId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/sources/:sourceId/browse',
@@ -125,30 +107,27 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: sourceParams,
       query: browseQuery,
       response: browseOut,
-      handler: (req) => wiring.browse(req, sid(req), (req.valid.query as { nodeId?: string }).nodeId),
-    },
-    {
+      handler: ({ params, query, principal }) => wiring.browse(principal, params.sourceId, query.nodeId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/sources/:sourceId/discovery',
       summary: 'MQTT source: topics ingest has seen with their last payload (first 256 characters), count and mapped tag; empty with a note until ingest has written the list',
       params: sourceParams,
       response: discoveryOut,
-      handler: (req) => wiring.discovery(req, sid(req)),
-    },
-    {
+      handler: ({ params, principal }) => wiring.discovery(principal, params.sourceId),
+    }),
+    defineRoute({
       ...common,
       method: 'get',
       path: '/plants/:plantId/tags/config',
       summary: 'Tag configuration of a plant (address, scaling, deadband, expected period, range, sampling interval, mapped signals); live values are GET /plants/{plantId}/tags',
       params: plantParams,
       response: tagsConfigResponse,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.listTags(pid(req));
-      },
-    },
-    {
+      handler: ({ params, principal }) => wiring.listTags(principal, params.plantId),
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/plants/:plantId/tags',
@@ -157,12 +136,9 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: tagCreate,
       response: tagConfigOut,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.createTag(req, pid(req), req.valid.body as TagCreate);
-      },
-    },
-    {
+      handler: ({ params, body, principal }) => wiring.createTag(principal, params.plantId, body),
+    }),
+    defineRoute({
       ...common,
       method: 'patch',
       path: '/tags/:tagId',
@@ -170,18 +146,18 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: tagIdParams,
       body: tagPatch,
       response: tagConfigOut,
-      handler: (req) => wiring.updateTag(req, tid(req), req.valid.body as TagPatch),
-    },
-    {
+      handler: ({ params, body, principal }) => wiring.updateTag(principal, params.tagId, body),
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/tags/:tagId',
       summary: 'Delete a tag and its signal mappings (stored samples stay)',
       params: tagIdParams,
       response: deleted,
-      handler: (req) => wiring.deleteTag(req, tid(req)),
-    },
-    {
+      handler: ({ params, principal }) => wiring.deleteTag(principal, params.tagId),
+    }),
+    defineRoute({
       ...common,
       method: 'post',
       path: '/plants/:plantId/tags/import',
@@ -192,17 +168,15 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       query: tagImportQuery,
       before: [csvBody],
       response: tagImportOut,
-      handler: async (req, res) => {
-        await plants.requirePlant(req, pid(req));
-        if (typeof req.body !== 'string') throw new HttpError(415, 'unsupported_media_type', 'send the file as the request body with Content-Type: text/csv');
-        const dryRun = (req.valid.query as { dryRun?: string }).dryRun === '1';
-        const out = await wiring.importCsv(req, pid(req), req.body, dryRun);
+      handler: async ({ params, query, principal, req, res }) => {
+        const dryRun = query.dryRun === '1';
+        const out = await wiring.importCsv(principal, params.plantId, typeof req.body === 'string' ? req.body : undefined, dryRun);
         if (dryRun) res.status(200);
         else res.status(201);
         res.json(out);
       },
-    },
-    {
+    }),
+    defineRoute({
       ...common,
       method: 'put',
       path: '/plants/:plantId/signal-map',
@@ -211,19 +185,16 @@ export function wiringRoutes(ctx: AppContext): RouteDef[] {
       params: plantParams,
       body: mappingPut,
       response: mappingPutOut,
-      handler: async (req) => {
-        await plants.requirePlant(req, pid(req));
-        return wiring.putMapping(req, pid(req), req.valid.body as MappingPut);
-      },
-    },
-    {
+      handler: ({ params, body, principal }) => wiring.putMapping(principal, params.plantId, body),
+    }),
+    defineRoute({
       ...common,
       method: 'delete',
       path: '/signal-map/:id',
       summary: 'Remove one signal mapping',
       params: mappingParams,
       response: deleted,
-      handler: (req) => wiring.deleteMapping(req, (req.valid.params as { id: number }).id),
-    },
+      handler: ({ params, principal }) => wiring.deleteMapping(principal, params.id),
+    }),
   ];
 }

@@ -12,14 +12,14 @@
  * tag-stale / tag-bad alarms report the missing input), and it restarts the on-delay.
  * Process alarms carry the operator caution: the figures are advisory, the licensed operator decides.
  */
-import type { Request } from 'express';
 import { ALARM_PRIORITY, type AlarmOut, type AlarmRule } from '../../shared/contracts/alarm.ts';
 import { OPERATOR_CAUTION, type Balance, type FigureOut } from '../../shared/contracts/balance.ts';
 import type { EffectiveSettings } from '../../shared/contracts/settings.ts';
-import type { AppContext } from '../app-context.ts';
+import type { Clock } from '../app-context.ts';
 import { ConflictError, NotFoundError } from '../http/errors.ts';
-import { alarmRepository, type AlarmRow } from '../repositories/alarm.repository.ts';
-import { audit } from './audit.service.ts';
+import type { AlarmRepository, AlarmRow } from '../repositories/alarm.repository.ts';
+import type { Actor, AuditLog } from './audit.service.ts';
+import { assertPlantScope } from './plant.service.ts';
 
 export interface AlarmCondition {
   rule: AlarmRule;
@@ -165,14 +165,16 @@ export function toAlarmOut(r: AlarmRow): AlarmOut {
   };
 }
 
-export interface AlarmHooks {
-  /** Called for every state change (raise, ack, clear) after it is stored. */
+export interface AlarmServiceDeps {
+  alarmRepo: Pick<AlarmRepository, 'open' | 'raise' | 'clear' | 'get' | 'acknowledge'>;
+  audit: AuditLog;
+  clock: Clock;
+  /** Called for every state change (raise, ack, clear) after it is stored (stream notice, mail). */
   changed?: (a: AlarmOut, change: 'raised' | 'acknowledged' | 'cleared') => Promise<void> | void;
 }
 
 /** Evaluates and stores alarms for balances; acknowledges on request. Holds the on-delay timers of this process. */
-export function alarmService(ctx: AppContext, hooks: AlarmHooks = {}) {
-  const repo = alarmRepository(ctx.db.db);
+export function createAlarmService({ alarmRepo: repo, audit, clock, changed }: AlarmServiceDeps) {
   const pending = new Map<number, Map<string, number>>();
   return {
     /** Applies one balance: raises and clears alarms; returns the changes. */
@@ -196,22 +198,23 @@ export function alarmService(ctx: AppContext, hooks: AlarmHooks = {}) {
           if (row) cleared.push(toAlarmOut(row));
         }
       }
-      for (const a of raised) await hooks.changed?.(a, 'raised');
-      for (const a of cleared) await hooks.changed?.(a, 'cleared');
+      for (const a of raised) await changed?.(a, 'raised');
+      for (const a of cleared) await changed?.(a, 'cleared');
       return { raised, cleared };
     },
     /** ISA-18.2 acknowledge by an operator (audited). A cleared, unacknowledged alarm can be acknowledged too. */
-    async acknowledge(req: Request, plantId: number, alarmId: number, comment?: string): Promise<AlarmOut> {
+    async acknowledge(principal: Actor, plantId: number, alarmId: number, comment?: string): Promise<AlarmOut> {
+      assertPlantScope(principal, plantId);
       const existing = await repo.get(plantId, alarmId);
       if (!existing) throw new NotFoundError(`no alarm ${alarmId} at plant ${plantId}`);
       if (existing.acknowledgedAt) throw new ConflictError(`alarm ${alarmId} was already acknowledged at ${existing.acknowledgedAt.toISOString()}`);
-      const row = await repo.acknowledge(plantId, alarmId, req.principal!.userId, new Date());
+      const row = await repo.acknowledge(plantId, alarmId, principal.userId, new Date(clock()));
       if (!row) throw new ConflictError(`alarm ${alarmId} was acknowledged meanwhile`);
-      await audit(ctx, req, 'alarm.acknowledge', `alarm:${alarmId}`, { plantId, rule: row.rule, target: row.target, state: row.state, ...(comment ? { comment } : {}) });
+      await audit.record(principal, 'alarm.acknowledge', `alarm:${alarmId}`, { plantId, rule: row.rule, target: row.target, state: row.state, ...(comment ? { comment } : {}) });
       const out = toAlarmOut(row);
-      await hooks.changed?.(out, 'acknowledged');
+      await changed?.(out, 'acknowledged');
       return out;
     },
   };
 }
-export type AlarmService = ReturnType<typeof alarmService>;
+export type AlarmService = ReturnType<typeof createAlarmService>;

@@ -1,14 +1,15 @@
 import { INGEST_HEARTBEAT_PERIODS, ingestWorkerStatus, type IngestStatusOut, type IngestWorkerOut, type IngestWorkerStatus } from '../../shared/contracts/wiring.ts';
-import type { AppContext } from '../app-context.ts';
+import type { Clock } from '../app-context.ts';
 import type { Principal } from '../auth/principal.ts';
-import { ingestRepository, type IngestRepository, type IngestWorkerRow } from '../repositories/ingest.repository.ts';
-import { wiringRepository, type WiringRepository } from '../repositories/wiring.repository.ts';
+import type { IngestRepository, IngestWorkerRow } from '../repositories/ingest.repository.ts';
+import type { WiringRepository } from '../repositories/wiring.repository.ts';
 
 const HOUR_MS = 3_600_000;
 
 export interface IngestStatusDeps {
   ingest: Pick<IngestRepository, 'workers'>;
   wiring: Pick<WiringRepository, 'deadLetterCounts' | 'sourcePlants'>;
+  clock: Clock;
 }
 
 /** A worker runs while its heartbeat is younger than three of its periods and it has not stopped. */
@@ -24,11 +25,11 @@ export function workerRunning(w: Pick<IngestWorkerRow, 'heartbeatAge_s' | 'heart
  * `workers` lists each. A plant-scoped principal sees only the sources (and dead letters) of
  * its plants.
  */
-export function ingestStatusService(ctx: AppContext, deps: IngestStatusDeps = { ingest: ingestRepository(ctx.db.db), wiring: wiringRepository(ctx.db.db) }) {
+export function createIngestStatusService(deps: IngestStatusDeps) {
   return {
     async status(principal: Pick<Principal, 'plantIds'> | undefined): Promise<IngestStatusOut> {
       const scope = principal?.plantIds ?? null;
-      const [deadLetters, rows] = await Promise.all([deps.wiring.deadLetterCounts(new Date(Date.now() - HOUR_MS), scope), deps.ingest.workers()]);
+      const [deadLetters, rows] = await Promise.all([deps.wiring.deadLetterCounts(new Date(deps.clock() - HOUR_MS), scope), deps.ingest.workers()]);
       const workers = rows.map((w) => ({ row: w, running: workerRunning(w), status: readStatus(w.status) }));
       if (scope) {
         const plantOf = await deps.wiring.sourcePlants([...new Set(workers.flatMap((w) => w.status?.sources.map((s) => s.sourceId) ?? []))]);
@@ -83,7 +84,7 @@ export function ingestStatusService(ctx: AppContext, deps: IngestStatusDeps = { 
         startedAt: r.startedAt.toISOString(),
         samplesPerSec: statuses.length ? sum((s) => s.samplesPerSec) : null,
         lagMs: statuses.length ? Math.max(...statuses.map((s) => s.lagMs)) : null,
-        spool: statuses.length ? { bytes: sum((s) => s.spool.bytes), files: sum((s) => s.spool.files) } : null,
+        spool: statuses.length ? { bytes: sum((s) => s.spool.bytes), files: sum((s) => s.spool.files), unreadable: statuses.flatMap((s) => s.spool.unreadable), capReached: statuses.some((s) => s.spool.capReached) } : null,
         writer: latest.status?.writer ?? null,
         loadError: statuses.find((s) => s.loadError)?.loadError ?? null,
         sources: statuses.flatMap((s) => s.sources),

@@ -1,4 +1,3 @@
-import type { Request } from 'express';
 import {
   LAB_CSV_COLUMNS,
   LAB_CSV_MAX_ROWS,
@@ -10,13 +9,14 @@ import {
   type LabResultsQuery,
 } from '../../shared/contracts/lab.ts';
 import { settleabilityIndex } from '../../shared/domain/settleability.ts';
-import type { AppContext } from '../app-context.ts';
+import type { Principal } from '../auth/principal.ts';
 import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
-import { BadRequestError, ValidationError } from '../http/errors.ts';
+import { BadRequestError, UnsupportedMediaTypeError, ValidationError } from '../http/errors.ts';
 import { zodFields } from '../http/validate.ts';
-import { labRepository, type LabRow, type NewLabRow } from '../repositories/lab.repository.ts';
-import { audit } from './audit.service.ts';
+import type { LabRepository, LabRow, NewLabRow } from '../repositories/lab.repository.ts';
+import type { Actor, AuditLog } from './audit.service.ts';
 import { parseCsv } from './csv.service.ts';
+import type { PlantAccess } from './plant.service.ts';
 
 export function labOut(r: LabRow): LabResultOut {
   return {
@@ -64,8 +64,13 @@ const isLabCursor = (o: Record<string, unknown>): o is { p: number; ts: string; 
  * stored and the 422 names every bad row by its line and field; a valid file is stored in one
  * transaction and audited as one write.
  */
-export function labService(ctx: AppContext) {
-  const repo = labRepository(ctx.db.db);
+export interface LabServiceDeps {
+  labRepo: Pick<LabRepository, 'locationCodes' | 'insertAll' | 'list'>;
+  plantAccess: PlantAccess;
+  audit: AuditLog;
+}
+
+export function createLabService({ labRepo: repo, plantAccess, audit }: LabServiceDeps) {
 
   function checkLocations(inputs: Array<{ key: string; input: LabResultInput }>, codes: Set<string>, fields: Record<string, string[]>) {
     for (const { key, input } of inputs) {
@@ -76,16 +81,20 @@ export function labService(ctx: AppContext) {
   }
 
   return {
-    async create(req: Request, plantId: number, input: LabResultInput): Promise<LabResultOut> {
+    async create(principal: Actor, plantId: number, input: LabResultInput): Promise<LabResultOut> {
+      await plantAccess.requirePlant(principal, plantId);
       const fields: Record<string, string[]> = {};
       checkLocations([{ key: '', input }], await repo.locationCodes(plantId), fields);
       if (Object.keys(fields).length) throw new ValidationError(fields);
-      const [row] = await repo.insertAll([labRow(plantId, req.principal?.userId ?? null, input)]);
-      await audit(ctx, req, 'lab.create', `lab_result:${row!.id}`, { plantId, kind: row!.kind, value: row!.value, unit: row!.unit, sampledAt: row!.sampledAt.toISOString(), location: row!.location });
+      const [row] = await repo.insertAll([labRow(plantId, principal.userId, input)]);
+      await audit.record(principal, 'lab.create', `lab_result:${row!.id}`, { plantId, kind: row!.kind, value: row!.value, unit: row!.unit, sampledAt: row!.sampledAt.toISOString(), location: row!.location });
       return labOut(row!);
     },
 
-    async importCsv(req: Request, plantId: number, text: string): Promise<{ imported: number; results: LabResultOut[] }> {
+    /** `text` undefined: the upload was not a CSV body (415). */
+    async importCsv(principal: Actor, plantId: number, text: string | undefined): Promise<{ imported: number; results: LabResultOut[] }> {
+      await plantAccess.requirePlant(principal, plantId);
+      if (text === undefined) throw new UnsupportedMediaTypeError('send the file as the request body with Content-Type: text/csv');
       const parsed = parseCsv(text);
       if (!parsed.ok) throw new ValidationError({ [`line.${parsed.line}`]: [parsed.message] }, 'the file is not valid CSV (RFC 4180); nothing was stored');
       const [header, ...records] = parsed.records;
@@ -126,13 +135,13 @@ export function labService(ctx: AppContext) {
       const bad = new Set(Object.keys(fields).map((k) => k.split('.').slice(0, 2).join('.'))).size;
       if (bad) throw new ValidationError(fields, `${bad} of ${records.length} rows have errors (line numbers count the header as line 1); nothing was stored — fix them and upload the whole file again`);
 
-      const userId = req.principal?.userId ?? null;
-      const rows = await repo.insertAll(good.map((g) => labRow(plantId, userId, g.input)));
-      await audit(ctx, req, 'lab.import', `plant:${plantId}`, { plantId, rows: rows.length, ids: rows.map((r) => r.id), kinds: [...new Set(rows.map((r) => r.kind))] });
+      const rows = await repo.insertAll(good.map((g) => labRow(plantId, principal.userId, g.input)));
+      await audit.record(principal, 'lab.import', `plant:${plantId}`, { plantId, rows: rows.length, ids: rows.map((r) => r.id), kinds: [...new Set(rows.map((r) => r.kind))] });
       return { imported: rows.length, results: rows.map(labOut) };
     },
 
-    async list(plantId: number, q: LabResultsQuery, limit: number) {
+    async list(principal: Principal, plantId: number, q: LabResultsQuery, limit: number) {
+      await plantAccess.requirePlant(principal, plantId);
       const before = q.cursor ? decodeCursor('lab', q.cursor, isLabCursor) : undefined;
       if (before && before.p !== plantId) throw new BadRequestError('the cursor belongs to another plant');
       const rows = await repo.list(plantId, { kind: q.kind, location: q.location, from: q.from ? new Date(q.from) : undefined, to: q.to ? new Date(q.to) : undefined, before }, limit + 1);
@@ -143,6 +152,8 @@ export function labService(ctx: AppContext) {
     },
   };
 }
+
+export type LabService = ReturnType<typeof createLabService>;
 
 export const LAB_CSV_EXPORT_COLUMNS = ['id', 'kind', 'value', 'unit', 'location', 'sampledAt', 'settledVolume_mLL', 'mlss_gL', 'dilutionFactor', 'note', 'flags', 'enteredBy', 'createdAt'] as const;
 export function labCsvRows(rows: LabResultOut[]) {

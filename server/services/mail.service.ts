@@ -1,12 +1,12 @@
 import nodemailer, { type SendMailOptions } from 'nodemailer';
+import type { Logger } from 'pino';
 import type { AlarmOut } from '../../shared/contracts/alarm.ts';
 import { OPERATOR_CAUTION, type BalanceData, type FigureOut } from '../../shared/contracts/balance.ts';
-import type { AppContext } from '../app-context.ts';
-import { notifications } from '../db/schema/index.ts';
-import { alarmRepository } from '../repositories/alarm.repository.ts';
-import { balanceRepository } from '../repositories/balance.repository.ts';
+import type { AlarmRepository } from '../repositories/alarm.repository.ts';
+import type { BalanceRepository } from '../repositories/balance.repository.ts';
+import type { NotificationRepository } from '../repositories/notification.repository.ts';
 import { toAlarmOut } from './alarm.service.ts';
-import { settingsService } from './settings.service.ts';
+import type { SettingsService } from './settings.service.ts';
 
 const PRIORITY_WORD = { 1: 'urgent', 2: 'high', 3: 'medium', 4: 'low' } as const;
 
@@ -64,17 +64,33 @@ export function shiftSummaryText(plantName: string, from: Date, to: Date, latest
   return { subject, text: L.join('\n') };
 }
 
-/**
- * E-mail through nodemailer to `url` (SMTP_URL, or the built-in catcher). Every attempt is
- * recorded in `notifications` with its status, so a failed delivery is visible, never silent.
- */
-export function mailService(ctx: AppContext, url: string, opts: { catcher?: boolean } = {}) {
-  // The built-in catcher speaks plain SMTP on loopback only; any other server as its URL says.
+/** The part of a nodemailer transport the mail service uses. */
+export interface MailTransport {
+  sendMail(m: SendMailOptions): Promise<{ messageId: string }>;
+  close(): void;
+}
+
+/** A nodemailer transport to `url` (SMTP_URL, or the built-in catcher, which speaks plain SMTP on loopback only). */
+export function smtpTransport(url: string, opts: { catcher?: boolean } = {}): MailTransport {
   const u = new URL(url);
-  const transport = opts.catcher ? nodemailer.createTransport({ host: u.hostname, port: Number(u.port), secure: false, ignoreTLS: true }) : nodemailer.createTransport(url);
-  const settings = settingsService(ctx);
-  const record = (kind: string, recipients: string[], subject: string, status: string, details: Record<string, unknown> = {}) =>
-    ctx.db.db.insert(notifications).values({ kind, recipients, subject, status, details });
+  return opts.catcher ? nodemailer.createTransport({ host: u.hostname, port: Number(u.port), secure: false, ignoreTLS: true }) : nodemailer.createTransport(url);
+}
+
+export interface MailServiceDeps {
+  transport: MailTransport;
+  settings: Pick<SettingsService, 'effective'>;
+  notificationRepo: Pick<NotificationRepository, 'record'>;
+  balanceRepo: Pick<BalanceRepository, 'plant' | 'latest'>;
+  alarmRepo: Pick<AlarmRepository, 'between'>;
+  log: Pick<Logger, 'warn'>;
+}
+
+/**
+ * E-mail through a transport. Every attempt is recorded in `notifications` with its status, so
+ * a failed delivery is visible, never silent.
+ */
+export function createMailService({ transport, settings, notificationRepo, balanceRepo, alarmRepo, log }: MailServiceDeps) {
+  const record = notificationRepo.record;
   const send = async (kind: string, plantId: number, subject: string, text: string, extra: Record<string, unknown>) => {
     const s = await settings.effective(plantId);
     const to = s['mail.recipients'];
@@ -87,12 +103,12 @@ export function mailService(ctx: AppContext, url: string, opts: { catcher?: bool
       await record(kind, to, subject, 'sent', { ...extra, messageId: info.messageId });
       return true;
     } catch (err) {
-      ctx.log.warn({ err, kind, plantId }, 'mail: sending failed');
+      log.warn({ err, kind, plantId }, 'mail: sending failed');
       await record(kind, to, subject, 'failed', { ...extra, error: (err as Error).message });
       return false;
     }
   };
-  const plantName = async (plantId: number) => (await balanceRepository(ctx.db).plant(plantId))?.name ?? `plant ${plantId}`;
+  const plantName = async (plantId: number) => (await balanceRepo.plant(plantId))?.name ?? `plant ${plantId}`;
   return {
     /** Mails a raised alarm when its priority is within `mail.min_priority`. */
     async alarm(a: AlarmOut): Promise<boolean> {
@@ -104,12 +120,12 @@ export function mailService(ctx: AppContext, url: string, opts: { catcher?: bool
     /** The daily shift summary of the 24 h before `to`. */
     async shiftSummary(plantId: number, to = new Date()): Promise<boolean> {
       const from = new Date(to.getTime() - 86_400_000);
-      const latest = await balanceRepository(ctx.db).latest(plantId);
-      const rows = (await alarmRepository(ctx.db.db).between(plantId, from, to)).map(toAlarmOut);
+      const latest = await balanceRepo.latest(plantId);
+      const rows = (await alarmRepo.between(plantId, from, to)).map(toAlarmOut);
       const m = shiftSummaryText(await plantName(plantId), from, to, latest ? { ts: latest.ts, quality: latest.quality, data: latest.data as BalanceData } : null, rows);
       return send('shift-summary', plantId, m.subject, m.text, { from: from.toISOString(), to: to.toISOString() });
     },
     close: () => transport.close(),
   };
 }
-export type MailService = ReturnType<typeof mailService>;
+export type MailService = ReturnType<typeof createMailService>;

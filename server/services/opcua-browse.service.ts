@@ -1,5 +1,5 @@
 import type { BrowseNode, ConnectionTestOut } from '../../shared/contracts/wiring.ts';
-import type { AppContext } from '../app-context.ts';
+import type pg from 'pg';
 import { HttpError, NotFoundError, ValidationError } from '../http/errors.ts';
 import type { OpcuaEndpoint } from '../../ingest/opcua/opcua-client.ts';
 
@@ -18,8 +18,16 @@ const client = () => import('../../ingest/opcua/opcua-client.ts');
  * same application certificate (kept in the database, copied into `<dataDir>/pki/opcua-client`),
  * so an integrator trusts one Flocstream client on the server.
  */
-export function opcuaBrowseService(ctx: AppContext, timeoutMs = OPCUA_TEST_TIMEOUT_MS) {
-  const identity = async () => (await client()).clientIdentity(ctx.db.pool, ctx.config.dataDir);
+export interface OpcuaBrowseDeps {
+  /** Where the one client certificate is kept (table opcua_client_identity). */
+  pool: pg.Pool;
+  /** The data folder; the certificate is copied under `<dataDir>/pki/opcua-client`. */
+  dataDir: string;
+  timeoutMs?: number;
+}
+
+export function createOpcuaBrowseService({ pool, dataDir, timeoutMs = OPCUA_TEST_TIMEOUT_MS }: OpcuaBrowseDeps) {
+  const identity = async () => (await client()).clientIdentity(pool, dataDir);
   return {
     /** "Test connection": connect and open a session; never throws for a failure of the endpoint. */
     async test(ep: OpcuaEndpoint): Promise<ConnectionTestOut> {
@@ -48,3 +56,4 @@ export function opcuaBrowseService(ctx: AppContext, timeoutMs = OPCUA_TEST_TIMEO
     },
   };
 }
+export type OpcuaBrowseService = ReturnType<typeof createOpcuaBrowseService>;

@@ -1,4 +1,3 @@
-import type { Request } from 'express';
 import type {
   AlarmOut,
   AlarmsQuery,
@@ -11,11 +10,11 @@ import type {
 } from '../../shared/contracts/plant-api.ts';
 import { MAX_POINTS } from '../../shared/contracts/plant-api.ts';
 import { qualityFlags, qualityGrade } from '../../shared/contracts/sample-quality.ts';
-import type { AppContext } from '../app-context.ts';
-import { assertPlantAccess } from '../auth/middleware.ts';
+import type { Clock } from '../app-context.ts';
+import type { Principal } from '../auth/principal.ts';
 import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
-import { BadRequestError, NotFoundError } from '../http/errors.ts';
-import { plantRepository, type AlarmRow, type BalanceRow, type PlantRow } from '../repositories/plant.repository.ts';
+import { BadRequestError, ForbiddenError, NotFoundError } from '../http/errors.ts';
+import type { AlarmRow, BalanceRow, PlantRepository, PlantRow } from '../repositories/plant.repository.ts';
 
 const DAY_MS = 86_400_000;
 /** A tag is stale when its latest value is older than this many expected periods. */
@@ -23,10 +22,10 @@ export const STALE_PERIODS = 3;
 const QUALITY_NAMES = ['good', 'estimated', 'unavailable'] as const;
 
 function summary(p: PlantRow): PlantSummary {
-  return { id: p.id, code: p.code, name: p.name, timezone: p.timezone, peakFlow_m3h: p.peakFlow_m3h, createdAt: p.createdAt.toISOString() };
+  return { id: p.id, code: p.code, name: p.name, timezone: p.timezone, peakFlow_m3h: p.peakFlow_m3h, unitSystem: p.unitSystem, retiredAt: p.retiredAt?.toISOString() ?? null, createdAt: p.createdAt.toISOString() };
 }
 
-function balanceOut(b: BalanceRow): BalanceOut {
+export function balanceOut(b: BalanceRow): BalanceOut {
   return { id: b.id, ts: b.ts.toISOString(), quality: b.quality, data: b.data as Record<string, unknown>, inputs: b.inputs as Record<string, unknown> };
 }
 
@@ -50,27 +49,45 @@ export function alarmOut(a: AlarmRow): AlarmOut {
 const isTsIdCursor = (o: Record<string, unknown>): o is { ts: string; id: number; p: number } => isStr(o.ts) && isNum(o.id) && isNum(o.p);
 const isBalanceCursor = (o: Record<string, unknown>): o is { p: number; f: number; t: number; s: number; a: number } => isNum(o.p) && isNum(o.f) && isNum(o.t) && isNum(o.s) && isNum(o.a);
 
-/** Plants, layout, live tags, balances, alarms. Every plant read goes through `requirePlant`. */
-export function plantService(ctx: AppContext) {
-  const repo = plantRepository(ctx.db.db, ctx.db.pool);
+/** 403 when a plant-scoped token asks for a plant outside its scope. */
+export function assertPlantScope(principal: Principal, plantId: number): void {
+  const scope = principal.plantIds;
+  if (scope && !scope.includes(plantId)) throw new ForbiddenError(`this token is not scoped to plant ${plantId}`);
+}
 
+/** The gate every plant read and write goes through. */
+export interface PlantAccess {
   /** 403 for a plant outside a scoped token (before existence, so scopes do not reveal plants), then 404. */
-  async function requirePlant(req: Request, plantId: number): Promise<PlantRow> {
-    assertPlantAccess(req, plantId);
-    const p = await repo.byId(plantId);
-    if (!p) throw new NotFoundError(`no plant ${plantId}`);
-    return p;
-  }
+  requirePlant(principal: Principal, plantId: number): Promise<PlantRow>;
+}
 
+export function createPlantAccess({ plantRepo }: { plantRepo: Pick<PlantRepository, 'byId'> }): PlantAccess {
   return {
-    requirePlant,
+    async requirePlant(principal, plantId) {
+      assertPlantScope(principal, plantId);
+      const p = await plantRepo.byId(plantId);
+      if (!p) throw new NotFoundError(`no plant ${plantId}`);
+      return p;
+    },
+  };
+}
 
-    async list(req: Request): Promise<PlantSummary[]> {
-      return (await repo.list(req.principal?.plantIds ?? null)).map(summary);
+export interface PlantServiceDeps {
+  plantRepo: Pick<PlantRepository, 'list' | 'layout' | 'liveTags' | 'signals' | 'latestBalance' | 'balanceBuckets' | 'alarms'>;
+  plantAccess: PlantAccess;
+  clock: Clock;
+}
+
+/** Plants, layout, live tags, balances, alarms. Every plant read goes through `requirePlant`. */
+export function createPlantService({ plantRepo: repo, plantAccess, clock }: PlantServiceDeps) {
+  const requirePlant = plantAccess.requirePlant;
+  return {
+    async list(principal: Principal): Promise<PlantSummary[]> {
+      return (await repo.list(principal.plantIds)).map(summary);
     },
 
-    async layout(req: Request, plantId: number): Promise<PlantLayoutOut> {
-      const p = await requirePlant(req, plantId);
+    async layout(principal: Principal, plantId: number): Promise<PlantLayoutOut> {
+      const p = await requirePlant(principal, plantId);
       const l = await repo.layout(plantId);
       return {
         ...summary(p),
@@ -78,15 +95,16 @@ export function plantService(ctx: AppContext) {
           id: t.id,
           code: t.code,
           name: t.name,
-          basins: l.basins.filter((b) => b.trainId === t.id).map(({ id, code, name, volume_m3, aerobic }) => ({ id, code, name, volume_m3, aerobic })),
-          clarifiers: l.clarifiers.filter((c) => c.trainId === t.id).map(({ id, code, name, area_m2, sideWaterDepth_m, count }) => ({ id, code, name, area_m2, sideWaterDepth_m, count })),
-          pumps: l.pumps.filter((x) => x.trainId === t.id).map(({ id, code, name, kind, capacity_m3h }) => ({ id, code, name, kind, capacity_m3h })),
+          // Units out of service now are not part of the plant's current layout.
+          basins: l.basins.filter((b) => b.trainId === t.id && b.inService).map(({ id, code, name, volume_m3, aeratedFraction, sideWaterDepth_m }) => ({ id, code, name, volume_m3, aeratedFraction, sideWaterDepth_m })),
+          clarifiers: l.clarifiers.filter((c) => c.trainId === t.id && c.inService).map(({ id, code, name, area_m2, sideWaterDepth_m, feedDepth_m, count }) => ({ id, code, name, area_m2, sideWaterDepth_m, feedDepth_m, count })),
+          pumps: l.pumps.filter((x) => x.trainId === t.id && x.inService).map(({ id, code, name, kind, capacity_m3h, clarifierId }) => ({ id, code, name, kind, capacity_m3h, clarifierId })),
         })),
       };
     },
 
-    async tags(req: Request, plantId: number): Promise<{ plantId: number; asOf: string; tags: TagLive[] }> {
-      const p = await requirePlant(req, plantId);
+    async tags(principal: Principal, plantId: number): Promise<{ plantId: number; asOf: string; tags: TagLive[] }> {
+      const p = await requirePlant(principal, plantId);
       const [rows, signals, layout] = await Promise.all([repo.liveTags(plantId), repo.signals(plantId), repo.layout(plantId)]);
       const codes = new Map<string, string>([[`plant:${p.id}`, p.code]]);
       for (const t of layout.trains) codes.set(`train:${t.id}`, t.code);
@@ -99,7 +117,7 @@ export function plantService(ctx: AppContext) {
         list.push({ signal: s.signal, targetType: s.targetType, targetId: s.targetId, targetCode: codes.get(`${s.targetType}:${s.targetId}`) ?? null });
         byTag.set(s.tagId, list);
       }
-      const now = Date.now();
+      const now = clock();
       return {
         plantId,
         asOf: new Date(now).toISOString(),
@@ -125,19 +143,19 @@ export function plantService(ctx: AppContext) {
     },
 
     /** The latest balance; `balance: null` with a reason (still 200) when the engine has not computed one yet. */
-    async balanceLive(req: Request, plantId: number) {
-      await requirePlant(req, plantId);
+    async balanceLive(principal: Principal, plantId: number) {
+      await requirePlant(principal, plantId);
       const b = await repo.latestBalance(plantId);
       if (!b) return { plantId, balance: null, age_s: null, reason: 'no balance has been computed for this plant yet' };
-      return { plantId, balance: balanceOut(b), age_s: (Date.now() - b.ts.getTime()) / 1000 };
+      return { plantId, balance: balanceOut(b), age_s: (clock() - b.ts.getTime()) / 1000 };
     },
 
     /**
      * Balances bucketed by step (each bucket reports its last computation, how many there were and
      * the worst quality among them), ascending. The step is raised so the window has ≤ 2000 buckets.
      */
-    async balanceHistory(req: Request, plantId: number, q: BalanceHistoryQuery, limit: number) {
-      await requirePlant(req, plantId);
+    async balanceHistory(principal: Principal, plantId: number, q: BalanceHistoryQuery, limit: number) {
+      await requirePlant(principal, plantId);
       let from: number, to: number, step_s: number, after: number | null;
       if (q.cursor) {
         const c = decodeCursor('balance-history', q.cursor, isBalanceCursor);
@@ -145,7 +163,7 @@ export function plantService(ctx: AppContext) {
         if ((q.from && Date.parse(q.from) !== c.f) || (q.to && Date.parse(q.to) !== c.t)) throw new BadRequestError('from and to must be those of the query the cursor came from (or be left out)');
         ({ f: from, t: to, s: step_s, a: after } = c);
       } else {
-        to = q.to ? Date.parse(q.to) : Date.now();
+        to = q.to ? Date.parse(q.to) : clock();
         from = q.from ? Date.parse(q.from) : to - DAY_MS;
         step_s = Math.max(q.step ?? 1, Math.ceil((to - from) / 1000 / MAX_POINTS));
         after = null;
@@ -170,8 +188,8 @@ export function plantService(ctx: AppContext) {
       return { plantId, from: new Date(lo).toISOString(), to: new Date(hi).toISOString(), step_s, rows: out, nextCursor };
     },
 
-    async alarms(req: Request, plantId: number, q: AlarmsQuery, limit: number) {
-      await requirePlant(req, plantId);
+    async alarms(principal: Principal, plantId: number, q: AlarmsQuery, limit: number) {
+      await requirePlant(principal, plantId);
       const before = q.cursor ? decodeCursor('alarms', q.cursor, isTsIdCursor) : undefined;
       if (before && before.p !== plantId) throw new BadRequestError('the cursor belongs to another plant');
       const rows = await repo.alarms(plantId, { state: q.state, from: q.from ? new Date(q.from) : undefined, to: q.to ? new Date(q.to) : undefined, before }, limit + 1);
@@ -182,6 +200,6 @@ export function plantService(ctx: AppContext) {
     },
   };
 }
-export type PlantService = ReturnType<typeof plantService>;
+export type PlantService = ReturnType<typeof createPlantService>;
 
 export const ALARM_CSV_COLUMNS = ['id', 'rule', 'target', 'priority', 'state', 'message', 'value', 'limit', 'raisedAt', 'acknowledgedAt', 'acknowledgedBy', 'clearedAt'] as const;

@@ -1,10 +1,12 @@
 import { MAX_POINTS, type Agg, type Resolution, type SamplePoint, type SamplesQuery, type SamplesResponse } from '../../shared/contracts/plant-api.ts';
 import { qualityFlags, qualityGrade } from '../../shared/contracts/sample-quality.ts';
-import type { AppContext } from '../app-context.ts';
+import type { Clock } from '../app-context.ts';
+import type { Principal } from '../auth/principal.ts';
 import { BadRequestError, NotFoundError } from '../http/errors.ts';
 import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
-import { plantRepository } from '../repositories/plant.repository.ts';
-import { seriesRepository, type BucketRow, type RawRow } from '../repositories/series.repository.ts';
+import type { PlantRepository } from '../repositories/plant.repository.ts';
+import type { BucketRow, RawRow, SeriesRepository } from '../repositories/series.repository.ts';
+import type { PlantAccess } from './plant.service.ts';
 
 const HOUR_MS = 3_600_000;
 const STEP_ALLOWED: Record<Resolution, number> = { raw: 1, '1m': 60, '1h': 3600 };
@@ -62,16 +64,22 @@ interface SamplesCursor extends Record<string, unknown> {
 const isSamplesCursor = (o: Record<string, unknown>): o is SamplesCursor =>
   isNum(o.tag) && isNum(o.f) && isNum(o.t) && isStr(o.r) && ['raw', '1m', '1h'].includes(o.r) && (o.s === null || isNum(o.s)) && (o.rs === null || isNum(o.rs)) && isStr(o.a) && isNum(o.p);
 
+export interface SeriesServiceDeps {
+  seriesRepo: Pick<SeriesRepository, 'raw' | 'buckets' | 'rawCountUpTo'>;
+  plantRepo: Pick<PlantRepository, 'tag'>;
+  plantAccess: PlantAccess;
+  clock: Clock;
+}
+
 /**
  * Tag history: picks the resolution, reads one page, and writes the cursor of the next page.
  * A cursor carries the window, resolution and step of the first page, so every page of one
  * query is cut the same way; query parameters given beside a cursor must agree with it.
  */
-export function seriesService(ctx: AppContext) {
-  const series = seriesRepository(ctx.db.pool);
-  const plants = plantRepository(ctx.db.db, ctx.db.pool);
+export function createSeriesService({ seriesRepo: series, plantRepo: plants, plantAccess, clock }: SeriesServiceDeps) {
   return {
-    async samples(plantId: number, tagId: number, q: SamplesQuery): Promise<SamplesResponse> {
+    async samples(principal: Principal, plantId: number, tagId: number, q: SamplesQuery): Promise<SamplesResponse> {
+      await plantAccess.requirePlant(principal, plantId);
       const tag = await plants.tag(plantId, tagId);
       if (!tag) throw new NotFoundError(`plant ${plantId} has no tag ${tagId}`);
       const limit = q.limit ?? DEFAULT_SAMPLES_LIMIT;
@@ -86,42 +94,38 @@ export function seriesService(ctx: AppContext) {
         }
         ({ f: from, t: to, rs: requestedStep, p: after } = c);
         choice = { resolution: c.r, step_s: c.s };
-        return this.page(tagId, tag.unit, from, to, choice, requestedStep, c.a, limit, after);
+        return readPage(tagId, tag.unit, from, to, choice, requestedStep, c.a, limit, after);
       }
-      to = q.to ? Date.parse(q.to) : Date.now();
+      to = q.to ? Date.parse(q.to) : clock();
       from = q.from ? Date.parse(q.from) : to - HOUR_MS;
       requestedStep = q.step ?? null;
       const rawCount = q.step === undefined && (to - from) / 1000 / Math.max(tag.expectedPeriod_s, 1e-3) <= MAX_POINTS ? await series.rawCountUpTo(tagId, new Date(from), new Date(to), MAX_POINTS + 1) : MAX_POINTS + 1;
       choice = chooseResolution(to - from, tag.expectedPeriod_s, q.step, rawCount);
-      return this.page(tagId, tag.unit, from, to, choice, requestedStep, agg, limit, null);
-    },
-
-    /** One page of a query whose window and resolution are settled; `after` = position after the previous page (ms). */
-    async page(tagId: number, unit: string, from: number, to: number, choice: ResolutionChoice, requestedStep: number | null, agg: Agg, limit: number, after: number | null): Promise<SamplesResponse> {
-      const base = { tagId, unit, resolution: choice.resolution, step_s: choice.step_s, agg };
-      const cursorOf = (p: number) => encodeCursor('samples', { tag: tagId, f: from, t: to, r: choice.resolution, s: choice.step_s, rs: requestedStep, a: agg, p });
-      if (choice.step_s === null) {
-        // Raw samples: [from, to), a next page strictly after the last timestamp sent.
-        const rows: RawRow[] = await series.raw(tagId, new Date(after ?? from), new Date(to), limit + 1, after !== null);
-        const more = rows.length > limit;
-        const page = more ? rows.slice(0, limit) : rows;
-        const points = page.map((r) => ({ ts: r.ts.toISOString(), value: r.value, ...qualityOf(r.quality) }));
-        return { ...base, from: new Date(from).toISOString(), to: new Date(to).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]!.ts.getTime()) : null };
-      }
-      // Buckets: the window widened to whole buckets, so the first and last bucket are complete.
-      const stepMs = choice.step_s * 1000;
-      const lo = Math.floor(from / stepMs) * stepMs;
-      const hi = Math.ceil(to / stepMs) * stepMs;
-      const rows = await series.buckets(choice.resolution, tagId, new Date(after ?? lo), new Date(hi), choice.step_s, limit + 1, agg === 'last');
-      const more = rows.length > limit;
-      const page = more ? rows.slice(0, limit) : rows;
-      const points = page.map((b) => ({ ts: b.ts.toISOString(), value: aggValue(b, agg), min: b.min, max: b.max, count: b.count, ...qualityOf(b.quality) }));
-      return { ...base, from: new Date(lo).toISOString(), to: new Date(hi).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]!.ts.getTime() + stepMs) : null };
+      return readPage(tagId, tag.unit, from, to, choice, requestedStep, agg, limit, null);
     },
   };
+
+  /** One page of a query whose window and resolution are settled; `after` = position after the previous page (ms). */
+  async function readPage(tagId: number, unit: string, from: number, to: number, choice: ResolutionChoice, requestedStep: number | null, agg: Agg, limit: number, after: number | null): Promise<SamplesResponse> {
+    const base = { tagId, unit, resolution: choice.resolution, step_s: choice.step_s, agg };
+    const cursorOf = (p: number) => encodeCursor('samples', { tag: tagId, f: from, t: to, r: choice.resolution, s: choice.step_s, rs: requestedStep, a: agg, p });
+    if (choice.step_s === null) {
+      // Raw samples: [from, to), a next page strictly after the last timestamp sent.
+      const rows: RawRow[] = await series.raw(tagId, new Date(after ?? from), new Date(to), limit + 1, after !== null);
+      const more = rows.length > limit;
+      const page = more ? rows.slice(0, limit) : rows;
+      const points = page.map((r) => ({ ts: r.ts.toISOString(), value: r.value, ...qualityOf(r.quality) }));
+      return { ...base, from: new Date(from).toISOString(), to: new Date(to).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]!.ts.getTime()) : null };
+    }
+    // Buckets: the window widened to whole buckets, so the first and last bucket are complete.
+    const stepMs = choice.step_s * 1000;
+    const lo = Math.floor(from / stepMs) * stepMs;
+    const hi = Math.ceil(to / stepMs) * stepMs;
+    const rows = await series.buckets(choice.resolution, tagId, new Date(after ?? lo), new Date(hi), choice.step_s, limit + 1, agg === 'last');
+    const more = rows.length > limit;
+    const page = more ? rows.slice(0, limit) : rows;
+    const points = page.map((b) => ({ ts: b.ts.toISOString(), value: aggValue(b, agg), min: b.min, max: b.max, count: b.count, ...qualityOf(b.quality) }));
+    return { ...base, from: new Date(lo).toISOString(), to: new Date(hi).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]!.ts.getTime() + stepMs) : null };
+  }
 }
 
-export const SAMPLE_CSV_COLUMNS = ['ts', 'value', 'min', 'max', 'count', 'quality', 'flags'] as const;
-export function sampleCsvRows(points: SamplePoint[]) {
-  return points.map((p) => [p.ts, p.value, p.min, p.max, p.count, p.quality, p.flags?.join(';')]);
-}

@@ -1,5 +1,3 @@
-import type { Request } from 'express';
-import { eq } from 'drizzle-orm';
 import {
   defaultSettings,
   SETTING_KEYS,
@@ -9,11 +7,10 @@ import {
   type SettingKey,
   type SettingsOut,
 } from '../../shared/contracts/settings.ts';
-import type { AppContext } from '../app-context.ts';
-import { plants } from '../db/schema/index.ts';
 import { NotFoundError } from '../http/errors.ts';
-import { settingsRepository } from '../repositories/settings.repository.ts';
-import { audit } from './audit.service.ts';
+import type { PlantRepository } from '../repositories/plant.repository.ts';
+import type { SettingsRepository } from '../repositories/settings.repository.ts';
+import type { Actor, AuditLog } from './audit.service.ts';
 
 /**
  * Settings with their precedence: the plant's own value, else the global (plantId 0) value,
@@ -35,39 +32,44 @@ export function resolveSettings(rows: { plantId: number; key: string; value: unk
   return { values: eff as EffectiveSettings, source };
 }
 
-export function settingsService(ctx: AppContext) {
-  const repo = settingsRepository(ctx.db.db);
+export interface SettingsServiceDeps {
+  settingsRepo: Pick<SettingsRepository, 'rowsFor' | 'upsert' | 'remove'>;
+  plantRepo: Pick<PlantRepository, 'byId'>;
+  audit: AuditLog;
+}
+
+export function createSettingsService({ settingsRepo, plantRepo, audit }: SettingsServiceDeps) {
   const assertPlant = async (plantId: number) => {
     if (plantId === 0) return;
-    const [p] = await ctx.db.db.select({ id: plants.id }).from(plants).where(eq(plants.id, plantId));
-    if (!p) throw new NotFoundError(`no plant ${plantId}`);
+    if (!(await plantRepo.byId(plantId))) throw new NotFoundError(`no plant ${plantId}`);
   };
+  async function describe(plantId: number): Promise<SettingsOut> {
+    await assertPlant(plantId);
+    const { values, source } = resolveSettings(await settingsRepo.rowsFor(plantId), plantId);
+    return {
+      plantId,
+      settings: SETTING_KEYS.map((key) => ({ key, value: values[key], default: SETTINGS[key].default, source: source[key]!, unit: SETTINGS[key].unit, doc: SETTINGS[key].doc })),
+    };
+  }
   return {
     /** Effective settings for a plant (0 = the global level). */
     async effective(plantId: number): Promise<EffectiveSettings> {
-      return resolveSettings(await repo.rowsFor(plantId), plantId).values;
+      return resolveSettings(await settingsRepo.rowsFor(plantId), plantId).values;
     },
-    async describe(plantId: number): Promise<SettingsOut> {
-      await assertPlant(plantId);
-      const { values, source } = resolveSettings(await repo.rowsFor(plantId), plantId);
-      return {
-        plantId,
-        settings: SETTING_KEYS.map((key) => ({ key, value: values[key], default: SETTINGS[key].default, source: source[key]!, unit: SETTINGS[key].unit, doc: SETTINGS[key].doc })),
-      };
-    },
-    /** Stores (or with null removes) values for one level; audited with old and new values. */
-    async put(req: Request | null, body: PutSettingsRequest): Promise<SettingsOut> {
+    describe,
+    /** Stores (or with null removes) values for one level; audited with old and new values. `principal` null: the system (scripts, tests). */
+    async put(principal: Actor | null, body: PutSettingsRequest): Promise<SettingsOut> {
       await assertPlant(body.plantId);
-      const before = resolveSettings(await repo.rowsFor(body.plantId), body.plantId).values as Record<string, unknown>;
+      const before = resolveSettings(await settingsRepo.rowsFor(body.plantId), body.plantId).values as Record<string, unknown>;
       const changes: Record<string, { from: unknown; to: unknown }> = {};
       for (const [key, value] of Object.entries(body.values)) {
-        if (value === null) await repo.remove(body.plantId, key);
-        else await repo.upsert(body.plantId, key, SETTINGS[key as SettingKey].schema.parse(value), req?.principal?.userId ?? null);
+        if (value === null) await settingsRepo.remove(body.plantId, key);
+        else await settingsRepo.upsert(body.plantId, key, SETTINGS[key as SettingKey].schema.parse(value), principal?.userId ?? null);
         changes[key] = { from: before[key], to: value };
       }
-      await audit(ctx, req, 'settings.update', `plant:${body.plantId}`, { changes });
-      return this.describe(body.plantId);
+      await audit.record(principal, 'settings.update', `plant:${body.plantId}`, { changes });
+      return describe(body.plantId);
     },
   };
 }
-export type SettingsService = ReturnType<typeof settingsService>;
+export type SettingsService = ReturnType<typeof createSettingsService>;

@@ -4,7 +4,7 @@
  *
  * Three ways in, one way out:
  *
- * 1. In this process: `streamHub(ctx).publish(plantId, event, data)` (or `publish(ctx, …)`),
+ * 1. In this process: `streamHub(ctx).publish(plantId, event, data)`,
  *    delivered to this process's subscribers only.
  * 2. From any process on the same database (ingest, the balance job, another API process):
  *
@@ -26,15 +26,20 @@
  * owner (user or token) and in total are enforced by `admit`; a client that cannot keep up
  * (more than `maxBufferedBytes` queued on its socket) is disconnected instead of growing memory.
  */
-import type { Request, Response } from 'express';
-import type pg from 'pg';
+import type { Logger } from 'pino';
 import { z } from 'zod';
 import { STREAM_EVENTS, type StreamEventName } from '../../shared/contracts/plant-api.ts';
 import type { AppContext } from '../app-context.ts';
+import type { Principal } from '../auth/principal.ts';
 import { TooManyRequestsError } from '../http/errors.ts';
-import { plantRepository } from '../repositories/plant.repository.ts';
+import { plantRepository, type PlantRepository } from '../repositories/plant.repository.ts';
+import { STREAM_CHANNEL, streamRepository, type StreamRepository } from '../repositories/stream.repository.ts';
+import type { PlantAccess } from './plant.service.ts';
 
-export const STREAM_CHANNEL = 'flocstream_stream';
+export { STREAM_CHANNEL, notifyStream } from '../repositories/stream.repository.ts';
+// The SSE writer is HTTP and lives in server/http/sse.ts; re-exported for
+// tests/integration/stream.test.ts, which imports it from here.
+export { serveStream } from '../http/sse.ts';
 
 export const streamNotification = z.object({ plantId: z.number().int().positive(), event: z.enum(STREAM_EVENTS), data: z.unknown() });
 export type StreamNotification = z.infer<typeof streamNotification>;
@@ -60,7 +65,27 @@ export const DEFAULT_STREAM_OPTIONS: StreamOptions = {
   reconnectMs: 2000,
 };
 
-type Listener = (event: StreamEventName, data: unknown, id: number) => void;
+export type StreamListener = (event: StreamEventName, data: unknown, id: number) => void;
+type Listener = StreamListener;
+
+export interface StreamHubDeps {
+  streamRepo: Pick<StreamRepository, 'listen'>;
+  plantRepo: Pick<PlantRepository, 'latestChangedSince'>;
+  log: Pick<Logger, 'warn'>;
+}
+
+/** One admitted connection of a caller to a plant's stream: what the SSE writer needs, no HTTP in it. */
+export interface StreamSession {
+  plantId: number;
+  events: ReadonlySet<StreamEventName>;
+  /** Subscribes; resolves once the cross-process bridge listens. Returns the unsubscribe. */
+  subscribe(listener: StreamListener): Promise<() => void>;
+  /** Gives the connection slot back (idempotent). */
+  release(): void;
+  heartbeatMs: number;
+  maxBufferedBytes: number;
+  log: Pick<Logger, 'warn'>;
+}
 interface Sub {
   plantId: number;
   events: ReadonlySet<StreamEventName>;
@@ -79,16 +104,22 @@ export class StreamHub {
   private owners = new Map<string, number>();
   private polls = new Map<number, PlantPoll>();
   private seq = 0;
-  private listenClient: pg.PoolClient | null = null;
+  private closeListen: (() => void) | null = null;
   private listening: Promise<void> | null = null;
   private reconnectTimer: NodeJS.Timeout | null = null;
-  private readonly plants: ReturnType<typeof plantRepository>;
+  private readonly plants: StreamHubDeps['plantRepo'];
+  private readonly streamRepo: StreamHubDeps['streamRepo'];
+  readonly log: StreamHubDeps['log'];
 
+  /** From its repositories and logger; an AppContext builds them on its database (tests/integration/stream.test.ts). */
   constructor(
-    readonly ctx: AppContext,
+    deps: StreamHubDeps | AppContext,
     readonly opts: StreamOptions = DEFAULT_STREAM_OPTIONS,
   ) {
-    this.plants = plantRepository(ctx.db.db, ctx.db.pool);
+    const d = 'db' in deps ? { streamRepo: streamRepository(deps.db.pool), plantRepo: plantRepository(deps.db.db, deps.db.pool), log: deps.log } : deps;
+    this.plants = d.plantRepo;
+    this.streamRepo = d.streamRepo;
+    this.log = d.log;
   }
 
   /** Deliver to this process's subscribers of `plantId`. */
@@ -99,7 +130,7 @@ export class StreamHub {
       try {
         s.listener(event, data, id);
       } catch (err) {
-        this.ctx.log.warn({ err }, 'stream listener failed');
+        this.log.warn({ err }, 'stream listener failed');
       }
     }
   }
@@ -126,6 +157,20 @@ export class StreamHub {
     };
   }
 
+  /** Admits `principal` (429 past the limits) to a plant's events; the plant check is the caller's. */
+  open(principal: Principal, plantId: number, events: ReadonlySet<StreamEventName>): StreamSession {
+    const release = this.admit(principal.tokenId ? `token:${principal.tokenId}` : `user:${principal.userId}`);
+    return {
+      plantId,
+      events,
+      subscribe: (listener) => this.subscribe(plantId, events, listener),
+      release,
+      heartbeatMs: this.opts.heartbeatMs,
+      maxBufferedBytes: this.opts.maxBufferedBytes,
+      log: this.log,
+    };
+  }
+
   /**
    * Adds a subscriber; resolves once the cross-process bridge listens (or failed to — in-process
    * events still flow), so a caller can tell its client it is live. Returns the unsubscribe.
@@ -149,22 +194,20 @@ export class StreamHub {
   private ensureListening(): Promise<void> {
     if (this.listening) return this.listening;
     this.listening = (async () => {
-      let client: pg.PoolClient | null = null;
       try {
-        client = await this.ctx.db.pool.connect();
-        client.on('notification', (m) => this.onNotification(m.payload));
-        client.on('error', (err) => this.onListenError(err));
-        await client.query(`LISTEN ${STREAM_CHANNEL}`);
+        const close = await this.streamRepo.listen(
+          (payload) => this.onNotification(payload),
+          (err) => this.onListenError(err),
+        );
         if (this.subs.size === 0) {
           // Everyone left while we were connecting.
-          client.release(true);
+          close();
           this.listening = null;
           return;
         }
-        this.listenClient = client;
+        this.closeListen = close;
       } catch (err) {
-        client?.release(true);
-        this.ctx.log.warn({ err }, 'stream: LISTEN failed; events from other processes are not delivered until it reconnects');
+        this.log.warn({ err }, 'stream: LISTEN failed; events from other processes are not delivered until it reconnects');
         this.listening = null;
         this.scheduleReconnect();
       }
@@ -173,11 +216,11 @@ export class StreamHub {
   }
 
   private onListenError(err: unknown): void {
-    this.ctx.log.warn({ err }, 'stream: LISTEN connection lost');
-    const c = this.listenClient;
-    this.listenClient = null;
+    this.log.warn({ err }, 'stream: LISTEN connection lost');
+    const c = this.closeListen;
+    this.closeListen = null;
     this.listening = null;
-    c?.release(true);
+    c?.();
     this.scheduleReconnect();
   }
 
@@ -193,11 +236,10 @@ export class StreamHub {
   private stopListening(): void {
     if (this.reconnectTimer) clearTimeout(this.reconnectTimer);
     this.reconnectTimer = null;
-    const c = this.listenClient;
-    this.listenClient = null;
+    const c = this.closeListen;
+    this.closeListen = null;
     this.listening = null;
-    // Destroyed rather than returned: a pooled connection must not keep its LISTEN.
-    c?.release(true);
+    c?.();
   }
 
   private onNotification(payload: string | undefined): void {
@@ -205,12 +247,12 @@ export class StreamHub {
     try {
       parsed = JSON.parse(payload ?? '');
     } catch {
-      this.ctx.log.warn({ payload: payload?.slice(0, 200) }, `stream: ${STREAM_CHANNEL} payload is not JSON; dropped`);
+      this.log.warn({ payload: payload?.slice(0, 200) }, `stream: ${STREAM_CHANNEL} payload is not JSON; dropped`);
       return;
     }
     const r = streamNotification.safeParse(parsed);
     if (!r.success) {
-      this.ctx.log.warn({ payload: payload?.slice(0, 200) }, `stream: ${STREAM_CHANNEL} payload is not {plantId, event, data}; dropped`);
+      this.log.warn({ payload: payload?.slice(0, 200) }, `stream: ${STREAM_CHANNEL} payload is not {plantId, event, data}; dropped`);
       return;
     }
     this.publish(r.data.plantId, r.data.event, r.data.data);
@@ -249,7 +291,7 @@ export class StreamHub {
       }
       if (p.since === null) p.since = new Date(0);
     } catch (err) {
-      this.ctx.log.warn({ err, plantId }, 'stream: tag_latest poll failed');
+      this.log.warn({ err, plantId }, 'stream: tag_latest poll failed');
     } finally {
       p.busy = false;
     }
@@ -264,67 +306,13 @@ export function streamHub(ctx: AppContext): StreamHub {
   return h;
 }
 
-/** In-process publish: `publish(ctx, plantId, 'balance', row)`. */
-export function publish(ctx: AppContext, plantId: number, event: StreamEventName, data: unknown): void {
-  streamHub(ctx).publish(plantId, event, data);
-}
-
-/** Cross-process publish through PostgreSQL (delivered when the caller's transaction commits). */
-export async function notifyStream(db: pg.Pool | pg.ClientBase, plantId: number, event: StreamEventName, data: unknown): Promise<void> {
-  await db.query('SELECT pg_notify($1, $2)', [STREAM_CHANNEL, JSON.stringify({ plantId, event, data })]);
-}
-
-/**
- * Serves one SSE connection: admission, headers, heartbeat comments, events, and cleanup when
- * the client goes away. Writes `: ready` once the subscription is live.
- */
-export async function serveStream(hub: StreamHub, req: Request, res: Response, plantId: number, events: ReadonlySet<StreamEventName>): Promise<void> {
-  const p = req.principal!;
-  const release = hub.admit(p.tokenId ? `token:${p.tokenId}` : `user:${p.userId}`);
-  let closed = false;
-  let unsubscribe: (() => void) | null = null;
-  let heartbeat: NodeJS.Timeout | null = null;
-  const close = () => {
-    if (closed) return;
-    closed = true;
-    if (heartbeat) clearInterval(heartbeat);
-    unsubscribe?.();
-    release();
-    if (!res.writableEnded) res.end();
+/** The live stream of a plant for a caller: the plant check, then admission. */
+export function createStreamService({ hub, plantAccess }: { hub: Pick<StreamHub, 'open'>; plantAccess: PlantAccess }) {
+  return {
+    async open(principal: Principal, plantId: number, events: ReadonlySet<StreamEventName>): Promise<StreamSession> {
+      await plantAccess.requirePlant(principal, plantId);
+      return hub.open(principal, plantId, events);
+    },
   };
-  req.on('close', close);
-  res.on('error', close);
-  // The client may have left while the route was still checking the plant: its 'close' event
-  // has fired already and would never reach the listener above.
-  if (req.destroyed || res.destroyed || req.socket.destroyed) {
-    close();
-    return;
-  }
-
-  res.status(200);
-  res.setHeader('Content-Type', 'text/event-stream; charset=utf-8');
-  res.setHeader('Cache-Control', 'no-cache, no-transform');
-  res.setHeader('Connection', 'keep-alive');
-  res.setHeader('X-Accel-Buffering', 'no');
-  res.flushHeaders();
-  req.socket.setNoDelay(true);
-
-  const write = (chunk: string) => {
-    if (closed) return;
-    res.write(chunk);
-    if (res.writableLength > hub.opts.maxBufferedBytes) {
-      hub.ctx.log.warn({ plantId }, 'stream: client too slow, disconnected');
-      close();
-    }
-  };
-  // retry: reconnection delay for EventSource clients [ms] (HTML §9.2.6).
-  write(`retry: 5000\n\n`);
-  const unsub = await hub.subscribe(plantId, events, (event, data, id) => write(`id: ${id}\nevent: ${event}\ndata: ${JSON.stringify(data ?? null)}\n\n`));
-  if (closed) {
-    unsub();
-    return;
-  }
-  unsubscribe = unsub;
-  heartbeat = setInterval(() => write(`: heartbeat ${new Date().toISOString()}\n\n`), hub.opts.heartbeatMs);
-  write(`: ready\n\n`);
 }
+export type StreamService = ReturnType<typeof createStreamService>;

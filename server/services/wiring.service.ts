@@ -1,6 +1,4 @@
-import { randomBytes } from 'node:crypto';
-import type { Request } from 'express';
-import mqtt from 'mqtt';
+import { testMqttConnection } from '../../ingest/mqtt/mqtt-connection.ts';
 import { SIGNAL_KINDS } from '../../shared/contracts/plant-layout.ts';
 import {
   signalTargetType,
@@ -24,15 +22,16 @@ import {
   type TagImportRow,
   type TagPatch,
 } from '../../shared/contracts/wiring.ts';
-import type { AppContext } from '../app-context.ts';
-import { assertPlantAccess } from '../auth/middleware.ts';
-import { ConflictError, NotFoundError, ValidationError } from '../http/errors.ts';
+import type { Logger } from 'pino';
+import type { Principal } from '../auth/principal.ts';
+import { ConflictError, NotFoundError, UnsupportedMediaTypeError, ValidationError } from '../http/errors.ts';
 import { zodFields } from '../http/validate.ts';
-import { uniqueViolation, wiringRepository, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow } from '../repositories/wiring.repository.ts';
-import { audit } from './audit.service.ts';
+import { uniqueViolation, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow, type WiringRepository } from '../repositories/wiring.repository.ts';
+import type { Actor, AuditLog } from './audit.service.ts';
 import { parseCsv } from './csv.service.ts';
-import { opcuaBrowseService } from './opcua-browse.service.ts';
-import { ingestRepository } from '../repositories/ingest.repository.ts';
+import type { OpcuaBrowseService } from './opcua-browse.service.ts';
+import { assertPlantScope, type PlantAccess } from './plant.service.ts';
+import type { IngestRepository } from '../repositories/ingest.repository.ts';
 
 /** MQTT "test connection" budget: CONNECT → CONNACK within this [ms]. */
 export const MQTT_TEST_TIMEOUT_MS = 5_000;
@@ -91,63 +90,37 @@ const CSV_COLUMN_OF: Record<string, string> = {
   rangeHigh: 'range_high',
 };
 
-/**
- * MQTT "test connection": one CONNECT with Clean Start and a client identifier of its own (MQTT
- * 5.0 §3.1.4: a second connection with ingest's identifier would make the broker close ingest's
- * session), CONNACK awaited for at most 5 s, then DISCONNECT. With protocolVersion auto a
- * refusal of 5.0 (reason 0x84, §3.2.2.2; 3.1.1 return code 1) is retried as 3.1.1, as ingest does.
- */
-export async function testMqtt(s: Pick<SourceRow, 'id' | 'url' | 'username' | 'secret' | 'options'>, timeoutMs = MQTT_TEST_TIMEOUT_MS): Promise<ConnectionTestOut> {
-  const opts = (s.options ?? {}) as { protocolVersion?: 4 | 5 | 'auto' };
-  const versions: Array<4 | 5> = opts.protocolVersion === 4 ? [4] : opts.protocolVersion === 5 ? [5] : [5, 4];
-  const t0 = performance.now();
-  let lastError = '';
-  for (const protocolVersion of versions) {
-    try {
-      const client = await mqtt.connectAsync(
-        s.url,
-        {
-          clientId: `flocstream-test-${s.id}-${randomBytes(4).toString('hex')}`,
-          clean: true,
-          protocolVersion,
-          connectTimeout: timeoutMs,
-          reconnectPeriod: 0,
-          keepalive: 10,
-          ...(s.username ? { username: s.username } : {}),
-          ...(s.secret ? { password: s.secret } : {}),
-        },
-        false,
-      );
-      const latency_ms = Math.round(performance.now() - t0);
-      await client.endAsync().catch(() => {});
-      return { ok: true, latency_ms, details: { protocolVersion: protocolVersion === 5 ? '5.0' : '3.1.1' } };
-    } catch (err) {
-      const e = err as { code?: number | string; message?: string };
-      lastError = e.message || String(e.code ?? err);
-      if (!(protocolVersion === 5 && versions.length > 1 && (e.code === 0x84 || e.code === 1))) break;
-    }
-  }
-  return { ok: false, latency_ms: Math.round(performance.now() - t0), error: lastError.slice(0, 300) };
+/** MQTT "test connection": connects as ingest does (ingest/mqtt/mqtt-connection.ts), with a session of its own. */
+export function testMqtt(s: Pick<SourceRow, 'id' | 'url' | 'username' | 'secret' | 'options'>, timeoutMs = MQTT_TEST_TIMEOUT_MS): Promise<ConnectionTestOut> {
+  return testMqttConnection(s, timeoutMs);
 }
 
 /**
  * Sources, tags and the signal map of a plant (integrator and up), with every write audited.
  * Passwords go in and never out (answers say `hasSecret`), nor into the audit log.
  */
-export function wiringService(ctx: AppContext) {
-  const repo = wiringRepository(ctx.db.db);
-  const opcua = opcuaBrowseService(ctx);
+export interface WiringServiceDeps {
+  wiringRepo: WiringRepository;
+  plantAccess: PlantAccess;
+  audit: AuditLog;
+  log: Pick<Logger, 'info'>;
+  /** MQTT topics ingest has seen (table mqtt_discovery). */
+  ingestRepo: Pick<IngestRepository, 'discovery'>;
+  /** OPC UA test and browse through the client ingest uses (one certificate). */
+  opcua: Pick<OpcuaBrowseService, 'test' | 'browse'>;
+}
 
-  async function requireSource(req: Request, id: number) {
+export function createWiringService({ wiringRepo: repo, plantAccess, audit, log, ingestRepo, opcua }: WiringServiceDeps) {
+  async function requireSource(principal: Principal, id: number) {
     const r = await repo.source(id);
     if (!r) throw new NotFoundError(`no source ${id}`);
-    assertPlantAccess(req, r.source.plantId);
+    assertPlantScope(principal, r.source.plantId);
     return r;
   }
-  async function requireTag(req: Request, id: number) {
+  async function requireTag(principal: Principal, id: number) {
     const r = await repo.tag(id);
     if (!r) throw new NotFoundError(`no tag ${id}`);
-    assertPlantAccess(req, r.tag.plantId);
+    assertPlantScope(principal, r.tag.plantId);
     return r;
   }
   /** A source of this plant for a tag, or a 422 under `field`. */
@@ -196,25 +169,27 @@ export function wiringService(ctx: AppContext) {
 
   return {
     // ---- sources ----
-    async listSources(plantId: number) {
+    async listSources(principal: Principal, plantId: number) {
+      await plantAccess.requirePlant(principal, plantId);
       return { plantId, sources: (await repo.listSources(plantId)).map((r) => sourceOut(r.source, r.tags)) };
     },
 
-    async getSource(req: Request, id: number): Promise<SourceOut> {
-      const r = await requireSource(req, id);
+    async getSource(principal: Actor, id: number): Promise<SourceOut> {
+      const r = await requireSource(principal, id);
       return sourceOut(r.source, r.tags);
     },
 
-    async createSource(req: Request, plantId: number, input: SourceCreate): Promise<SourceOut> {
+    async createSource(principal: Actor, plantId: number, input: SourceCreate): Promise<SourceOut> {
+      await plantAccess.requirePlant(principal, plantId);
       const row = await unique({ name: input.name }, () =>
         repo.insertSource({ plantId, name: input.name, kind: input.kind, url: input.url, username: input.username ?? null, secret: input.password ?? null, options: input.options ?? {}, enabled: input.enabled ?? true }),
       );
-      await audit(ctx, req, 'source.create', `source:${row.id}`, { plantId, name: row.name, kind: row.kind, url: row.url, username: row.username, hasSecret: row.secret !== null, options: row.options, enabled: row.enabled });
+      await audit.record(principal, 'source.create', `source:${row.id}`, { plantId, name: row.name, kind: row.kind, url: row.url, username: row.username, hasSecret: row.secret !== null, options: row.options, enabled: row.enabled });
       return sourceOut(row, 0);
     },
 
-    async updateSource(req: Request, id: number, patch: SourcePatch): Promise<SourceOut> {
-      const { source: cur, tags } = await requireSource(req, id);
+    async updateSource(principal: Actor, id: number, patch: SourcePatch): Promise<SourceOut> {
+      const { source: cur, tags } = await requireSource(principal, id);
       const fields: Record<string, string[]> = {};
       if (patch.url !== undefined) {
         const issue = sourceUrlIssue(cur.kind, patch.url);
@@ -238,58 +213,60 @@ export function wiringService(ctx: AppContext) {
       if (!row) throw new NotFoundError(`no source ${id}`);
       // What changed, never the password itself.
       const changed = Object.fromEntries(Object.entries(set).map(([k, v]) => (k === 'secret' ? ['password', v === null ? 'removed' : 'changed'] : [k, v])));
-      await audit(ctx, req, 'source.update', `source:${id}`, { plantId: row.plantId, changed });
+      await audit.record(principal, 'source.update', `source:${id}`, { plantId: row.plantId, changed });
       return sourceOut(row, tags);
     },
 
-    async deleteSource(req: Request, id: number, force: boolean): Promise<{ deleted: true; id: number; tagsDeleted: number }> {
-      const { source, tags } = await requireSource(req, id);
+    async deleteSource(principal: Actor, id: number, force: boolean): Promise<{ deleted: true; id: number; tagsDeleted: number }> {
+      const { source, tags } = await requireSource(principal, id);
       if (tags > 0 && !force) throw new ConflictError(`source ${id} still has ${tags} tag(s); delete them first, or repeat with ?force=1 to delete the source with its tags and their mappings (stored samples stay)`);
       if (!(await repo.deleteSource(id))) throw new NotFoundError(`no source ${id}`);
-      await audit(ctx, req, 'source.delete', `source:${id}`, { plantId: source.plantId, name: source.name, kind: source.kind, url: source.url, tagsDeleted: tags });
+      await audit.record(principal, 'source.delete', `source:${id}`, { plantId: source.plantId, name: source.name, kind: source.kind, url: source.url, tagsDeleted: tags });
       return { deleted: true, id, tagsDeleted: tags };
     },
 
-    async testSource(req: Request, id: number): Promise<ConnectionTestOut> {
-      const { source } = await requireSource(req, id);
+    async testSource(principal: Actor, id: number): Promise<ConnectionTestOut> {
+      const { source } = await requireSource(principal, id);
       const out = source.kind === 'mqtt' ? await testMqtt(source) : await opcua.test(source);
-      ctx.log.info({ source: id, ok: out.ok, latency_ms: out.latency_ms, error: out.error }, 'source connection test');
+      log.info({ source: id, ok: out.ok, latency_ms: out.latency_ms, error: out.error }, 'source connection test');
       return out;
     },
 
-    async browse(req: Request, id: number, nodeId: string | undefined) {
-      const { source } = await requireSource(req, id);
+    async browse(principal: Actor, id: number, nodeId: string | undefined) {
+      const { source } = await requireSource(principal, id);
       if (source.kind !== 'opcua') throw new ValidationError({ sourceId: ['browsing is for OPC UA sources; an MQTT source lists its topics under /discovery'] });
       return { sourceId: id, ...(await opcua.browse(source, nodeId)) };
     },
 
     /** Topics ingest has seen on an MQTT source (table `mqtt_discovery`, written by ingest). */
-    async discovery(req: Request, id: number) {
-      const { source } = await requireSource(req, id);
+    async discovery(principal: Actor, id: number) {
+      const { source } = await requireSource(principal, id);
       if (source.kind !== 'mqtt') throw new ValidationError({ sourceId: ['discovery lists MQTT topics; browse an OPC UA source instead'] });
-      const rows = await ingestRepository(ctx.db.db).discovery(id);
+      const rows = await ingestRepo.discovery(id);
       if (!rows.length) return { sourceId: id, asOf: null, topics: [], note: source.enabled ? 'ingest has not listed topics for this source yet (it saves them every few seconds while it is connected)' : 'the source is disabled, so ingest does not connect to it' };
       const asOf = new Date(Math.max(...rows.map((r) => r.lastSeen.getTime())));
       return { sourceId: id, asOf: asOf.toISOString(), topics: rows.map((r) => ({ ...r, firstSeen: r.firstSeen.toISOString(), lastSeen: r.lastSeen.toISOString() })) };
     },
 
     // ---- tags ----
-    async listTags(plantId: number) {
+    async listTags(principal: Principal, plantId: number) {
+      await plantAccess.requirePlant(principal, plantId);
       const [rows, maps, targets] = await Promise.all([repo.listTags(plantId), repo.mappings(plantId), repo.targets(plantId)]);
       return { plantId, tags: await Promise.all(rows.map((r) => tagOut(r.tag, { name: r.sourceName, kind: r.sourceKind }, maps, targets))) };
     },
 
-    async createTag(req: Request, plantId: number, input: TagCreate): Promise<TagConfigOut> {
+    async createTag(principal: Actor, plantId: number, input: TagCreate): Promise<TagConfigOut> {
+      await plantAccess.requirePlant(principal, plantId);
       const src = await sourceOfPlant(plantId, input.sourceId);
       const issue = tagAddressIssue(src.kind, input.address);
       if (issue) throw new ValidationError({ address: [issue] });
       const row = await unique(input, () => repo.insertTag({ ...input, plantId }));
-      await audit(ctx, req, 'tag.create', `tag:${row.id}`, { plantId, ...input });
+      await audit.record(principal, 'tag.create', `tag:${row.id}`, { plantId, ...input });
       return tagOut(row, src, []);
     },
 
-    async updateTag(req: Request, id: number, patch: TagPatch): Promise<TagConfigOut> {
-      const { tag: cur } = await requireTag(req, id);
+    async updateTag(principal: Actor, id: number, patch: TagPatch): Promise<TagConfigOut> {
+      const { tag: cur } = await requireTag(principal, id);
       const src = patch.sourceId !== undefined && patch.sourceId !== cur.sourceId ? await sourceOfPlant(cur.plantId, patch.sourceId) : (await repo.source(cur.sourceId))!.source;
       const fields: Record<string, string[]> = {};
       if (patch.address !== undefined || patch.sourceId !== undefined) {
@@ -302,19 +279,20 @@ export function wiringService(ctx: AppContext) {
       if (Object.keys(fields).length) throw new ValidationError(fields);
       const row = await unique({ name: patch.name ?? cur.name, address: patch.address ?? cur.address }, () => repo.updateTag(id, patch));
       if (!row) throw new NotFoundError(`no tag ${id}`);
-      await audit(ctx, req, 'tag.update', `tag:${id}`, { plantId: row.plantId, changed: patch });
+      await audit.record(principal, 'tag.update', `tag:${id}`, { plantId: row.plantId, changed: patch });
       return tagOut(row, src);
     },
 
-    async deleteTag(req: Request, id: number) {
-      const { tag } = await requireTag(req, id);
+    async deleteTag(principal: Actor, id: number) {
+      const { tag } = await requireTag(principal, id);
       if (!(await repo.deleteTag(id))) throw new NotFoundError(`no tag ${id}`);
-      await audit(ctx, req, 'tag.delete', `tag:${id}`, { plantId: tag.plantId, name: tag.name, sourceId: tag.sourceId, address: tag.address });
+      await audit.record(principal, 'tag.delete', `tag:${id}`, { plantId: tag.plantId, name: tag.name, sourceId: tag.sourceId, address: tag.address });
       return { deleted: true as const, id };
     },
 
     // ---- signal map ----
-    async putMapping(req: Request, plantId: number, m: MappingPut) {
+    async putMapping(principal: Actor, plantId: number, m: MappingPut) {
+      await plantAccess.requirePlant(principal, plantId);
       const tag = await repo.tag(m.tagId);
       const targets = await repo.targets(plantId);
       const fields: Record<string, string[]> = {};
@@ -324,16 +302,16 @@ export function wiringService(ctx: AppContext) {
       if (Object.keys(fields).length) throw new ValidationError(fields);
       const t = target as TargetRow;
       const { row, replacedTagId } = await repo.putMapping({ plantId, signal: m.signal, targetType: t.type, targetId: t.id, tagId: m.tagId });
-      await audit(ctx, req, 'signal_map.put', `signal_map:${row.id}`, { plantId, signal: row.signal, targetType: row.targetType, targetId: row.targetId, targetCode: t.code, tagId: row.tagId, replacedTagId });
+      await audit.record(principal, 'signal_map.put', `signal_map:${row.id}`, { plantId, signal: row.signal, targetType: row.targetType, targetId: row.targetId, targetCode: t.code, tagId: row.tagId, replacedTagId });
       return { ...mappingOut(row, targets), replacedTagId };
     },
 
-    async deleteMapping(req: Request, id: number) {
+    async deleteMapping(principal: Actor, id: number) {
       const m = await repo.mapping(id);
       if (!m) throw new NotFoundError(`no signal mapping ${id}`);
-      assertPlantAccess(req, m.plantId);
+      assertPlantScope(principal, m.plantId);
       if (!(await repo.deleteMapping(id))) throw new NotFoundError(`no signal mapping ${id}`);
-      await audit(ctx, req, 'signal_map.delete', `signal_map:${id}`, { plantId: m.plantId, signal: m.signal, targetType: m.targetType, targetId: m.targetId, tagId: m.tagId });
+      await audit.record(principal, 'signal_map.delete', `signal_map:${id}`, { plantId: m.plantId, signal: m.signal, targetType: m.targetType, targetId: m.targetId, tagId: m.tagId });
       return { deleted: true as const, id };
     },
 
@@ -344,7 +322,10 @@ export function wiringService(ctx: AppContext) {
      * preview and the row errors; a real import stores all rows and mappings in one transaction
      * or, if any row is invalid, nothing (422 with `line.<n>.<column>`; the header is line 1).
      */
-    async importCsv(req: Request, plantId: number, text: string, dryRun: boolean): Promise<TagImportOut> {
+    /** `text` undefined: the upload was not a CSV body (415). */
+    async importCsv(principal: Actor, plantId: number, text: string | undefined, dryRun: boolean): Promise<TagImportOut> {
+      await plantAccess.requirePlant(principal, plantId);
+      if (text === undefined) throw new UnsupportedMediaTypeError('send the file as the request body with Content-Type: text/csv');
       const parsed = parseCsv(text);
       if (!parsed.ok) throw new ValidationError({ [`line.${parsed.line}`]: [parsed.message] }, 'the file is not valid CSV (RFC 4180); nothing was stored');
       const [header, ...records] = parsed.records;
@@ -447,7 +428,7 @@ export function wiringService(ctx: AppContext) {
       if (dryRun) return { dryRun: true, ok, rows, errors, imported: 0, tagIds: [], mappings: maps.length };
       if (!ok) throw new ValidationError(errors, `${bad.size} of ${records.length} rows have errors (line numbers count the header as line 1); nothing was stored — fix them and upload the whole file again`);
       const stored = await unique({}, () => repo.importTags(inserts, maps));
-      await audit(ctx, req, 'tag.import', `plant:${plantId}`, { plantId, rows: stored.length, ids: stored.map((t) => t.id), mappings: maps.length });
+      await audit.record(principal, 'tag.import', `plant:${plantId}`, { plantId, rows: stored.length, ids: stored.map((t) => t.id), mappings: maps.length });
       return { dryRun: false, ok: true, rows, errors: {}, imported: stored.length, tagIds: stored.map((t) => t.id), mappings: maps.length };
     },
   };
@@ -472,3 +453,4 @@ function previewRow(line: number, t: TagCreate, src: SourceRow | undefined, sour
     target,
   };
 }
+export type WiringService = ReturnType<typeof createWiringService>;

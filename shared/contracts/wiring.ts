@@ -48,32 +48,73 @@ export function sourceUrlIssue(kind: SourceKind, url: string): string | null {
 }
 
 // ---- options per kind ----
-/** `sources.options` of an MQTT source (the keys the ingest connector reads). */
-export const mqttOptionsInput = z
+// One definition per kind, used by the API (input, strict: an unknown key is a mistake), by
+// ingest (stored rows, unknown keys dropped and defaults applied) and by the API's connection
+// test, which connects exactly as ingest does (ingest/mqtt/mqtt-connection.ts).
+
+/** How an MQTT source's payloads are read (see `mqttOptionFields.payload`). */
+export const MQTT_PAYLOAD_FORMATS = ['json', 'sparkplugB'] as const;
+export type MqttPayloadFormat = (typeof MQTT_PAYLOAD_FORMATS)[number];
+
+const mqttOptionFields = {
+  topics: z.array(z.string().min(1).max(1024)).min(1).max(100).meta({ description: 'topic filters to subscribe to (default ["#"], which lets discovery see everything)' }),
+  protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).meta({ description: '5 = MQTT 5.0, 4 = MQTT 3.1.1, auto (default) = 5.0 falling back to 3.1.1' }),
+  clientId: z
+    .string()
+    .regex(/^[0-9A-Za-z_.-]{1,64}$/, 'letters, digits, _ . - only (MQTT 5.0 §3.1.3.1 guarantees 0-9a-zA-Z; 64 characters at most)')
+    .meta({ description: 'client identifier of the ingest session (default flocstream-ingest-<source id>); keep it stable so the broker keeps the session' }),
+  keepalive_s: z.number().int().min(5).max(3600).meta({ description: 'Keep Alive [s] (MQTT 5.0 §3.1.2.10)' }),
+  tlsCa_pem: z
+    .string()
+    .max(65_536)
+    .regex(/-----BEGIN CERTIFICATE-----/, 'a PEM certificate (-----BEGIN CERTIFICATE-----)')
+    .meta({ description: 'PEM certificate(s) of the CA that signed the broker’s certificate, for mqtts:// and wss:// when it is not a public CA' }),
+  payload: z.enum(MQTT_PAYLOAD_FORMATS).meta({
+    description: 'json (default): Flocstream JSON, and Sparkplug B on topics under spBv1.0/ (detected); sparkplugB: Sparkplug B only (Eclipse Sparkplug 3.0), other topics ignored',
+  }),
+  requestRebirth: z.boolean().meta({
+    description:
+      'Sparkplug B only; default false. When true, ingest may publish the standard rebirth command (NCMD Node Control/Rebirth = true) to an edge node whose metric aliases it does not know, at most once per node per minute — the only message ingest can ever publish. A rebirth makes the edge node resend its births; ask the plant’s control-system owner before enabling it.',
+  }),
+};
+
+/** `sources.options` of an MQTT source as the API accepts it. */
+export const mqttOptionsInput = z.object(mqttOptionFields).partial().strict();
+
+/** `sources.options` of an MQTT source as it is used: defaults applied, unknown keys dropped. */
+export const mqttSourceOptions = z
   .object({
-    topics: z.array(z.string().min(1).max(1024)).min(1).max(100).optional().meta({ description: 'topic filters to subscribe to (default ["#"], which lets discovery see everything)' }),
-    protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).optional().meta({ description: '5 = MQTT 5.0, 4 = MQTT 3.1.1, auto (default) = 5.0 falling back to 3.1.1' }),
-    clientId: z
-      .string()
-      .regex(/^[0-9A-Za-z_.-]{1,64}$/, 'letters, digits, _ . - only (MQTT 5.0 §3.1.3.1 guarantees 0-9a-zA-Z; 64 characters at most)')
-      .optional()
-      .meta({ description: 'client identifier of the ingest session (default flocstream-ingest-<source id>); keep it stable so the broker keeps the session' }),
-    keepalive_s: z.number().int().min(5).max(3600).optional().meta({ description: 'Keep Alive [s] (MQTT 5.0 §3.1.2.10)' }),
+    ...mqttOptionFields,
+    topics: mqttOptionFields.topics.default(['#']),
+    protocolVersion: mqttOptionFields.protocolVersion.default('auto'),
+    clientId: mqttOptionFields.clientId.optional(),
+    keepalive_s: mqttOptionFields.keepalive_s.default(30),
+    tlsCa_pem: mqttOptionFields.tlsCa_pem.optional(),
+    payload: mqttOptionFields.payload.default('json'),
+    requestRebirth: mqttOptionFields.requestRebirth.default(false),
   })
-  .strict();
+  .strip();
+export type MqttSourceOptions = z.infer<typeof mqttSourceOptions>;
 
 export const OPCUA_SECURITY_MODES = ['None', 'Sign', 'SignAndEncrypt'] as const;
 export const OPCUA_SECURITY_POLICIES = ['None', 'Basic256Sha256', 'Aes128_Sha256_RsaOaep', 'Aes256_Sha256_RsaPss'] as const;
 
-/** `sources.options` of an OPC UA source (OPC 10000-4 §7.15 MessageSecurityMode, §7.36 SecurityPolicy). */
+const opcuaOptionFields = {
+  securityMode: z.enum(OPCUA_SECURITY_MODES),
+  securityPolicy: z.enum(OPCUA_SECURITY_POLICIES),
+  publishingInterval_ms: z.number().int().min(50).max(60_000).meta({ description: 'subscription publishing interval [ms] (OPC 10000-4 §5.13.2)' }),
+  samplingInterval_ms: z.number().int().min(0).max(3_600_000).meta({ description: 'default sampling interval of tags without their own [ms] (OPC 10000-4 §5.12.1.2)' }),
+  /**
+   * Trust a server certificate not yet in `<pki>/trusted` (otherwise it is put in `<pki>/rejected`
+   * for an integrator to move). Only relevant with Sign or SignAndEncrypt.
+   */
+  acceptUnknownServerCertificate: z.boolean().meta({ description: 'trust a server certificate not yet in the trusted folder' }),
+};
+
+/** `sources.options` of an OPC UA source as the API accepts it (OPC 10000-4 §7.15 MessageSecurityMode, §7.36 SecurityPolicy). */
 export const opcuaOptionsInput = z
-  .object({
-    securityMode: z.enum(OPCUA_SECURITY_MODES).optional(),
-    securityPolicy: z.enum(OPCUA_SECURITY_POLICIES).optional(),
-    publishingInterval_ms: z.number().int().min(50).max(60_000).optional().meta({ description: 'subscription publishing interval [ms] (OPC 10000-4 §5.13.2)' }),
-    samplingInterval_ms: z.number().int().min(0).max(3_600_000).optional().meta({ description: 'default sampling interval of tags without their own [ms] (OPC 10000-4 §5.12.1.2)' }),
-    acceptUnknownServerCertificate: z.boolean().optional().meta({ description: 'trust a server certificate not yet in the trusted folder' }),
-  })
+  .object(opcuaOptionFields)
+  .partial()
   .strict()
   .superRefine((o, ctx) => {
     // A secure channel with mode None uses policy None, and Sign/SignAndEncrypt need a real
@@ -83,6 +124,18 @@ export const opcuaOptionsInput = z
     if (mode === 'None' && policy !== 'None') ctx.addIssue({ code: 'custom', path: ['securityPolicy'], message: 'securityMode None goes with securityPolicy None' });
     if (mode !== 'None' && policy === 'None') ctx.addIssue({ code: 'custom', path: ['securityPolicy'], message: `securityMode ${mode} needs a securityPolicy other than None, e.g. Basic256Sha256` });
   });
+
+/** `sources.options` of an OPC UA source as it is used: defaults applied, unknown keys dropped. */
+export const opcuaSourceOptions = z
+  .object({
+    securityMode: opcuaOptionFields.securityMode.default('None'),
+    securityPolicy: opcuaOptionFields.securityPolicy.default('None'),
+    publishingInterval_ms: opcuaOptionFields.publishingInterval_ms.default(500),
+    samplingInterval_ms: opcuaOptionFields.samplingInterval_ms.default(1_000),
+    acceptUnknownServerCertificate: opcuaOptionFields.acceptUnknownServerCertificate.default(false),
+  })
+  .strip();
+export type OpcuaSourceOptions = z.infer<typeof opcuaSourceOptions>;
 
 export const sourceOptionsSchema: Record<SourceKind, z.ZodType> = { mqtt: mqttOptionsInput, opcua: opcuaOptionsInput };
 
@@ -181,7 +234,7 @@ const finite = (description: string) => z.number().finite().meta({ description }
 const tagFields = {
   name: z.string().trim().min(1).max(64).meta({ description: 'unique within the plant' }),
   sourceId: z.number().int().positive(),
-  address: z.string().min(1).max(1024).meta({ description: 'MQTT topic (or filter with + and #) or OPC UA NodeId (ns=…;s=…)' }),
+  address: z.string().min(1).max(1024).meta({ description: 'MQTT topic (or filter with + and #), Sparkplug B metric path group/node/device/metric (device empty for node metrics), or OPC UA NodeId (ns=…;s=…)' }),
   unit: z.string().trim().min(1).max(16),
   description: z.string().max(200),
   scaleGain: finite('engineering value = raw × scaleGain + scaleOffset'),
@@ -338,6 +391,23 @@ export const tagImportOut = z.object({
 export type TagImportOut = z.infer<typeof tagImportOut>;
 
 // ---- ingest status (table ingest_workers, written by ingest) ----
+/**
+ * `details.sparkplug` of an MQTT source's status once it has seen a Sparkplug B message
+ * (ingest/mqtt/sparkplug.ts; Eclipse Sparkplug 3.0).
+ */
+export const sparkplugStatus = z.object({
+  messages: z.number().meta({ description: 'Sparkplug B messages received' }),
+  seqGaps: z.number().meta({ description: 'missing payload sequence numbers (seq 0–255 wrapping; each missing number counts one)' }),
+  deaths: z.number().meta({ description: 'NDEATH and DDEATH certificates applied (the tags under them marked bad)' }),
+  rebirthRequests: z.number().meta({ description: 'rebirth commands sent (only with requestRebirth)' }),
+  needRebirth: z.array(z.object({ edgeNode: z.string().meta({ description: 'group_id/edge_node_id' }), reason: z.string() })).meta({ description: 'edge nodes whose data ingest cannot read until they publish their births again' }),
+  ignored: z.record(z.string(), z.number()).meta({ description: 'messages or metrics that produced nothing, counted by reason' }),
+  edgeNodes: z.array(
+    z.object({ edgeNode: z.string(), online: z.boolean(), bdSeq: z.number().nullable(), seq: z.number().nullable(), seqGaps: z.number(), devicesOnline: z.array(z.string()) }),
+  ),
+});
+export type SparkplugStatus = z.infer<typeof sparkplugStatus>;
+
 export const connectorStatus = z
   .object({
     sourceId: z.number(),
@@ -359,6 +429,19 @@ export const connectorStatus = z
     details: z.record(z.string(), z.unknown()),
   })
   .loose();
+/**
+ * A worker's spool (ingest/sink/spool.ts): batches fsync'd while PostgreSQL could not take them.
+ * Unreadable files are kept and listed; a reached size cap holds acknowledgements (backpressure).
+ * Both are `ingest` alarm conditions.
+ */
+export const spoolStatus = z.object({
+  bytes: z.number(),
+  files: z.number(),
+  unreadable: z.array(z.object({ file: z.string(), bytes: z.number(), atByte: z.number(), error: z.string() })).default([]),
+  capReached: z.boolean().default(false),
+});
+export type SpoolStatusOut = z.output<typeof spoolStatus>;
+
 /** `ingest_workers.status`: what one ingest worker reports with each heartbeat. */
 export const ingestWorkerStatus = z
   .object({
@@ -366,7 +449,7 @@ export const ingestWorkerStatus = z
     samplesPerSec: z.number(),
     /** Receive → commit delay of the last flush [ms]. */
     lagMs: z.number(),
-    spool: z.object({ bytes: z.number(), files: z.number() }),
+    spool: spoolStatus,
     writer: z.record(z.string(), z.unknown()),
     sources: z.array(connectorStatus),
     loadError: z.string().nullable(),
@@ -389,7 +472,7 @@ export const ingestWorkerOut = z.object({
   stoppedAt: z.string().nullable().meta({ description: 'set by a clean stop' }),
   samplesPerSec: z.number().nullable(),
   lagMs: z.number().nullable(),
-  spool: z.object({ bytes: z.number(), files: z.number() }).nullable(),
+  spool: spoolStatus.nullable(),
   sourceIds: z.array(z.number().int()),
   loadError: z.string().nullable(),
 });
@@ -404,7 +487,7 @@ export const ingestStatusOut = z.object({
   startedAt: z.string().nullable(),
   samplesPerSec: z.number().nullable().meta({ description: 'summed over running workers (the last worker\'s figure when none runs)' }),
   lagMs: z.number().nullable().meta({ description: 'receive → commit delay of the last flush [ms], the largest of the running workers' }),
-  spool: z.object({ bytes: z.number(), files: z.number() }).nullable().meta({ description: 'summed over the workers shown' }),
+  spool: spoolStatus.nullable().meta({ description: 'summed over the workers shown; unreadable files listed, capReached if any worker reached its cap' }),
   writer: z.record(z.string(), z.unknown()).nullable().meta({ description: 'writer counters of the worker with the latest heartbeat' }),
   loadError: z.string().nullable(),
   sources: z.array(connectorStatus).meta({ description: 'connection state per source, from every running worker (the last worker when none runs)' }),

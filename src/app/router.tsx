@@ -1,9 +1,9 @@
-import { lazy } from 'react';
+import { lazy, Suspense } from 'react';
 import { createBrowserRouter, Navigate } from 'react-router';
-import { LoginPage } from '../features/auth/components/login-page.tsx';
 import { AppLayout } from './layout.tsx';
 
-// Views are code-split: each route loads its own chunk.
+// Views are code-split: each route loads its own chunk (sign-in too, so the form library loads only with a form).
+const LoginPage = lazy(() => import('../features/auth/components/login-page.tsx').then((m) => ({ default: m.LoginPage })));
 const AccessPage = lazy(() => import('../features/access/components/access-page.tsx'));
 const WhatIfPage = lazy(() => import('../features/what-if/components/what-if-page.tsx'));
 const SignalsPage = lazy(() => import('../features/signals/components/signals-page.tsx'));
@@ -12,10 +12,18 @@ const WiringPage = lazy(() => import('../features/wiring/components/wiring-page.
 const BoardPage = lazy(() => import('../features/board/components/board-page.tsx'));
 const AlarmsPage = lazy(() => import('../features/alarms/components/alarms-page.tsx'));
 const LabPage = lazy(() => import('../features/lab/components/lab-page.tsx'));
+const SetupPage = lazy(() => import('../features/setup/components/setup-page.tsx'));
 const OutboxPage = lazy(() => import('../features/outbox/components/outbox-page.tsx'));
 
 export const router = createBrowserRouter([
-  { path: '/login', element: <LoginPage /> },
+  {
+    path: '/login',
+    element: (
+      <Suspense fallback={null}>
+        <LoginPage />
+      </Suspense>
+    ),
+  },
   {
     path: '/',
     element: <AppLayout />,
@@ -30,6 +38,7 @@ export const router = createBrowserRouter([
       { path: 'signals', element: <SignalsPage /> },
       { path: 'trends', element: <TrendsPage /> },
       { path: 'wiring', element: <WiringPage /> },
+      { path: 'setup', element: <SetupPage /> },
       { path: '*', element: <p className="p-2">No such view.</p> },
     ],
   },

@@ -13,6 +13,11 @@ export class ApiError extends Error {
   }
 }
 
+/** Whether an error is a 422 with field errors (shown beside the fields, not as a whole). */
+export function hasFieldErrors(error: unknown): boolean {
+  return error instanceof ApiError && !!error.fields && Object.keys(error.fields).length > 0;
+}
+
 export async function api<T>(url: string, init: { method?: string; body?: unknown; csv?: string; signal?: AbortSignal } = {}): Promise<T> {
   // A JSON body, or a CSV file sent as it is (text/csv uploads).
   const sending = init.csv !== undefined ? 'text/csv' : init.body !== undefined ? 'application/json' : null;

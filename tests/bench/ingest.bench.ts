@@ -11,8 +11,16 @@
  *     subscriber that only counts; the CPU seconds of each process per phase go in the notes;
  * (c) publish → row visible latency at 10 000 samples/s;
  * (d) peak RSS (VmHWM) of the ingest process.
+ *
+ * `--stock` (npm run bench:ingest -- --stock) also runs (b) with each kept adapter replaced by the
+ * stock behaviour, in this run, one at a time: aedes-persistence's memory store instead of
+ * server/broker/indexed-persistence.ts, aedes writing to its sockets itself instead of
+ * server/broker/coalesce-writes.ts, and mqtt.js's handleMessage callback held until the commit
+ * instead of ingest's pipelined PUBACKs (ingest/mqtt/mqtt-connector.ts) — and prints each
+ * adapter's gain on the median. An adapter stays only where that gain is 15 % or more.
+ * `--rounds N` (default 3) sets the rounds of every median, for a quick look while iterating.
  */
-import { spawn, spawnSync } from 'node:child_process';
+import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
@@ -137,10 +145,23 @@ function runLoad(args: string[]): Promise<Load> {
   });
 }
 
+const argv = process.argv.slice(2);
+const STOCK = argv.includes('--stock');
+const roundsAt = argv.indexOf('--rounds');
+const ROUNDS = roundsAt >= 0 ? Number(argv[roundsAt + 1]) : 3;
+// Each round takes three hours of its own in half a day of sample time.
+if (!Number.isInteger(ROUNDS) || ROUNDS < 1 || ROUNDS > 4) throw new Error('--rounds takes a whole number from 1 to 4');
+
+/** The embedded broker process npm start runs (server/broker/main.ts, with its Node options), with `flags`. */
+async function startBroker(port: number, flags: string[]): Promise<{ url: string; child: ChildProcess }> {
+  const child = spawn(process.execPath, [...BROKER_NODE_ARGS, '--import', 'tsx', 'server/broker/main.ts', '127.0.0.1', String(port), ...flags], { cwd: ROOT, stdio: ['ignore', 'pipe', 'inherit'] });
+  return { url: (await waitForLine(child, 'broker process', BROKER_READY))[1]!, child };
+}
+
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-bench-'));
 const results: Record<string, number> = {};
 const notes: string[] = [];
-let cleanup: (() => void)[] = [];
+const cleanup: (() => void)[] = [];
 try {
   const pgPort = await freePort();
   const cluster = await startLocalPostgres({ dataDir: tmp, port: pgPort, dbName: 'bench' });
@@ -149,10 +170,9 @@ try {
   const pool = new pg.Pool({ connectionString: cluster.url, max: 3 });
   cleanup.push(() => void pool.end());
   const mqttPort = await freePort();
-  // The broker process npm start runs (server/broker/main.ts, with its Node options).
-  const brokerChild = spawn(process.execPath, [...BROKER_NODE_ARGS, '--import', 'tsx', 'server/broker/main.ts', '127.0.0.1', String(mqttPort)], { cwd: ROOT, stdio: ['ignore', 'pipe', 'inherit'] });
+  const { url: brokerUrl, child: brokerChild } = await startBroker(mqttPort, []);
   cleanup.push(() => brokerChild.kill('SIGKILL'));
-  const broker = { url: (await waitForLine(brokerChild, 'broker process', BROKER_READY))[1]! };
+  const broker = { url: brokerUrl };
 
   const plant = (await pool.query(`INSERT INTO plants (code, name) VALUES ('bench', 'Bench') RETURNING id`)).rows[0].id;
   const source = (await pool.query(`INSERT INTO sources (plant_id, name, kind, url, options) VALUES ($1, 'bench', 'mqtt', $2, '{"topics":["b/#"],"protocolVersion":4}') RETURNING id`, [plant, broker.url])).rows[0].id;
@@ -167,7 +187,6 @@ try {
   // indexes for both); the figures are the medians, so a checkpoint or a neighbour's burst in one
   // round does not decide the ratio. The writer uses the ingest default batch size.
   const ROWS = 1_000_000;
-  const ROUNDS = 3;
   const ps = localPsql(tmp)!;
   fs.chmodSync(tmp, 0o755);
   await pool.query(`CREATE TABLE samples_ref (LIKE samples INCLUDING ALL) PARTITION BY RANGE (ts)`);
@@ -227,21 +246,33 @@ try {
   }
 
   // ---- ingest child process -----------------------------------------------------------------
-  const dataDir = path.join(tmp, 'ingest');
-  const child = spawn(process.execPath, [...INGEST_NODE_ARGS, '--import', 'tsx', 'ingest/main.ts'], {
-    cwd: ROOT,
-    env: { ...process.env, DATABASE_URL: cluster.url, FLOCSTREAM_DATA_DIR: dataDir, LOG_LEVEL: 'warn', INGEST_MQTT_CLIENT_ID: 'bench' },
-    stdio: ['ignore', 'inherit', 'inherit'],
-  });
-  cleanup.push(() => child.kill('SIGKILL'));
-  // Ingest's heartbeat row (ingest_workers) says when its connector is up.
-  const workerStatus = async () => (await pool.query(`SELECT status FROM ingest_workers WHERE pid = $1 ORDER BY heartbeat_at DESC LIMIT 1`, [child.pid])).rows[0]?.status;
-  for (let i = 0; ; i++) {
-    if ((await workerStatus())?.sources?.[0]?.state === 'connected') break;
-    if (i > 300) throw new Error('ingest did not connect');
-    await sleep(100);
-  }
-  await sleep(300);
+  const workerStatusOf = async (pid: number | undefined) => (await pool.query(`SELECT status FROM ingest_workers WHERE pid = $1 ORDER BY heartbeat_at DESC LIMIT 1`, [pid])).rows[0]?.status;
+  /** An ingest process (as npm start runs it) with a data folder of its own; resolves once its MQTT source is connected. */
+  const startIngest = async (name: string, env: Record<string, string> = {}) => {
+    const dataDir = path.join(tmp, name);
+    const proc = spawn(process.execPath, [...INGEST_NODE_ARGS, '--import', 'tsx', 'ingest/main.ts'], {
+      cwd: ROOT,
+      env: { ...process.env, DATABASE_URL: cluster.url, FLOCSTREAM_DATA_DIR: dataDir, LOG_LEVEL: 'warn', INGEST_MQTT_CLIENT_ID: name, ...env },
+      stdio: ['ignore', 'inherit', 'inherit'],
+    });
+    cleanup.push(() => proc.kill('SIGKILL'));
+    // Ingest's heartbeat row (ingest_workers) says when its connector is up.
+    for (let i = 0; ; i++) {
+      if ((await workerStatusOf(proc.pid))?.sources?.[0]?.state === 'connected') break;
+      if (i > 300 || proc.exitCode !== null) throw new Error(`ingest ${name} did not connect`);
+      await sleep(100);
+    }
+    await sleep(300);
+    return { child: proc };
+  };
+  const stopChild = async (c: ChildProcess) => {
+    if (c.exitCode !== null) return;
+    const exited = new Promise((r) => c.once('exit', r));
+    c.kill('SIGTERM');
+    await exited;
+  };
+  const { child } = await startIngest('bench');
+  const workerStatus = () => workerStatusOf(child.pid);
   const pub = await mqtt.connectAsync(broker.url, { clientId: 'bench-pub', protocolVersion: 4 });
   cleanup.push(() => void pub.end(true));
   // Polling count(*) over up to a million fresh rows every 20 ms took a sizeable share of the
@@ -259,7 +290,13 @@ try {
   await pool.query(`SELECT flocstream_ensure_day_partition($1)`, [new Date(dayB)]);
   // CPU used by each process during a phase says what limits its figure (2 cores in all).
   const pgData = path.join(tmp, 'pg');
-  const procs = () => ({ broker: cpuOf(brokerChild.pid!), ingest: cpuOf(child.pid!), postgres: pgCpu(pgData) });
+  /** The broker and ingest under measurement: the kept ones, or a stock variant under --stock. */
+  interface Pair {
+    url: string;
+    procs: () => Record<string, number>;
+  }
+  const pairOf = (url: string, b: ChildProcess, i: ChildProcess): Pair => ({ url, procs: () => ({ broker: cpuOf(b.pid!), ingest: cpuOf(i.pid!), postgres: pgCpu(pgData) }) });
+  const kept = pairOf(broker.url, brokerChild, child);
   const cpuNote = (label: string, r: { wallSec: number; cpu: Record<string, number> }, publisherCpu: number) =>
     notes.push(`${label}: ${r.wallSec} s wall; CPU s — broker ${r.cpu.broker}, ingest ${r.cpu.ingest}, postgres ${r.cpu.postgres}, publisher ${publisherCpu.toFixed(1)}`);
 
@@ -271,29 +308,39 @@ try {
   const SINGLE = 300_000;
   const dayW = dayB - 2 * DAY;
   await pool.query(`SELECT flocstream_ensure_day_partition($1)`, [new Date(dayW)]);
-  {
-    const WARM = 30_000;
-    await runLoad(['publish', broker.url, 'single', String(WARM), '1', String(dayW)]);
-    await waitCount(pool, inDay, [new Date(dayW), new Date(dayW + DAY)], WARM, 60_000);
-  }
+  const WARM = 30_000;
+  const warmUp = async (pair: Pair, day: number) => {
+    await runLoad(['publish', pair.url, 'single', String(WARM), '1', String(day)]);
+    await waitCount(pool, inDay, [new Date(day), new Date(day + DAY)], WARM, 60_000);
+  };
+  await warmUp(kept, dayW);
   /**
-   * Three rounds of one load, each on three hours of its own from `start`, every round noted;
-   * the median rate is the figure.
+   * ROUNDS rounds (default three) of one load, each on three hours of its own from `start`,
+   * every round noted; the median rate is the figure.
    */
-  const medianOfRounds = async (label: string, start: number, n: number, publish: (from: number) => string[]): Promise<number> => {
+  /**
+   * Median CPU per sample [µs] of broker and ingest per load label: what an adapter saves its
+   * process, which a busy host changes far less than the rates (both noted under --stock).
+   */
+  const cpuPerSample: Record<string, { broker: number; ingest: number }> = {};
+  const medianOfRounds = async (label: string, start: number, n: number, publish: (from: number) => string[], pair: Pair = kept): Promise<number> => {
     const rates: number[] = [];
-    for (let round = 0; round < 3; round++) {
+    const cpus: { broker: number[]; ingest: number[] } = { broker: [], ingest: [] };
+    for (let round = 0; round < ROUNDS; round++) {
       const from = start + round * 3 * 3_600_000;
       const to = from + 3 * 3_600_000;
-      const r = await cpuDuring(procs, async () => {
-        const load = await runLoad(['publish', broker.url, ...publish(from)]);
+      const r = await cpuDuring(pair.procs, async () => {
+        const load = await runLoad(['publish', pair.url, ...publish(from)]);
         const end = await waitCount(pool, inDay, [new Date(from), new Date(to)], n, 120_000);
         return { rate: n / ((end - load.start) / 1000), done: await load.done };
       });
       await exact(from, to, n);
       rates.push(r.value.rate);
+      cpus.broker.push(((r.cpu.broker ?? 0) / n) * 1e6);
+      cpus.ingest.push(((r.cpu.ingest ?? 0) / n) * 1e6);
       cpuNote(`${label}, round ${round + 1} (${Math.round(r.value.rate).toLocaleString('en-US')}/s)`, r, r.value.done.cpuSec);
     }
+    cpuPerSample[label] = { broker: median(cpus.broker), ingest: median(cpus.ingest) };
     return Math.round(median(rates));
   };
   results.e2eSingleSamplesPerSec = await medianOfRounds('single, QoS 1', dayB, SINGLE, (from) => ['single', String(SINGLE), '1', String(from)]);
@@ -302,7 +349,7 @@ try {
   // broker would redeliver) — the rate a fleet of QoS 0 field publishers could push.
   const dayQ0 = dayB - DAY;
   await pool.query(`SELECT flocstream_ensure_day_partition($1)`, [new Date(dayQ0)]);
-  const q0 = await cpuDuring(procs, async () => {
+  const q0 = await cpuDuring(kept.procs, async () => {
     const load = await runLoad(['publish', broker.url, 'single', String(SINGLE), '0', String(dayQ0)]);
     const end = await waitCount(pool, inDay, [new Date(dayQ0), new Date(dayQ0 + DAY / 2)], SINGLE, 120_000);
     return { rate: SINGLE / ((end - load.start) / 1000), done: await load.done };
@@ -316,7 +363,7 @@ try {
   // to 244 000/s on this host with the same code).
   const BATCHED = 1_000_000;
   const PER = 1_000;
-  results.e2eBatchedSamplesPerSec = await medianOfRounds(`batched (${PER} per message), QoS 1`, dayB + DAY / 2, BATCHED, (from) => [
+  results.e2eBatchedSamplesPerSec = await medianOfRounds('batched, QoS 1', dayB + DAY / 2, BATCHED, (from) => [
     'batched',
     String(BATCHED / PER),
     String(PER),
@@ -380,9 +427,54 @@ try {
   const st = await workerStatus();
   notes.push(`ingest status: ${st.writer.flushes} flushes, ${st.writer.stagedFlushes} via staging, ${st.writer.pressureEvents} backpressure pauses, ${st.sources[0].deadLetters} dead letters`);
 
-  child.kill('SIGTERM');
-  await new Promise((r) => child.once('exit', r));
-  cleanup = cleanup.filter((f) => f !== cleanup[cleanup.length - 1]);
+  await stopChild(child);
+
+  console.error(JSON.stringify({ measured: results }));
+
+  // ---- --stock: each adapter against the stock behaviour, in this run ---------------------------
+  if (STOCK) {
+    await pub.endAsync(true);
+    await stopChild(brokerChild);
+    /**
+     * One adapter replaced at a time, all else as above. mqtt.js's held handleMessage callback
+     * admits one message per batch commit (INGEST_FLUSH_MS, 200 ms by default), so that variant
+     * gets a load small enough to finish: its rate, not its size, is the figure.
+     */
+    const variants = [
+      { key: 'stockPersistence', what: "aedes-persistence's memory store instead of the indexed one", flags: ['--stock-persistence'], env: {}, single: SINGLE, batchedMessages: BATCHED / PER },
+      { key: 'stockWrites', what: 'aedes writing to its sockets itself instead of gathered writes', flags: ['--stock-writes'], env: {}, single: SINGLE, batchedMessages: BATCHED / PER },
+      { key: 'stockAcks', what: "mqtt.js's handleMessage callback held until the commit instead of pipelined PUBACKs", flags: [], env: { INGEST_MQTT_ACKS: 'serial' }, single: 50, batchedMessages: 10 },
+    ] as const;
+    for (const [k, v] of variants.entries()) {
+      const day = dayB - (4 + 2 * k) * DAY;
+      for (const d of [day, day - DAY]) await pool.query(`SELECT flocstream_ensure_day_partition($1)`, [new Date(d)]);
+      const b = await startBroker(await freePort(), [...v.flags]);
+      cleanup.push(() => b.child.kill('SIGKILL'));
+      await pool.query(`UPDATE sources SET url = $1 WHERE id = $2`, [b.url, source]);
+      const ing = await startIngest(`bench-stock${k}`, v.env);
+      const pair = pairOf(b.url, b.child, ing.child);
+      if (v.single >= WARM) await warmUp(pair, day - DAY);
+      const single = await medianOfRounds(`${v.key}: single, QoS 1`, day, v.single, (from) => ['single', String(v.single), '1', String(from)], pair);
+      const batched = await medianOfRounds(`${v.key}: batched, QoS 1`, day + DAY / 2, v.batchedMessages * PER, (from) => ['batched', String(v.batchedMessages), String(PER), String(from)], pair);
+      results[`${v.key}SingleSamplesPerSec`] = single;
+      results[`${v.key}BatchedSamplesPerSec`] = batched;
+      // Progress on stderr, so a long run that fails later still shows what it measured.
+      console.error(JSON.stringify({ measured: results }));
+      const gain = (keptRate: number, stockRate: number) => `${keptRate >= stockRate ? '+' : ''}${Math.round((keptRate / stockRate - 1) * 100)} %`;
+      notes.push(
+        `${v.key} (${v.what}): single ${single.toLocaleString('en-US')}/s against kept ${results.e2eSingleSamplesPerSec!.toLocaleString('en-US')}/s, adapter gain ${gain(results.e2eSingleSamplesPerSec!, single)}; batched ${batched.toLocaleString('en-US')}/s against ${results.e2eBatchedSamplesPerSec!.toLocaleString('en-US')}/s, gain ${gain(results.e2eBatchedSamplesPerSec!, batched)} (medians of ${ROUNDS})`,
+      );
+      const cpuLine = (load: string) => {
+        const k0 = cpuPerSample[load]!;
+        const s0 = cpuPerSample[`${v.key}: ${load}`]!;
+        const f = (x: number) => x.toFixed(1);
+        return `${load}: broker ${f(s0.broker)} against kept ${f(k0.broker)} µs CPU per sample, ingest ${f(s0.ingest)} against ${f(k0.ingest)}`;
+      };
+      notes.push(`${v.key} CPU — ${cpuLine('single, QoS 1')}; ${cpuLine('batched, QoS 1')}`);
+      await stopChild(ing.child);
+      await stopChild(b.child);
+    }
+  }
 } finally {
   for (const f of cleanup.reverse()) {
     try {
@@ -406,6 +498,12 @@ const targets: Record<string, string> = {
   p50LatencyMs: '',
   p95LatencyMs: '< 1000',
   peakRssMb: '< 300',
+  stockPersistenceSingleSamplesPerSec: '(stock reference)',
+  stockPersistenceBatchedSamplesPerSec: '(stock reference)',
+  stockWritesSingleSamplesPerSec: '(stock reference)',
+  stockWritesBatchedSamplesPerSec: '(stock reference)',
+  stockAcksSingleSamplesPerSec: '(stock reference)',
+  stockAcksBatchedSamplesPerSec: '(stock reference)',
 };
 console.log(`\nFlocstream ingest benchmark — ${os.cpus().length} CPUs, ${os.cpus()[0]?.model ?? ''}`);
 console.log('figure'.padEnd(26) + 'measured'.padStart(14) + '   target');

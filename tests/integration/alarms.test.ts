@@ -1,96 +1,154 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
+import { startBalanceEngine } from '../../server/jobs/balance-engine.ts';
+import { SETTINGS } from '../../shared/contracts/settings.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
 import { FIXTURE_VALUES, seedFixturePlant, writeSignals } from './balance-fixture.ts';
 
-const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+/**
+ * Alarm life cycle in ISA-18.2 terms (ANSI/ISA-18.2-2016: on-delay, deadband, acknowledge).
+ * Time is the engine's injected clock, moved by the test; every test seeds its own plant and
+ * runs its own engine, so the tests share only the database and its users and pass in any order.
+ */
+const ON_DELAY_S = SETTINGS['alarm.on_delay_s'].default;
 
 describe('alarms: raise, acknowledge, clear (ISA-18.2 on-delay and deadband)', () => {
   let h: TestApp;
-  let engine: BalanceEngine;
-  let plantId: number;
-  let tagIds: Record<string, number>;
-  const mlssAlarms = async () =>
-    (await h.ctx.db.pool.query(`SELECT * FROM alarms WHERE plant_id = $1 AND rule = 'mlss-low' ORDER BY id`, [plantId])).rows;
-  const mlss = async (v: number) => {
-    await writeSignals(h.ctx, tagIds, { ...FIXTURE_VALUES, 'AIT-111': v }, { history_h: 1 });
-    return engine.runOnce(plantId);
-  };
+  let plants = 0;
+  const stops: Array<() => Promise<void>> = [];
 
   beforeAll(async () => {
     h = await createTestApp();
-    ({ plantId, tagIds } = await seedFixturePlant(h.ctx));
-    await h.ctx.db.pool.query(`INSERT INTO settings (plant_id, key, value) VALUES (0, 'alarm.on_delay_s', '1')`);
-    engine = await startBalanceEngine(h.ctx, { schedule: false, mailCatcher: false });
   });
   afterAll(async () => {
-    await engine?.stop();
+    for (const s of stops) await s();
     await h.close();
   });
 
-  it('on-delay: a low MLSS raises only after it held for the delay', async () => {
-    await mlss(1.9);
-    expect(await mlssAlarms()).toHaveLength(0);
-    await sleep(1100);
-    await mlss(1.9);
-    const [a] = await mlssAlarms();
+  /** A fresh fixture plant with its own engine on a clock that moves only when told. */
+  async function plant() {
+    const { plantId, tagIds } = await seedFixturePlant(h.ctx, { code: `al${++plants}` });
+    let now_ms = Math.floor(Date.now() / 1000) * 1000;
+    const engine = await startBalanceEngine(h.ctx, { schedule: false, mailCatcher: false, now: () => now_ms });
+    stops.push(() => engine.stop());
+    const alarms = async (rule: string) =>
+      (await h.ctx.db.pool.query(`SELECT * FROM alarms WHERE plant_id = $1 AND rule = $2 ORDER BY id`, [plantId, rule])).rows;
+    return {
+      plantId,
+      tagIds,
+      /** Moves the clock on by `s` seconds. */
+      advance(s: number) {
+        now_ms += s * 1000;
+      },
+      at: () => new Date(now_ms),
+      /** Fresh signals at the clock's time with this basin MLSS, then one engine run. */
+      async mlss(v: number) {
+        await writeSignals(h.ctx, tagIds, { ...FIXTURE_VALUES, 'AIT-111': v }, { history_h: 1, at: new Date(now_ms) });
+        return engine.runOnce(plantId);
+      },
+      async run(opts: Parameters<typeof writeSignals>[3] = {}) {
+        await writeSignals(h.ctx, tagIds, FIXTURE_VALUES, { history_h: 1, ...opts, at: new Date(now_ms) });
+        return engine.runOnce(plantId);
+      },
+      mlssAlarms: () => alarms('mlss-low'),
+      alarms,
+    };
+  }
+
+  /** A low MLSS held for the whole on-delay: one raised mlss-low alarm. */
+  async function raisedLowMlss() {
+    const p = await plant();
+    await p.mlss(1.9);
+    p.advance(ON_DELAY_S);
+    await p.mlss(1.9);
+    const [a] = await p.mlssAlarms();
+    expect(a?.state).toBe('raised');
+    return { ...p, alarm: a };
+  }
+
+  it('on-delay: a low MLSS raises only once it held for the whole delay', async () => {
+    const p = await plant();
+    await p.mlss(1.9);
+    p.advance(ON_DELAY_S - 1);
+    await p.mlss(1.9);
+    expect(await p.mlssAlarms()).toHaveLength(0);
+    p.advance(1);
+    await p.mlss(1.9);
+    const [a, ...more] = await p.mlssAlarms();
+    expect(more).toEqual([]);
     expect(a).toMatchObject({ state: 'raised', priority: 2, target: 'ab1', limit: 2 });
+    expect(a.raised_at).toEqual(p.at());
     expect(a.value).toBeCloseTo(1.9, 9);
     expect(a.message).toMatch(/MLSS in ab1 is 1.90 g\/L, below the floor of 2 g\/L.*licensed operator decides/);
   });
 
-  it('deadband: back above the floor but within 0.1 g/L keeps the alarm', async () => {
-    await mlss(2.05);
-    expect((await mlssAlarms()).map((a) => a.state)).toEqual(['raised']);
+  it('deadband: back above the floor but within 0.1 g/L keeps the alarm; beyond it clears with the time', async () => {
+    const p = await raisedLowMlss();
+    p.advance(10);
+    await p.mlss(2.05);
+    expect((await p.mlssAlarms()).map((a) => a.state)).toEqual(['raised']);
+    p.advance(10);
+    await p.mlss(2.2);
+    const [a] = await p.mlssAlarms();
+    expect(a).toMatchObject({ state: 'cleared', cleared_at: p.at(), acknowledged_by: null });
   });
 
   it('acknowledge: operator+, who and when, audited; twice is a conflict; analyst refused', async () => {
-    const [a] = await mlssAlarms();
-    const url = `/api/v1/plants/${plantId}/alarms/${a.id}/ack`;
+    const { plantId, alarm } = await raisedLowMlss();
+    const url = `/api/v1/plants/${plantId}/alarms/${alarm.id}/ack`;
     expect((await (await h.agent('analyst')).post(url).send({})).status).toBe(403);
     const op = await h.agent('operator');
+    const before = Date.now();
     const r = await op.post(url).send({ comment: 'sampling the basin' });
     expect(r.status).toBe(200);
-    expect(r.body).toMatchObject({ id: a.id, state: 'acknowledged', acknowledgedBy: h.users.operator.id });
-    expect(Date.parse(r.body.acknowledgedAt)).toBeGreaterThan(Date.now() - 10_000);
-    const audit = await h.ctx.db.pool.query(`SELECT actor, target, details FROM audit_log WHERE action = 'alarm.acknowledge'`);
-    expect(audit.rows).toEqual([{ actor: h.users.operator.email, target: `alarm:${a.id}`, details: expect.objectContaining({ rule: 'mlss-low', comment: 'sampling the basin' }) }]);
+    expect(r.body).toMatchObject({ id: alarm.id, state: 'acknowledged', acknowledgedBy: h.users.operator.id });
+    // Acknowledgement is a person's act, stamped with the server's wall clock.
+    expect(Date.parse(r.body.acknowledgedAt)).toBeGreaterThanOrEqual(before - 1000);
+    const audit = await h.ctx.db.pool.query(`SELECT actor, target, details FROM audit_log WHERE action = 'alarm.acknowledge' AND target = $1`, [`alarm:${alarm.id}`]);
+    expect(audit.rows).toEqual([{ actor: h.users.operator.email, target: `alarm:${alarm.id}`, details: expect.objectContaining({ rule: 'mlss-low', comment: 'sampling the basin' }) }]);
     expect((await op.post(url).send({})).status).toBe(409);
     expect((await op.post(`/api/v1/plants/${plantId}/alarms/999999/ack`).send({})).status).toBe(404);
   });
 
-  it('clear: beyond the deadband the alarm returns to normal with the time', async () => {
-    await mlss(2.2);
-    const [a] = await mlssAlarms();
-    expect(a.state).toBe('cleared');
-    expect(a.cleared_at).toBeInstanceOf(Date);
-    expect(a.acknowledged_by).toBe(h.users.operator.id);
+  it('clear: an acknowledged alarm beyond the deadband returns to normal, keeping who acknowledged it', async () => {
+    const p = await raisedLowMlss();
+    expect((await (await h.agent('operator')).post(`/api/v1/plants/${p.plantId}/alarms/${p.alarm.id}/ack`).send({})).status).toBe(200);
+    p.advance(10);
+    await p.mlss(2.2);
+    const [a] = await p.mlssAlarms();
+    expect(a).toMatchObject({ state: 'cleared', cleared_at: p.at(), acknowledged_by: h.users.operator.id });
   });
 
   it('chatter shorter than the on-delay raises nothing; a cleared unacknowledged alarm can still be acknowledged', async () => {
-    await mlss(1.9);
-    await mlss(2.2);
-    await mlss(1.9);
-    expect(await mlssAlarms()).toHaveLength(1);
-    await sleep(1100);
-    await mlss(1.9);
-    await mlss(2.3);
-    const rows = await mlssAlarms();
-    expect(rows.map((r) => r.state)).toEqual(['cleared', 'cleared']);
-    expect(rows[1].acknowledged_at).toBeNull();
-    const r = await (await h.agent('operator')).post(`/api/v1/plants/${plantId}/alarms/${rows[1].id}/ack`).send({});
+    const p = await plant();
+    // Low, normal, low again: the second low restarts the on-delay, so the first low's start does not count.
+    await p.mlss(1.9);
+    p.advance(ON_DELAY_S / 4);
+    await p.mlss(2.2);
+    p.advance(ON_DELAY_S / 4);
+    await p.mlss(1.9);
+    p.advance(ON_DELAY_S - 1);
+    await p.mlss(1.9);
+    expect(await p.mlssAlarms()).toHaveLength(0);
+    p.advance(1);
+    await p.mlss(1.9);
+    p.advance(10);
+    await p.mlss(2.3);
+    const [a, ...more] = await p.mlssAlarms();
+    expect(more).toEqual([]);
+    expect(a).toMatchObject({ state: 'cleared', acknowledged_at: null });
+    const r = await (await h.agent('operator')).post(`/api/v1/plants/${p.plantId}/alarms/${a.id}/ack`).send({});
     expect(r.body).toMatchObject({ state: 'cleared', acknowledgedBy: h.users.operator.id });
   });
 
-  it('a stale tag raises tag-stale (P4) for that tag only; fresh again clears it', async () => {
-    await writeSignals(h.ctx, tagIds, FIXTURE_VALUES, { receivedAgo_s: { 'LIT-211': 400 }, history_h: 1 });
-    await engine.runOnce(plantId);
-    await sleep(1100);
-    await engine.runOnce(plantId);
-    const stale = (await h.ctx.db.pool.query(`SELECT target, priority, state FROM alarms WHERE plant_id = $1 AND rule = 'tag-stale'`, [plantId])).rows;
-    expect(stale).toEqual([{ target: 'LIT-211', priority: 4, state: 'raised' }]);
-    await writeSignals(h.ctx, tagIds, FIXTURE_VALUES, { history_h: 1 });
-    await engine.runOnce(plantId);
-    expect((await h.ctx.db.pool.query(`SELECT state FROM alarms WHERE plant_id = $1 AND rule = 'tag-stale'`, [plantId])).rows).toEqual([{ state: 'cleared' }]);
+  it('a stale tag raises tag-stale (P4) for that tag only, after the on-delay; fresh again clears it', async () => {
+    const p = await plant();
+    const staleLevel = { receivedAgo_s: { 'LIT-211': 400 } };
+    await p.run(staleLevel);
+    p.advance(ON_DELAY_S);
+    await p.run({ receivedAgo_s: { 'LIT-211': 400 + ON_DELAY_S } });
+    expect((await p.alarms('tag-stale')).map(({ target, priority, state }) => ({ target, priority, state }))).toEqual([{ target: 'LIT-211', priority: 4, state: 'raised' }]);
+    p.advance(10);
+    await p.run();
+    expect((await p.alarms('tag-stale')).map((a) => a.state)).toEqual(['cleared']);
   });
 });

@@ -1,8 +1,10 @@
+import { Queue, createPostgresBackend } from 'bullmq';
 import pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
+import { BALANCE_QUEUE, startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { balanceOut } from '../../shared/contracts/balance.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
+import { waitFor } from '../helpers/wait.ts';
 import { seedFixturePlant, writeSignals } from './balance-fixture.ts';
 
 describe('balance engine against PostgreSQL', () => {
@@ -43,9 +45,9 @@ describe('balance engine against PostgreSQL', () => {
     expect(row.rows[0]).toMatchObject({ plant_id: plantId, quality: 'good' });
     expect(balanceOut.safeParse({ ...b, data: row.rows[0].data, inputs: row.rows[0].inputs }).success).toBe(true);
     expect(row.rows[0].inputs.signals.find((s: { tag: string }) => s.tag === 'AIT-231')).toMatchObject({ value: 0.01, unit: 'g/L', quality: 'good' });
-    for (let i = 0; i < 50 && !got.some((g) => g.includes('"balance"')); i++) await new Promise((r) => setTimeout(r, 20));
+    const published = await waitFor(() => got.find((g) => g.includes('"balance"')), undefined, { what: 'the balance notification' });
     await listener.end();
-    const msg = JSON.parse(got.find((g) => g.includes('"balance"'))!);
+    const msg = JSON.parse(published);
     expect(msg).toMatchObject({ plantId, event: 'balance', data: { id: b.id, quality: 'good' } });
     expect(msg.data.totalMass_kg.value).toBeCloseTo(30_000, 6);
   });
@@ -71,22 +73,28 @@ describe('balance engine against PostgreSQL', () => {
 
   it('the repeatable job (BullMQ on PostgreSQL) computes balances by itself and stops cleanly', async () => {
     await h.ctx.db.pool.query(`INSERT INTO settings (plant_id, key, value) VALUES ($1, 'balance.interval_s', '1')`, [plantId]);
-    const before = (await h.ctx.db.pool.query('SELECT count(*)::int n FROM balances WHERE plant_id = $1', [plantId])).rows[0].n;
-    const scheduled = await startBalanceEngine(h.ctx, { mailCatcher: false });
+    const count = async (): Promise<number> => (await h.ctx.db.pool.query('SELECT count(*)::int n FROM balances WHERE plant_id = $1', [plantId])).rows[0].n;
+    // BullMQ's own view of the queue's workers (on PostgreSQL: the named LISTEN connections).
+    const observer = new Queue(BALANCE_QUEUE, { connection: { connectionString: h.t.url, schema: 'bullmq', migrate: true, max: 1 } }, createPostgresBackend);
+    const workers = async () => (await observer.getWorkers()).length;
     try {
-      let n = before;
-      for (let i = 0; i < 100 && n < before + 2; i++) {
-        await new Promise((r) => setTimeout(r, 100));
-        n = (await h.ctx.db.pool.query('SELECT count(*)::int n FROM balances WHERE plant_id = $1', [plantId])).rows[0].n;
+      const before = await count();
+      const scheduled = await startBalanceEngine(h.ctx, { mailCatcher: false });
+      try {
+        await waitFor(count, (n) => n >= before + 2, { timeout_ms: 15_000, every_ms: 100, what: 'two scheduled balances' });
+        const sched = await h.ctx.db.pool.query(`SELECT count(*)::int n FROM pg_namespace WHERE nspname = 'bullmq'`);
+        expect(sched.rows[0].n).toBe(1);
+        expect(await workers()).toBe(1);
+      } finally {
+        await scheduled.stop();
       }
-      expect(n).toBeGreaterThanOrEqual(before + 2);
-      const sched = await h.ctx.db.pool.query(`SELECT count(*)::int n FROM pg_namespace WHERE nspname = 'bullmq'`);
-      expect(sched.rows[0].n).toBe(1);
+      // Stopped cleanly: stop() waited for a job in flight, and the worker has left the queue,
+      // so nothing computes another balance (no wait for a next tick that must not come).
+      const after = await count();
+      await waitFor(workers, (n) => n === 0, { what: 'the worker leaving the queue' });
+      expect(await count()).toBe(after);
     } finally {
-      await scheduled.stop();
+      await observer.close();
     }
-    const after = (await h.ctx.db.pool.query('SELECT count(*)::int n FROM balances WHERE plant_id = $1', [plantId])).rows[0].n;
-    await new Promise((r) => setTimeout(r, 1500));
-    expect((await h.ctx.db.pool.query('SELECT count(*)::int n FROM balances WHERE plant_id = $1', [plantId])).rows[0].n).toBe(after);
   });
 });

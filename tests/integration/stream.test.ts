@@ -3,9 +3,11 @@ import type { AddressInfo } from 'node:net';
 import express from 'express';
 import pg from 'pg';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { LISTENER_APPLICATION_NAME } from '../../server/db/pg-listener.ts';
 import { errorMiddleware } from '../../server/http/error-middleware.ts';
 import { DEFAULT_STREAM_OPTIONS, StreamHub, notifyStream, serveStream, streamHub } from '../../server/services/stream.service.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
+import { waitFor } from '../helpers/wait.ts';
 
 interface SseEvent {
   id?: string;
@@ -124,10 +126,11 @@ describe('live stream (SSE)', () => {
       await c.query(`SELECT pg_notify('flocstream_stream', $1)`, [JSON.stringify({ plantId: plant, event: 'alarm', data: { id: 7, rule: 'blanket-high', state: 'raised' } })]);
       expect(JSON.parse((await s.next('alarm', n)).data!)).toEqual({ id: 7, rule: 'blanket-high', state: 'raised' });
       // Malformed payloads and other plants' events are dropped; the stream goes on.
+      // Counted before the notifications: the event can arrive before the next line runs.
+      const m = s.events.length;
       await c.query(`SELECT pg_notify('flocstream_stream', 'not json'), pg_notify('flocstream_stream', '{"plantId":"x","event":"tag"}')`);
       await notifyStream(c, other, 'balance', { not: 'yours' });
       await notifyStream(c, plant, 'balance', { second: true });
-      const m = s.events.length;
       expect(JSON.parse((await s.next('balance', m)).data!)).toEqual({ second: true });
       expect(s.events.some((e) => e.data?.includes('yours'))).toBe(false);
     } finally {
@@ -140,9 +143,12 @@ describe('live stream (SSE)', () => {
     const t = JSON.parse((await s.next('tag', k)).data!);
     expect(t).toMatchObject({ tagId: tag, value: 433.5, quality: 5 });
     expect(Date.parse(t.ts)).toBeGreaterThan(Date.now() - 10_000);
-    // Sent once, not on every poll.
-    await new Promise((r) => setTimeout(r, 1500));
-    expect(s.events.filter((e) => e.event === 'tag')).toHaveLength(1);
+    // Sent once, not on every poll: a second tag changed now arrives from a later poll whose
+    // look-back still covers the first change, and the first is not sent again.
+    const marker = (await q(`INSERT INTO tags (plant_id, source_id, name, address, unit) SELECT plant_id, source_id, 'WAS_FLOW', 'elm/was/flow', 'm3/h' FROM tags WHERE id = $1 RETURNING id`, [tag])).rows[0].id;
+    await q(`INSERT INTO tag_latest (tag_id, ts, value, quality, received_at) VALUES ($1, now(), 21, 0, now())`, [marker]);
+    await s.until('the second tag', () => s.events.some((e) => e.event === 'tag' && JSON.parse(e.data!).tagId === marker));
+    expect(s.events.filter((e) => e.event === 'tag').map((e) => JSON.parse(e.data!).tagId)).toEqual([tag, marker]);
     s.close();
   });
 
@@ -155,12 +161,12 @@ describe('live stream (SSE)', () => {
     hub.publish(plant, 'alarm', { id: 1 });
     await s.next('alarm');
     expect(s.events.map((e) => e.event)).toEqual(['alarm']);
-    const listeners = async () => (await q(`SELECT count(*)::int n FROM pg_stat_activity WHERE datname = current_database() AND query ILIKE 'LISTEN%'`)).rows[0].n;
+    // The process's own cache listener (server/db/pg-listener.ts) stays; this counts the hub's.
+    const listeners = async () => (await q(`SELECT count(*)::int n FROM pg_stat_activity WHERE datname = current_database() AND query ILIKE 'LISTEN%' AND application_name <> $1`, [LISTENER_APPLICATION_NAME])).rows[0].n;
     expect(await listeners()).toBe(1);
     s.close();
     await s.until('server-side cleanup', () => hub.connections === 0);
-    for (let i = 0; i < 50 && (await listeners()) > 0; i++) await new Promise((r) => setTimeout(r, 50));
-    expect(await listeners()).toBe(0);
+    await waitFor(listeners, (n) => n === 0, { what: 'the LISTEN connection closing' });
   });
 
   it('refuses bad input and unknown plants before opening a stream; caps streams per token (429)', async () => {
@@ -204,8 +210,7 @@ describe('live stream (SSE)', () => {
 
       // A reader that never reads: the socket buffers fill, the server gives up on it.
       const stuck = http.get(url, (res) => res.pause());
-      await new Promise((r) => setTimeout(r, 200));
-      expect(hub.connections).toBe(1);
+      await s.until('the stuck client subscribed', () => hub.connections === 1);
       const big = 'x'.repeat(16 * 1024);
       for (let i = 0; i < 2000 && hub.connections > 0; i++) {
         hub.publish(plant, 'balance', { big });

@@ -1,5 +1,5 @@
-import type { ButtonHTMLAttributes, InputHTMLAttributes, ReactNode, SelectHTMLAttributes } from 'react';
-import { ApiError } from '../../lib/api-client.ts';
+import type { ButtonHTMLAttributes, ComponentProps, ReactNode } from 'react';
+import { ApiError, hasFieldErrors } from '../../lib/api-client.ts';
 
 export function Button({ kind = 'normal', className = '', ...rest }: ButtonHTMLAttributes<HTMLButtonElement> & { kind?: 'normal' | 'primary' | 'quiet' }) {
   const look =
@@ -29,11 +29,12 @@ export function Field({ label, unit, error, hint, children }: { label: string; u
   );
 }
 
-export function TextInput(props: InputHTMLAttributes<HTMLInputElement>) {
+/** A text input; takes a ref (React 19 passes it as a prop), so react-hook-form's `register` spreads onto it. */
+export function TextInput(props: ComponentProps<'input'>) {
   return <input {...props} className={`h-7 px-2 border border-edge rounded-sm bg-white text-ink ${props.className ?? ''}`} />;
 }
 
-export function Select(props: SelectHTMLAttributes<HTMLSelectElement>) {
+export function Select(props: ComponentProps<'select'>) {
   return <select {...props} className={`h-7 px-1 border border-edge rounded-sm bg-white text-ink ${props.className ?? ''}`} />;
 }
 
@@ -60,6 +61,15 @@ export function ErrorNote({ error }: { error: unknown }) {
   );
 }
 
-export function fieldErrors(error: unknown): Record<string, string[]> {
-  return error instanceof ApiError && error.fields ? error.fields : {};
+/**
+ * What a form could not put beside a field: a failed request without field errors (those are set
+ * on the fields, lib/form.ts), and server field errors for paths the form has no field for.
+ */
+export function FormProblem({ error, root }: { error: unknown; root?: string | undefined }) {
+  return (
+    <>
+      {root ? <ErrorNote error={new Error(root)} /> : null}
+      {error && !hasFieldErrors(error) ? <ErrorNote error={error} /> : null}
+    </>
+  );
 }

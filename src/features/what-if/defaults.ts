@@ -24,10 +24,7 @@ export const KESTREL_BEND = {
     wasFlow_m3h: '20',
     mlss_gL: '3.2',
     clarifierArea_m2: '1400',
-    'settling.svi_mLg': '120',
-    'settling.correlation': 'haertel-poepel-1992',
-    'settling.v0_mh': '9.5',
-    'settling.k_Lg': '0.49',
+    settling: { svi_mLg: '120', correlation: 'haertel-poepel-1992', v0_mh: '9.5', k_Lg: '0.49' },
   },
   settler: {
     feedFlow_m3h: '2400',

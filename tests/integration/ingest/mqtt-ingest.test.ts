@@ -103,7 +103,14 @@ describe('MQTT → PostgreSQL', () => {
       await locker.query('LOCK TABLE samples IN ACCESS EXCLUSIVE MODE');
       const ts = new Date(Date.UTC(2026, 0, 11)).toISOString();
       await pub.publishAsync('t/tag0', JSON.stringify({ v: 42, ts }), { qos: 1 });
-      await new Promise((r) => setTimeout(r, 1_500));
+      // The writer's COPY waits on the lock: the row cannot be committed, so no PUBACK may have left.
+      await waitFor(
+        'writer waiting on the samples lock',
+        async () => scalar(pool, `SELECT count(*) FROM pg_locks WHERE NOT granted`, []),
+        (n) => Number(n) >= 1,
+        10_000,
+      );
+      expect(svc.status().sources[0]?.unacknowledged).toBeGreaterThanOrEqual(1);
       expect(acks).toHaveLength(0);
       await locker.query('COMMIT');
       await waitFor('PUBACK after commit', async () => acks.length, (n) => n === 1, 10_000);

@@ -8,7 +8,7 @@ import { IngestService } from '../../../ingest/ingest-service.ts';
 import type { AppContext } from '../../../server/app-context.ts';
 import { loadConfig } from '../../../server/config.ts';
 import { openDatabase } from '../../../server/db/client.ts';
-import { opcuaBrowseService } from '../../../server/services/opcua-browse.service.ts';
+import { createOpcuaBrowseService } from '../../../server/services/opcua-browse.service.ts';
 import { QUALITY_FLAG, qualityFlags, qualityGrade } from '../../../shared/contracts/sample-quality.ts';
 import { createTestDatabase, type TestDatabase } from '../../helpers/db.ts';
 import { freePort, ingestConfig, scalar, seedWiring, silentLog, tempDir, waitFor } from './helpers.ts';
@@ -109,7 +109,7 @@ describe('OPC UA → PostgreSQL', () => {
     const ctx: AppContext = { db, config: loadConfig({ FLOCSTREAM_DATA_DIR: apiDataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '0' }), log: silentLog, sessionKey: randomBytes(32) };
     try {
       const source = { url: endpoint, username: null, secret: null, options: { securityMode: 'SignAndEncrypt', securityPolicy: 'Basic256Sha256', acceptUnknownServerCertificate: true } };
-      const probe = opcuaBrowseService(ctx);
+      const probe = createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir });
       const tested = await probe.test(source);
       expect(tested, JSON.stringify(tested)).toMatchObject({ ok: true, details: { clientCertificateThumbprint: ingestThumbprint } });
       const browsed = await probe.browse(source, undefined);

@@ -1,6 +1,7 @@
 import net from 'node:net';
 import { afterEach, describe, expect, it } from 'vitest';
 import { coalesceWrites } from '../../../server/broker/coalesce-writes.ts';
+import { nextEvent } from '../../helpers/wait.ts';
 
 /** A connected loopback pair: `server` is the broker's side (wrapped), `client` reads. */
 async function pair(): Promise<{ server: net.Socket; client: net.Socket; received: () => Buffer; closed: Promise<void>; srv: net.Server }> {
@@ -73,8 +74,11 @@ describe('coalesceWrites (embedded broker connections)', () => {
     server.on('error', (e) => errors.push(e));
     coalesceWrites(server);
     server.write(Buffer.from('lost'));
+    const closed = nextEvent(server, 'close');
     server.destroy();
-    await new Promise((r) => setTimeout(r, 20));
+    await closed;
+    // The gathered write flushes on setImmediate, queued before this one: it has run by now.
+    await new Promise((r) => setImmediate(r));
     expect(errors).toEqual([]);
   });
 });

@@ -1,5 +1,6 @@
 import { queryOptions, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
-import type { CreateTokenRequest, TokenOut } from '../../../../shared/contracts/auth.ts';
+import type { z } from 'zod';
+import type { CreateTokenRequest, createTokenResponse, TokenOut } from '../../../../shared/contracts/auth.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 
@@ -15,7 +16,7 @@ export function useTokens() {
 export function useCreateToken() {
   const qc = useQueryClient();
   return useMutation({
-    mutationFn: (body: CreateTokenRequest) => api<{ id: number; token: string; expiresAt: string }>(paths.tokens, { body }),
+    mutationFn: (body: CreateTokenRequest) => api<z.output<typeof createTokenResponse>>(paths.tokens, { body }),
     onSuccess: () => qc.invalidateQueries({ queryKey: tokensQuery.queryKey }),
   });
 }

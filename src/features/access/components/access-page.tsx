@@ -1,47 +1,49 @@
-import { useState, type FormEvent } from 'react';
+import { useMemo } from 'react';
+import { useForm } from 'react-hook-form';
+import type { z } from 'zod';
+import { createTokenRequest, createUserRequest, type CreateTokenRequest, type TokenOut, type UserOut } from '../../../../shared/contracts/auth.ts';
 import { ROLES, roleAtLeast, type Role } from '../../../../shared/contracts/roles.ts';
-import { Button, ErrorNote, Field, fieldErrors, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { Button, ErrorNote, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { DataTable, useDataTable, type ColumnDef } from '../../../components/ui/data-table.tsx';
+import { applyServerErrors, contractResolver, fieldError, numberOrText } from '../../../lib/form.ts';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { useMe } from '../../auth/api/me.ts';
 import { useCreateToken, useRevokeToken, useTokens } from '../api/tokens.ts';
 import { useCreateUser, useDeleteUser, useUpdateUser, useUsers } from '../api/users.ts';
 
-const th = 'text-left font-semibold text-ink-2 px-1.5 py-1 border-b border-edge';
-const td = 'px-1.5 py-1 border-b border-edge/50';
+type TokenValues = { name: string; role: Role; expiresInDays: string };
+const tokenResolver = contractResolver(createTokenRequest, (v: TokenValues) => ({ name: v.name, role: v.role, expiresInDays: numberOrText(v.expiresInDays) }));
 
 function TokensPanel({ myRole }: { myRole: Role }) {
   const tokens = useTokens();
   const create = useCreateToken();
   const revoke = useRevokeToken();
-  const [name, setName] = useState('');
-  const [role, setRole] = useState<Role>('analyst');
-  const [days, setDays] = useState('90');
-  const fe = fieldErrors(create.error);
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    create.mutate({ name, role, expiresInDays: Number(days) }, { onSuccess: () => setName('') });
-  };
+  const form = useForm<TokenValues, unknown, CreateTokenRequest>({ defaultValues: { name: '', role: 'analyst', expiresInDays: '90' }, resolver: tokenResolver });
+  const { errors } = form.formState;
+  const submit = form.handleSubmit((body) => create.mutate(body, { onSuccess: () => form.setValue('name', ''), onError: (e) => applyServerErrors(e, form) }));
+  const columns = useMemo(() => tokenColumns(revoke.mutate), [revoke.mutate]);
+  const table = useDataTable({ data: tokens.data ?? [], columns, getRowId: (t) => String(t.id), initialState: { sorting: [{ id: 'expiresAt', desc: true }] } });
   return (
     <Panel title="My API tokens">
-      <form onSubmit={submit} className="flex flex-wrap items-end gap-2 mb-2" aria-label="New API token">
-        <Field label="Name" error={fe.name}>
-          <TextInput name="tokenName" value={name} onChange={(e) => setName(e.target.value)} required placeholder="e.g. monthly report" />
+      <form onSubmit={(e) => void submit(e)} noValidate className="flex flex-wrap items-end gap-2 mb-2" aria-label="New API token">
+        <Field label="Name" error={fieldError(errors, 'name')}>
+          <TextInput {...form.register('name')} placeholder="e.g. monthly report" aria-invalid={errors.name ? true : undefined} />
         </Field>
-        <Field label="Role" error={fe.role}>
-          <Select name="tokenRole" value={role} onChange={(e) => setRole(e.target.value as Role)}>
+        <Field label="Role" error={fieldError(errors, 'role')}>
+          <Select {...form.register('role')}>
             {ROLES.filter((r) => roleAtLeast(myRole, r)).map((r) => (
               <option key={r}>{r}</option>
             ))}
           </Select>
         </Field>
-        <Field label="Expires in" unit="d" error={fe.expiresInDays}>
-          <TextInput name="tokenDays" className="w-20 num" inputMode="numeric" value={days} onChange={(e) => setDays(e.target.value)} />
+        <Field label="Expires in" unit="d" error={fieldError(errors, 'expiresInDays')}>
+          <TextInput {...form.register('expiresInDays')} className="w-20 num" inputMode="numeric" aria-invalid={errors.expiresInDays ? true : undefined} />
         </Field>
         <Button kind="primary" type="submit" disabled={create.isPending}>
           Create token
         </Button>
       </form>
-      {create.error && !Object.keys(fe).length ? <ErrorNote error={create.error} /> : null}
+      <FormProblem error={create.error} root={errors.root?.server?.message} />
       {create.data ? (
         <div className="border border-ink bg-white p-2 mb-2" role="status">
           <p className="font-semibold">Copy this token now — it is shown once and stored only as a hash.</p>
@@ -52,132 +54,121 @@ function TokensPanel({ myRole }: { myRole: Role }) {
         </div>
       ) : null}
       <ErrorNote error={tokens.error ?? revoke.error} />
-      <table className="w-full text-[12px]">
-        <thead>
-          <tr>
-            <th className={th}>Name</th>
-            <th className={th}>Role</th>
-            <th className={th}>Prefix</th>
-            <th className={th}>Expires (UTC)</th>
-            <th className={th}>Last used (UTC)</th>
-            <th className={th}>State</th>
-            <th className={th} />
-          </tr>
-        </thead>
-        <tbody>
-          {tokens.data?.map((t) => {
-            const expired = new Date(t.expiresAt).getTime() < Date.now();
-            return (
-              <tr key={t.id}>
-                <td className={td}>{t.name}</td>
-                <td className={td}>{t.role}</td>
-                <td className={`${td} num`}>{t.prefix}…</td>
-                <td className={`${td} num`}>{t.expiresAt.slice(0, 16).replace('T', ' ')}</td>
-                <td className={`${td} num`}>{t.lastUsedAt ? t.lastUsedAt.slice(0, 16).replace('T', ' ') : '—'}</td>
-                <td className={td}>{t.revokedAt ? 'revoked' : expired ? 'expired' : 'active'}</td>
-                <td className={td}>
-                  {!t.revokedAt && !expired ? (
-                    <Button kind="quiet" onClick={() => revoke.mutate(t.id)} aria-label={`Revoke token ${t.name}`}>
-                      Revoke
-                    </Button>
-                  ) : null}
-                </td>
-              </tr>
-            );
-          })}
-          {tokens.data?.length === 0 ? (
-            <tr>
-              <td className={`${td} text-ink-3`} colSpan={7}>
-                No tokens yet.
-              </td>
-            </tr>
-          ) : null}
-        </tbody>
-      </table>
+      <DataTable table={table} label="API tokens" empty={tokens.data ? 'No tokens yet.' : null} />
     </Panel>
   );
 }
+
+const utcMinutes = (iso: string | null) => (iso ? iso.slice(0, 16).replace('T', ' ') : '—');
+const tokenState = (t: TokenOut) => (t.revokedAt ? 'revoked' : Date.parse(t.expiresAt) < Date.now() ? 'expired' : 'active');
+
+function tokenColumns(revoke: (id: number) => void): ColumnDef<TokenOut>[] {
+  return [
+    { id: 'name', header: 'Name', accessorKey: 'name' },
+    { id: 'role', header: 'Role', accessorKey: 'role', meta: { width: '90px' } },
+    { id: 'prefix', header: 'Prefix', accessorKey: 'prefix', enableSorting: false, cell: (c) => `${c.row.original.prefix}…`, meta: { width: '110px', cellClass: 'num' } },
+    { id: 'expiresAt', header: 'Expires (UTC)', accessorKey: 'expiresAt', cell: (c) => utcMinutes(c.row.original.expiresAt), meta: { width: '140px', cellClass: 'num' } },
+    { id: 'lastUsedAt', header: 'Last used (UTC)', accessorFn: (t) => t.lastUsedAt ?? '', cell: (c) => utcMinutes(c.row.original.lastUsedAt), meta: { width: '140px', cellClass: 'num' } },
+    { id: 'state', header: 'State', accessorFn: tokenState, meta: { width: '80px' } },
+    {
+      id: 'actions',
+      header: () => <span className="sr-only">Actions</span>,
+      enableSorting: false,
+      meta: { width: '90px' },
+      cell: ({ row: { original: t } }) =>
+        tokenState(t) === 'active' ? (
+          <Button kind="quiet" onClick={() => revoke(t.id)} aria-label={`Revoke token ${t.name}`}>
+            Revoke
+          </Button>
+        ) : null,
+    },
+  ];
+}
+
+type UserValues = { email: string; name: string; role: Role; password: string };
+const EMPTY_USER: UserValues = { email: '', name: '', role: 'operator', password: '' };
+const userResolver = contractResolver(createUserRequest, (v: UserValues) => ({ ...v, email: v.email.trim() }));
 
 function UsersPanel({ myId }: { myId: number }) {
   const users = useUsers(true);
   const create = useCreateUser();
   const update = useUpdateUser();
   const del = useDeleteUser();
-  const [form, setForm] = useState({ email: '', name: '', role: 'operator' as Role, password: '' });
-  const fe = fieldErrors(create.error);
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    create.mutate(form, { onSuccess: () => setForm({ email: '', name: '', role: 'operator', password: '' }) });
-  };
+  const form = useForm<UserValues, unknown, z.output<typeof createUserRequest>>({ defaultValues: EMPTY_USER, resolver: userResolver });
+  const { errors } = form.formState;
+  const submit = form.handleSubmit((body) => create.mutate(body, { onSuccess: () => form.reset(EMPTY_USER), onError: (e) => applyServerErrors(e, form) }));
+  const columns = useMemo(() => userColumns(myId, update.mutate, del.mutate), [myId, update.mutate, del.mutate]);
+  const table = useDataTable({ data: users.data ?? [], columns, getRowId: (u) => String(u.id), initialState: { sorting: [{ id: 'email', desc: false }] } });
+  const err = (name: keyof UserValues) => fieldError(errors, name);
   return (
     <Panel title="Users">
-      <form onSubmit={submit} className="flex flex-wrap items-end gap-2 mb-2" aria-label="New user">
-        <Field label="E-mail" error={fe.email}>
-          <TextInput name="userEmail" type="email" required value={form.email} onChange={(e) => setForm({ ...form, email: e.target.value })} />
+      <form onSubmit={(e) => void submit(e)} noValidate className="flex flex-wrap items-end gap-2 mb-2" aria-label="New user">
+        <Field label="E-mail" error={err('email')}>
+          <TextInput type="email" {...form.register('email')} aria-invalid={errors.email ? true : undefined} />
         </Field>
-        <Field label="Name" error={fe.name}>
-          <TextInput name="userName" required value={form.name} onChange={(e) => setForm({ ...form, name: e.target.value })} />
+        <Field label="Name" error={err('name')}>
+          <TextInput {...form.register('name')} aria-invalid={errors.name ? true : undefined} />
         </Field>
-        <Field label="Role" error={fe.role}>
-          <Select name="userRole" value={form.role} onChange={(e) => setForm({ ...form, role: e.target.value as Role })}>
+        <Field label="Role" error={err('role')}>
+          <Select {...form.register('role')}>
             {ROLES.map((r) => (
               <option key={r}>{r}</option>
             ))}
           </Select>
         </Field>
-        <Field label="Initial password (≥ 12 characters)" error={fe.password}>
-          <TextInput name="userPassword" type="password" autoComplete="new-password" required value={form.password} onChange={(e) => setForm({ ...form, password: e.target.value })} />
+        <Field label="Initial password (≥ 12 characters)" error={err('password')}>
+          <TextInput type="password" autoComplete="new-password" {...form.register('password')} aria-invalid={errors.password ? true : undefined} />
         </Field>
         <Button kind="primary" type="submit" disabled={create.isPending}>
           Create user
         </Button>
       </form>
-      {create.error && !Object.keys(fe).length ? <ErrorNote error={create.error} /> : null}
+      <FormProblem error={create.error} root={errors.root?.server?.message} />
       {create.isSuccess ? <p role="status" className="mb-2">User {create.data.email} created.</p> : null}
       <ErrorNote error={users.error ?? update.error ?? del.error} />
-      <table className="w-full text-[12px]">
-        <thead>
-          <tr>
-            <th className={th}>E-mail</th>
-            <th className={th}>Name</th>
-            <th className={th}>Role</th>
-            <th className={th}>State</th>
-            <th className={th} />
-          </tr>
-        </thead>
-        <tbody>
-          {users.data?.map((u) => (
-            <tr key={u.id}>
-              <td className={td}>{u.email}</td>
-              <td className={td}>{u.name}</td>
-              <td className={td}>
-                <Select aria-label={`Role of ${u.email}`} value={u.role} disabled={u.id === myId} onChange={(e) => update.mutate({ id: u.id, role: e.target.value as Role })}>
-                  {ROLES.map((r) => (
-                    <option key={r}>{r}</option>
-                  ))}
-                </Select>
-              </td>
-              <td className={td}>{u.disabled ? 'disabled' : 'active'}</td>
-              <td className={td}>
-                {u.id !== myId ? (
-                  <div className="flex gap-1">
-                    <Button kind="quiet" onClick={() => update.mutate({ id: u.id, disabled: !u.disabled })}>
-                      {u.disabled ? 'Enable' : 'Disable'}
-                    </Button>
-                    <Button kind="quiet" onClick={() => window.confirm(`Delete ${u.email} and all its tokens?`) && del.mutate(u.id)}>
-                      Delete
-                    </Button>
-                  </div>
-                ) : (
-                  <span className="text-ink-3">you</span>
-                )}
-              </td>
-            </tr>
-          ))}
-        </tbody>
-      </table>
+      <DataTable table={table} label="Users" />
     </Panel>
   );
+}
+
+function userColumns(myId: number, update: (v: { id: number; role?: Role; disabled?: boolean }) => void, del: (id: number) => void): ColumnDef<UserOut>[] {
+  return [
+    { id: 'email', header: 'E-mail', accessorKey: 'email' },
+    { id: 'name', header: 'Name', accessorKey: 'name' },
+    {
+      id: 'role',
+      header: 'Role',
+      accessorKey: 'role',
+      meta: { width: '150px' },
+      cell: ({ row: { original: u } }) => (
+        <Select aria-label={`Role of ${u.email}`} value={u.role} disabled={u.id === myId} onChange={(e) => update({ id: u.id, role: e.target.value as Role })}>
+          {ROLES.map((r) => (
+            <option key={r}>{r}</option>
+          ))}
+        </Select>
+      ),
+    },
+    { id: 'state', header: 'State', accessorFn: (u) => (u.disabled ? 'disabled' : 'active'), meta: { width: '90px' } },
+    {
+      id: 'actions',
+      header: () => <span className="sr-only">Actions</span>,
+      enableSorting: false,
+      meta: { width: '150px' },
+      cell: ({ row: { original: u } }) =>
+        u.id !== myId ? (
+          <div className="flex gap-1">
+            <Button kind="quiet" onClick={() => update({ id: u.id, disabled: !u.disabled })}>
+              {u.disabled ? 'Enable' : 'Disable'}
+            </Button>
+            <Button kind="quiet" onClick={() => window.confirm(`Delete ${u.email} and all its tokens?`) && del(u.id)}>
+              Delete
+            </Button>
+          </div>
+        ) : (
+          <span className="text-ink-3">you</span>
+        ),
+    },
+  ];
 }
 
 export default function AccessPage() {

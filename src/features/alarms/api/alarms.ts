@@ -1,14 +1,11 @@
 import { queryOptions, useQuery } from '@tanstack/react-query';
-import type { AlarmOut } from '../../../../shared/contracts/plant-api.ts';
+import type { z } from 'zod';
+import type { AlarmOut, alarmsResponse } from '../../../../shared/contracts/plant-api.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 
 export type AlarmStateName = AlarmOut['state'];
-interface AlarmsResponse {
-  plantId: number;
-  alarms: AlarmOut[];
-  nextCursor: string | null;
-}
+type AlarmsResponse = z.output<typeof alarmsResponse>;
 
 /** Rows per state the view asks for: all active alarms, and the newest cleared ones for the history. */
 const LIMIT: Record<AlarmStateName, number> = { raised: 1000, acknowledged: 1000, cleared: 200 };

@@ -1,8 +1,10 @@
-import { useMemo, useState } from 'react';
+import type { SortingState } from '@tanstack/react-table';
+import { useMemo, useState, type ReactNode } from 'react';
 import { OPERATOR_CAUTION } from '../../../../shared/contracts/balance.ts';
 import type { AlarmOut } from '../../../../shared/contracts/plant-api.ts';
 import { roleAtLeast } from '../../../../shared/contracts/roles.ts';
 import { Button, ErrorNote, Panel } from '../../../components/ui/controls.tsx';
+import { DataTable, useDataTable, type ColumnDef } from '../../../components/ui/data-table.tsx';
 import { PriorityMark } from '../../../components/ui/priority-mark.tsx';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { formatUtc, formatValue } from '../../../lib/format.ts';
@@ -101,79 +103,92 @@ export default function AlarmsPage() {
   );
 }
 
+/** Value and limit in the rule's unit, or a pointer to the message for rules without one. */
+function ValueLimit({ a }: { a: AlarmOut }) {
+  const u = RULE_UNIT[a.rule];
+  if (!u) return <span className="text-ink-3">see message</span>;
+  return (
+    <>
+      {formatValue(a.value === null ? null : a.value * u.scale, 3)} / {formatValue(a.limit === null ? null : a.limit * u.scale, 3)} <span className="text-ink-3 text-[11px]">{u.unit}</span>
+    </>
+  );
+}
+
+function alarmColumns(history: boolean, ackCell: (a: AlarmOut) => ReactNode): ColumnDef<AlarmOut>[] {
+  return [
+    {
+      id: 'priority',
+      header: 'Priority',
+      accessorKey: 'priority',
+      meta: { width: '76px' },
+      cell: ({ row: { original: a } }) => (
+        <span className="inline-flex items-center gap-1">
+          <PriorityMark priority={a.priority} muted={!!a.acknowledgedAt} />
+          <span className="num text-ink-2">P{a.priority}</span>
+        </span>
+      ),
+    },
+    { id: 'state', header: 'State', accessorFn: (a) => stateText(a).text, meta: { width: '136px' }, cell: ({ row: { original: a } }) => <span className={stateText(a).strong ? 'font-semibold text-ink' : 'text-ink-2'}>{stateText(a).text}</span> },
+    { id: 'raisedAt', header: 'Raised (UTC)', accessorFn: (a) => Date.parse(a.raisedAt), meta: { width: '160px', cellClass: 'num' }, cell: ({ row: { original: a } }) => formatUtc(a.raisedAt) },
+    ...(history
+      ? [{ id: 'clearedAt', header: 'Cleared (UTC)', accessorFn: (a: AlarmOut) => (a.clearedAt ? Date.parse(a.clearedAt) : 0), meta: { width: '160px', cellClass: 'num' }, cell: ({ row: { original: a } }: { row: { original: AlarmOut } }) => formatUtc(a.clearedAt) }]
+      : []),
+    {
+      id: 'rule',
+      header: 'Rule · target',
+      accessorFn: (a) => `${a.rule} ${a.target}`,
+      meta: { width: '220px', cellClass: 'text-ink-2' },
+      cell: ({ row: { original: a } }) => (
+        <>
+          {a.rule} · <span className="num">{a.target}</span>
+        </>
+      ),
+    },
+    { id: 'message', header: 'Message', accessorFn: (a) => plainMessage(a.message), enableSorting: false, meta: { cellClass: 'py-1 pr-2' } },
+    { id: 'value', header: 'Value / limit', enableSorting: false, meta: { width: '170px', align: 'right', cellClass: 'num whitespace-nowrap' }, cell: ({ row: { original: a } }) => <ValueLimit a={a} /> },
+    { id: 'ack', header: 'Acknowledged', accessorFn: (a) => a.acknowledgedAt ?? '', meta: { width: '210px', align: 'right', cellClass: 'whitespace-nowrap pl-4' }, cell: ({ row: { original: a } }) => ackCell(a) },
+  ];
+}
+
+/**
+ * One alarm list (TanStack Table): ordered as given (by priority, then newest) until the operator
+ * sorts by a column header.
+ */
 function AlarmTable({ alarms, plantId, canAck, empty, testid, history = false }: { alarms: AlarmOut[]; plantId: number; canAck: boolean; empty: string; testid: string; history?: boolean }) {
   const ack = useAckAlarm(plantId);
   const [pendingId, setPendingId] = useState<number | null>(null);
+  const ackPending = ack.isPending ? pendingId : null;
+  const columns = useMemo(
+    () =>
+      alarmColumns(history, (a) =>
+        a.acknowledgedAt ? (
+          <span className="num text-ink-3">
+            {formatUtc(a.acknowledgedAt)} · #{a.acknowledgedBy ?? '?'}
+          </span>
+        ) : canAck ? (
+          <Button
+            aria-label={`Acknowledge ${a.rule} ${a.target}`}
+            disabled={ackPending === a.id}
+            onClick={() => {
+              setPendingId(a.id);
+              ack.mutate({ alarmId: a.id });
+            }}
+          >
+            Acknowledge
+          </Button>
+        ) : (
+          <span className="text-ink-3">not acknowledged</span>
+        ),
+      ),
+    [history, canAck, ackPending, ack.mutate],
+  );
+  const [sorting, setSorting] = useState<SortingState>([]);
+  const table = useDataTable({ data: alarms, columns, getRowId: (a) => String(a.id), state: { sorting }, onSortingChange: setSorting });
   if (!alarms.length) return <p className="text-ink-3 text-[12px] py-1" data-testid={testid}>{empty}</p>;
   return (
     <>
       <ErrorNote error={ack.error} />
-      <table className="w-full text-[12px] border-collapse" data-testid={testid}>
-        <thead>
-          <tr className="text-left text-ink-3 border-b border-edge h-6">
-            <th className="w-[64px] font-normal">Priority</th>
-            <th className="w-[128px] font-normal">State</th>
-            <th className="w-[150px] font-normal">Raised (UTC)</th>
-            {history ? <th className="w-[150px] font-normal">Cleared (UTC)</th> : null}
-            <th className="w-[200px] font-normal">Rule · target</th>
-            <th className="font-normal">Message</th>
-            <th className="w-[160px] font-normal text-right">Value / limit</th>
-            <th className="w-[190px] font-normal text-right pl-4">Acknowledged</th>
-          </tr>
-        </thead>
-        <tbody>
-          {alarms.map((a) => {
-            const st = stateText(a);
-            const u = RULE_UNIT[a.rule];
-            return (
-              <tr key={a.id} className="border-b border-edge/60 h-7 align-middle" data-alarm-id={a.id} data-rule={a.rule}>
-                <td>
-                  <span className="inline-flex items-center gap-1">
-                    <PriorityMark priority={a.priority} muted={!!a.acknowledgedAt} />
-                    <span className="num text-ink-2">P{a.priority}</span>
-                  </span>
-                </td>
-                <td className={st.strong ? 'font-semibold text-ink' : 'text-ink-2'}>{st.text}</td>
-                <td className="num">{formatUtc(a.raisedAt)}</td>
-                {history ? <td className="num">{formatUtc(a.clearedAt)}</td> : null}
-                <td className="text-ink-2">
-                  {a.rule} · <span className="num">{a.target}</span>
-                </td>
-                <td className="py-1 pr-2">{plainMessage(a.message)}</td>
-                <td className="num text-right whitespace-nowrap">
-                  {u ? (
-                    <>
-                      {formatValue(a.value === null ? null : a.value * u.scale, 3)} / {formatValue(a.limit === null ? null : a.limit * u.scale, 3)} <span className="text-ink-3 text-[11px]">{u.unit}</span>
-                    </>
-                  ) : (
-                    <span className="text-ink-3">see message</span>
-                  )}
-                </td>
-                <td className="text-right whitespace-nowrap pl-4">
-                  {a.acknowledgedAt ? (
-                    <span className="num text-ink-3">
-                      {formatUtc(a.acknowledgedAt)} · #{a.acknowledgedBy ?? '?'}
-                    </span>
-                  ) : canAck ? (
-                    <Button
-                      aria-label={`Acknowledge ${a.rule} ${a.target}`}
-                      disabled={ack.isPending && pendingId === a.id}
-                      onClick={() => {
-                        setPendingId(a.id);
-                        ack.mutate({ alarmId: a.id });
-                      }}
-                    >
-                      Acknowledge
-                    </Button>
-                  ) : (
-                    <span className="text-ink-3">not acknowledged</span>
-                  )}
-                </td>
-              </tr>
-            );
-          })}
-        </tbody>
-      </table>
+      <DataTable table={table} label={history ? 'Alarm history' : 'Active alarms'} testId={testid} rowProps={(r) => ({ 'data-alarm-id': r.original.id, 'data-rule': r.original.rule, className: 'border-b border-edge/60 h-7 align-middle' })} />
     </>
   );
 }

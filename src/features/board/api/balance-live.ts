@@ -1,18 +1,20 @@
 import { queryOptions, useQuery } from '@tanstack/react-query';
+import type { z } from 'zod';
 import type { Balance } from '../../../../shared/contracts/balance.ts';
+import type { balanceLiveResponse } from '../../../../shared/contracts/plant-api.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 
-/** `GET /plants/:id/balance/live`: the latest balance, or null with the server's reason. */
-export interface BalanceLive {
-  plantId: number;
+/**
+ * `GET /plants/:id/balance/live`: the latest balance, or null with the server's reason. The wire
+ * contract types `data` and `inputs` loosely (records); their shape is the engine's
+ * (shared/contracts/balance.ts), so the balance is read as that.
+ */
+export type BalanceLive = Omit<z.output<typeof balanceLiveResponse>, 'balance'> & {
   balance: Balance | null;
-  /** Seconds since the computation, as the server saw it when answering. */
-  age_s: number | null;
-  reason?: string;
   /** Client clock when this answer arrived [epoch ms]; age now = age_s + (now − receivedAt). */
   receivedAt: number;
-}
+};
 
 export function fetchBalanceLive(plantId: number, signal?: AbortSignal): Promise<BalanceLive> {
   return api<Omit<BalanceLive, 'receivedAt'>>(paths.balanceLive(plantId), { signal }).then((r) => ({ ...r, receivedAt: Date.now() }));

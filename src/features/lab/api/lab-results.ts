@@ -1,13 +1,10 @@
 import { queryOptions, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
-import type { LabResultInput, LabResultOut } from '../../../../shared/contracts/lab.ts';
+import type { z } from 'zod';
+import type { LabResultInput, LabResultOut, labResultsResponse } from '../../../../shared/contracts/lab.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 
-interface LabResultsResponse {
-  plantId: number;
-  results: LabResultOut[];
-  nextCursor: string | null;
-}
+type LabResultsResponse = z.output<typeof labResultsResponse>;
 
 /** How many recent results the view lists. */
 const RECENT = 50;

@@ -1,6 +1,8 @@
-import { useMemo } from 'react';
+import { useMemo, useState } from 'react';
+import { LAB_KINDS, type LabKind, type LabResultOut } from '../../../../shared/contracts/lab.ts';
 import { roleAtLeast } from '../../../../shared/contracts/roles.ts';
-import { ErrorNote, Panel } from '../../../components/ui/controls.tsx';
+import { ErrorNote, Panel, Select } from '../../../components/ui/controls.tsx';
+import { DataTable, useDataTable, type ColumnDef } from '../../../components/ui/data-table.tsx';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { formatUtc, formatValue } from '../../../lib/format.ts';
 import { useMe } from '../../auth/api/me.ts';
@@ -46,53 +48,77 @@ export default function LabPage() {
   );
 }
 
+type Details = { settledVolume_mLL?: number; mlss_gL?: number; dilutionFactor?: number; note?: string };
+
+function readings(r: LabResultOut): string {
+  const d = r.details as Details;
+  const parts = [
+    d.settledVolume_mLL !== undefined ? `settled ${formatValue(d.settledVolume_mLL, 3)} mL/L` : null,
+    d.dilutionFactor !== undefined ? `dilution × ${formatValue(d.dilutionFactor, 3)}` : null,
+    d.mlss_gL !== undefined && r.kind !== 'MLSS' ? `MLSS ${formatValue(d.mlss_gL, 3)} g/L` : null,
+  ].filter(Boolean);
+  return parts.join(' · ') || '—';
+}
+
+const LAB_COLUMNS: ColumnDef<LabResultOut>[] = [
+  { id: 'sampledAt', header: 'Sampled (UTC)', accessorFn: (r) => Date.parse(r.sampledAt), meta: { width: '160px', cellClass: 'num' }, cell: ({ row: { original: r } }) => formatUtc(r.sampledAt) },
+  { id: 'kind', header: 'Test', accessorKey: 'kind', meta: { width: '70px' } },
+  {
+    id: 'value',
+    header: 'Result',
+    accessorKey: 'value',
+    meta: { width: '140px', align: 'right', cellClass: 'num pr-4' },
+    cell: ({ row: { original: r } }) => (
+      <>
+        {formatValue(r.value, 3)} <span className="text-ink-3 text-[11px]">{r.unit}</span>
+      </>
+    ),
+  },
+  { id: 'location', header: 'Location', accessorFn: (r) => r.location ?? '', meta: { width: '100px', cellClass: 'num' }, cell: ({ row: { original: r } }) => r.location ?? '—' },
+  { id: 'readings', header: 'Readings', accessorFn: readings, enableSorting: false, meta: { width: '330px', cellClass: 'num text-ink-2' } },
+  {
+    id: 'flags',
+    header: 'Flags · note',
+    accessorFn: (r) => [...r.flags, (r.details as Details).note].filter(Boolean).join(' · '),
+    enableSorting: false,
+    cell: ({ row: { original: r }, getValue }) => (
+      <>
+        {r.flags.length ? <span className="px-1 border border-estimated text-estimated text-[10px] mr-1">FLAG</span> : null}
+        {getValue<string>()}
+      </>
+    ),
+  },
+];
+
+/** The recent results, newest sample first; a column header sorts them (TanStack Table), the kind filter narrows them. */
 function RecentResults({ plantId }: { plantId: number }) {
   const q = useLabResults(plantId);
+  const [kind, setKind] = useState<LabKind | ''>('');
+  const columnFilters = useMemo(() => (kind ? [{ id: 'kind', value: kind }] : []), [kind]);
+  const table = useDataTable({
+    data: q.data?.results ?? [],
+    columns: LAB_COLUMNS,
+    getRowId: (r) => String(r.id),
+    initialState: { sorting: [{ id: 'sampledAt', desc: true }] },
+    state: { columnFilters },
+  });
   const rows = q.data?.results ?? [];
   return (
-    <Panel title="Recent results (newest sample first)">
+    <Panel
+      title="Recent results (newest sample first)"
+      actions={
+        <Select value={kind} onChange={(e) => setKind(e.target.value as LabKind | '')} aria-label="Show test" className="h-6">
+          <option value="">all tests</option>
+          {LAB_KINDS.map((k) => (
+            <option key={k}>{k}</option>
+          ))}
+        </Select>
+      }
+    >
       <ErrorNote error={q.error} />
       {q.isPending ? <p className="text-ink-3">Loading…</p> : null}
       {!q.isPending && !rows.length ? <p className="text-ink-3 text-[12px]">No lab result yet.</p> : null}
-      {rows.length ? (
-        <table className="w-full text-[12px] border-collapse" data-testid="lab-results">
-          <thead>
-            <tr className="text-left text-ink-3 border-b border-edge h-6">
-              <th className="w-[150px] font-normal">Sampled (UTC)</th>
-              <th className="w-[60px] font-normal">Test</th>
-              <th className="w-[130px] font-normal text-right pr-4">Result</th>
-              <th className="w-[90px] font-normal">Location</th>
-              <th className="w-[320px] font-normal">Readings</th>
-              <th className="font-normal">Flags · note</th>
-            </tr>
-          </thead>
-          <tbody>
-            {rows.map((r) => {
-              const d = r.details as { settledVolume_mLL?: number; mlss_gL?: number; dilutionFactor?: number; note?: string };
-              const readings = [
-                d.settledVolume_mLL !== undefined ? `settled ${formatValue(d.settledVolume_mLL, 3)} mL/L` : null,
-                d.dilutionFactor !== undefined ? `dilution × ${formatValue(d.dilutionFactor, 3)}` : null,
-                d.mlss_gL !== undefined && r.kind !== 'MLSS' ? `MLSS ${formatValue(d.mlss_gL, 3)} g/L` : null,
-              ].filter(Boolean);
-              return (
-                <tr key={r.id} className="border-b border-edge/60 h-6" data-kind={r.kind}>
-                  <td className="num">{formatUtc(r.sampledAt)}</td>
-                  <td>{r.kind}</td>
-                  <td className="num text-right pr-4">
-                    {formatValue(r.value, 3)} <span className="text-ink-3 text-[11px]">{r.unit}</span>
-                  </td>
-                  <td className="num">{r.location ?? '—'}</td>
-                  <td className="num text-ink-2">{readings.join(' · ') || '—'}</td>
-                  <td>
-                    {r.flags.length ? <span className="px-1 border border-estimated text-estimated text-[10px] mr-1">FLAG</span> : null}
-                    {[...r.flags, d.note].filter(Boolean).join(' · ')}
-                  </td>
-                </tr>
-              );
-            })}
-          </tbody>
-        </table>
-      ) : null}
+      {rows.length ? <DataTable table={table} label="Lab results" testId="lab-results" empty="No result of this test." rowProps={(r) => ({ 'data-kind': r.original.kind, className: 'border-b border-edge/60 h-6' })} /> : null}
     </Panel>
   );
 }

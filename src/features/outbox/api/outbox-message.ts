@@ -1,7 +1,7 @@
 import { queryOptions, useQuery } from '@tanstack/react-query';
+import type { OutboxMessage } from '../../../../shared/contracts/outbox.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
-import type { OutboxMessage } from './outbox.ts';
 
 export function fetchOutboxMessage(id: number, signal?: AbortSignal): Promise<OutboxMessage> {
   return api<OutboxMessage>(paths.outboxMessage(id), { signal });

@@ -1,20 +1,7 @@
 import { queryOptions, useQuery } from '@tanstack/react-query';
+import type { OutboxSummary } from '../../../../shared/contracts/outbox.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
-
-/** A message the built-in SMTP catcher received (server/routes/outbox.routes.ts). */
-export interface OutboxSummary {
-  id: number;
-  receivedAt: string;
-  from: string;
-  to: string[];
-  subject: string;
-  size: number;
-}
-export interface OutboxMessage extends OutboxSummary {
-  text: string;
-  raw: string;
-}
 
 export function fetchOutbox(signal?: AbortSignal): Promise<OutboxSummary[]> {
   return api<OutboxSummary[]>(paths.withQuery(paths.outbox, { limit: 200 }), { signal });

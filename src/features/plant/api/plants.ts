@@ -6,7 +6,7 @@ import { paths } from '../../../lib/paths.ts';
 
 export const plantsQuery = queryOptions({
   queryKey: ['plants'],
-  queryFn: ({ signal }) => api<{ plants: PlantSummary[] } | PlantSummary[]>(paths.plants, { signal }).then((r) => (Array.isArray(r) ? r : r.plants)),
+  queryFn: ({ signal }) => api<PlantSummary[]>(paths.plants, { signal }),
   staleTime: 5 * 60_000,
 });
 

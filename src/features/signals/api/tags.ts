@@ -1,13 +1,10 @@
 import { queryOptions, useQuery } from '@tanstack/react-query';
-import type { TagLive } from '../../../../shared/contracts/plant-api.ts';
+import type { z } from 'zod';
+import type { tagsResponse } from '../../../../shared/contracts/plant-api.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 
-export interface TagsAnswer {
-  plantId: number;
-  asOf: string;
-  tags: TagLive[];
-}
+export type TagsAnswer = z.output<typeof tagsResponse>;
 
 /** `GET /api/v1/plants/:plantId/tags`: every tag with its latest value, quality, age and source. */
 export function fetchTags(plantId: number, signal?: AbortSignal): Promise<TagsAnswer> {

@@ -1,9 +1,10 @@
-import { useVirtualizer } from '@tanstack/react-virtual';
-import { memo, useDeferredValue, useMemo, useRef, useState } from 'react';
+import type { Row, SortingState } from '@tanstack/react-table';
+import { memo, useDeferredValue, useMemo, useState } from 'react';
 import { Link } from 'react-router';
 import type { TagLive } from '../../../../shared/contracts/plant-api.ts';
 import { qualityGrade } from '../../../../shared/contracts/sample-quality.ts';
 import { ErrorNote, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { DataTable, useDataTable, type ColumnDef } from '../../../components/ui/data-table.tsx';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { formatAge, formatUtc, formatValue, prettyUnit } from '../../../lib/format.ts';
 import type { StreamState } from '../../../lib/stream.ts';
@@ -16,11 +17,18 @@ import { QualityCell } from './quality-cell.tsx';
 /** Same rule as the server (plant.service STALE_PERIODS): no value, or older than 3 expected periods. */
 const STALE_PERIODS = 3;
 const ROW_H = 26;
-const COLS = 'minmax(170px,1.1fr) minmax(180px,1.6fr) 112px 64px minmax(170px,1.2fr) 64px minmax(130px,0.9fr) minmax(130px,0.9fr)';
 
-type SortKey = 'name' | 'description' | 'value' | 'unit' | 'quality' | 'age' | 'source' | 'signals';
 type QualityFilter = 'all' | 'good' | 'uncertain' | 'bad' | 'stale' | 'abnormal';
 type KindFilter = 'all' | 'mqtt' | 'opcua';
+
+/** A tag with the live values as they were when the filter or order was applied. */
+interface SignalRowData {
+  t: TagLive;
+  value: number | null;
+  quality: number | null;
+  age: number | null;
+  stale: boolean;
+}
 
 /** Tag with its live value merged in (the stream's value wins when newer than the fetched one). */
 function merged(t: TagLive, store: LiveTagStore) {
@@ -33,6 +41,45 @@ function severity(code: number | null, stale: boolean): number {
   const g = code === null ? 1 : { good: 0, uncertain: 2, bad: 3 }[qualityGrade(code)];
   return g + (stale ? 0.5 : 0);
 }
+
+function qualityMatches(r: SignalRowData, filter: QualityFilter): boolean {
+  if (filter === 'all') return true;
+  if (filter === 'stale') return r.stale;
+  const g = r.quality === null ? null : qualityGrade(r.quality);
+  if (filter === 'abnormal') return r.stale || g !== 'good';
+  return g === filter;
+}
+
+// Sort keys as the operator reads the columns: names without case, no value last, quality by severity.
+const COLUMNS: ColumnDef<SignalRowData>[] = [
+  { id: 'name', header: 'Tag', accessorFn: (r) => r.t.name.toLowerCase(), sortingFn: 'basic', meta: { width: '15%' } },
+  { id: 'description', header: 'Description', accessorFn: (r) => r.t.description.toLowerCase(), sortingFn: 'basic', meta: { width: '22%' } },
+  { id: 'value', header: 'Value', accessorFn: (r) => r.value ?? Number.NEGATIVE_INFINITY, sortingFn: 'basic', meta: { width: '112px', align: 'right' } },
+  { id: 'unit', header: 'Unit', accessorFn: (r) => r.t.unit, sortingFn: 'basic', meta: { width: '64px' } },
+  {
+    id: 'quality',
+    header: 'Quality',
+    accessorFn: (r) => severity(r.quality, r.stale),
+    sortingFn: 'basic',
+    filterFn: (row, _id, filter: QualityFilter) => qualityMatches(row.original, filter),
+    meta: { width: '15%' },
+  },
+  { id: 'age', header: 'Age', accessorFn: (r) => r.age ?? Number.POSITIVE_INFINITY, sortingFn: 'basic', meta: { width: '64px', align: 'right' } },
+  {
+    id: 'source',
+    header: 'Source',
+    accessorFn: (r) => `${r.t.source.kind} ${r.t.source.name}`,
+    sortingFn: 'basic',
+    filterFn: (row, _id, kind: KindFilter) => kind === 'all' || row.original.t.source.kind === kind,
+    meta: { width: '12%' },
+  },
+  { id: 'signals', header: 'Process signal', accessorFn: (r) => r.t.signals.map((s) => s.signal).join(','), sortingFn: 'basic', meta: { width: '14%' } },
+];
+
+const matchesText = (row: Row<SignalRowData>, _id: string, needle: string) => {
+  const n = needle.trim().toLowerCase();
+  return !n || row.original.t.name.toLowerCase().includes(n) || row.original.t.description.toLowerCase().includes(n);
+};
 
 export default function SignalsPage() {
   const { plantId, plants, setPlantId } = useCurrentPlant();
@@ -53,7 +100,7 @@ function SignalsTable({ plantId }: { plantId: number }) {
   const [text, setText] = useState('');
   const [quality, setQuality] = useState<QualityFilter>('all');
   const [kind, setKind] = useState<KindFilter>('all');
-  const [sort, setSort] = useState<{ key: SortKey; dir: 1 | -1 }>({ key: 'name', dir: 1 });
+  const [sorting, setSorting] = useState<SortingState>([{ id: 'name', desc: false }]);
   const deferredText = useDeferredValue(text);
 
   // Server clock minus client clock, so ages agree with the server's even when the clocks differ.
@@ -61,73 +108,34 @@ function SignalsTable({ plantId }: { plantId: number }) {
 
   // Filter and order are taken from the values at the moment they are applied (or the table is
   // refetched); live values then change in place without rows jumping under the operator's eyes.
-  const rows = useMemo(() => {
-    const all = tags.data?.tags ?? [];
-    const needle = deferredText.trim().toLowerCase();
+  const data = useMemo(() => {
     const now = Date.now() + skewMs;
-    const withLive = all.map((t) => {
+    return (tags.data?.tags ?? []).map((t): SignalRowData => {
       const m = merged(t, store);
       const age = m.ts ? (now - Date.parse(m.ts)) / 1000 : null;
-      return { t, m, age, stale: age === null || age > STALE_PERIODS * t.expectedPeriod_s };
+      return { t, value: m.value, quality: m.quality, age, stale: age === null || age > STALE_PERIODS * t.expectedPeriod_s };
     });
-    const kept = withLive.filter(({ t, m, stale }) => {
-      if (kind !== 'all' && t.source.kind !== kind) return false;
-      if (needle && !t.name.toLowerCase().includes(needle) && !t.description.toLowerCase().includes(needle)) return false;
-      if (quality === 'all') return true;
-      if (quality === 'stale') return stale;
-      const g = m.quality === null ? null : qualityGrade(m.quality);
-      if (quality === 'abnormal') return stale || g !== 'good';
-      return g === quality;
-    });
-    const key = sort.key;
-    const val = (r: (typeof kept)[number]): string | number => {
-      switch (key) {
-        case 'name':
-          return r.t.name.toLowerCase();
-        case 'description':
-          return r.t.description.toLowerCase();
-        case 'value':
-          return r.m.value ?? Number.NEGATIVE_INFINITY;
-        case 'unit':
-          return r.t.unit;
-        case 'quality':
-          return severity(r.m.quality, r.stale);
-        case 'age':
-          return r.age ?? Number.POSITIVE_INFINITY;
-        case 'source':
-          return `${r.t.source.kind} ${r.t.source.name}`;
-        case 'signals':
-          return r.t.signals.map((s) => s.signal).join(',');
-      }
-    };
-    return kept
-      .map((r) => ({ r, k: val(r) }))
-      .sort((a, b) => (a.k < b.k ? -sort.dir : a.k > b.k ? sort.dir : a.r.t.id - b.r.t.id))
-      .map((x) => x.r.t);
-    // store is read at filter time on purpose (see above); it is stable per plant.
-  }, [tags.data, deferredText, quality, kind, sort, store, skewMs]);
+    // store is read at filter time on purpose (see above); it is stable per plant. The filters and
+    // the order are dependencies only so that a change takes a fresh snapshot of the live values.
+  }, [tags.data, deferredText, quality, kind, sorting, store, skewMs]);
 
-  const scroller = useRef<HTMLDivElement>(null);
-  const virt = useVirtualizer({ count: rows.length, getScrollElement: () => scroller.current, estimateSize: () => ROW_H, overscan: 10 });
+  const columnFilters = useMemo(
+    () => [
+      { id: 'quality', value: quality },
+      { id: 'source', value: kind },
+    ],
+    [quality, kind],
+  );
+  const table = useDataTable({
+    data,
+    columns: COLUMNS,
+    getRowId: (r) => String(r.t.id),
+    state: { sorting, globalFilter: deferredText, columnFilters },
+    onSortingChange: setSorting,
+    globalFilterFn: matchesText,
+  });
+  const shown = table.getRowModel().rows.length;
   const total = tags.data?.tags.length ?? 0;
-
-  const header = (key: SortKey, label: string, align: 'left' | 'right' = 'left') => {
-    const active = sort.key === key;
-    return (
-      <div role="columnheader" aria-sort={active ? (sort.dir === 1 ? 'ascending' : 'descending') : 'none'} className={`px-1.5 flex items-center ${align === 'right' ? 'justify-end' : ''}`}>
-        <button
-          type="button"
-          className="h-6 text-[12px] font-semibold text-ink-2 hover:text-ink"
-          onClick={() => setSort((s) => ({ key, dir: s.key === key ? ((-s.dir) as 1 | -1) : 1 }))}
-        >
-          {label}
-          <span aria-hidden className="inline-block w-3 text-ink-3">
-            {active ? (sort.dir === 1 ? '▲' : '▼') : ''}
-          </span>
-        </button>
-      </div>
-    );
-  };
 
   return (
     <section aria-label="Signals" className="bg-panel border border-edge rounded-sm">
@@ -156,47 +164,25 @@ function SignalsTable({ plantId }: { plantId: number }) {
           </Select>
         </label>
         <span className="text-[12px] text-ink-2" data-testid="signals-count" role="status">
-          <span className="num">{rows.length.toLocaleString('en-US')}</span> of <span className="num">{total.toLocaleString('en-US')}</span> tags
+          <span className="num">{shown.toLocaleString('en-US')}</span> of <span className="num">{total.toLocaleString('en-US')}</span> tags
         </span>
         <StreamBadge state={state} />
       </form>
       <ErrorNote error={tags.error} />
-      <div role="table" aria-label="Tags" aria-rowcount={rows.length + 1} className="text-[12px]">
-        <div role="rowgroup" className="border-b border-edge bg-panel-2 overflow-y-hidden [scrollbar-gutter:stable]">
-          <div role="row" aria-rowindex={1} className="grid" style={{ gridTemplateColumns: COLS }}>
-            {header('name', 'Tag')}
-            {header('description', 'Description')}
-            {header('value', 'Value', 'right')}
-            {header('unit', 'Unit')}
-            {header('quality', 'Quality')}
-            {header('age', 'Age', 'right')}
-            {header('source', 'Source')}
-            {header('signals', 'Process signal')}
-          </div>
-        </div>
-        <div
-          ref={scroller}
-          role="rowgroup"
-          tabIndex={0}
-          aria-label="Tag rows (scroll with arrow keys or Page Up/Down)"
-          data-testid="signals-scroller"
-          className="overflow-y-auto [scrollbar-gutter:stable] bg-panel-2"
-          style={{ height: 'max(320px, calc(100vh - 148px))' }}
-        >
-          {tags.isPending ? <p className="p-2 text-ink-3">Loading tags…</p> : null}
-          {!tags.isPending && rows.length === 0 ? <p className="p-2 text-ink-3">No tag matches the filter.</p> : null}
-          <div style={{ height: virt.getTotalSize(), position: 'relative' }}>
-            {virt.getVirtualItems().map((vi) => (
-              <SignalRow key={rows[vi.index]!.id} tag={rows[vi.index]!} store={store} skewMs={skewMs} top={vi.start} index={vi.index} />
-            ))}
-          </div>
-        </div>
-      </div>
+      {tags.isPending ? <p className="p-2 text-ink-3">Loading tags…</p> : null}
+      <DataTable
+        table={table}
+        label="Tags"
+        empty={tags.isPending ? null : 'No tag matches the filter.'}
+        virtual={{ rowHeight: ROW_H, height: 'max(320px, calc(100vh - 148px))', scrollerLabel: 'Tag rows (scroll with arrow keys or Page Up/Down)', scrollerTestId: 'signals-scroller' }}
+        renderRow={(row, index) => <SignalRow key={row.id} tag={row.original.t} store={store} skewMs={skewMs} index={index} />}
+      />
     </section>
   );
 }
 
-const SignalRow = memo(function SignalRow({ tag, store, skewMs, top, index }: { tag: TagLive; store: LiveTagStore; skewMs: number; top: number; index: number }) {
+/** One tag's row; subscribes to that tag's live value only, so a new value re-renders one row. */
+const SignalRow = memo(function SignalRow({ tag, store, skewMs, index }: { tag: TagLive; store: LiveTagStore; skewMs: number; index: number }) {
   const live = useLiveTag(store, tag.id);
   const now = useSecondsClock() + skewMs;
   const newer = live && (!tag.ts || Date.parse(live.ts) >= Date.parse(tag.ts));
@@ -207,41 +193,32 @@ const SignalRow = memo(function SignalRow({ tag, store, skewMs, top, index }: { 
   const stale = age === null || age > STALE_PERIODS * tag.expectedPeriod_s;
   const bad = code !== null && qualityGrade(code) === 'bad';
   return (
-    <div
-      role="row"
-      aria-rowindex={index + 2}
-      data-testid="signals-row"
-      data-tag-id={tag.id}
-      className={`grid absolute left-0 right-0 items-center border-b border-edge/40 ${index % 2 ? 'bg-panel' : 'bg-panel-2'}`}
-      style={{ gridTemplateColumns: COLS, height: ROW_H, transform: `translateY(${top}px)` }}
-    >
-      <div role="cell" className="px-1.5 truncate">
+    <tr aria-rowindex={index + 2} data-testid="signals-row" data-tag-id={tag.id} className={`border-b border-edge/40 ${index % 2 ? 'bg-panel' : 'bg-panel-2'}`} style={{ height: ROW_H }}>
+      <td className="px-1.5 truncate">
         <Link to={`/trends?tags=${tag.id}`} className="hover:underline" title={`Trend ${tag.name}`}>
           {tag.name}
         </Link>
-      </div>
-      <div role="cell" className="px-1.5 truncate text-ink-2" title={tag.description}>
+      </td>
+      <td className="px-1.5 truncate text-ink-2" title={tag.description}>
         {tag.description}
-      </div>
-      <div role="cell" className={`px-1.5 text-right num ${stale || bad ? 'text-ink-3' : 'text-ink'}`} data-testid="signal-value">
+      </td>
+      <td className={`px-1.5 text-right num ${stale || bad ? 'text-ink-3' : 'text-ink'}`} data-testid="signal-value">
         <AlignedNumber text={tag.unit === 'state' && value !== null ? String(Math.round(value)) : formatValue(value, 4)} />
-      </div>
-      <div role="cell" className="px-1.5 text-ink-3 truncate">
-        {prettyUnit(tag.unit)}
-      </div>
-      <div role="cell" className="px-1.5 min-w-0 overflow-hidden">
+      </td>
+      <td className="px-1.5 text-ink-3 truncate">{prettyUnit(tag.unit)}</td>
+      <td className="px-1.5 overflow-hidden">
         <QualityCell code={code} stale={stale} />
-      </div>
-      <div role="cell" className="px-1.5 text-right num text-ink-2" title={ts ? `source time ${formatUtc(ts)}` : 'no value yet'}>
+      </td>
+      <td className="px-1.5 text-right num text-ink-2" title={ts ? `source time ${formatUtc(ts)}` : 'no value yet'}>
         {formatAge(age)}
-      </div>
-      <div role="cell" className="px-1.5 truncate text-ink-2" title={tag.source.name}>
+      </td>
+      <td className="px-1.5 truncate text-ink-2" title={tag.source.name}>
         <span className="text-ink-3">{tag.source.kind === 'opcua' ? 'OPC UA' : 'MQTT'}</span> {tag.source.name}
-      </div>
-      <div role="cell" className="px-1.5 truncate text-ink-2">
+      </td>
+      <td className="px-1.5 truncate text-ink-2">
         {tag.signals.length ? tag.signals.map((s) => `${s.signal} · ${s.targetCode ?? `${s.targetType} ${s.targetId}`}`).join('; ') : <span className="text-ink-3">—</span>}
-      </div>
-    </div>
+      </td>
+    </tr>
   );
 });
 

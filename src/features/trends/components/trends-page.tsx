@@ -1,4 +1,5 @@
-import { useEffect, useMemo, useRef, useState, type FormEvent } from 'react';
+import { useEffect, useMemo, useRef, useState } from 'react';
+import { useForm, useWatch } from 'react-hook-form';
 import { useSearchParams } from 'react-router';
 import { Button, ErrorNote, TextInput } from '../../../components/ui/controls.tsx';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
@@ -193,25 +194,32 @@ function TrendView({ plantId }: { plantId: number }) {
   );
 }
 
+/** A tag name typed as it is, or the one tag whose name starts with it; otherwise why not. */
+function findTag(tags: { id: number; name: string }[], typed: string): { id: number } | { miss: string } {
+  const needle = typed.trim().toLowerCase();
+  const exact = tags.find((t) => t.name.toLowerCase() === needle);
+  const starts = tags.filter((t) => t.name.toLowerCase().startsWith(needle));
+  const hit = exact ?? (starts.length === 1 ? starts[0] : undefined);
+  if (hit) return { id: hit.id };
+  return { miss: starts.length > 1 ? `${starts.length} tags start with “${typed.trim()}”; pick one` : `no tag named “${typed.trim()}”` };
+}
+
 function PenAdder({ tags, onAdd, full, ready }: { tags: { id: number; name: string; description: string }[]; onAdd(id: number): void; full: boolean; ready: boolean }) {
-  const [text, setText] = useState('');
-  const [miss, setMiss] = useState<string | null>(null);
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    const needle = text.trim().toLowerCase();
-    const exact = tags.find((t) => t.name.toLowerCase() === needle);
-    const starts = tags.filter((t) => t.name.toLowerCase().startsWith(needle));
-    const hit = exact ?? (starts.length === 1 ? starts[0] : undefined);
-    if (!hit) return setMiss(starts.length > 1 ? `${starts.length} tags start with “${text.trim()}”; pick one` : `no tag named “${text.trim()}”`);
-    setMiss(null);
-    setText('');
-    onAdd(hit.id);
-  };
+  const form = useForm<{ text: string }>({ defaultValues: { text: '' } });
+  const text = useWatch({ control: form.control, name: 'text' });
+  const miss = form.formState.errors.text?.message ?? null;
+  // The tag list is the rule here (no request is sent), so the lookup is the field's validation.
+  const submit = form.handleSubmit((v) => {
+    const r = findTag(tags, v.text);
+    if ('miss' in r) return form.setError('text', { type: 'validate', message: r.miss });
+    form.reset({ text: '' });
+    onAdd(r.id);
+  });
   return (
-    <form onSubmit={submit} className="flex items-center gap-1" aria-label="Add pen">
+    <form onSubmit={(e) => void submit(e)} className="flex items-center gap-1" aria-label="Add pen">
       <label className="flex items-center gap-1 text-[12px] text-ink-2">
         Pen
-        <TextInput list="trend-tag-names" value={text} onChange={(e) => setText(e.target.value)} placeholder={ready ? 'tag name' : 'loading tags…'} disabled={!ready} className="w-40" aria-label="Tag to add as a pen" aria-invalid={miss ? true : undefined} />
+        <TextInput list="trend-tag-names" {...form.register('text')} placeholder={ready ? 'tag name' : 'loading tags…'} disabled={!ready} className="w-40" aria-label="Tag to add as a pen" aria-invalid={miss ? true : undefined} />
       </label>
       <datalist id="trend-tag-names">
         {tags.map((t) => (

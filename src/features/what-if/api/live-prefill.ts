@@ -1,10 +1,9 @@
 import { useMutation } from '@tanstack/react-query';
-import type { BalanceData } from '../../../../shared/contracts/balance.ts';
+import type { FigureOut } from '../../../../shared/contracts/balance.ts';
 import type { PlantLayoutOut } from '../../../../shared/contracts/plant-api.ts';
 import { api } from '../../../lib/api-client.ts';
+import type { BalanceLive } from '../../board/api/balance-live.ts';
 import { paths } from '../../../lib/paths.ts';
-
-type Fig = { value: number | null; quality: string };
 
 /** The storm form's inputs taken from the plant's latest balance, with what could not be filled. */
 export interface StormPrefill {
@@ -23,12 +22,12 @@ const sum = (xs: Array<number | null>): number | null => (xs.some((x) => x === n
  */
 export async function fetchStormPrefill(plantId: number): Promise<StormPrefill> {
   const [live, layout] = await Promise.all([
-    api<{ balance: { ts: string; quality: string; data: BalanceData } | null; reason?: string }>(paths.balanceLive(plantId)),
+    api<Omit<BalanceLive, 'receivedAt'>>(paths.balanceLive(plantId)),
     api<PlantLayoutOut>(paths.plant(plantId)),
   ]);
   if (!live.balance) throw new Error(live.reason ?? 'no balance computed yet for this plant');
   const d = live.balance.data;
-  const v = (f: Fig | undefined) => (f && f.quality !== 'unavailable' ? f.value : null);
+  const v = (f: FigureOut | undefined) => (f && f.quality !== 'unavailable' ? f.value : null);
   const basins = d.basins.map((b) => ({ mlss: v(b.mlss_gL), vol: b.volume_m3 }));
   const volume = basins.reduce((a, b) => a + b.vol, 0);
   const mlssMass = sum(basins.map((b) => (b.mlss === null ? null : b.mlss * b.vol)));

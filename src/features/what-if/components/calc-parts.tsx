@@ -1,6 +1,6 @@
 import type { ReactNode } from 'react';
-import { ApiError } from '../../../lib/api-client.ts';
-import { ErrorNote, Field, fieldErrors, TextInput } from '../../../components/ui/controls.tsx';
+import type { UseFormRegisterReturn } from 'react-hook-form';
+import { Field, TextInput } from '../../../components/ui/controls.tsx';
 
 /** Digits grouped by a narrow no-break space (SI style), fixed decimals; null → "—". */
 export function fmt(v: number | null | undefined, digits = 2): string {
@@ -10,37 +10,25 @@ export function fmt(v: number | null | undefined, digits = 2): string {
     .replace(/,/g, '\u202f');
 }
 
-/** A numeric input with its label and unit; the value is typed text, validated on submit. */
+/** A numeric input with its label and unit, registered with its form; the value is typed text, validated on submit. */
 export function NumField({
   label,
   unit,
-  name,
-  value,
-  onChange,
+  field,
   error,
   hint,
   width = 'w-24',
 }: {
   label: string;
   unit: string;
-  name: string;
-  value: string;
-  onChange: (v: string) => void;
+  field: UseFormRegisterReturn;
   error?: string[] | undefined;
   hint?: ReactNode;
   width?: string;
 }) {
   return (
     <Field label={label} unit={unit} error={error} hint={hint}>
-      <TextInput
-        name={name}
-        className={`${width} num text-right`}
-        inputMode="decimal"
-        autoComplete="off"
-        aria-invalid={error?.length ? true : undefined}
-        value={value}
-        onChange={(e) => onChange(e.target.value)}
-      />
+      <TextInput {...field} className={`${width} num text-right`} inputMode="decimal" autoComplete="off" aria-invalid={error?.length ? true : undefined} />
     </Field>
   );
 }
@@ -101,13 +89,6 @@ export function QualityLine({ quality, reasons }: { quality?: 'good' | 'estimate
 /** The caution shown wherever a figure drives an operating decision (design: advisory only). */
 export function Caution() {
   return <p className="text-[11px] text-ink-3 mt-1 border-l-2 border-edge pl-1.5">Advisory: check against lab results and the plant&apos;s procedures; the licensed operator decides.</p>;
-}
-
-/** Client- and server-side field errors merged (client first); a failed request without field errors is said plainly. */
-export function mergeErrors(client: Record<string, string[]>, serverError: unknown) {
-  const fe = { ...fieldErrors(serverError), ...client };
-  const general = serverError && !(serverError instanceof ApiError && serverError.fields && Object.keys(serverError.fields).length) ? serverError : null;
-  return { fe, general: general ? <ErrorNote error={general} /> : null };
 }
 
 /** Header line of a result block; says so when the inputs changed since the result was computed. */

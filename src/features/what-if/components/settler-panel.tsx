@@ -1,11 +1,11 @@
-import type { FormEvent } from 'react';
 import { settlerRequest } from '../../../../shared/contracts/calc.ts';
-import { Button, Panel } from '../../../components/ui/controls.tsx';
+import { Button, FormProblem, Panel } from '../../../components/ui/controls.tsx';
+import { applyServerErrors } from '../../../lib/form.ts';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { useSettlerCalc } from '../api/settler.ts';
 import { KESTREL_BEND } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
-import { mergeErrors, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
 import { SettlerProfile } from './settler-profile.tsx';
 
 const FIELDS: { key: keyof typeof KESTREL_BEND.settler; label: string; unit: string }[] = [
@@ -22,15 +22,14 @@ const FIELDS: { key: keyof typeof KESTREL_BEND.settler; label: string; unit: str
 const XT_gL = 3;
 
 export function SettlerPanel() {
-  const form = useCalcForm(settlerRequest, KESTREL_BEND.settler, { optionalKeys: ['layers', 'feedLayer'] });
+  const form = useCalcForm(settlerRequest, KESTREL_BEND.settler);
   const calc = useSettlerCalc();
-  const { fe, general } = mergeErrors(form.errors, calc.error);
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    const body = form.submit();
-    if (body) calc.mutate(body);
-    else calc.reset();
-  };
+  const submit = form.onSubmit(
+    (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
+    () => calc.reset(),
+  );
+  const fe = form.error;
+  const general = <FormProblem error={calc.error} root={form.form.formState.errors.root?.server?.message} />;
   const r = calc.data;
   const sent = calc.variables;
   return (
@@ -38,7 +37,7 @@ export function SettlerPanel() {
       <form onSubmit={submit} aria-label="Layered settler inputs" noValidate>
         <div className="grid grid-cols-4 gap-x-3 gap-y-1.5">
           {FIELDS.map((f) => (
-            <NumField key={f.key} name={`settler.${f.key}`} label={f.label} unit={f.unit} width="w-20" value={form.values[f.key] ?? ''} onChange={(v) => form.set(f.key, v)} error={fe[f.key]} />
+            <NumField key={f.key} field={form.form.register(f.key)} label={f.label} unit={f.unit} width="w-20" error={fe(f.key)} />
           ))}
         </div>
         <p className="text-[11px] text-ink-3 mt-1">Feed = Q + Q_R, underflow = Q_R + Q_W; area of all clarifiers in service; feed layer counted from the top. Takács double-exponential settling with the BSM1 parameters (Takács et al. 1991; Alex et al. 2008); steady state.</p>

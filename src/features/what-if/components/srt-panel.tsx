@@ -1,10 +1,10 @@
-import type { FormEvent } from 'react';
 import { srtRequest } from '../../../../shared/contracts/calc.ts';
-import { Button, Panel } from '../../../components/ui/controls.tsx';
+import { Button, FormProblem, Panel } from '../../../components/ui/controls.tsx';
+import { applyServerErrors } from '../../../lib/form.ts';
 import { useSrtCalc } from '../api/srt.ts';
 import { KESTREL_BEND } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
-import { Caution, mergeErrors, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { Caution, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
 
 const FIELDS: { key: keyof typeof KESTREL_BEND.srt; label: string; unit: string; hint?: string }[] = [
   { key: 'aerationMass_kg', label: 'Aeration mass', unit: 'kg' },
@@ -17,22 +17,21 @@ const FIELDS: { key: keyof typeof KESTREL_BEND.srt; label: string; unit: string;
 ];
 
 export function SrtPanel() {
-  const form = useCalcForm(srtRequest, KESTREL_BEND.srt, { optionalKeys: ['targetSrt_d'] });
+  const form = useCalcForm(srtRequest, KESTREL_BEND.srt);
   const calc = useSrtCalc();
-  const { fe, general } = mergeErrors(form.errors, calc.error);
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    const body = form.submit();
-    if (body) calc.mutate(body);
-    else calc.reset();
-  };
+  const submit = form.onSubmit(
+    (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
+    () => calc.reset(),
+  );
+  const fe = form.error;
+  const general = <FormProblem error={calc.error} root={form.form.formState.errors.root?.server?.message} />;
   const r = calc.data;
   return (
     <Panel title="Sludge age (SRT)">
       <form onSubmit={submit} aria-label="Sludge age inputs" noValidate>
         <div className="grid grid-cols-3 gap-x-3 gap-y-1.5">
           {FIELDS.map((f) => (
-            <NumField key={f.key} name={`srt.${f.key}`} label={f.label} unit={f.unit} hint={f.hint} width="w-24" value={form.values[f.key] ?? ''} onChange={(v) => form.set(f.key, v)} error={fe[f.key]} />
+            <NumField key={f.key} field={form.form.register(f.key)} label={f.label} unit={f.unit} hint={f.hint} width="w-24" error={fe(f.key)} />
           ))}
         </div>
         <div className="mt-2">

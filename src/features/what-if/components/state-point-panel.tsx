@@ -1,12 +1,13 @@
-import type { FormEvent } from 'react';
+import { useWatch } from 'react-hook-form';
 import { statePointRequest } from '../../../../shared/contracts/calc.ts';
 import { SETTLING_CORRELATIONS, CORRELATION_INDEX, type SettlingCorrelationId } from '../../../../shared/domain/settling.ts';
-import { Button, Field, Panel, Select } from '../../../components/ui/controls.tsx';
+import { Button, Field, FormProblem, Panel, Select } from '../../../components/ui/controls.tsx';
+import { applyServerErrors } from '../../../lib/form.ts';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { useStatePointCalc } from '../api/state-point.ts';
 import { KESTREL_BEND } from '../defaults.ts';
-import { useCalcForm } from '../hooks/use-calc-form.ts';
-import { Caution, mergeErrors, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { useCalcForm, type FormValues } from '../hooks/use-calc-form.ts';
+import { Caution, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
 import { StatePointDiagram } from './state-point-diagram.tsx';
 
 const CORRELATION_LABEL: Record<SettlingCorrelationId, string> = {
@@ -18,25 +19,25 @@ const CORRELATION_LABEL: Record<SettlingCorrelationId, string> = {
 
 const GIVEN = 'given';
 
+/** Only the chosen settling variant is sent: given v0 and k, or an index with its correlation. */
+function sendChosenSettling(values: FormValues): (key: string) => boolean {
+  const given = (values.settling as FormValues | undefined)?.correlation === GIVEN;
+  return (k) => (given ? k !== 'settling.svi_mLg' && k !== 'settling.correlation' : k !== 'settling.v0_mh' && k !== 'settling.k_Lg');
+}
+
 export function StatePointPanel() {
-  const form = useCalcForm(statePointRequest, KESTREL_BEND.statePoint, { textKeys: ['settling.correlation'], optionalKeys: ['wasFlow_m3h'] });
+  const form = useCalcForm(statePointRequest, KESTREL_BEND.statePoint, { textKeys: ['settling.correlation'], include: sendChosenSettling });
   const calc = useStatePointCalc();
-  const { fe, general } = mergeErrors(form.errors, calc.error);
-  const source = form.values['settling.correlation'] === GIVEN ? GIVEN : 'correlation';
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    // send only the chosen settling variant: given v0 and k, or an index with its correlation
-    const body = form.submit((k) =>
-      source === GIVEN ? k !== 'settling.svi_mLg' && k !== 'settling.correlation' : k !== 'settling.v0_mh' && k !== 'settling.k_Lg',
-    );
-    if (body) calc.mutate(body);
-    else calc.reset();
-  };
-  const corr = form.values['settling.correlation'] as SettlingCorrelationId | typeof GIVEN;
-  const indexName = corr !== GIVEN ? CORRELATION_INDEX[corr] : 'SVI';
-  const num = (key: string, label: string, unit: string, hint?: string) => (
-    <NumField key={key} name={`sp.${key}`} label={label} unit={unit} hint={hint} value={form.values[key] ?? ''} onChange={(v) => form.set(key, v)} error={fe[key]} />
+  const submit = form.onSubmit(
+    (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
+    () => calc.reset(),
   );
+  const fe = form.error;
+  const general = <FormProblem error={calc.error} root={form.form.formState.errors.root?.server?.message} />;
+  const corr = useWatch({ control: form.form.control, name: 'settling.correlation' }) as SettlingCorrelationId | typeof GIVEN;
+  const source = corr === GIVEN ? GIVEN : 'correlation';
+  const indexName = corr !== GIVEN ? CORRELATION_INDEX[corr] : 'SVI';
+  const num = (key: string, label: string, unit: string, hint?: string) => <NumField key={key} field={form.form.register(key)} label={label} unit={unit} hint={hint} error={fe(key)} />;
   const r = calc.data;
   const sent = calc.variables;
   const margin = (m: number | null | undefined) => (m != null && m < 0 ? 'negative: limit exceeded' : undefined);
@@ -50,8 +51,8 @@ export function StatePointPanel() {
           {num('mlss_gL', 'MLSS X', 'g/L')}
           {num('clarifierArea_m2', 'Clarifier area, total', 'm²')}
           <div className="col-span-2">
-          <Field label="Settling parameters from" error={fe['settling.correlation'] ?? fe.settling}>
-            <Select className="w-full" name="sp.settling.correlation" value={corr} onChange={(e) => form.set('settling.correlation', e.target.value)}>
+          <Field label="Settling parameters from" error={fe('settling.correlation') ?? fe('settling')}>
+            <Select className="w-full" {...form.form.register('settling.correlation')}>
               {SETTLING_CORRELATIONS.map((c) => (
                 <option key={c} value={c}>
                   {CORRELATION_LABEL[c]}

@@ -1,12 +1,12 @@
-import type { FormEvent } from 'react';
 import { stormRequest, type StormResponse } from '../../../../shared/contracts/calc.ts';
-import { Button, Panel } from '../../../components/ui/controls.tsx';
+import { Button, FormProblem, Panel } from '../../../components/ui/controls.tsx';
+import { applyServerErrors } from '../../../lib/form.ts';
 import { useCurrentPlant } from '../../plant/api/plants.ts';
 import { useStormPrefill } from '../api/live-prefill.ts';
 import { useStormCalc } from '../api/storm.ts';
 import { KESTREL_BEND } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
-import { Caution, fmt, mergeErrors, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { Caution, fmt, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
 
 const FIELDS: { key: keyof typeof KESTREL_BEND.storm; label: string; unit: string; hint?: string }[] = [
   { key: 'influentFlow_m3h', label: 'Influent flow now', unit: 'm³/h' },
@@ -52,28 +52,27 @@ function StormChecks({ checks }: { checks: StormResponse['checks'] }) {
 }
 
 export function StormPanel() {
-  const form = useCalcForm(stormRequest, KESTREL_BEND.storm, { optionalKeys: ['xrFactor', 'clarifierMass_kg'] });
+  const form = useCalcForm(stormRequest, KESTREL_BEND.storm);
   const calc = useStormCalc();
   const { plantId } = useCurrentPlant();
   const prefill = useStormPrefill();
   const fillFromPlant = () => {
     if (plantId === null) return;
-    prefill.mutate(plantId, { onSuccess: (p) => Object.entries(p.values).forEach(([k, v]) => form.set(k, v)) });
+    prefill.mutate(plantId, { onSuccess: (p) => Object.entries(p.values).forEach(([k, v]) => form.form.setValue(k, v, { shouldDirty: true })) });
   };
-  const { fe, general } = mergeErrors(form.errors, calc.error);
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    const body = form.submit();
-    if (body) calc.mutate(body);
-    else calc.reset();
-  };
+  const submit = form.onSubmit(
+    (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
+    () => calc.reset(),
+  );
+  const fe = form.error;
+  const general = <FormProblem error={calc.error} root={form.form.formState.errors.root?.server?.message} />;
   const r = calc.data;
   return (
     <Panel title="Storm projection">
       <form onSubmit={submit} aria-label="Storm projection inputs" noValidate>
         <div className="grid grid-cols-3 gap-x-3 gap-y-1.5">
           {FIELDS.map((f) => (
-            <NumField key={f.key} name={`storm.${f.key}`} label={f.label} unit={f.unit} hint={f.hint} value={form.values[f.key] ?? ''} onChange={(v) => form.set(f.key, v)} error={fe[f.key]} />
+            <NumField key={f.key} field={form.form.register(f.key)} label={f.label} unit={f.unit} hint={f.hint} error={fe(f.key)} />
           ))}
         </div>
         <div className="mt-2 flex items-center gap-2">

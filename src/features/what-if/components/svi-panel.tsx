@@ -1,24 +1,23 @@
-import type { FormEvent } from 'react';
 import { sviRequest } from '../../../../shared/contracts/calc.ts';
-import { Button, Field, Panel, Select } from '../../../components/ui/controls.tsx';
+import { Button, Field, FormProblem, Panel, Select } from '../../../components/ui/controls.tsx';
+import { applyServerErrors } from '../../../lib/form.ts';
 import { useSviCalc } from '../api/svi.ts';
 import { KESTREL_BEND } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
-import { mergeErrors, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
 
 export function SviPanel() {
-  const form = useCalcForm(sviRequest, KESTREL_BEND.svi, { textKeys: ['kind'], optionalKeys: ['dilutionFactor', 'kind'] });
+  const form = useCalcForm(sviRequest, KESTREL_BEND.svi, { textKeys: ['kind'] });
   const calc = useSviCalc();
-  const { fe, general } = mergeErrors(form.errors, calc.error);
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    const body = form.submit();
-    if (body) calc.mutate(body);
-    else calc.reset();
-  };
+  const submit = form.onSubmit(
+    (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
+    () => calc.reset(),
+  );
+  const fe = form.error;
+  const general = <FormProblem error={calc.error} root={form.form.formState.errors.root?.server?.message} />;
   const r = calc.data;
   const num = (key: keyof typeof KESTREL_BEND.svi, label: string, unit: string, hint?: string) => (
-    <NumField name={`svi.${key}`} label={label} unit={unit} hint={hint} width="w-20" value={form.values[key] ?? ''} onChange={(v) => form.set(key, v)} error={fe[key]} />
+    <NumField field={form.form.register(key)} label={label} unit={unit} hint={hint} width="w-20" error={fe(key)} />
   );
   return (
     <Panel title="Settleability index">
@@ -27,8 +26,8 @@ export function SviPanel() {
           {num('settledVolume_mLL', 'Settled volume', 'mL/L', 'after 30 min; of the diluted sample for a DSVI')}
           {num('mlss_gL', 'MLSS (undiluted)', 'g/L')}
           {num('dilutionFactor', 'Dilution factor', '–', 'blank or 1: undiluted')}
-          <Field label="Test kind" error={fe.kind}>
-            <Select className="w-full" name="svi.kind" value={form.values.kind ?? ''} onChange={(e) => form.set('kind', e.target.value)}>
+          <Field label="Test kind" error={fe('kind')}>
+            <Select className="w-full" {...form.form.register('kind')}>
               <option value="">infer from dilution</option>
               <option value="SVI">SVI</option>
               <option value="DSVI">DSVI</option>

@@ -1,11 +1,12 @@
 import { queryOptions, useQuery } from '@tanstack/react-query';
-import type { BrowseNode } from '../../../../shared/contracts/wiring.ts';
+import type { z } from 'zod';
+import type { browseOut } from '../../../../shared/contracts/wiring.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 
 /** `GET /sources/:id/browse?nodeId`: children of one OPC UA node (default the Objects folder). */
 export function fetchBrowse(sourceId: number, nodeId: string | undefined, signal?: AbortSignal) {
-  return api<{ sourceId: number; nodeId: string; children: BrowseNode[] }>(paths.withQuery(paths.sourceBrowse(sourceId), { nodeId }), { signal });
+  return api<z.output<typeof browseOut>>(paths.withQuery(paths.sourceBrowse(sourceId), { nodeId }), { signal });
 }
 
 export const browseQuery = (sourceId: number, nodeId: string | undefined) =>

@@ -1,5 +1,6 @@
 import { useMutation, useQueryClient } from '@tanstack/react-query';
-import type { MappingOut, MappingPut } from '../../../../shared/contracts/wiring.ts';
+import type { z } from 'zod';
+import type { MappingPut, mappingPutOut } from '../../../../shared/contracts/wiring.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 import { invalidateWiring } from './tags-config.ts';
@@ -8,7 +9,7 @@ import { invalidateWiring } from './tags-config.ts';
 export function usePutMapping(plantId: number) {
   const qc = useQueryClient();
   return useMutation({
-    mutationFn: (body: MappingPut) => api<MappingOut & { replacedTagId: number | null }>(paths.signalMap(plantId), { method: 'PUT', body }),
+    mutationFn: (body: MappingPut) => api<z.output<typeof mappingPutOut>>(paths.signalMap(plantId), { method: 'PUT', body }),
     onSuccess: () => invalidateWiring(qc, plantId),
   });
 }

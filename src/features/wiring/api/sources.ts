@@ -1,11 +1,12 @@
 import { queryOptions, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
-import type { SourceCreate, SourceOut } from '../../../../shared/contracts/wiring.ts';
+import type { z } from 'zod';
+import type { SourceCreate, SourceOut, sourcesResponse } from '../../../../shared/contracts/wiring.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 
 /** `GET /plants/:plantId/sources`: brokers and endpoints; passwords never come back (hasSecret). */
 export function fetchSources(plantId: number, signal?: AbortSignal) {
-  return api<{ plantId: number; sources: SourceOut[] }>(paths.sources(plantId), { signal }).then((r) => r.sources);
+  return api<z.output<typeof sourcesResponse>>(paths.sources(plantId), { signal }).then((r) => r.sources);
 }
 
 export const sourcesQuery = (plantId: number) => queryOptions({ queryKey: ['plants', plantId, 'sources'], queryFn: ({ signal }) => fetchSources(plantId, signal) });

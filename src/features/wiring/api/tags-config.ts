@@ -1,12 +1,13 @@
 import { queryOptions, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
-import type { TagConfigOut, TagCreate } from '../../../../shared/contracts/wiring.ts';
+import type { z } from 'zod';
+import type { TagConfigOut, TagCreate, tagsConfigResponse } from '../../../../shared/contracts/wiring.ts';
 import { api } from '../../../lib/api-client.ts';
 import { paths } from '../../../lib/paths.ts';
 import { tagsQuery } from '../../signals/api/tags.ts';
 
 /** `GET /plants/:plantId/tags/config`: addresses, scaling, periods, ranges and mapped signals. */
 export function fetchTagsConfig(plantId: number, signal?: AbortSignal) {
-  return api<{ plantId: number; tags: TagConfigOut[] }>(paths.tagsConfig(plantId), { signal }).then((r) => r.tags);
+  return api<z.output<typeof tagsConfigResponse>>(paths.tagsConfig(plantId), { signal }).then((r) => r.tags);
 }
 
 export const tagsConfigQuery = (plantId: number) => queryOptions({ queryKey: ['plants', plantId, 'tags-config'], queryFn: ({ signal }) => fetchTagsConfig(plantId, signal) });

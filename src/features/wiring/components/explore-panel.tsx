@@ -1,10 +1,14 @@
-import { useState } from 'react';
-import type { BrowseNode, SourceOut } from '../../../../shared/contracts/wiring.ts';
+import { useMemo, useState } from 'react';
+import type { z } from 'zod';
+import type { BrowseNode, discoveredTopic, SourceOut } from '../../../../shared/contracts/wiring.ts';
 import { Button, ErrorNote, Panel, TextInput } from '../../../components/ui/controls.tsx';
+import { DataTable, useDataTable, type ColumnDef } from '../../../components/ui/data-table.tsx';
 import { formatAge } from '../../../lib/format.ts';
 import { useBrowse } from '../api/browse.ts';
 import { useDiscovery } from '../api/discovery.ts';
 import { useTagsConfig } from '../api/tags-config.ts';
+
+type DiscoveredTopic = z.output<typeof discoveredTopic>;
 
 export interface TagDraft {
   sourceId: number;
@@ -25,6 +29,31 @@ export function ExplorePanel({ source, onPick }: { source: SourceOut | undefined
   return source.kind === 'mqtt' ? <TopicsPanel source={source} onPick={onPick} /> : <BrowsePanel source={source} onPick={onPick} />;
 }
 
+type TopicRow = DiscoveredTopic & { tag: string | null };
+
+function topicColumns(source: SourceOut, onPick: (d: TagDraft) => void): ColumnDef<TopicRow>[] {
+  return [
+    { id: 'topic', header: 'Topic', accessorKey: 'topic', meta: { cellClass: 'num truncate' }, cell: ({ getValue }) => <span title={getValue<string>()}>{getValue<string>()}</span> },
+    { id: 'lastPayload', header: 'Last payload', accessorKey: 'lastPayload', enableSorting: false, meta: { width: '30%', cellClass: 'num text-ink-2 truncate' }, cell: ({ getValue }) => <span title={getValue<string>()}>{getValue<string>()}</span> },
+    { id: 'count', header: 'Msgs', accessorKey: 'count', meta: { width: '70px', align: 'right', cellClass: 'num' } },
+    { id: 'lastSeen', header: 'Seen', accessorFn: (t) => Date.parse(t.lastSeen), meta: { width: '70px', align: 'right', cellClass: 'num text-ink-2' }, cell: ({ row: { original: t } }) => formatAge((Date.now() - Date.parse(t.lastSeen)) / 1000) },
+    {
+      id: 'action',
+      header: () => <span className="sr-only">Action</span>,
+      enableSorting: false,
+      meta: { width: '100px', align: 'right', cellClass: 'whitespace-nowrap' },
+      cell: ({ row: { original: t } }) =>
+        t.tag === null ? (
+          <Button onClick={() => onPick({ sourceId: source.id, address: t.topic })} aria-label={`New tag for ${t.topic}`}>
+            New tag…
+          </Button>
+        ) : (
+          <span className="text-ink-3">{t.tag}</span>
+        ),
+    },
+  ];
+}
+
 function TopicsPanel({ source, onPick }: { source: SourceOut; onPick(d: TagDraft): void }) {
   const d = useDiscovery(source.id);
   const cfg = useTagsConfig(source.plantId);
@@ -32,10 +61,20 @@ function TopicsPanel({ source, onPick }: { source: SourceOut; onPick(d: TagDraft
   const [onlyNew, setOnlyNew] = useState(true);
   // Ingest's list says which tag took a topic when it last wrote it; a tag added since is
   // matched here by address, so a topic just wired does not look unwired for a few seconds.
-  const byAddress = new Map((cfg.data ?? []).filter((t) => t.source.id === source.id).map((t) => [t.address, t]));
-  const topics = (d.data?.topics ?? [])
-    .map((t) => ({ ...t, tag: byAddress.get(t.topic)?.name ?? (t.tagId !== null ? `tag ${t.tagId}` : null) }))
-    .filter((t) => (!onlyNew || t.tag === null) && t.topic.toLowerCase().includes(filter.toLowerCase()));
+  const data = useMemo(() => {
+    const byAddress = new Map((cfg.data ?? []).filter((t) => t.source.id === source.id).map((t) => [t.address, t]));
+    return (d.data?.topics ?? []).map((t): TopicRow => ({ ...t, tag: byAddress.get(t.topic)?.name ?? (t.tagId !== null ? `tag ${t.tagId}` : null) }));
+  }, [d.data, cfg.data, source.id]);
+  const columns = useMemo(() => topicColumns(source, onPick), [source, onPick]);
+  const globalFilter = useMemo(() => ({ text: filter, onlyNew }), [filter, onlyNew]);
+  const table = useDataTable({
+    data,
+    columns,
+    getRowId: (t) => t.topic,
+    state: { globalFilter },
+    globalFilterFn: (row, _id, f: { text: string; onlyNew: boolean }) => (!f.onlyNew || row.original.tag === null) && row.original.topic.toLowerCase().includes(f.text.toLowerCase()),
+    initialState: { sorting: [{ id: 'topic', desc: false }] },
+  });
   return (
     <Panel title={`Topics on ${source.name}`}>
       <div className="flex flex-wrap items-center gap-2 mb-1">
@@ -48,43 +87,14 @@ function TopicsPanel({ source, onPick }: { source: SourceOut; onPick(d: TagDraft
         </span>
       </div>
       <ErrorNote error={d.error} />
-      <div className="max-h-[320px] overflow-y-auto border border-edge bg-panel-2">
-        <table className="w-full text-[12px]" aria-label="Discovered topics">
-          <thead className="sticky top-0 bg-panel">
-            <tr>
-              <th className="text-left px-1.5 py-1 font-semibold text-ink-2">Topic</th>
-              <th className="text-left px-1.5 py-1 font-semibold text-ink-2">Last payload</th>
-              <th className="text-right px-1.5 py-1 font-semibold text-ink-2">Msgs</th>
-              <th className="text-right px-1.5 py-1 font-semibold text-ink-2">Seen</th>
-              <th className="px-1.5 py-1">
-                <span className="sr-only">Action</span>
-              </th>
-            </tr>
-          </thead>
-          <tbody>
-            {topics.slice(0, 300).map((t) => (
-              <tr key={t.topic} className="border-t border-edge/50" data-testid="topic-row">
-                <td className="px-1.5 py-0.5 num break-all">{t.topic}</td>
-                <td className="px-1.5 py-0.5 num text-ink-2 max-w-[220px] truncate" title={t.lastPayload}>
-                  {t.lastPayload}
-                </td>
-                <td className="px-1.5 py-0.5 num text-right">{t.count}</td>
-                <td className="px-1.5 py-0.5 num text-right text-ink-2">{formatAge((Date.now() - Date.parse(t.lastSeen)) / 1000)}</td>
-                <td className="px-1.5 py-0.5 text-right whitespace-nowrap">
-                  {t.tag === null ? (
-                    <Button onClick={() => onPick({ sourceId: source.id, address: t.topic })} aria-label={`New tag for ${t.topic}`}>
-                      New tag…
-                    </Button>
-                  ) : (
-                    <span className="text-ink-3">{t.tag}</span>
-                  )}
-                </td>
-              </tr>
-            ))}
-          </tbody>
-        </table>
-        {topics.length === 0 ? <p className="p-2 text-ink-3">{d.isPending ? 'Loading…' : 'No topic matches.'}</p> : null}
-        {topics.length > 300 ? <p className="p-2 text-ink-3">Showing 300 of {topics.length}; filter to narrow.</p> : null}
+      <div className="border border-edge">
+        <DataTable
+          table={table}
+          label="Discovered topics"
+          empty={d.isPending ? 'Loading…' : 'No topic matches.'}
+          virtual={{ rowHeight: 28, maxHeight: '320px', scrollerLabel: 'Discovered topic rows' }}
+          rowProps={() => ({ 'data-testid': 'topic-row', className: 'border-t border-edge/50' })}
+        />
       </div>
     </Panel>
   );

@@ -1,6 +1,8 @@
-import { useState, type FormEvent } from 'react';
-import type { ConnectionTestOut, SourceCreate, SourceKind } from '../../../../shared/contracts/wiring.ts';
-import { Button, ErrorNote, Field, fieldErrors, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { useState } from 'react';
+import { useForm, useWatch } from 'react-hook-form';
+import { OPCUA_SECURITY_MODES, OPCUA_SECURITY_POLICIES, sourceCreate, sparkplugStatus, type ConnectionTestOut, type MqttPayloadFormat, type SourceCreate, type SourceKind } from '../../../../shared/contracts/wiring.ts';
+import { Button, ErrorNote, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { applyServerErrors, contractResolver, fieldError } from '../../../lib/form.ts';
 import { formatAge, formatUtc } from '../../../lib/format.ts';
 import { useIngestStatus } from '../api/ingest-status.ts';
 import { useTestSource } from '../api/source-test.ts';
@@ -61,6 +63,7 @@ export function SourcesPanel({ plantId, selected, onSelect }: { plantId: number;
                       {c.state}
                       {c.lastMessageAt ? <span className="text-ink-3"> · last {formatAge((Date.now() - Date.parse(c.lastMessageAt)) / 1000)} ago</span> : null}
                       {c.staleTags ? <span className="text-unavailable"> · {c.staleTags} stale</span> : null}
+                      <SparkplugNote details={c.details} />
                     </span>
                   ) : (
                     <span className="text-ink-3">—</span>
@@ -91,6 +94,24 @@ export function SourcesPanel({ plantId, selected, onSelect }: { plantId: number;
   );
 }
 
+/** Sparkplug B figures of a source's status: edge nodes whose data cannot be read until they rebirth, and seq gaps. */
+function SparkplugNote({ details }: { details: Record<string, unknown> }) {
+  const parsed = sparkplugStatus.safeParse(details.sparkplug);
+  if (!parsed.success) return null;
+  const sp = parsed.data;
+  return (
+    <span data-testid="sparkplug-status">
+      {sp.needRebirth.length ? (
+        <span className="text-alarm-1" title={sp.needRebirth.map((n) => `${n.edgeNode}: ${n.reason}`).join('\n')}>
+          {' '}
+          · {sp.needRebirth.length} Sparkplug edge node{sp.needRebirth.length > 1 ? 's' : ''} need a rebirth
+        </span>
+      ) : null}
+      {sp.seqGaps ? <span className="text-ink-3"> · {sp.seqGaps} seq gaps</span> : null}
+    </span>
+  );
+}
+
 function IngestBadge({ running, reason }: { running: boolean | undefined; reason: string | undefined }) {
   if (running === undefined) return null;
   return (
@@ -100,22 +121,52 @@ function IngestBadge({ running, reason }: { running: boolean | undefined; reason
   );
 }
 
+type SourceValues = {
+  kind: SourceKind;
+  name: string;
+  url: string;
+  username: string;
+  password: string;
+  options: { topics: string; payload: MqttPayloadFormat; requestRebirth: boolean; securityMode: string; securityPolicy: string };
+};
+const EMPTY_SOURCE: SourceValues = {
+  kind: 'mqtt',
+  name: '',
+  url: '',
+  username: '',
+  password: '',
+  options: { topics: '#', payload: 'json', requestRebirth: false, securityMode: 'None', securityPolicy: 'None' },
+};
+
+/** The request body of the chosen kind: MQTT topic filters from a comma list, OPC UA security settings. */
+function sourceBody(v: SourceValues): Record<string, unknown> {
+  const common = { kind: v.kind, name: v.name, url: v.url.trim(), username: v.username || null, password: v.password || null };
+  return v.kind === 'mqtt'
+    ? {
+        ...common,
+        options: {
+          topics: v.options.topics.split(',').map((t) => t.trim()).filter(Boolean),
+          payload: v.options.payload,
+          ...(v.options.requestRebirth ? { requestRebirth: true } : {}),
+        },
+      }
+    : { ...common, options: { securityMode: v.options.securityMode, securityPolicy: v.options.securityPolicy } };
+}
+const sourceResolver = contractResolver(sourceCreate, sourceBody);
+
 function NewSourceForm({ plantId }: { plantId: number }) {
   const create = useCreateSource(plantId);
   const [open, setOpen] = useState(false);
-  const [kind, setKind] = useState<SourceKind>('mqtt');
-  const [f, setF] = useState({ name: '', url: '', username: '', password: '', topics: '#', securityMode: 'None', securityPolicy: 'None' });
-  const fe = fieldErrors(create.error);
-  const set = (k: keyof typeof f) => (e: { target: { value: string } }) => setF((o) => ({ ...o, [k]: e.target.value }));
-  const submit = (e: FormEvent) => {
-    e.preventDefault();
-    const common = { name: f.name, url: f.url.trim(), username: f.username || null, password: f.password || null };
-    const body: SourceCreate =
-      kind === 'mqtt'
-        ? { kind, ...common, options: { topics: f.topics.split(',').map((t) => t.trim()).filter(Boolean) } }
-        : { kind, ...common, options: { securityMode: f.securityMode as 'None', securityPolicy: f.securityPolicy as 'None' } };
-    create.mutate(body, { onSuccess: () => setF((o) => ({ ...o, name: '', url: '', password: '' })) });
-  };
+  const form = useForm<SourceValues, unknown, SourceCreate>({ defaultValues: EMPTY_SOURCE, resolver: sourceResolver });
+  const { errors } = form.formState;
+  const kind = useWatch({ control: form.control, name: 'kind' });
+  const fe = (name: string) => fieldError(errors, name);
+  const submit = form.handleSubmit((body) =>
+    create.mutate(body, {
+      onSuccess: () => form.reset({ ...form.getValues(), name: '', url: '', password: '' }),
+      onError: (e) => applyServerErrors(e, form),
+    }),
+  );
   if (!open)
     return (
       <div className="mt-2">
@@ -123,44 +174,61 @@ function NewSourceForm({ plantId }: { plantId: number }) {
       </div>
     );
   return (
-    <form onSubmit={submit} aria-label="New source" className="mt-2 border-t border-edge pt-2 grid grid-cols-[repeat(auto-fill,minmax(170px,1fr))] gap-2 items-start">
-      <Field label="Kind">
-        <Select value={kind} onChange={(e) => setKind(e.target.value as SourceKind)}>
+    <form onSubmit={(e) => void submit(e)} noValidate aria-label="New source" className="mt-2 border-t border-edge pt-2 grid grid-cols-[repeat(auto-fill,minmax(170px,1fr))] gap-2 items-start">
+      <Field label="Kind" error={fe('kind')}>
+        <Select {...form.register('kind')}>
           <option value="mqtt">MQTT broker</option>
           <option value="opcua">OPC UA endpoint</option>
         </Select>
       </Field>
-      <Field label="Name" error={fe.name}>
-        <TextInput value={f.name} onChange={set('name')} required />
+      <Field label="Name" error={fe('name')}>
+        <TextInput {...form.register('name')} aria-invalid={errors.name ? true : undefined} />
       </Field>
-      <Field label="URL" error={fe.url} hint={kind === 'mqtt' ? 'mqtt://host:1883, mqtts://, ws://' : 'opc.tcp://host:4840/path'}>
-        <TextInput value={f.url} onChange={set('url')} required className="num" />
+      <Field label="URL" error={fe('url')} hint={kind === 'mqtt' ? 'mqtt://host:1883, mqtts://, ws://' : 'opc.tcp://host:4840/path'}>
+        <TextInput {...form.register('url')} className="num" aria-invalid={errors.url ? true : undefined} />
       </Field>
-      <Field label="User name" error={fe.username}>
-        <TextInput value={f.username} onChange={set('username')} autoComplete="off" />
+      <Field label="User name" error={fe('username')}>
+        <TextInput {...form.register('username')} autoComplete="off" />
       </Field>
-      <Field label="Password" error={fe.password} hint="stored on the server only">
-        <TextInput type="password" value={f.password} onChange={set('password')} autoComplete="new-password" />
+      <Field label="Password" error={fe('password')} hint="stored on the server only">
+        <TextInput type="password" {...form.register('password')} autoComplete="new-password" />
       </Field>
       {kind === 'mqtt' ? (
-        <Field label="Topic filters" error={fe['options.topics'] ?? fe.options} hint="comma-separated; # sees everything">
-          <TextInput value={f.topics} onChange={set('topics')} className="num" />
-        </Field>
-      ) : (
         <>
-          <Field label="Security mode" error={fe['options.securityMode']}>
-            <Select value={f.securityMode} onChange={set('securityMode')}>
-              <option>None</option>
-              <option>Sign</option>
-              <option>SignAndEncrypt</option>
+          <Field label="Topic filters" error={fe('options.topics') ?? fe('options')} hint="comma-separated; # sees everything">
+            <TextInput {...form.register('options.topics')} className="num" />
+          </Field>
+          <Field label="Payload" error={fe('options.payload')} hint="Sparkplug B is read on spBv1.0/ topics either way">
+            <Select {...form.register('options.payload')}>
+              <option value="json">Flocstream JSON</option>
+              <option value="sparkplugB">Sparkplug B only</option>
             </Select>
           </Field>
-          <Field label="Security policy" error={fe['options.securityPolicy']}>
-            <Select value={f.securityPolicy} onChange={set('securityPolicy')}>
-              <option>None</option>
-              <option>Basic256Sha256</option>
-              <option>Aes128_Sha256_RsaOaep</option>
-              <option>Aes256_Sha256_RsaPss</option>
+          <div className="col-span-full text-[12px]">
+            <label className="inline-flex items-center gap-1">
+              <input type="checkbox" {...form.register('options.requestRebirth')} /> Sparkplug B: request a rebirth from edge nodes whose aliases ingest does not know
+            </label>
+            <p className="text-ink-3" data-testid="rebirth-caution">
+              Caution: off by default. When on, ingest publishes the standard Sparkplug rebirth command (NCMD Node Control/Rebirth, at most once per edge node per
+              minute) — the only message Flocstream ever sends to the plant network. A rebirth makes the edge node resend all its metrics; agree it with the owner
+              of the control system and the licensed operators first. Without it, such edge nodes are listed here until they rebirth on their own.
+            </p>
+          </div>
+        </>
+      ) : (
+        <>
+          <Field label="Security mode" error={fe('options.securityMode')}>
+            <Select {...form.register('options.securityMode')}>
+              {OPCUA_SECURITY_MODES.map((m) => (
+                <option key={m}>{m}</option>
+              ))}
+            </Select>
+          </Field>
+          <Field label="Security policy" error={fe('options.securityPolicy')}>
+            <Select {...form.register('options.securityPolicy')}>
+              {OPCUA_SECURITY_POLICIES.map((p) => (
+                <option key={p}>{p}</option>
+              ))}
             </Select>
           </Field>
         </>
@@ -173,7 +241,9 @@ function NewSourceForm({ plantId }: { plantId: number }) {
           Close
         </Button>
       </div>
-      {create.error && !Object.keys(fe).length ? <ErrorNote error={create.error} /> : null}
+      <div className="col-span-full empty:hidden">
+        <FormProblem error={create.error} root={errors.root?.server?.message} />
+      </div>
       {create.data ? (
         <p role="status" className="text-ink-2 col-span-full">
           Added {create.data.name} ({formatUtc(create.data.createdAt)}). Ingest picks it up within seconds; test the connection above.
@@ -182,4 +252,3 @@ function NewSourceForm({ plantId }: { plantId: number }) {
     </form>
   );
 }
-

@@ -1,14 +1,36 @@
-import { useEffect, useState, type FormEvent } from 'react';
+import { useEffect, useState } from 'react';
+import { useForm, useWatch } from 'react-hook-form';
 import type { PlantLayoutOut } from '../../../../shared/contracts/plant-api.ts';
 import { SIGNAL_KINDS } from '../../../../shared/contracts/plant-layout.ts';
-import { signalTargetType, tagCreate, type SourceOut } from '../../../../shared/contracts/wiring.ts';
-import { Button, ErrorNote, Field, fieldErrors, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { signalTargetType, tagCreate, type SourceOut, type TagCreate } from '../../../../shared/contracts/wiring.ts';
+import { Button, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
+import { applyServerErrors, contractResolver, fieldError, numberOrText, textOrNothing } from '../../../lib/form.ts';
 import { usePlantLayout } from '../../plant/api/plants.ts';
 import { usePutMapping } from '../api/signal-map.ts';
 import { useCreateTag } from '../api/tags-config.ts';
 import type { TagDraft } from './explore-panel.tsx';
 
-const EMPTY = { name: '', sourceId: '', address: '', unit: '', description: '', scaleGain: '1', scaleOffset: '0', deadband: '0', expectedPeriod_s: '10', rangeLow: '', rangeHigh: '', signal: '', target: '' };
+type TagValues = Record<'name' | 'sourceId' | 'address' | 'unit' | 'description' | 'scaleGain' | 'scaleOffset' | 'deadband' | 'expectedPeriod_s' | 'rangeLow' | 'rangeHigh' | 'signal' | 'target', string>;
+const EMPTY: TagValues = { name: '', sourceId: '', address: '', unit: '', description: '', scaleGain: '1', scaleOffset: '0', deadband: '0', expectedPeriod_s: '10', rangeLow: '', rangeHigh: '', signal: '', target: '' };
+
+/** The tag part of the form as the create request (the process signal is a second request). */
+function tagBody(v: TagValues): Record<string, unknown> {
+  const body: Record<string, unknown> = {
+    name: textOrNothing(v.name),
+    sourceId: numberOrText(v.sourceId),
+    address: textOrNothing(v.address),
+    unit: textOrNothing(v.unit),
+    description: v.description || undefined,
+    scaleGain: numberOrText(v.scaleGain),
+    scaleOffset: numberOrText(v.scaleOffset),
+    deadband: numberOrText(v.deadband),
+    expectedPeriod_s: numberOrText(v.expectedPeriod_s),
+    rangeLow: numberOrText(v.rangeLow) ?? null,
+    rangeHigh: numberOrText(v.rangeHigh) ?? null,
+  };
+  return Object.fromEntries(Object.entries(body).filter(([, x]) => x !== undefined));
+}
+const tagResolver = contractResolver(tagCreate, tagBody);
 
 /** Codes a signal of this kind can be mapped to, from the plant layout. */
 export function targetsFor(layout: PlantLayoutOut | undefined, signal: string): { code: string; name: string }[] {
@@ -28,71 +50,48 @@ export function TagForm({ plantId, sources, draft, onDone }: { plantId: number; 
   const create = useCreateTag(plantId);
   const map = usePutMapping(plantId);
   const layout = usePlantLayout(plantId);
-  const [f, setF] = useState(EMPTY);
-  const [local, setLocal] = useState<Record<string, string[]>>({});
+  const form = useForm<TagValues, unknown, TagCreate>({ defaultValues: EMPTY, resolver: tagResolver });
+  const { register, formState } = form;
   const [done, setDone] = useState<string | null>(null);
   useEffect(() => {
     if (draft) {
-      setF({ ...EMPTY, sourceId: String(draft.sourceId), address: draft.address, name: draft.name ?? '', description: draft.description ?? '' });
-      setLocal({});
+      form.reset({ ...EMPTY, sourceId: String(draft.sourceId), address: draft.address, name: draft.name ?? '', description: draft.description ?? '' });
       setDone(null);
     }
-  }, [draft]);
-  const set = (k: keyof typeof EMPTY) => (e: { target: { value: string } }) => setF((o) => ({ ...o, [k]: e.target.value }));
-  const num = (s: string) => (s.trim() === '' ? undefined : Number(s));
-  const fe = { ...fieldErrors(create.error), ...fieldErrors(map.error), ...local };
+  }, [draft, form]);
+  const signal = useWatch({ control: form.control, name: 'signal' });
+  const fe = (name: keyof TagValues) => fieldError(formState.errors, name);
 
-  const submit = async (e: FormEvent) => {
-    e.preventDefault();
+  const submit = form.handleSubmit(async (body) => {
     setDone(null);
-    const body = {
-      name: f.name.trim(),
-      sourceId: Number(f.sourceId),
-      address: f.address.trim(),
-      unit: f.unit.trim(),
-      description: f.description,
-      scaleGain: num(f.scaleGain),
-      scaleOffset: num(f.scaleOffset),
-      deadband: num(f.deadband),
-      expectedPeriod_s: num(f.expectedPeriod_s),
-      rangeLow: num(f.rangeLow) ?? null,
-      rangeHigh: num(f.rangeHigh) ?? null,
-    };
-    const r = tagCreate.safeParse(body);
-    const errs: Record<string, string[]> = {};
-    if (!r.success)
-      for (const i of r.error.issues) {
-        const empty = i.code === 'too_small' && i.origin === 'string' && Number(i.minimum) === 1;
-        (errs[i.path.join('.')] ??= []).push(empty ? 'required' : i.path[0] === 'sourceId' ? 'pick a source' : i.message);
-      }
-    if (f.signal && !f.target) errs.target = ['pick what this signal belongs to'];
-    setLocal(errs);
-    if (!r.success || Object.keys(errs).length) return;
+    const { signal: kind, target } = form.getValues();
+    if (kind && !target) return form.setError('target', { type: 'required', message: 'pick what this signal belongs to' });
     create.reset();
     map.reset();
     try {
-      const tag = await create.mutateAsync(r.data);
+      const tag = await create.mutateAsync(body);
       let mapped = '';
-      if (f.signal) {
-        const type = signalTargetType(f.signal as (typeof SIGNAL_KINDS)[number]);
-        const m = await map.mutateAsync({ signal: f.signal as (typeof SIGNAL_KINDS)[number], targetType: type, targetCode: f.target, tagId: tag.id });
-        mapped = ` as ${m.signal} of ${m.targetCode ?? f.target}${m.replacedTagId ? ` (replacing tag ${m.replacedTagId})` : ''}`;
+      if (kind) {
+        const sk = kind as (typeof SIGNAL_KINDS)[number];
+        const m = await map.mutateAsync({ signal: sk, targetType: signalTargetType(sk), targetCode: target, tagId: tag.id });
+        mapped = ` as ${m.signal} of ${m.targetCode ?? target}${m.replacedTagId ? ` (replacing tag ${m.replacedTagId})` : ''}`;
       }
       setDone(`Tag ${tag.name} added${mapped}. Ingest applies it within seconds.`);
-      setF(EMPTY);
+      form.reset(EMPTY);
       onDone();
-    } catch {
-      /* shown beside the fields or below */
+    } catch (e) {
+      // 422 field errors go beside their fields; anything else is said below the form.
+      applyServerErrors(e, form);
     }
-  };
+  });
 
-  const targets = targetsFor(layout.data, f.signal);
-  const otherError = (create.error && !Object.keys(fieldErrors(create.error)).length ? create.error : null) ?? (map.error && !Object.keys(fieldErrors(map.error)).length ? map.error : null);
+  const targets = targetsFor(layout.data, signal);
+  const num = (name: keyof TagValues) => ({ ...register(name), inputMode: 'decimal' as const, className: 'num', 'aria-invalid': formState.errors[name] ? true : undefined });
   return (
     <Panel title="New tag">
-      <form onSubmit={(e) => void submit(e)} aria-label="New tag" className="grid grid-cols-[repeat(auto-fill,minmax(150px,1fr))] gap-2 items-start">
-        <Field label="Source" error={fe.sourceId}>
-          <Select value={f.sourceId} onChange={set('sourceId')}>
+      <form onSubmit={(e) => void submit(e)} noValidate aria-label="New tag" className="grid grid-cols-[repeat(auto-fill,minmax(150px,1fr))] gap-2 items-start">
+        <Field label="Source" error={fe('sourceId') ? ['pick a source'] : undefined}>
+          <Select {...register('sourceId')}>
             <option value="">—</option>
             {sources.map((s) => (
               <option key={s.id} value={s.id}>
@@ -102,49 +101,49 @@ export function TagForm({ plantId, sources, draft, onDone }: { plantId: number; 
           </Select>
         </Field>
         <div className="col-span-2">
-          <Field label="Address" error={fe.address} hint="MQTT topic or OPC UA NodeId">
-            <TextInput value={f.address} onChange={set('address')} className="num w-full" />
+          <Field label="Address" error={fe('address')} hint="MQTT topic or OPC UA NodeId">
+            <TextInput {...register('address')} className="num w-full" />
           </Field>
         </div>
-        <Field label="Tag name" error={fe.name}>
-          <TextInput value={f.name} onChange={set('name')} />
+        <Field label="Tag name" error={fe('name')}>
+          <TextInput {...register('name')} />
         </Field>
-        <Field label="Unit" error={fe.unit} hint="e.g. g/L, m3/h, m">
-          <TextInput value={f.unit} onChange={set('unit')} />
+        <Field label="Unit" error={fe('unit')} hint="e.g. g/L, m3/h, m">
+          <TextInput {...register('unit')} />
         </Field>
         <div className="col-span-2">
-          <Field label="Description" error={fe.description}>
-            <TextInput value={f.description} onChange={set('description')} className="w-full" />
+          <Field label="Description" error={fe('description')}>
+            <TextInput {...register('description')} className="w-full" />
           </Field>
         </div>
-        <Field label="Scale gain" error={fe.scaleGain} hint="eng. = raw × gain + offset">
-          <TextInput value={f.scaleGain} onChange={set('scaleGain')} inputMode="decimal" className="num" />
+        <Field label="Scale gain" error={fe('scaleGain')} hint="eng. = raw × gain + offset">
+          <TextInput {...num('scaleGain')} />
         </Field>
-        <Field label="Scale offset" error={fe.scaleOffset}>
-          <TextInput value={f.scaleOffset} onChange={set('scaleOffset')} inputMode="decimal" className="num" />
+        <Field label="Scale offset" error={fe('scaleOffset')}>
+          <TextInput {...num('scaleOffset')} />
         </Field>
-        <Field label="Deadband" error={fe.deadband} hint="in the tag unit; 0 keeps every change">
-          <TextInput value={f.deadband} onChange={set('deadband')} inputMode="decimal" className="num" />
+        <Field label="Deadband" error={fe('deadband')} hint="in the tag unit; 0 keeps every change">
+          <TextInput {...num('deadband')} />
         </Field>
-        <Field label="Expected period" unit="s" error={fe.expectedPeriod_s} hint="stale after 3 periods">
-          <TextInput value={f.expectedPeriod_s} onChange={set('expectedPeriod_s')} inputMode="decimal" className="num" />
+        <Field label="Expected period" unit="s" error={fe('expectedPeriod_s')} hint="stale after 3 periods">
+          <TextInput {...num('expectedPeriod_s')} />
         </Field>
-        <Field label="Range low" error={fe.rangeLow}>
-          <TextInput value={f.rangeLow} onChange={set('rangeLow')} inputMode="decimal" className="num" />
+        <Field label="Range low" error={fe('rangeLow')}>
+          <TextInput {...num('rangeLow')} />
         </Field>
-        <Field label="Range high" error={fe.rangeHigh}>
-          <TextInput value={f.rangeHigh} onChange={set('rangeHigh')} inputMode="decimal" className="num" />
+        <Field label="Range high" error={fe('rangeHigh')}>
+          <TextInput {...num('rangeHigh')} />
         </Field>
-        <Field label="Process signal" error={fe.signal}>
-          <Select value={f.signal} onChange={(e) => setF((o) => ({ ...o, signal: e.target.value, target: '' }))}>
+        <Field label="Process signal" error={fe('signal')}>
+          <Select {...register('signal', { onChange: () => form.setValue('target', '') })}>
             <option value="">none</option>
             {SIGNAL_KINDS.map((k) => (
               <option key={k}>{k}</option>
             ))}
           </Select>
         </Field>
-        <Field label="Of" error={fe.target ?? fe.targetCode ?? fe.targetType}>
-          <Select value={f.target} onChange={set('target')} disabled={!f.signal} aria-label="Signal target">
+        <Field label="Of" error={fe('target')}>
+          <Select {...register('target')} disabled={!signal} aria-label="Signal target">
             <option value="">—</option>
             {targets.map((t) => (
               <option key={t.code} value={t.code}>
@@ -164,7 +163,7 @@ export function TagForm({ plantId, sources, draft, onDone }: { plantId: number; 
           ) : null}
         </div>
         <div className="col-span-full">
-          <ErrorNote error={otherError} />
+          <FormProblem error={create.error ?? map.error} root={formState.errors.root?.server?.message} />
         </div>
       </form>
     </Panel>

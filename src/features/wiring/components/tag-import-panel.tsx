@@ -1,6 +1,7 @@
 import { useState } from 'react';
 import { TAG_CSV_COLUMNS, TAG_CSV_REQUIRED, type TagImportOut } from '../../../../shared/contracts/wiring.ts';
-import { Button, ErrorNote, fieldErrors, Panel } from '../../../components/ui/controls.tsx';
+import { Button, ErrorNote, Panel } from '../../../components/ui/controls.tsx';
+import { serverFieldErrors } from '../../../lib/form.ts';
 import { prettyUnit } from '../../../lib/format.ts';
 import { useTagImport } from '../api/tag-import.ts';
 
@@ -27,7 +28,7 @@ export function TagImportPanel({ plantId }: { plantId: number }) {
   const [preview, setPreview] = useState<TagImportOut | null>(null);
   const [stored, setStored] = useState<TagImportOut | null>(null);
   const check = (text: string) => imp.mutate({ csv: text, dryRun: true }, { onSuccess: (o) => setPreview(o) });
-  const errors = byLine({ ...(preview?.errors ?? {}), ...fieldErrors(imp.error) });
+  const errors = byLine({ ...(preview?.errors ?? {}), ...serverFieldErrors(imp.error) });
   const general = errors.get(0);
   return (
     <Panel title="Import a tag list (CSV)">
@@ -73,7 +74,7 @@ export function TagImportPanel({ plantId }: { plantId: number }) {
         ) : null}
       </div>
       {general ? <p className="text-alarm-1 mt-1">{general.join('; ')}</p> : null}
-      {imp.error && !Object.keys(fieldErrors(imp.error)).length ? <ErrorNote error={imp.error} /> : null}
+      {imp.error && !Object.keys(serverFieldErrors(imp.error)).length ? <ErrorNote error={imp.error} /> : null}
       {preview && (preview.rows.length || errors.size) ? (
         <div className="max-h-[300px] overflow-y-auto mt-2 border border-edge">
           <table className="w-full text-[12px]" aria-label="Import preview">

@@ -1,0 +1,159 @@
+/**
+ * The pieces `npm start` and `npm run dev` share: one stop list run in reverse on Ctrl-C, the
+ * embedded broker, the API with the demo plant seeded, the simulator, ingest and the banner.
+ * start.ts runs the API in its own process; dev.ts runs the same API under `tsx watch`
+ * (scripts/api.ts) so it restarts when its sources change.
+ */
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { INGEST_NODE_ARGS } from '../ingest/config.ts';
+import { BROKER_NODE_ARGS, BROKER_READY } from '../server/broker/process.ts';
+import type { Config } from '../server/config.ts';
+import { labResults } from '../server/db/schema/index.ts';
+import { demoCredentials, startServer, type RunningServer } from '../server/main.ts';
+import { labRow } from '../server/services/lab.service.ts';
+import { services } from '../server/app-context.ts';
+import { DEMO_SOURCE_NAMES, kestrelBendConfig } from '../simulators/plant/kestrel-bend.config.ts';
+import { labResultInput } from '../shared/contracts/lab.ts';
+import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
+import { spawnTs, waitForLine, type Child } from './children.ts';
+
+export const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
+
+/** The line scripts/api.ts prints once the API listens; dev.ts waits for it after every reload. */
+export const API_READY = /^API listening at (http:\/\/\S+)/;
+
+export interface Launcher {
+  say(m: string): void;
+  /** True once a stop began: a child exiting then is expected. */
+  readonly stopping: boolean;
+  /** Registers a stop step; steps run in reverse order of registration. */
+  onStop(step: () => Promise<void> | void): void;
+  stop(why: string, code?: number): Promise<void>;
+  /** Spawns a TypeScript child whose unexpected exit stops everything. */
+  child(name: string, entry: string, args: string[], env?: Record<string, string>, nodeArgs?: readonly string[]): Child;
+}
+
+/**
+ * Runs `main` with a launcher whose stop list runs on SIGINT/SIGTERM (a terminal's Ctrl-C reaches
+ * the whole process group; the launcher still stops each child and then PostgreSQL itself).
+ */
+export function runLauncher(tag: string, main: (l: Launcher) => Promise<void>): void {
+  const say = (m: string) => console.log(`[${tag}] ${m}`);
+  const steps: Array<() => Promise<void> | void> = [];
+  let stopping = false;
+  const l: Launcher = {
+    say,
+    get stopping() {
+      return stopping;
+    },
+    onStop: (step) => void steps.push(step),
+    async stop(why, code = 0) {
+      if (stopping) return;
+      stopping = true;
+      say(`${why}: stopping…`);
+      for (const s of steps.reverse()) {
+        try {
+          await s();
+        } catch (err) {
+          console.error(`[${tag}] while stopping: ${(err as Error).message}`);
+        }
+      }
+      say('stopped; PostgreSQL is down and no process is left behind');
+      process.exit(code);
+    },
+    child(name, entry, args, env = {}, nodeArgs = []) {
+      const c = spawnTs(
+        root,
+        name,
+        entry,
+        args,
+        env,
+        (code) => {
+          if (!stopping) void l.stop(`${name} exited (code ${code})`, 1);
+        },
+        nodeArgs,
+      );
+      steps.push(() => c.stop());
+      return c;
+    },
+  };
+  process.on('SIGINT', () => void l.stop('SIGINT'));
+  process.on('SIGTERM', () => void l.stop('SIGTERM'));
+  main(l).catch(async (err: unknown) => {
+    console.error(`[${tag}] cannot start: ${(err as Error).message}`);
+    await l.stop('start-up failed', 1);
+  });
+}
+
+/** The embedded MQTT broker in its own process, unless MQTT_URL names an external one; resolves with the broker URL. */
+export async function startBroker(l: Launcher, config: Config): Promise<string> {
+  if (config.mqttUrl) return config.mqttUrl;
+  const broker = l.child('broker', 'server/broker/main.ts', ['127.0.0.1', String(config.mqttPort)], {}, BROKER_NODE_ARGS);
+  return (await waitForLine(broker.proc, broker.name, BROKER_READY))[1]!;
+}
+
+function opcuaUrl(config: Config): string {
+  return `opc.tcp://127.0.0.1:${config.simOpcuaPort}/flocstream-sim`;
+}
+
+/**
+ * The API (startServer: private PostgreSQL unless DATABASE_URL is set, migrations, users, balance
+ * engine, HTTP) and, in demo mode, the demo plant seeded with the simulator's endpoints.
+ */
+export async function startApi(config: Config, mqttUrl: string, say: (m: string) => void): Promise<RunningServer> {
+  const server = await startServer(config, { say });
+  if (!config.demo) return server;
+  try {
+    // The demo plant's configuration document goes through the service behind POST
+    // /api/v1/plants; an existing plant with its code is left as it is, only its two demo
+    // sources follow this run's ports.
+    const ep = { mqttUrl, opcuaUrl: opcuaUrl(config) };
+    const { plantConfig } = services(server.ctx);
+    const seeded = await plantConfig.ensure(null, kestrelBendConfig(ep));
+    if (!seeded.created) await plantConfig.setSourceUrls(null, seeded.plantId, { [DEMO_SOURCE_NAMES.mqtt]: ep.mqttUrl, [DEMO_SOURCE_NAMES.opcua]: ep.opcuaUrl });
+    say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
+    if (seeded.created) {
+      // The settleability test is a lab entry, not a tag: the demo starts with one diluted
+      // test (170 mL/L at 1:3, MLSS 3.4 g/L → DSVI 150 mL/g, the demo scenario's sludge), as an
+      // operator would have entered it this morning, so the RAS limit has an SVI to work from.
+      const entry = labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 170, dilutionFactor: 3, mlss_gL: 3.4, location: 'ab1', sampledAt: new Date(Date.now() - 3 * 3600_000).toISOString(), note: 'demo entry' });
+      await server.ctx.db.db.insert(labResults).values(labRow(seeded.plantId, null, entry));
+    }
+    return server;
+  } catch (err) {
+    await server.close();
+    throw err;
+  }
+}
+
+/** In demo mode, the simulator of Kestrel Bend publishing to `mqttUrl` and serving OPC UA. */
+export function startSimulator(l: Launcher, config: Config, mqttUrl: string): void {
+  if (!config.demo) return;
+  // Two simulated hours of history replayed fast (the demo storm starts half an hour in),
+  // then real time: the board shows a storm within minutes and no timestamp is in the future.
+  const args = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir, '--catch-up-h', '2'];
+  if (config.simSpeed) args.push('--speed', String(config.simSpeed));
+  l.child('simulator', 'simulators/cli.ts', args);
+}
+
+/** The ingest process, writing to `databaseUrl`. */
+export function startIngest(l: Launcher, config: Config, databaseUrl: string): void {
+  l.child('ingest', 'ingest/main.ts', [], { DATABASE_URL: databaseUrl, FLOCSTREAM_DATA_DIR: config.dataDir }, INGEST_NODE_ARGS);
+}
+
+/** The first admin's password, shown once when it was just created. */
+export function sayNewAdmin(say: (m: string) => void, server: RunningServer): void {
+  for (const c of server.credentials.filter((c) => !c.email.startsWith('demo-'))) {
+    say(`first admin: ${c.email}  password: ${c.password}  (shown once)`);
+  }
+}
+
+/** The demo users and the advisory notice; its last line is what a person (and a test) waits for. */
+export function sayReady(l: Launcher, config: Config): void {
+  if (config.demo) {
+    l.say('demo users (random passwords, kept in .data/demo-credentials.json):');
+    for (const c of demoCredentials(config.dataDir)) l.say(`  ${c.role.padEnd(10)} ${c.email}  ${c.password}`);
+  }
+  l.say('advisory only: Flocstream never writes to the control system. Press Ctrl-C to stop.');
+}
