@@ -83,7 +83,7 @@ export default function BoardPage() {
                 </SectionBoundary>
               </div>
               <SectionBoundary name="Basis">
-                <BasisPanel settle={data.settleability} storm={data.storm} />
+                <BasisPanel settle={data.settleability} storm={data.storm} settling={data.settling} />
               </SectionBoundary>
             </div>
             <div className="grid grid-cols-1 min-[1700px]:grid-cols-2 gap-2 items-start">
@@ -95,6 +95,7 @@ export default function BoardPage() {
                     basins={perTrain.get(t.code)?.basins ?? []}
                     clarifiers={perTrain.get(t.code)?.clarifiers ?? []}
                     peakFlowSource={data.storm.source === 'plant' ? 'plant peak' : data.storm.source === 'setting' ? 'setting' : 'not set'}
+                    settling={data.settling}
                   />
                 </SectionBoundary>
               ))}

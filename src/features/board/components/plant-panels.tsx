@@ -5,6 +5,7 @@ import { formatUtc } from '../../../lib/format.ts';
 import { Caution } from './caution.tsx';
 import { MassSplitBar } from './inventory-picture.tsx';
 import { FigureRow, Row } from './live-figure.tsx';
+import { SettlingComparison } from './settling-source.tsx';
 
 function Box({ title, children, className = '' }: { title: string; children: ReactNode; className?: string }) {
   return (
@@ -65,8 +66,8 @@ export const SrtPanel = memo(function SrtPanel({ srt }: { srt: BalanceData['srt'
   );
 });
 
-/** The settleability the margins and the storm projection rest on, and where the peak flow comes from. */
-export const BasisPanel = memo(function BasisPanel({ settle, storm }: { settle: BalanceData['settleability']; storm: BalanceData['storm'] }) {
+/** The settleability the margins and the storm projection rest on, the settling parameters (plant fit beside the correlation), and where the peak flow comes from. */
+export const BasisPanel = memo(function BasisPanel({ settle, storm, settling }: { settle: BalanceData['settleability']; storm: BalanceData['storm']; settling: BalanceData['settling'] }) {
   return (
     <Box title="Basis">
       <FigureRow label={`Settleability (${settle.kind ?? 'no test'})`} f={settle.svi_mLg} />
@@ -77,6 +78,7 @@ export const BasisPanel = memo(function BasisPanel({ settle, storm }: { settle: 
       <Row label="Peak flow from">
         <span className="text-[12px] text-ink">{storm.source === 'plant' ? 'plant layout' : storm.source === 'setting' ? 'setting (× mean influent)' : 'not set'}</span>
       </Row>
+      <SettlingComparison settling={settling} />
     </Box>
   );
 });

@@ -7,7 +7,9 @@ import { qualityNotes } from '../figures.ts';
 import { Caution } from './caution.tsx';
 import { ClarifierSection, MassSplitBar } from './inventory-picture.tsx';
 import { FigureRow, Row } from './live-figure.tsx';
+import { ClarifierStatePoint } from './clarifier-state-point.tsx';
 import { StormChecks } from './storm-checks.tsx';
+import { StormTimeline } from './storm-timeline.tsx';
 
 type Train = BalanceData['trains'][number];
 type Basin = BalanceData['basins'][number];
@@ -27,14 +29,16 @@ function Group({ title, children, testid }: { title: string; children: ReactNode
  * flows, the blankets, the RAS margins and the storm projection at the plant's peak flow. Memoised:
  * with structural sharing an unchanged train keeps its props and skips the re-render.
  */
-type TrainPanelProps = { train: Train; name: string; basins: Basin[]; clarifiers: Clarifier[]; peakFlowSource: string };
+type TrainPanelProps = { train: Train; name: string; basins: Basin[]; clarifiers: Clarifier[]; peakFlowSource: string; settling: BalanceData['settling'] };
 
 /** Basins and clarifiers arrive as freshly filtered arrays; their elements keep identity under structural sharing, so compare element-wise. */
 const sameItems = <T,>(a: T[], b: T[]) => a.length === b.length && a.every((x, i) => x === b[i]);
 const samePanel = (p: TrainPanelProps, q: TrainPanelProps) =>
-  p.train === q.train && p.name === q.name && p.peakFlowSource === q.peakFlowSource && sameItems(p.basins, q.basins) && sameItems(p.clarifiers, q.clarifiers);
+  p.train === q.train && p.name === q.name && p.peakFlowSource === q.peakFlowSource && p.settling === q.settling && sameItems(p.basins, q.basins) && sameItems(p.clarifiers, q.clarifiers);
 
-export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarifiers, peakFlowSource }: TrainPanelProps) {
+export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarifiers, peakFlowSource, settling }: TrainPanelProps) {
+  const inService = clarifiers.filter((c) => c.sideWaterDepth_m > 0);
+  const depth_m = inService.length ? Math.min(...inService.map((c) => c.sideWaterDepth_m)) : null;
   const basinMass = withUnit(sumFigures(basins.map((b) => b.mass_kg), 'basins'), 'kg');
   const clarMass = withUnit(sumFigures(clarifiers.map((c) => c.blanketMass_kg), 'clarifiers'), 'kg');
   const stored = train.storm.checks.find((c) => c.rule === 'max-stored-fraction');
@@ -106,7 +110,10 @@ export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarif
             <FigureRow label="Influent flow at pump limit" f={train.ras.pumpLimitFlow_m3h} digits={4} />
             <Caution />
           </Group>
-          <Group title="Storm at peak flow" testid="storm">
+          <Group title="Design storm in time" testid="storm-time">
+            <StormTimeline timeline={train.storm.timeline} depth_m={depth_m} rasFlow_m3h={train.rasFlow_m3h.value} />
+          </Group>
+          <Group title="Storm at peak flow — equilibrium" testid="storm">
             <FigureRow label={`Storm flow (${peakFlowSource})`} f={train.storm.stormFlow_m3h} digits={4} />
             <FigureRow label="MLSS at storm equilibrium" f={train.storm.equilibriumMlss_gL} />
             <FigureRow label="Sludge moved to clarifiers" f={train.storm.sludgeToClarifiers_kg} digits={4} />
@@ -116,6 +123,15 @@ export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarif
               <StormChecks checks={train.storm.checks} />
             </div>
             <Caution />
+          </Group>
+        </div>
+        <div className="col-span-2">
+          <Group title="State point — solids flux per clarifier" testid="state-points">
+            <div className="flex flex-wrap gap-x-4 gap-y-2">
+              {clarifiers.map((c) => (
+                <ClarifierStatePoint key={c.code} clarifier={c} settling={settling} />
+              ))}
+            </div>
           </Group>
         </div>
       </div>

@@ -8,14 +8,7 @@ import { useStatePointCalc } from '../api/state-point.ts';
 import { KESTREL_BEND } from '../defaults.ts';
 import { useCalcForm, type FormValues } from '../hooks/use-calc-form.ts';
 import { Caution, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
-import { StatePointDiagram } from './state-point-diagram.tsx';
-
-const CORRELATION_LABEL: Record<SettlingCorrelationId, string> = {
-  'haertel-poepel-1992': 'Härtel & Pöpel (1992), SVI',
-  'daigger-roper-1985': 'Daigger & Roper (1985), SVI',
-  'daigger-1995': 'Daigger (1995), SVI',
-  'wahlberg-keinath-1988': 'Wahlberg & Keinath (1988), SSVI3.5',
-};
+import { CORRELATION_LABEL, StatePointDiagram } from './state-point-diagram.tsx';
 
 const GIVEN = 'given';
 

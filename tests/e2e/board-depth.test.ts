@@ -1,0 +1,111 @@
+import type { Browser } from 'playwright-core';
+import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
+import type { BalanceData } from '../../shared/contracts/balance.ts';
+import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
+import { startTestServer } from '../helpers/server.ts';
+import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
+import { seedKestrelBend, type Env } from './kestrel-bend-fixture.ts';
+
+/**
+ * Ten SVI tests over the last 20 days (undiluted, SVI ≈ 105–120 mL/g at MLSS 2.2–4.0 g/L): more
+ * than the default 10-test minimum of setting settling.fit_min_points is not needed, exactly 10
+ * makes the state points use the plant's own Vesilind fit.
+ */
+const TESTS = Array.from({ length: 10 }, (_, i) => {
+  const mlss_gL = 2.2 + 0.2 * i;
+  const svi = 105 + 1.5 * i;
+  return { mlss_gL, sv30: Math.round(svi * mlss_gL), daysAgo: 20 - 2 * i };
+});
+
+describe('board depth in Debian Chromium: state points, the storm in time, the settling fit', () => {
+  let env: Env;
+  let b: { browser: Browser; close(): Promise<void> };
+  let engine: BalanceEngine;
+  let plantId: number;
+  beforeAll(async () => {
+    env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: 'chief@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'e2e-admin-password-1' }, { jobs: false });
+    plantId = await seedKestrelBend(env);
+    for (const t of TESTS) {
+      await env.server.ctx.db.pool.query(
+        `INSERT INTO lab_results (plant_id, location, kind, value, unit, sampled_at, details) VALUES ($1, 'ab1', 'SVI', $2, 'mL/g', now() - make_interval(days => $3), $4)`,
+        [plantId, t.sv30 / t.mlss_gL, t.daysAgo, JSON.stringify({ settledVolume_mLL: t.sv30, mlss_gL: t.mlss_gL })],
+      );
+    }
+    engine = await startBalanceEngine(env.server.ctx, { schedule: false, mailCatcher: false });
+    b = await launchBrowser();
+  });
+  afterAll(async () => {
+    await b?.close();
+    await engine?.stop();
+    await env?.close();
+  });
+
+  it('draws a live state point per clarifier, the design storm in time and the fit beside the correlation', async () => {
+    const op = env.server.credentials.find((c) => c.role === 'operator');
+    expect(op, 'demo operator').toBeDefined();
+    const page = await b.browser.newPage({ viewport: { width: 1920, height: 1080 } });
+    const errors = watchConsole(page);
+    onTestFailed(async () => {
+      await shot(page, 'board-depth-failed');
+      console.error('console errors at failure:', errors);
+    });
+    await signIn(page, `${env.server.url}/`, op!, /\/board$/);
+    await page.getByTestId('stream-state').filter({ hasText: 'live' }).waitFor();
+    await engine.runOnce(plantId);
+    const t2 = page.getByTestId('train-t2');
+    await t2.waitFor({ timeout: 10_000 });
+    const row = await env.server.ctx.db.pool.query<{ data: BalanceData }>('SELECT data FROM balances WHERE plant_id = $1 ORDER BY ts DESC LIMIT 1', [plantId]);
+    const data = row.rows[0]!.data;
+
+    // Settling: ten tests fit, so the state points use the fit, and the board says so with n and dates.
+    expect(data.settling.fit.n).toBe(10);
+    expect(data.settling.used.source).toBe('fit');
+    const cmp = page.getByTestId('settling-comparison');
+    const fitRow = await cmp.getByTestId('settling-fit').innerText();
+    expect(fitRow).toContain('▸');
+    expect(fitRow).toContain('n = 10');
+    expect(fitRow).toContain(data.settling.fit.from!.slice(0, 10));
+    expect(fitRow).toContain(data.settling.fit.to!.slice(0, 10));
+    expect(fitRow).toMatch(/±/);
+    expect(await cmp.getByTestId('settling-correlation').innerText()).toContain('Härtel & Pöpel (1992)');
+    expect(await cmp.getByTestId('settling-used').innerText()).toContain('state points use the plant fit');
+
+    // One state point diagram per clarifier, live, with its source line.
+    for (const c of data.clarifiers) {
+      const sp = page.getByTestId(`state-point-${c.code}`);
+      await sp.getByTestId('state-point-diagram').waitFor();
+      expect(await sp.getByTestId('total-flux').count()).toBe(1);
+      expect(await sp.getByTestId('underflow-line').count()).toBe(1);
+      expect(await sp.getByTestId('state-point-marker').count()).toBe(1);
+      // the state point sits at the clarifier's MLSS (title names it to 2 decimals)
+      expect(await sp.locator('title').first().textContent()).toContain(`X = ${c.statePoint.feed.mlss_gL.value!.toFixed(2)} g/L`);
+      const src = sp.getByTestId('settling-source');
+      expect(await src.getAttribute('data-source')).toBe('fit');
+      expect(await src.innerText()).toContain('n = 10');
+    }
+
+    // The storm in time, per train: the text follows the balance's first failure.
+    for (const t of data.trains) {
+      const tl = t.storm.timeline;
+      expect(tl.points.length).toBeGreaterThan(1);
+      const text = await page.getByTestId(`train-${t.code}`).getByTestId('storm-first-failure').innerText();
+      if (tl.firstFailure_h === null) expect(text).toBe('No check fails within the design storm');
+      else expect(text).toMatch(/^First check fails after \d/);
+      expect(await page.getByTestId(`train-${t.code}`).getByTestId('storm-blanket-line').count()).toBe(1);
+      // The sparkline recovers the storm's flow from the required RAS concentration by the
+      // clarifier mass balance X_R = X·(Q + Q_R)/Q_R [common practice]: at the peak of the default
+      // hydrograph (a step to the peak flow) it must equal the storm flow of the equilibrium projection.
+      const qr = t.rasFlow_m3h.value!;
+      const peak = Math.max(...tl.points.map((p) => qr * (p.rasConcRequired_gL! / p.mlss_gL - 1)));
+      expect(peak / t.storm.stormFlow_m3h.value!).toBeCloseTo(1, 2);
+    }
+    expect(await page.getByTestId('storm-hydrograph').count()).toBe(data.trains.length);
+
+    await shot(page, 'board-depth-1920');
+    await page.setViewportSize({ width: 1366, height: 768 });
+    await shot(page, 'board-depth-1366');
+    expect(await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth)).toBeLessThanOrEqual(0);
+    // the one 401 is the session probe before sign-in
+    expect(errors.filter((e) => !e.includes('status of 401'))).toEqual([]);
+  });
+});
