@@ -7,14 +7,15 @@ import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts
 import { seedKestrelBend, type Env } from './kestrel-bend-fixture.ts';
 
 /**
- * Ten SVI tests over the last 20 days (undiluted, SVI ≈ 105–120 mL/g at MLSS 2.2–4.0 g/L): more
- * than the default 10-test minimum of setting settling.fit_min_points is not needed, exactly 10
- * makes the state points use the plant's own Vesilind fit.
+ * Ten SVI tests over the last 20 days, generated from a Vesilind sludge v0 = 4 m/h, k = 0.8 L/g
+ * as settling-fit.ts reads a test (v = H·(1 − SV30/1000)/0.5 h, H = 0.35 m for the 1 L mark):
+ * SV30 = 1000·(1 − v·0.5/0.35) at MLSS 2.5–4.3 g/L, i.e. SVI ≈ 90–190 mL/g. Ten tests reach the
+ * default minimum of setting settling.fit_min_points, so the state points use the plant's fit.
  */
 const TESTS = Array.from({ length: 10 }, (_, i) => {
-  const mlss_gL = 2.2 + 0.2 * i;
-  const svi = 105 + 1.5 * i;
-  return { mlss_gL, sv30: Math.round(svi * mlss_gL), daysAgo: 20 - 2 * i };
+  const mlss_gL = 2.5 + 0.2 * i;
+  const v_mh = 4 * Math.exp(-0.8 * mlss_gL);
+  return { mlss_gL, sv30: Math.round(1000 * (1 - (v_mh * 0.5) / 0.35)), daysAgo: 20 - 2 * i };
 });
 
 describe('board depth in Debian Chromium: state points, the storm in time, the settling fit', () => {
@@ -60,6 +61,9 @@ describe('board depth in Debian Chromium: state points, the storm in time, the s
     // Settling: ten tests fit, so the state points use the fit, and the board says so with n and dates.
     expect(data.settling.fit.n).toBe(10);
     expect(data.settling.used.source).toBe('fit');
+    // the fit recovers the generating sludge (SV30 rounded to 1 mL/L moves v by < 0.3 %)
+    expect(data.settling.fit.k_Lg!).toBeCloseTo(0.8, 2);
+    expect(data.settling.fit.v0_mh!).toBeCloseTo(4, 1);
     const cmp = page.getByTestId('settling-comparison');
     const fitRow = await cmp.getByTestId('settling-fit').innerText();
     expect(fitRow).toContain('▸');
@@ -79,6 +83,9 @@ describe('board depth in Debian Chromium: state points, the storm in time, the s
       expect(await sp.getByTestId('state-point-marker').count()).toBe(1);
       // the state point sits at the clarifier's MLSS (title names it to 2 decimals)
       expect(await sp.locator('title').first().textContent()).toContain(`X = ${c.statePoint.feed.mlss_gL.value!.toFixed(2)} g/L`);
+      // v0 e^(−2) = 0.54 m/h exceeds the underflow rate (≈ 0.38 m/h): the total flux has a minimum, G_L
+      expect(c.statePoint.limitingFlux_kgm2h.value).not.toBeNull();
+      expect(await sp.getByTestId('state-point-diagram').textContent()).toContain(`G_L = ${c.statePoint.limitingFlux_kgm2h.value!.toFixed(2)}`);
       const src = sp.getByTestId('settling-source');
       expect(await src.getAttribute('data-source')).toBe('fit');
       expect(await src.innerText()).toContain('n = 10');

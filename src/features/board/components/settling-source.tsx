@@ -30,44 +30,48 @@ export function SettlingSourceLine({ used, fit }: { used: Used; fit: Fit }) {
 export function SettlingComparison({ settling }: { settling: BalanceData['settling'] }) {
   const { fit, correlation, used } = settling;
   const factor = fit.lnV0StdErr === null ? null : Math.exp(fit.lnV0StdErr);
+  const row = (used_: boolean) => (used_ ? 'text-ink font-semibold' : 'text-ink-2');
   return (
-    <table className="w-full text-[12px] mt-0.5" data-testid="settling-comparison" aria-label="Settling parameters">
+    <table className="w-full text-[12px] mt-0.5 border-t border-edge" data-testid="settling-comparison" aria-label="Settling parameters">
       <thead>
         <tr className="text-[11px] text-ink-3 text-left">
           <th className="font-normal">Vesilind</th>
           <th className="font-normal text-right">v0 [m/h]</th>
           <th className="font-normal text-right">k [L/g]</th>
-          <th className="font-normal pl-2">basis</th>
         </tr>
       </thead>
       <tbody className="num">
-        <tr data-testid="settling-fit" className={used.source === 'fit' ? 'text-ink font-semibold' : 'text-ink-2'}>
-          <td className="font-sans">{used.source === 'fit' ? '▸ ' : ''}Plant fit</td>
-          <td className="text-right">
+        <tr data-testid="settling-fit" className={row(used.source === 'fit')}>
+          <td className="font-sans">
+            {used.source === 'fit' ? '▸ ' : ''}Plant fit
+            <div className="text-[11px] text-ink-3 font-normal" title={fit.reasons.join('; ') || undefined}>
+              {fitRange(fit)}
+              {fit.r2 !== null ? `, r² ${formatValue(fit.r2, 2)}` : ''}
+              {fit.n < fit.minPoints ? ` (needs ${fit.minPoints})` : ''}
+            </div>
+          </td>
+          <td className="text-right align-top whitespace-nowrap">
             {formatValue(fit.v0_mh, 3)}
-            {factor !== null ? <span className="text-ink-3 font-normal"> ×/÷{formatValue(factor, 3)}</span> : null}
+            {factor !== null ? <div className="text-[11px] text-ink-3 font-normal">×/÷ {formatValue(factor, 3)}</div> : null}
           </td>
-          <td className="text-right">
+          <td className="text-right align-top whitespace-nowrap">
             {formatValue(fit.k_Lg, 3)}
-            {fit.kStdErr_Lg !== null ? <span className="text-ink-3 font-normal"> ±{formatValue(fit.kStdErr_Lg, 2)}</span> : null}
-          </td>
-          <td className="pl-2 font-sans text-[11px] text-ink-3 font-normal" title={fit.reasons.join('; ') || undefined}>
-            {fitRange(fit)}
-            {fit.r2 !== null ? `, r² ${formatValue(fit.r2, 2)}` : ''}
-            {fit.n < fit.minPoints ? ` (needs ${fit.minPoints})` : ''}
+            {fit.kStdErr_Lg !== null ? <div className="text-[11px] text-ink-3 font-normal">± {formatValue(fit.kStdErr_Lg, 2)}</div> : null}
           </td>
         </tr>
-        <tr data-testid="settling-correlation" className={used.source === 'correlation' ? 'text-ink font-semibold' : 'text-ink-2'}>
-          <td className="font-sans">{used.source === 'correlation' ? '▸ ' : ''}Correlation</td>
-          <td className="text-right">{formatValue(correlation.v0_mh, 3)}</td>
-          <td className="text-right">{formatValue(correlation.k_Lg, 3)}</td>
-          <td className="pl-2 font-sans text-[11px] text-ink-3 font-normal">{correlationLabel(correlation.correlation)}</td>
+        <tr data-testid="settling-correlation" className={row(used.source === 'correlation')}>
+          <td className="font-sans">
+            {used.source === 'correlation' ? '▸ ' : ''}Correlation
+            <div className="text-[11px] text-ink-3 font-normal">{correlationLabel(correlation.correlation)}</div>
+          </td>
+          <td className="text-right align-top">{formatValue(correlation.v0_mh, 3)}</td>
+          <td className="text-right align-top">{formatValue(correlation.k_Lg, 3)}</td>
         </tr>
       </tbody>
       <tfoot>
         <tr>
-          <td colSpan={4} className="text-[11px] text-ink-3 pt-0.5" data-testid="settling-used">
-            ▸ state points use the {used.source === 'fit' ? 'plant fit' : 'correlation'}. ± one standard error (v0: ×/÷ e^SE of ln v0).
+          <td colSpan={3} className="text-[11px] text-ink-3 pt-0.5" data-testid="settling-used">
+            ▸ state points use the {used.source === 'fit' ? 'plant fit' : 'correlation'}; ± one standard error (v0: ×/÷ e^SE of ln v0).
           </td>
         </tr>
       </tfoot>

@@ -75,7 +75,7 @@ function Sparkline({ clip, pts, depth_m, rasFlow_m3h, failAt }: { clip: string; 
         {flowPts.length > 1 ? (
           <path
             d={`M${x(flowPts[0]![0])},${yf(0)} ${flowPts.map(([t, f]) => `L${x(t)},${yf(f)}`).join(' ')} L${x(flowPts[flowPts.length - 1]![0])},${yf(0)} Z`}
-            fill="#e3e5e7"
+            fill="#d5d8db"
             data-testid="storm-hydrograph"
           />
         ) : null}
