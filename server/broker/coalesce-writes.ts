@@ -1,6 +1,7 @@
 /**
- * Gathers what the embedded broker writes to one client connection during a turn of the event
- * loop and hands it to the socket as one buffer.
+ * A duplex stream over one client connection of the embedded broker that gathers what the broker
+ * writes during a turn of the event loop and hands it to the socket as one buffer. aedes gets
+ * this stream instead of the socket (`broker.handle(stream)` takes any duplex stream).
  *
  * Why: aedes writes each packet through mqtt-packet's writeToStream, which calls
  * `stream.write()` four or five times per PUBLISH (fixed header, length, topic length, topic,
@@ -10,74 +11,107 @@
  * process in tests/bench/ingest.bench.ts. Gathered, the same bytes leave in a few hundred
  * writes per 150 000 messages.
  *
- * What stays the same: the bytes and their order (every write, including one with a callback,
- * goes behind what is gathered); `write()`'s answer and the 'drain' event (false once the
- * gathered bytes pass `highWaterMark`, then 'drain' after they are handed on — aedes waits for
- * 'drain' before it delivers more to a slow client); `end()` sends what is gathered first.
- * A connection that is destroyed drops what is gathered, as a destroyed socket drops its
- * buffered writes. Latency: at most one turn of the event loop.
+ * What stays the same: the bytes and their order; backpressure (a gathered turn that reaches the
+ * high-water mark holds its write callback until the socket has taken it, so Node's Writable
+ * queues behind it, answers false and emits 'drain' later, and aedes waits for 'drain' before
+ * it delivers more to a slow client); reads are the socket's chunks as they come, paused while
+ * the reader does not read; `end()` sends what is gathered first; destroying either side
+ * destroys the other and drops what is gathered, as a destroyed socket drops its buffered
+ * writes. Latency: at most one turn of the event loop.
  *
- * How: the embedded broker creates the socket and wraps its public `write()` and `end()` before
- * handing it to aedes (`broker.handle(stream)` takes any duplex stream); nothing of aedes,
- * mqtt-packet or Node's stream internals is touched. Measured with `npm run bench:ingest --
- * --stock` (2026-12-02, host under heavy load, medians of three rounds): single-value QoS 1
- * 10 278/s kept against 7 199/s with aedes writing to the socket itself (+43 %); broker CPU
- * 12 against 17 µs per message, ingest 12 against 15 (fewer, larger TCP segments to read).
+ * Built only on public interfaces (stream.Duplex, net.Socket's write/end/pause/resume/destroy
+ * and events); nothing of aedes, mqtt-packet or Node's stream internals is touched. Its measured
+ * gain against aedes writing to the socket itself is printed by `npm run bench:ingest -- --stock`
+ * (figures in DEVELOPERS.md, Ingest write path).
  */
+import { Duplex } from 'node:stream';
 import type net from 'node:net';
 
-type WriteCb = (err?: Error | null) => void;
+type Done = (err?: Error | null) => void;
 
-export function coalesceWrites(conn: net.Socket, highWaterMark = conn.writableHighWaterMark): void {
-  const write = conn.write.bind(conn) as (chunk: Buffer, cb?: WriteCb) => boolean;
-  const end = conn.end.bind(conn) as (...args: unknown[]) => net.Socket;
-  let chunks: Buffer[] = [];
-  let bytes = 0;
-  let scheduled = false;
-  /** write() answered false for gathered bytes; 'drain' is owed once they are handed on. */
-  let owesDrain = false;
+export class GatheredWrites extends Duplex {
+  private chunks: Buffer[] = [];
+  private bytes = 0;
+  private scheduled = false;
+  /** Write callbacks held until the gathered bytes reach the socket (set past the high-water mark). */
+  private held: Done[] = [];
+  private readonly gatherLimit: number;
 
-  const flush = (): void => {
-    scheduled = false;
-    if (chunks.length === 0) return;
-    const data = chunks.length === 1 ? chunks[0]! : Buffer.concat(chunks, bytes);
-    chunks = [];
-    bytes = 0;
-    if (conn.destroyed || conn.writableEnded) return;
-    const ok = write(data);
-    if (owesDrain) {
-      owesDrain = false;
-      // When the socket took it all, nothing else will emit 'drain'; otherwise the socket will.
-      if (ok) conn.emit('drain');
-    }
-  };
+  constructor(
+    readonly socket: net.Socket,
+    highWaterMark = socket.writableHighWaterMark,
+  ) {
+    super({ allowHalfOpen: false, writableHighWaterMark: highWaterMark, readableHighWaterMark: socket.readableHighWaterMark });
+    this.gatherLimit = highWaterMark;
+    socket.on('data', (chunk: Buffer) => {
+      if (!this.push(chunk)) socket.pause();
+    });
+    socket.on('end', () => this.push(null));
+    socket.on('error', (err) => this.destroy(err));
+    socket.on('close', () => this.destroy());
+    socket.pause();
+  }
 
-  conn.write = function coalescedWrite(chunk: unknown, encoding?: unknown, cb?: unknown): boolean {
-    if (typeof encoding === 'function') {
-      cb = encoding;
-      encoding = undefined;
-    }
-    const buf = typeof chunk === 'string' ? Buffer.from(chunk, (encoding as BufferEncoding | undefined) ?? 'utf8') : (chunk as Buffer);
-    if (cb) {
-      // A caller that wants to know when its bytes are written gets the socket's own answer.
-      flush();
-      return write(buf, cb as WriteCb);
-    }
-    chunks.push(buf);
-    bytes += buf.length;
-    if (!scheduled) {
-      scheduled = true;
-      setImmediate(flush);
-    }
-    if (bytes >= highWaterMark) {
-      owesDrain = true;
-      return false;
-    }
-    return true;
-  } as net.Socket['write'];
+  override _read(): void {
+    this.socket.resume();
+  }
 
-  conn.end = function coalescedEnd(...args: unknown[]): net.Socket {
-    flush();
-    return end(...args);
-  } as net.Socket['end'];
+  override _write(chunk: Buffer, _encoding: BufferEncoding, done: Done): void {
+    this.gather(chunk, done);
+  }
+
+  override _writev(chunks: { chunk: Buffer }[], done: Done): void {
+    for (let i = 0; i < chunks.length - 1; i++) this.gather(chunks[i]!.chunk, null);
+    this.gather(chunks[chunks.length - 1]!.chunk, done);
+  }
+
+  override _final(done: Done): void {
+    this.flush();
+    this.socket.end(() => done());
+  }
+
+  override _destroy(err: Error | null, done: Done): void {
+    this.chunks = [];
+    this.bytes = 0;
+    const held = this.held;
+    this.held = [];
+    for (const cb of held) cb(err);
+    if (!this.socket.destroyed) this.socket.destroy(err ?? undefined);
+    done(err);
+  }
+
+  private gather(chunk: Buffer, done: Done | null): void {
+    this.chunks.push(chunk);
+    this.bytes += chunk.length;
+    if (!this.scheduled) {
+      this.scheduled = true;
+      setImmediate(() => this.flush());
+    }
+    if (!done) return;
+    // Below the limit the Writable may hand us the next chunk at once; past it, the callback
+    // waits for the socket so Node's Writable queues the rest and reports backpressure.
+    if (this.bytes < this.gatherLimit) done();
+    else this.held.push(done);
+  }
+
+  private flush(): void {
+    this.scheduled = false;
+    if (this.chunks.length === 0) return;
+    const data = this.chunks.length === 1 ? this.chunks[0]! : Buffer.concat(this.chunks, this.bytes);
+    this.chunks = [];
+    this.bytes = 0;
+    const held = this.held;
+    this.held = [];
+    if (this.socket.destroyed || this.socket.writableEnded) return;
+    const release = () => {
+      for (const cb of held) cb();
+    };
+    if (this.socket.write(data) || held.length === 0) release();
+    else this.socket.once('drain', release);
+  }
+}
+
+/** The stream aedes should be handed for `socket`. */
+export function gatherWrites(socket: net.Socket, highWaterMark?: number): GatheredWrites {
+  return new GatheredWrites(socket, highWaterMark);
 }

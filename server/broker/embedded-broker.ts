@@ -16,7 +16,7 @@
  */
 import net from 'node:net';
 import { Aedes } from 'aedes';
-import { coalesceWrites } from './coalesce-writes.ts';
+import { gatherWrites } from './coalesce-writes.ts';
 import { IndexedMemoryPersistence } from './indexed-persistence.ts';
 
 export interface EmbeddedBroker {
@@ -43,8 +43,7 @@ export const KEPT_ADAPTERS: BrokerAdapters = { indexedPersistence: true, gathere
  * (tests/integration/ingest/helpers.ts) accepts its connections the same way.
  */
 export function acceptConnection(broker: Aedes, conn: net.Socket, adapters: BrokerAdapters = KEPT_ADAPTERS): void {
-  if (adapters.gatheredWrites) coalesceWrites(conn);
-  broker.handle(conn);
+  broker.handle(adapters.gatheredWrites ? gatherWrites(conn) : conn);
 }
 
 export async function startEmbeddedBroker(opts: { host?: string; port: number; adapters?: BrokerAdapters }): Promise<EmbeddedBroker> {

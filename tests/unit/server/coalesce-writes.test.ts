@@ -1,10 +1,10 @@
 import net from 'node:net';
-import { afterEach, describe, expect, it } from 'vitest';
-import { coalesceWrites } from '../../../server/broker/coalesce-writes.ts';
+import { afterEach, describe, expect, it, vi } from 'vitest';
+import { gatherWrites } from '../../../server/broker/coalesce-writes.ts';
 import { nextEvent } from '../../helpers/wait.ts';
 
-/** A connected loopback pair: `server` is the broker's side (wrapped), `client` reads. */
-async function pair(): Promise<{ server: net.Socket; client: net.Socket; received: () => Buffer; closed: Promise<void>; srv: net.Server }> {
+/** A connected loopback pair: `server` is the broker's side (the socket under the adapter), `client` the peer. */
+async function pair(): Promise<{ server: net.Socket; client: net.Socket; received: () => Buffer; ended: Promise<void>; srv: net.Server }> {
   const srv = net.createServer();
   await new Promise<void>((r) => srv.listen(0, '127.0.0.1', () => r()));
   const port = (srv.address() as net.AddressInfo).port;
@@ -12,9 +12,9 @@ async function pair(): Promise<{ server: net.Socket; client: net.Socket; receive
   const client = net.connect(port, '127.0.0.1');
   const chunks: Buffer[] = [];
   client.on('data', (d: Buffer) => chunks.push(d));
-  const closed = new Promise<void>((r) => client.once('end', () => r()));
+  const ended = new Promise<void>((r) => client.once('end', () => r()));
   const server = await accepted;
-  return { server, client, received: () => Buffer.concat(chunks), closed, srv };
+  return { server, client, received: () => Buffer.concat(chunks), ended, srv };
 }
 
 const cleanups: (() => void)[] = [];
@@ -22,63 +22,85 @@ afterEach(() => {
   for (const f of cleanups.splice(0)) f();
 });
 
-describe('coalesceWrites (embedded broker connections)', () => {
+const turn = () => new Promise((r) => setImmediate(r));
+
+describe('gatherWrites (embedded broker connections)', () => {
   it('hands one turn of writes to the socket as one write, bytes and order unchanged, end() last', async () => {
-    const { server, client, received, closed, srv } = await pair();
+    const { server, client, received, ended, srv } = await pair();
     cleanups.push(() => (client.destroy(), srv.close()));
-    let socketWrites = 0;
-    const original = server.write;
-    server.write = function (this: net.Socket, ...args: unknown[]) {
-      socketWrites++;
-      return (original as (...a: unknown[]) => boolean).apply(this, args);
-    } as typeof server.write;
-    coalesceWrites(server);
+    const socketWrite = vi.spyOn(server, 'write');
+    const stream = gatherWrites(server);
     const expected: Buffer[] = [];
     for (let i = 0; i < 1_000; i++) {
       const b = Buffer.from([i & 0xff, (i >> 8) & 0xff]);
-      server.write(b);
+      stream.write(b);
       expected.push(b);
-      server.write(`t/${i}`, 'utf8'); // as mqtt-packet writes a topic
+      stream.write(`t/${i}`, 'utf8'); // as mqtt-packet writes a topic
       expected.push(Buffer.from(`t/${i}`));
     }
-    await new Promise((r) => setImmediate(r));
-    expect(socketWrites).toBe(1);
-    // a write with a callback goes behind what was gathered, and its callback is called
+    await turn();
+    expect(socketWrite).toHaveBeenCalledTimes(1);
+    // a write with a callback is gathered too, and its callback is called
     let called = false;
-    server.write(Buffer.from('A'));
-    server.write(Buffer.from('B'), () => (called = true));
-    expected.push(Buffer.from('AB'));
-    server.write(Buffer.from('tail'));
-    expected.push(Buffer.from('tail'));
-    server.end();
-    await closed;
+    stream.write(Buffer.from('A'));
+    stream.write(Buffer.from('B'), () => (called = true));
+    stream.write(Buffer.from('tail'));
+    expected.push(Buffer.from('ABtail'));
+    stream.end();
+    await ended;
     expect(called).toBe(true);
+    expect(socketWrite).toHaveBeenCalledTimes(2);
     expect(received().equals(Buffer.concat(expected))).toBe(true);
+  });
+
+  it('forwards what the peer sends, in order, to a reader that reads in paused mode as aedes does', async () => {
+    const { server, client, srv } = await pair();
+    cleanups.push(() => (client.destroy(), server.destroy(), srv.close()));
+    const stream = gatherWrites(server);
+    const got: Buffer[] = [];
+    stream.on('readable', () => {
+      for (let b = stream.read() as Buffer | null; b; b = stream.read() as Buffer | null) got.push(b);
+    });
+    const sent = Buffer.alloc(200_000, 0);
+    for (let i = 0; i < sent.length; i++) sent[i] = (i * 31) & 0xff;
+    client.end(sent);
+    await nextEvent(stream, 'end');
+    expect(Buffer.concat(got).equals(sent)).toBe(true);
   });
 
   it('answers false past the high-water mark and emits drain once the gathered bytes are handed on', async () => {
     const { server, client, srv } = await pair();
     cleanups.push(() => (client.destroy(), server.destroy(), srv.close()));
-    coalesceWrites(server, 100);
-    expect(server.write(Buffer.alloc(60))).toBe(true);
-    const drained = new Promise<void>((r) => server.once('drain', () => r()));
-    expect(server.write(Buffer.alloc(60))).toBe(false);
-    await drained;
-    expect(server.write(Buffer.alloc(10))).toBe(true);
+    const stream = gatherWrites(server, 100);
+    expect(stream.write(Buffer.alloc(60))).toBe(true);
+    expect(stream.write(Buffer.alloc(60))).toBe(true); // gathered past the mark: its callback is held
+    expect(stream.write(Buffer.alloc(60))).toBe(false); // queued behind it: backpressure
+    await nextEvent(stream, 'drain');
+    expect(stream.write(Buffer.alloc(10))).toBe(true);
   });
 
-  it('drops what is gathered when the connection is destroyed, without an error', async () => {
-    const { server, client, srv } = await pair();
-    cleanups.push(() => (client.destroy(), srv.close()));
+  it('destroys the socket with the stream and the stream with the socket, dropping what is gathered without an error', async () => {
+    const a = await pair();
+    cleanups.push(() => (a.client.destroy(), a.srv.close()));
     const errors: Error[] = [];
-    server.on('error', (e) => errors.push(e));
-    coalesceWrites(server);
-    server.write(Buffer.from('lost'));
-    const closed = nextEvent(server, 'close');
-    server.destroy();
+    const s1 = gatherWrites(a.server);
+    s1.on('error', (e) => errors.push(e));
+    s1.write(Buffer.from('lost'));
+    const closed = nextEvent(a.server, 'close');
+    s1.destroy();
     await closed;
-    // The gathered write flushes on setImmediate, queued before this one: it has run by now.
-    await new Promise((r) => setImmediate(r));
+    await turn(); // the gathered flush, queued before this turn, has run by now
+    expect(errors).toEqual([]);
+
+    const b = await pair();
+    cleanups.push(() => (b.client.destroy(), b.srv.close()));
+    const s2 = gatherWrites(b.server);
+    s2.on('error', (e) => errors.push(e));
+    s2.write(Buffer.from('lost'));
+    const s2Closed = nextEvent(s2, 'close');
+    b.server.destroy();
+    await s2Closed;
+    expect(s2.destroyed).toBe(true);
     expect(errors).toEqual([]);
   });
 });
