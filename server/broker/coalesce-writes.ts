@@ -15,9 +15,9 @@
  * high-water mark holds its write callback until the socket has taken it, so Node's Writable
  * queues behind it, answers false and emits 'drain' later, and aedes waits for 'drain' before
  * it delivers more to a slow client); reads are the socket's chunks as they come, paused while
- * the reader does not read; `end()` sends what is gathered first; destroying either side
- * destroys the other and drops what is gathered, as a destroyed socket drops its buffered
- * writes. Latency: at most one turn of the event loop.
+ * the reader does not read; `end()` and `destroy()` hand what is gathered to the socket first
+ * (aedes writes a refusing CONNACK and destroys the connection); destroying either side destroys
+ * the other. Latency: at most one turn of the event loop.
  *
  * Built only on public interfaces (stream.Duplex, net.Socket's write/end/pause/resume/destroy
  * and events); nothing of aedes, mqtt-packet or Node's stream internals is touched. Its measured
@@ -71,8 +71,11 @@ export class GatheredWrites extends Duplex {
   }
 
   override _destroy(err: Error | null, done: Done): void {
-    this.chunks = [];
-    this.bytes = 0;
+    // What is gathered goes to the socket before it is destroyed, as a socket written to directly
+    // would have taken it: aedes writes a refusing CONNACK (under mqtt-packet's cork, so it reaches
+    // _writev only at the next tick) and destroys the connection a setImmediate later, before
+    // this stream's own flush has run.
+    this.flush();
     const held = this.held;
     this.held = [];
     for (const cb of held) cb(err);

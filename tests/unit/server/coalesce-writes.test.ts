@@ -79,28 +79,38 @@ describe('gatherWrites (embedded broker connections)', () => {
     expect(stream.write(Buffer.alloc(10))).toBe(true);
   });
 
-  it('destroys the socket with the stream and the stream with the socket, dropping what is gathered without an error', async () => {
-    const a = await pair();
-    cleanups.push(() => (a.client.destroy(), a.srv.close()));
+  it('hands what is gathered to the socket before destroying it, as aedes refuses a CONNECT (corked CONNACK, destroy a setImmediate later)', async () => {
+    const { server, client, received, srv } = await pair();
+    cleanups.push(() => (client.destroy(), srv.close()));
+    const closed = nextEvent(client, 'close');
+    const stream = gatherWrites(server);
     const errors: Error[] = [];
-    const s1 = gatherWrites(a.server);
-    s1.on('error', (e) => errors.push(e));
-    s1.write(Buffer.from('lost'));
-    const closed = nextEvent(a.server, 'close');
-    s1.destroy();
+    stream.on('error', (e) => errors.push(e));
+    // mqtt-packet's writeToStream: cork, write the parts, uncork on the next tick; aedes then
+    // calls its done callback with setImmediate, which closes the client (conn.destroy()).
+    stream.cork();
+    stream.write(Buffer.from([0x20, 0x02]));
+    stream.write(Buffer.from([0x00, 0x01]));
+    process.nextTick(() => stream.uncork());
+    setImmediate(() => stream.destroy());
     await closed;
-    await turn(); // the gathered flush, queued before this turn, has run by now
+    expect(received().equals(Buffer.from([0x20, 0x02, 0x00, 0x01]))).toBe(true);
+    expect(server.destroyed).toBe(true);
     expect(errors).toEqual([]);
+  });
 
-    const b = await pair();
-    cleanups.push(() => (b.client.destroy(), b.srv.close()));
-    const s2 = gatherWrites(b.server);
-    s2.on('error', (e) => errors.push(e));
-    s2.write(Buffer.from('lost'));
-    const s2Closed = nextEvent(s2, 'close');
-    b.server.destroy();
-    await s2Closed;
-    expect(s2.destroyed).toBe(true);
+  it('is destroyed with its socket, without an error', async () => {
+    const { server, client, srv } = await pair();
+    cleanups.push(() => (client.destroy(), srv.close()));
+    const stream = gatherWrites(server);
+    const errors: Error[] = [];
+    stream.on('error', (e) => errors.push(e));
+    stream.write(Buffer.from('late'));
+    const streamClosed = nextEvent(stream, 'close');
+    server.destroy();
+    await streamClosed;
+    expect(stream.destroyed).toBe(true);
+    await turn(); // the gathered flush finds the socket destroyed and drops the bytes quietly
     expect(errors).toEqual([]);
   });
 });
