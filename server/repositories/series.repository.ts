@@ -78,8 +78,10 @@ export function seriesRepository(pool: pg.Pool) {
     async buckets(source: 'raw' | '1m' | '1h', tagId: number, from: Date, to: Date, step_s: number, limit: number, withLast: boolean): Promise<BucketRow[]> {
       const c = await pool.connect();
       try {
-        // One round trip for both (a simple-protocol query may hold several statements).
-        await c.query(`BEGIN READ ONLY; SET LOCAL work_mem = '${BUCKET_WORK_MEM}'`);
+        // One round trip for all three (a simple-protocol query may hold several statements). No
+        // parallel workers: the planner gave the 30-day query a Gather Merge over two processes,
+        // whose start-up and merge cost CPU that 50 concurrent requests would rather share out.
+        await c.query(`BEGIN READ ONLY; SET LOCAL work_mem = '${BUCKET_WORK_MEM}'; SET LOCAL max_parallel_workers_per_gather = 0`);
         const r = await c.query<{ rows: BucketRow[] }>({ name: `series_buckets_${source}_${withLast ? 'last' : 'nolast'}`, text: BUCKETS[source][withLast ? 1 : 0], values: [tagId, from, to, step_s, limit] });
         await c.query('COMMIT');
         c.release();
