@@ -46,9 +46,19 @@ export class GatheredWrites extends Duplex {
     socket.on('data', (chunk: Buffer) => {
       if (!this.push(chunk)) socket.pause();
     });
-    socket.on('end', () => this.push(null));
+    let peerEnded = false;
+    socket.on('end', () => {
+      peerEnded = true;
+      this.push(null);
+    });
     socket.on('error', (err) => this.destroy(err));
-    socket.on('close', () => this.destroy());
+    socket.on('close', () => {
+      // After the peer's FIN the socket closes as soon as its own side has ended, which can be
+      // before the reader has taken what is buffered here (a QoS 0 publisher that writes and
+      // hangs up): that stays readable until read to its end, as a socket's own buffer would.
+      if (peerEnded && !this.readableEnded) this.once('end', () => this.destroy());
+      else this.destroy();
+    });
     socket.pause();
   }
 

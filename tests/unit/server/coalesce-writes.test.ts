@@ -68,6 +68,23 @@ describe('gatherWrites (embedded broker connections)', () => {
     expect(Buffer.concat(got).equals(sent)).toBe(true);
   });
 
+  it('keeps what the peer sent before hanging up readable after the socket has closed, until read to the end', async () => {
+    const { server, client, srv } = await pair();
+    cleanups.push(() => (client.destroy(), server.destroy(), srv.close()));
+    const stream = gatherWrites(server);
+    // Under the stream's high-water mark, so the socket reads it all, sees the FIN and closes.
+    const sent = Buffer.alloc(8_000, 7);
+    client.end(sent); // a QoS 0 publisher that writes everything and hangs up
+    stream.read(0); // the reader asks once (the socket flows), then is busy elsewhere
+    await nextEvent(server, 'close');
+    const got: Buffer[] = [];
+    stream.on('readable', () => {
+      for (let b = stream.read() as Buffer | null; b; b = stream.read() as Buffer | null) got.push(b);
+    });
+    await nextEvent(stream, 'end');
+    expect(Buffer.concat(got).length).toBe(sent.length);
+  });
+
   it('answers false past the high-water mark and emits drain once the gathered bytes are handed on', async () => {
     const { server, client, srv } = await pair();
     cleanups.push(() => (client.destroy(), server.destroy(), srv.close()));
