@@ -1,29 +1,28 @@
 /**
  * The embedded broker as a process of its own:
  *
- *   node <BROKER_NODE_ARGS> --import tsx server/broker/main.ts <host> <port> [--stock-persistence] [--stock-writes]
+ *   node <BROKER_NODE_ARGS> --import tsx server/broker/main.ts <host> <port> [--stock-persistence]
  *
  * A process of its own gives the broker a core's worth of event loop that the API's requests do
  * not share (at tens of thousands of messages a second the broker is the busiest thing on the
  * machine) and its own garbage-collection settings (./process.ts). Prints one line matching
  * BROKER_READY once listening. SIGTERM or SIGINT closes the broker (clients are disconnected, the
- * port is freed) and exits 0; a port that cannot be bound is reported and exits 1. The two
- * `--stock-…` switches run aedes' own store or socket writes instead of an adapter
- * (./embedded-broker.ts BrokerAdapters): only `npm run bench:ingest -- --stock` passes them.
+ * port is freed) and exits 0; a port that cannot be bound is reported and exits 1. The
+ * `--stock-persistence` switch runs aedes' own store instead of the adapter
+ * (./embedded-broker.ts BrokerAdapters): only `npm run bench:ingest -- --stock` passes it.
  */
 import { KEPT_ADAPTERS, startEmbeddedBroker } from './embedded-broker.ts';
 
 const args = process.argv.slice(2);
 const flags = new Set(args.filter((a) => a.startsWith('--')));
 const [host = '127.0.0.1', portArg = ''] = args.filter((a) => !a.startsWith('--'));
-const unknown = [...flags].filter((f) => f !== '--stock-persistence' && f !== '--stock-writes');
+const unknown = [...flags].filter((f) => f !== '--stock-persistence');
 if (unknown.length) {
-  console.error(`unknown option ${unknown.join(', ')}; known: --stock-persistence, --stock-writes`);
+  console.error(`unknown option ${unknown.join(', ')}; known: --stock-persistence`);
   process.exit(2);
 }
 const adapters = {
   indexedPersistence: KEPT_ADAPTERS.indexedPersistence && !flags.has('--stock-persistence'),
-  gatheredWrites: KEPT_ADAPTERS.gatheredWrites && !flags.has('--stock-writes'),
 };
 const port = Number(portArg);
 if (!Number.isInteger(port) || port < 0 || port > 65_535) {
