@@ -1,3 +1,4 @@
+import path from 'node:path';
 import { credentialChanged } from './auth/credential-cache.ts';
 import type { Logger } from 'pino';
 import type { Config } from './config.ts';
@@ -14,6 +15,9 @@ import { streamRepository } from './repositories/stream.repository.ts';
 import { wiringRepository } from './repositories/wiring.repository.ts';
 import { ingestRepository } from './repositories/ingest.repository.ts';
 import { labRepository } from './repositories/lab.repository.ts';
+import { historyRepository } from './repositories/history.repository.ts';
+import { enqueueHistoryJob } from './jobs/history-queue.ts';
+import { createHistoryImportService } from './services/history-import.service.ts';
 import { plantRepository } from './repositories/plant.repository.ts';
 import { seriesRepository } from './repositories/series.repository.ts';
 import { settingsRepository } from './repositories/settings.repository.ts';
@@ -44,6 +48,9 @@ export interface AppContext {
   sessionKey: Uint8Array;
 }
 
+/** Largest historian file accepted [bytes]: 4 GiB, well above a year of a plant's tags at 10 s. */
+const HISTORY_MAX_BYTES = 4 * 1024 ** 3;
+
 /** Wall clock in epoch ms; services take it as a dependency so a test can set the time. */
 export type Clock = () => number;
 export const systemClock: Clock = () => Date.now();
@@ -73,6 +80,7 @@ function compose(ctx: AppContext) {
     notifications: notificationRepository(db),
     plantSeed: plantSeedRepository(db),
     outbox: outboxReader(db),
+    history: historyRepository(ctx.db),
   };
   const audit = createAuditLog({ auditRepo: repos.audit });
   const plantAccess = createPlantAccess({ plantRepo: repos.plants });
@@ -107,6 +115,14 @@ function compose(ctx: AppContext) {
       audit,
       clock,
       changed: (a, change) => repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
+    }),
+    historyImport: createHistoryImportService({
+      historyRepo: repos.history,
+      plantAccess,
+      audit,
+      uploadDir: path.join(ctx.config.dataDir, 'imports'),
+      maxBytes: HISTORY_MAX_BYTES,
+      enqueue: (kind, id) => enqueueHistoryJob(ctx, kind, id),
     }),
     wiring: createWiringService({ wiringRepo: repos.wiring, plantAccess, audit, log: ctx.log, ingestRepo: repos.ingest, opcua: createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir }) }),
   };

@@ -24,6 +24,7 @@ import { streamRoutes } from './routes/stream.routes.ts';
 import { tokensRoutes } from './routes/tokens.routes.ts';
 import { usersRoutes } from './routes/users.routes.ts';
 import { wiringRoutes } from './routes/wiring.routes.ts';
+import { historyRoutes } from './routes/history.routes.ts';
 import { ingestStatusRoutes } from './routes/ingest-status.routes.ts';
 
 export const VERSION = '0.1.0';
@@ -37,6 +38,7 @@ export function apiRoutes(ctx: AppContext): RouteDef[] {
   defs.push(...outboxRoutes(ctx));
   defs.push(...wiringRoutes(ctx));
   defs.push(...ingestStatusRoutes(ctx));
+  defs.push(...historyRoutes(ctx));
   const doc = () => buildOpenApi(defs, VERSION);
   let cached: object | undefined;
   defs.push(

@@ -10,6 +10,7 @@ import { openDatabase } from './db/client.ts';
 import { startLocalPostgres, type LocalPostgres } from './db/local-postgres.ts';
 import { runMigrations } from './db/migrate.ts';
 import { startBalanceEngine, type BalanceEngine } from './jobs/balance-engine.ts';
+import { startHistoryJobs, type HistoryJobs } from './jobs/history-jobs.ts';
 import { createLogger } from './logger.ts';
 import { bootstrapUsers, type Credential } from './services/bootstrap.service.ts';
 
@@ -35,6 +36,7 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
     databaseUrl = pgLocal.url;
   }
   let engine: BalanceEngine | undefined;
+  let history: HistoryJobs | undefined;
   try {
     await runMigrations(databaseUrl);
     const db = openDatabase(databaseUrl);
@@ -46,6 +48,7 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
       // An ephemeral HTTP port (tests) gets an ephemeral catcher port too, so runs never collide.
       engine = await startBalanceEngine(ctx, { databaseUrl, ...(config.port === 0 ? { catcherPort: 0 } : {}) });
       if (engine.catcherUrl) say(`mail catcher at ${engine.catcherUrl} (admins read it at /api/v1/outbox)`);
+      history = await startHistoryJobs(ctx, { databaseUrl });
     }
     const app = createApp(ctx);
     const server: Server = await new Promise((resolve, reject) => {
@@ -64,12 +67,14 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
       async close() {
         server.closeAllConnections();
         await new Promise<void>((r) => server.close(() => r()));
+        await history?.stop();
         await engine?.stop();
         await db.close();
         pgLocal?.stop();
       },
     };
   } catch (err) {
+    await history?.stop().catch(() => {});
     await engine?.stop().catch(() => {});
     pgLocal?.stop();
     throw err;
