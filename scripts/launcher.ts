@@ -4,6 +4,9 @@
  * start.ts runs the API in its own process; dev.ts runs the same API under `tsx watch`
  * (scripts/api.ts) so it restarts when its sources change.
  */
+import { spawn } from 'node:child_process';
+import { once } from 'node:events';
+import fs from 'node:fs';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { INGEST_NODE_ARGS } from '../ingest/config.ts';
@@ -11,7 +14,9 @@ import { BROKER_NODE_ARGS, BROKER_READY } from '../server/broker/process.ts';
 import type { Config } from '../server/config.ts';
 import { labResults } from '../server/db/schema/index.ts';
 import { demoCredentials, startServer, type RunningServer } from '../server/main.ts';
+import { repositories, services } from '../server/app-context.ts';
 import { labRow } from '../server/services/lab.service.ts';
+import { historyImportQuery } from '../shared/contracts/history.ts';
 import { seedPlant, updateSeedEndpoints } from '../server/services/plant-seed.service.ts';
 import { labResultInput } from '../shared/contracts/lab.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
@@ -122,12 +127,86 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
   }
 }
 
-/** In demo mode, the simulator of Kestrel Bend publishing to `mqttUrl` and serving OPC UA. */
-export function startSimulator(l: Launcher, config: Config, mqttUrl: string): void {
+/** Days of simulated past the demo loads at its first start (longer than any window a figure reads). */
+export const DEMO_HISTORY_DAYS = 35;
+
+/** The demo's simulated past as a CSV file being written (prepareDemoHistory). */
+export interface DemoHistoryFile {
+  file: string;
+  written: Promise<void>;
+}
+
+/**
+ * At a first start (no PostgreSQL cluster in the data folder yet), starts the simulator writing
+ * 35 days of Kestrel Bend as a historian CSV (the model run fast, dry weather, one-minute values;
+ * nothing over MQTT) while the cluster is created and migrated; null otherwise.
+ */
+export function prepareDemoHistory(config: Config): DemoHistoryFile | null {
+  if (!config.demo || config.databaseUrl || fs.existsSync(path.join(config.dataDir, 'pg'))) return null;
+  const file = path.join(config.dataDir, 'imports', 'demo-history.csv');
+  fs.mkdirSync(path.dirname(file), { recursive: true });
+  const args = ['--import', 'tsx', 'simulators/cli.ts', '--scenario', 'dry-weather', '--history-days', String(DEMO_HISTORY_DAYS), '--history-end', new Date().toISOString(), '--history-out', file];
+  const sim = spawn(process.execPath, args, { cwd: root, stdio: ['ignore', 'ignore', 'pipe'] });
+  let stderr = '';
+  sim.stderr!.on('data', (b: Buffer) => (stderr += b.toString()));
+  const written = once(sim, 'exit').then(([code]) => {
+    if (code !== 0) throw new Error(`demo history: the simulator failed (code ${code}): ${stderr}`);
+  });
+  written.catch(() => {});
+  return { file, written };
+}
+
+/**
+ * The demo's past, before it goes live. When the demo plant has no stored sample yet, the file
+ * of prepareDemoHistory goes through the historian import service like any upload and is waited
+ * for (rows stored, rollups built; the balance recompute of the window goes on in the
+ * background). Every start then resumes the simulation after the newest stored sample, read from
+ * the database, so no start writes into a window that holds data. Returns that time, or
+ * undefined outside demo mode.
+ */
+export async function loadDemoHistory(config: Config, server: RunningServer, say: (m: string) => void, prepared: DemoHistoryFile | null): Promise<Date | undefined> {
+  if (!config.demo) return undefined;
+  const { pool } = server.ctx.db;
+  const plant = (await pool.query<{ id: number }>('SELECT id FROM plants WHERE code = $1', [DEMO_PLANT.code])).rows[0];
+  if (!plant) return undefined;
+  const history = repositories(server.ctx).history;
+  const last = await history.lastSampleTime(plant.id);
+  if (last || !prepared) {
+    if (last) say(`resuming the simulation after the last stored sample (${last.toISOString()})`);
+    return last ?? undefined;
+  }
+  const t0 = Date.now();
+  say(`first start: loading ${DEMO_HISTORY_DAYS} days of simulated history…`);
+  await prepared.written;
+  const user = (await pool.query<{ id: number; email: string }>(`SELECT id, email FROM users WHERE role = 'integrator' AND NOT disabled ORDER BY id LIMIT 1`)).rows[0];
+  if (!user) throw new Error('demo history: no integrator user to import as');
+  const principal = { userId: user.id, email: user.email, role: 'integrator' as const, tokenId: null, plantIds: null, ip: null };
+  // Hourly balances over the 35 days (840), not one per engine interval: enough for the trends,
+  // and the live engine takes over at its own interval.
+  const q = historyImportQuery.parse({ balanceStep_s: '3600' });
+  const { jobId } = await services(server.ctx).historyImport.start(principal, plant.id, q, fs.createReadStream(prepared.file), { contentType: 'text/csv', fileName: 'demo-history.csv' });
+  fs.rmSync(prepared.file, { force: true });
+  for (;;) {
+    const j = await history.job(jobId);
+    if (!j) throw new Error(`demo history: job ${jobId} vanished`);
+    if (j.state === 'failed') throw new Error(`demo history: import failed: ${JSON.stringify(j.result)} ${JSON.stringify(j.errors.slice(0, 5))}`);
+    if (j.state === 'done') {
+      say(`loaded ${j.rows} samples of simulated history in ${((Date.now() - t0) / 1000).toFixed(1)} s (the balances of the past are recomputed in the background)`);
+      return (await history.lastSampleTime(plant.id)) ?? undefined;
+    }
+    await new Promise((r) => setTimeout(r, 250));
+  }
+}
+
+/**
+ * In demo mode, the simulator of Kestrel Bend publishing to `mqttUrl` and serving OPC UA:
+ * after `resumeFrom` (loadDemoHistory) caught up fast to the wall clock, or, without it, two
+ * simulated hours replayed fast; then real time, so no timestamp is in the future.
+ */
+export function startSimulator(l: Launcher, config: Config, mqttUrl: string, resumeFrom?: Date): void {
   if (!config.demo) return;
-  // Two simulated hours of history replayed fast (the demo storm starts half an hour in),
-  // then real time: the board shows a storm within minutes and no timestamp is in the future.
-  const args = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir, '--catch-up-h', '2'];
+  const args = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir];
+  args.push(...(resumeFrom ? ['--resume-from', resumeFrom.toISOString()] : ['--catch-up-h', '2']));
   if (config.simSpeed) args.push('--speed', String(config.simSpeed));
   l.child('simulator', 'simulators/cli.ts', args);
 }

@@ -1,6 +1,13 @@
 /**
  * npm run sim -- --scenario storm --speed 60 [--seed N] [--mqtt-url URL | --no-mqtt]
- *                [--opcua-port P | --no-opcua] [--batch] [--data-dir D] [--catch-up-h H] [--list]
+ *                [--opcua-port P | --no-opcua] [--batch] [--data-dir D] [--catch-up-h H | --resume-from ISO] [--list]
+ * npm run sim -- --scenario dry-weather --history-days 35 --history-out FILE [--history-end ISO] [--history-step-s S]
+ *
+ * --history-days D --history-out FILE writes D days of the plant's past ending at --history-end
+ * (default now) as a long-layout CSV for the product's historian import, then exits; nothing is
+ * published. --resume-from ISO starts the simulated clock at that time (the last sample a
+ * previous run stored) and catches up to the wall clock, so no start writes into a window that
+ * already holds data.
  *
  * --catch-up-h H starts the simulated clock H hours ago and runs at --speed until it meets the
  * wall clock, then in real time (timestamps never lie in the future).
@@ -13,6 +20,7 @@ import { parseArgs } from 'node:util';
 import { z } from 'zod';
 import { DEFAULT_MQTT_URL, DEFAULT_OPCUA_PORT, startSimulator } from './simulator.js';
 import { listScenarios, ScenarioError } from './scenarios/load-scenario.js';
+import { exportHistory } from './history-export.js';
 
 const argsSchema = z.object({
   scenario: z.string().min(1),
@@ -25,6 +33,11 @@ const argsSchema = z.object({
   batch: z.boolean().default(false),
   'data-dir': z.string().min(1).default('.data'),
   'catch-up-h': z.coerce.number().positive().max(720).optional(),
+  'resume-from': z.iso.datetime({ offset: true }).optional(),
+  'history-days': z.coerce.number().positive().max(400).optional(),
+  'history-out': z.string().min(1).optional(),
+  'history-end': z.iso.datetime({ offset: true }).optional(),
+  'history-step-s': z.coerce.number().int().min(1).max(3600).optional(),
 });
 
 async function main(): Promise<number> {
@@ -40,13 +53,18 @@ async function main(): Promise<number> {
       batch: { type: 'boolean' },
       'data-dir': { type: 'string' },
       'catch-up-h': { type: 'string' },
+      'resume-from': { type: 'string' },
+      'history-days': { type: 'string' },
+      'history-out': { type: 'string' },
+      'history-end': { type: 'string' },
+      'history-step-s': { type: 'string' },
       list: { type: 'boolean' },
       help: { type: 'boolean', short: 'h' },
     },
     strict: true,
   });
   if (values.help) {
-    console.log('usage: npm run sim -- --scenario <name> [--speed 1..3600] [--seed N] [--mqtt-url URL|--no-mqtt] [--opcua-port P|--no-opcua] [--batch] [--data-dir D] [--catch-up-h H] [--list]');
+    console.log('usage: npm run sim -- --scenario <name> [--speed 1..3600] [--seed N] [--mqtt-url URL|--no-mqtt] [--opcua-port P|--no-opcua] [--batch] [--data-dir D] [--catch-up-h H | --resume-from ISO] [--list]\n       npm run sim -- --scenario <name> --history-days D --history-out FILE [--history-end ISO] [--history-step-s S]');
     return 0;
   }
   if (values.list) {
@@ -59,6 +77,26 @@ async function main(): Promise<number> {
     return 2;
   }
   const a = parsed.data;
+  if (a['history-days'] !== undefined || a['history-out'] !== undefined) {
+    if (a['history-days'] === undefined || a['history-out'] === undefined) {
+      console.error('--history-days and --history-out go together');
+      return 2;
+    }
+    const r = await exportHistory({
+      scenario: a.scenario,
+      seed: a.seed,
+      days: a['history-days'],
+      out: a['history-out'],
+      ...(a['history-end'] ? { end: new Date(a['history-end']) } : {}),
+      ...(a['history-step-s'] ? { step_s: a['history-step-s'] } : {}),
+    });
+    console.log(`history: ${r.rows} samples from ${r.from.toISOString()} to ${r.to.toISOString()} written to ${a['history-out']}`);
+    return 0;
+  }
+  if (a['catch-up-h'] !== undefined && a['resume-from'] !== undefined) {
+    console.error('--catch-up-h and --resume-from exclude each other');
+    return 2;
+  }
   const sim = await startSimulator({
     scenario: a.scenario,
     ...(a.speed !== undefined ? { speed: a.speed } : {}),
@@ -68,6 +106,7 @@ async function main(): Promise<number> {
     batch: a.batch,
     dataDir: a['data-dir'],
     ...(a['catch-up-h'] !== undefined ? { catchUp_h: a['catch-up-h'] } : {}),
+    ...(a['resume-from'] !== undefined ? { resumeFrom: new Date(a['resume-from']) } : {}),
     log: (line) => console.log(line),
   });
   await new Promise<void>((resolve) => {

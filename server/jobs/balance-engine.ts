@@ -178,6 +178,9 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
       if (job.name === 'sync') return sync();
       const plantId = Number(job.data.plantId);
       if (job.name === 'balance') {
+        // A plant that never received a value has nothing to balance yet (a new plant, or the
+        // demo while its history loads): no row of only 'unavailable' figures is stored.
+        if ((await repo.lastReceived(plantId)) === null) return { skipped: 'no data yet' };
         try {
           const b = await runOnce(plantId);
           return { id: b.id, quality: b.quality };
