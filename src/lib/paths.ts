@@ -35,6 +35,8 @@ export const paths = {
   signalMap: (plantId: number) => `${v1}/plants/${plantId}/signal-map`,
   signalMapping: (id: number) => `${v1}/signal-map/${id}`,
   ingestStatus: `${v1}/ingest/status`,
+  historyImport: (plantId: number) => `${v1}/plants/${plantId}/history`,
+  job: (id: number) => `${v1}/jobs/${id}`,
   /** Adds a query string, leaving out undefined values. */
   withQuery: (url: string, q: Record<string, string | number | undefined>) => {
     const sp = new URLSearchParams();

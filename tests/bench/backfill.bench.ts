@@ -109,9 +109,11 @@ try {
   // ---- product: the API process takes the file ----------------------------------------------
   const email = 'bench@bench.invalid';
   const password = 'bench-password-123';
+  const apiPort = await freePort();
   const api = spawn(process.execPath, ['--import', 'tsx', 'scripts/api.ts'], {
     cwd: ROOT,
-    env: { ...process.env, DATABASE_URL: cluster.url, PORT: '0', FLOCSTREAM_DATA_DIR: path.join(tmp, 'data'), FLOCSTREAM_DEMO: '0', FLOCSTREAM_ADMIN_EMAIL: email, FLOCSTREAM_ADMIN_PASSWORD: password, LOG_LEVEL: 'warn' },
+    // SMTP_URL names a relay that is never used (no plant has alarms here), so no mail catcher port is taken.
+    env: { ...process.env, DATABASE_URL: cluster.url, PORT: String(apiPort), SMTP_URL: 'smtp://127.0.0.1:9', FLOCSTREAM_DATA_DIR: path.join(tmp, 'data'), FLOCSTREAM_DEMO: '0', FLOCSTREAM_ADMIN_EMAIL: email, FLOCSTREAM_ADMIN_PASSWORD: password, LOG_LEVEL: 'warn' },
     stdio: ['ignore', 'pipe', 'inherit'],
   });
   cleanup.push(() => api.kill('SIGKILL'));
