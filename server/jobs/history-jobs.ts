@@ -52,6 +52,7 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
   if (!job) return;
   const o = job.options as unknown as ImportOptions;
   await repo.started(jobId);
+  const began = performance.now();
   const checker = new RowChecker(await repo.importTags(job.plantId), o);
   const stage = o.dryRun ? null : await repo.openStage(jobId);
   let storing = stage !== null;
@@ -135,16 +136,19 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
     }
     await flush();
     await stage.end();
+    const checkSec = (performance.now() - began) / 1000;
     report(0.9);
     await repo.progress(jobId, { progress: 0.9, rows: checker.rows, rejected: 0 });
+    const moved = performance.now();
     const inserted = await repo.move(jobId, [...checker.days], windows);
     await repo.dropStage(jobId);
+    const timing = { checkSec: Math.round(checkSec * 10) / 10, moveSec: Math.round(((performance.now() - moved) / 1000) * 10) / 10 };
     let recomputeJobId: number | null = null;
     if (inserted > 0) {
       recomputeJobId = await repo.createJob({ plantId: job.plantId, kind: 'recompute', parentId: jobId, createdBy: null, options: { ...window, ...(o.balanceStep_s ? { balanceStep_s: o.balanceStep_s } : {}) } satisfies RecomputeOptions });
       await enqueueHistoryJob(ctx, 'recompute', recomputeJobId);
     }
-    await repo.finish(jobId, { state: 'done', rows: checker.rows, rejected: 0, errors: [], result: { inserted, ...window, recomputeJobId } });
+    await repo.finish(jobId, { state: 'done', rows: checker.rows, rejected: 0, errors: [], result: { inserted, ...window, recomputeJobId, ...timing } });
   } catch (err) {
     await fail(`import failed: ${(err as Error).message}`).catch(() => {});
     throw err;

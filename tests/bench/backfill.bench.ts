@@ -144,6 +144,8 @@ try {
   const stored = Number((await pool.query('SELECT count(*) AS n FROM samples')).rows[0].n);
   if (stored !== ROWS) throw new Error(`samples holds ${stored} rows, expected ${ROWS}`);
   results.backfillRowsPerSec = Math.round(ROWS / importSec);
+  const timing = (await pool.query(`SELECT result FROM history_jobs WHERE id = $1`, [jobId])).rows[0].result as { checkSec?: number; moveSec?: number };
+  notes.push(`import phases: read, check and stage ${timing.checkSec} s; move into samples with rollups ${timing.moveSec} s`);
   results.backfillRatio = Math.round((results.backfillRowsPerSec / results.psqlCopyRowsPerSec) * 100) / 100;
   if (j.recomputeJobId) {
     let rj = await job(j.recomputeJobId);
