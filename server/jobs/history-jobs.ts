@@ -47,7 +47,7 @@ export interface RecomputeOptions {
  * `samples` with its rollups (HistoryRepository.move) and the recompute job for the window.
  * A dry run only checks. A failed file stores nothing and lists its lines.
  */
-export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId: number, report: (p: number) => void = () => {}): Promise<void> {
+export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId: number, report: (p: number) => void = () => {}, signal?: AbortSignal): Promise<void> {
   const job = await repo.job(jobId);
   if (!job) return;
   const o = job.options as unknown as ImportOptions;
@@ -83,6 +83,7 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
     highWaterMark: 2048,
     writev(chunks: { chunk: { record: string[]; info: { lines: number } } }[], cb) {
       (async () => {
+        if (signal?.aborted) throw new Error('the API stopped before the import ended; nothing stored, upload the file again');
         for (const { chunk } of chunks) {
           if (!seenHeader) {
             seenHeader = true;
@@ -206,7 +207,7 @@ export function inputsAsOf(t: number, layout: LayoutIn, mapped: readonly SignalR
  * publishes nothing live. Recomputed rows of an earlier run over the window are replaced; a time
  * that already has a live balance keeps it.
  */
-export async function runRecompute(ctx: AppContext, repo: HistoryRepository, jobId: number, report: (p: number) => void = () => {}): Promise<void> {
+export async function runRecompute(ctx: AppContext, repo: HistoryRepository, jobId: number, report: (p: number) => void = () => {}, signal?: AbortSignal): Promise<void> {
   const job = await repo.job(jobId);
   if (!job) return;
   const o = job.options as unknown as RecomputeOptions;
@@ -236,6 +237,12 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
       const c1 = Math.min(c0 + DAY_MS, to + step);
       const minutes = await repo.minutes(tagIds, new Date(c0 - window_ms - MINUTE_MS), new Date(c1));
       for (let t = c0; t < c1; t += step) {
+        if (signal?.aborted) {
+          // A shutdown: what is computed stays; the next start runs the job again over the window.
+          await repo.insertRecomputed(pending);
+          await repo.requeue(jobId);
+          return;
+        }
         while (li < live.length && live[li]! <= t - step) li++;
         if (li < live.length && live[li]! <= t) continue;
         pending.push(computeBalance(inputsAsOf(t, layout, mapped, minutes, svis, window_ms), s));
@@ -274,19 +281,24 @@ export async function startHistoryJobs(ctx: AppContext, opts: { databaseUrl?: st
   const backend = queueBackend(ctx, url ?? '', HISTORY_QUEUE);
   const repo = repositories(ctx).history;
   const queue = backend.queue() as SchedulingQueue & HistoryQueue;
+  const stopping = new AbortController();
   const worker: ClosableWorker = backend.worker(async (job: Job) => {
     const id = Number((job.data as { id?: number }).id);
     const report = (p: number) => void job.updateProgress(Math.round(p * 1000) / 1000).catch(() => {});
-    if (job.name === 'import') return runImport(ctx, repo, id, report);
-    if (job.name === 'recompute') return runRecompute(ctx, repo, id, report);
+    if (job.name === 'import') return runImport(ctx, repo, id, report, stopping.signal);
+    if (job.name === 'recompute') return runRecompute(ctx, repo, id, report, stopping.signal);
     throw new Error(`unknown history job ${job.name}`);
   });
   worker.on('failed', (job, err) => ctx.log.warn({ err, job: job?.name, data: job?.data }, 'history job failed'));
   worker.on('error', (err) => ctx.log.warn({ err }, 'history worker error'));
   registerHistoryQueue(ctx, queue);
+  // Recomputes a previous run stopped (or left queued) go on.
+  for (const id of await repo.unfinishedRecomputes()) await enqueueHistoryJob(ctx, 'recompute', id);
   return {
     async stop() {
       registerHistoryQueue(ctx, null);
+      // The running job ends at its next step (a recompute is queued again for the next start).
+      stopping.abort();
       await worker.close();
       await queue.close();
     },

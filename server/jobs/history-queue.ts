@@ -21,6 +21,7 @@ export function registerHistoryQueue(ctx: AppContext, q: HistoryQueue | null): v
 export async function enqueueHistoryJob(ctx: AppContext, kind: 'import' | 'recompute', id: number): Promise<boolean> {
   const q = queues.get(ctx);
   if (!q) return false;
-  await q.add(kind, { id }, { jobId: `${kind}-${id}`, removeOnComplete: 1000, removeOnFail: 1000 });
+  // The time in the id: a recompute stopped by a shutdown is queued again under a new id at the next start.
+  await q.add(kind, { id }, { jobId: `${kind}-${id}-${Date.now()}`, removeOnComplete: 1000, removeOnFail: 1000 });
   return true;
 }

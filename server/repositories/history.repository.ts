@@ -106,6 +106,15 @@ export function historyRepository(database: Database) {
         JSON.stringify(f.result),
       ]);
     },
+    /** Back to queued (a recompute stopped by a shutdown, resumed at the next start). */
+    async requeue(id: number): Promise<void> {
+      await pool.query(`UPDATE history_jobs SET state = 'queued' WHERE id = $1`, [id]);
+    },
+    /** Recomputes not finished (stopped by a shutdown, or queued when the process ended). */
+    async unfinishedRecomputes(): Promise<number[]> {
+      const r = await pool.query(`SELECT id FROM history_jobs WHERE kind = 'recompute' AND state IN ('queued', 'running') ORDER BY id`);
+      return r.rows.map((x) => x.id as number);
+    },
     async setResult(id: number, result: Record<string, unknown>): Promise<void> {
       await pool.query(`UPDATE history_jobs SET result = result || $2::jsonb WHERE id = $1`, [id, JSON.stringify(result)]);
     },
