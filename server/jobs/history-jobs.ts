@@ -60,9 +60,10 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
   let seenHeader = false;
   let bytesRead = 0;
   let lastReport = 0;
-  // 64 KiB reads (about 1500 lines): csv-parse handles a read in one go, so a small read keeps
-  // each turn of the event loop short and the API answering while a large file is checked.
-  const input = fs.createReadStream(o.file, { highWaterMark: 1 << 16 });
+  // 16 KiB reads (about 400 lines): csv-parse handles a read in one go, so a small read keeps
+  // each turn of the event loop short (a few ms) and the API answering while a large file is
+  // checked, even with the two cores shared; measured against 64 KiB on a loaded machine.
+  const input = fs.createReadStream(o.file, { highWaterMark: 1 << 14 });
   input.on('data', (b) => (bytesRead += b.length));
   const tick = async () => {
     const now = Date.now();
@@ -80,7 +81,7 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
   };
   const sink = new Writable({
     objectMode: true,
-    highWaterMark: 2048,
+    highWaterMark: 512,
     writev(chunks: { chunk: { record: string[]; info: { lines: number } } }[], cb) {
       (async () => {
         if (signal?.aborted) throw new Error('the API stopped before the import ended; nothing stored, upload the file again');
