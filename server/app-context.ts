@@ -22,6 +22,8 @@ import { createAlarmService } from './services/alarm.service.ts';
 import { createAuditLog } from './services/audit.service.ts';
 import { createStreamService, streamHub } from './services/stream.service.ts';
 import { createAuthService } from './services/auth.service.ts';
+import { createCalcService } from './services/calc.service.ts';
+import { createWorkerPool } from './workers/worker-pool.ts';
 import { createBootstrapService } from './services/bootstrap.service.ts';
 import { createIngestStatusService } from './services/ingest-status.service.ts';
 import { createOutboxService } from './services/outbox.service.ts';
@@ -107,6 +109,10 @@ function compose(ctx: AppContext) {
       audit,
       clock,
       changed: (a, change) => repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
+    }),
+    calc: createCalcService({
+      pool: createWorkerPool({ entry: new URL('./workers/calc.worker.ts', import.meta.url), size: ctx.config.calc.workers, queue: ctx.config.calc.queue, timeout_ms: ctx.config.calc.timeout_ms }),
+      limits: { budget_ms: ctx.config.calc.budget_ms, timeout_ms: ctx.config.calc.timeout_ms, settlerMaxSteps: ctx.config.calc.settlerMaxSteps },
     }),
     wiring: createWiringService({ wiringRepo: repos.wiring, plantAccess, audit, log: ctx.log, ingestRepo: repos.ingest, opcua: createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir }) }),
   };

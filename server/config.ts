@@ -25,6 +25,12 @@ const envSchema = z.object({
   SMTP_URL: z.url().optional(),
   LOG_LEVEL: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
   NODE_ENV: z.string().default('production'),
+  FLOCSTREAM_API_STATEMENT_TIMEOUT_MS: z.coerce.number().int().min(100).max(600_000).default(10_000),
+  FLOCSTREAM_CALC_WORKERS: z.coerce.number().int().min(1).max(8).default(1),
+  FLOCSTREAM_CALC_QUEUE: z.coerce.number().int().min(0).max(1000).default(8),
+  FLOCSTREAM_CALC_BUDGET_MS: z.coerce.number().int().min(10).max(60_000).default(2_000),
+  FLOCSTREAM_CALC_TIMEOUT_MS: z.coerce.number().int().min(100).max(120_000).default(5_000),
+  FLOCSTREAM_CALC_SETTLER_MAX_STEPS: z.coerce.number().int().min(100).max(10_000_000).default(200_000),
 });
 
 export type Config = {
@@ -46,6 +52,10 @@ export type Config = {
   smtpUrl: string | undefined;
   logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
   secureCookies: boolean;
+  /** PostgreSQL statement_timeout of every API pool connection (ingest and migrations have their own connections). */
+  apiStatementTimeout_ms: number;
+  /** Calculator worker pool (server/services/calc.service.ts): workers, waiting requests beyond them (more → 503), time budget handed to the solver, hard timeout that terminates a worker, settler step budget. */
+  calc: { workers: number; queue: number; budget_ms: number; timeout_ms: number; settlerMaxSteps: number };
 };
 
 export class ConfigError extends Error {}
@@ -77,5 +87,13 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     logLevel: e.LOG_LEVEL,
     // The product binds to 127.0.0.1 over plain HTTP by default; behind TLS set NODE_ENV=production-tls.
     secureCookies: e.NODE_ENV === 'production-tls',
+    apiStatementTimeout_ms: e.FLOCSTREAM_API_STATEMENT_TIMEOUT_MS,
+    calc: {
+      workers: e.FLOCSTREAM_CALC_WORKERS,
+      queue: e.FLOCSTREAM_CALC_QUEUE,
+      budget_ms: e.FLOCSTREAM_CALC_BUDGET_MS,
+      timeout_ms: Math.max(e.FLOCSTREAM_CALC_TIMEOUT_MS, e.FLOCSTREAM_CALC_BUDGET_MS + 500),
+      settlerMaxSteps: e.FLOCSTREAM_CALC_SETTLER_MAX_STEPS,
+    },
   };
 }

@@ -37,7 +37,7 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
   let engine: BalanceEngine | undefined;
   try {
     await runMigrations(databaseUrl);
-    const db = openDatabase(databaseUrl);
+    const db = openDatabase(databaseUrl, { statementTimeout_ms: config.apiStatementTimeout_ms });
     const ctx: AppContext = { db, config, log, sessionKey: loadSessionKey(config.dataDir, config.sessionSecret) };
     const credentials = await bootstrapUsers(ctx, config.demo);
     if (config.demo) rememberDemoCredentials(config.dataDir, credentials);
