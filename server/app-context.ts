@@ -111,7 +111,7 @@ function compose(ctx: AppContext) {
       changed: (a, change) => repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
     }),
     calc: createCalcService({
-      pool: createWorkerPool({ entry: new URL('./workers/calc.worker.ts', import.meta.url), size: ctx.config.calc.workers, queue: ctx.config.calc.queue, timeout_ms: ctx.config.calc.timeout_ms }),
+      pool: createWorkerPool({ entry: new URL('./workers/calc.worker.ts', import.meta.url), size: ctx.config.calc.workers, queue: ctx.config.calc.queue, timeout_ms: ctx.config.calc.timeout_ms, prestart: true }),
       limits: { budget_ms: ctx.config.calc.budget_ms, timeout_ms: ctx.config.calc.timeout_ms, settlerMaxSteps: ctx.config.calc.settlerMaxSteps },
     }),
     wiring: createWiringService({ wiringRepo: repos.wiring, plantAccess, audit, log: ctx.log, ingestRepo: repos.ingest, opcua: createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir }) }),

@@ -13,7 +13,8 @@
  * here: a negative value stays a number (`-0.5`), only text such as a tag description is prefixed.
  */
 
-import { parse } from 'csv-parse/sync';
+import { parse as parseStream, type Options } from 'csv-parse';
+import { parse as parseSync } from 'csv-parse/sync';
 
 export type CsvCell = string | number | boolean | null | undefined | Date;
 
@@ -101,41 +102,98 @@ function lineAt(buf: Buffer, offset: number): number {
   return line;
 }
 
-/**
- * Parses an RFC 4180 document with csv-parse (the kept parser; `csv-parse/sync`, bodies are at
- * most 1 MiB). Accepts CRLF or LF record ends, also mixed in one file (RFC 4180 asks for CRLF;
- * files from spreadsheets and editors differ), and a UTF-8 byte-order mark; blank lines are
- * skipped; records may differ in length (the callers name the line). A stray quote inside an
- * unquoted field, text after a closing quote or an unclosed quoted field is an error with the
- * line the record starts on (the problem's own line for a stray quote): returned, not thrown, so
- * the caller can report it with the rest. Linear in the size of the text.
- */
-export function parseCsv(text: string): CsvParseResult {
-  const buf = Buffer.from(text, 'utf8');
+/** Bytes handed to the parser per turn of the event loop: a 1 MiB upload never holds the loop for long. */
+const PARSE_CHUNK_BYTES = 8 * 1024;
+
+/** One parse: csv-parse's options (the same for the sync and the stream API) and what they collect. */
+function parseRun(buf: Buffer) {
   const records: CsvRecord[] = [];
   let recordEnd = 0;
-  try {
-    parse(buf, {
-      bom: true,
-      skip_empty_lines: true,
-      relax_column_count: true,
-      record_delimiter: ['\r\n', '\n'],
-      on_record: (record: string[], ctx: { bytes: number; lines: number }) => {
-        // ctx.lines is the line the record ends on; line breaks inside quoted fields move its start up.
-        let inside = 0;
-        for (const f of record) for (let i = f.indexOf('\n'); i !== -1; i = f.indexOf('\n', i + 1)) inside++;
-        records.push({ line: ctx.lines - inside, fields: record });
-        recordEnd = ctx.bytes;
-        return null;
-      },
-    });
-  } catch (err) {
+  const options: Options = {
+    bom: true,
+    skip_empty_lines: true,
+    relax_column_count: true,
+    record_delimiter: ['\r\n', '\n'],
+    on_record: (record: string[], ctx) => {
+      // ctx.lines is the line the record ends on; line breaks inside quoted fields move its start up.
+      let inside = 0;
+      for (const f of record) for (let i = f.indexOf('\n'); i !== -1; i = f.indexOf('\n', i + 1)) inside++;
+      records.push({ line: ctx.lines - inside, fields: record });
+      recordEnd = ctx.bytes;
+      return null;
+    },
+  };
+  const failure = (err: unknown): CsvParseResult => {
     const e = err as { code?: string; lines?: number };
     const message = (e.code && PARSE_MESSAGES[e.code]) ?? `not valid CSV (${e.code ?? 'parse error'})`;
     const line = e.code === 'CSV_QUOTE_NOT_CLOSED' || typeof e.lines !== 'number' ? lineAt(buf, recordEnd) : e.lines;
     return { ok: false, line, message };
+  };
+  return { options, records, failure };
+}
+
+/**
+ * Parses an RFC 4180 document with csv-parse (the kept parser). Accepts CRLF or LF record ends,
+ * also mixed in one file (RFC 4180 asks for CRLF; files from spreadsheets and editors differ),
+ * and a UTF-8 byte-order mark; blank lines are skipped; records may differ in length (the
+ * callers name the line). A stray quote inside an unquoted field, text after a closing quote or
+ * an unclosed quoted field is an error with the line the record starts on (the problem's own
+ * line for a stray quote): returned, not thrown, so the caller can report it with the rest.
+ * Synchronous: for small documents; uploads go through {@link parseCsvUpload}.
+ */
+export function parseCsv(text: string): CsvParseResult {
+  const buf = Buffer.from(text, 'utf8');
+  const run = parseRun(buf);
+  try {
+    parseSync(buf, run.options);
+  } catch (err) {
+    return run.failure(err);
   }
-  return { ok: true, records };
+  return { ok: true, records: run.records };
+}
+
+/** Widest header an upload may have: far above any file's columns (about a dozen), far below what stalls a request. */
+export const MAX_UPLOAD_COLUMNS = 1000;
+
+/** Commas + 1 on the first line, counting no further than `limit` (quoted commas count too: an upper bound, enough for a cap). */
+function headerWidthAtLeast(text: string, limit: number): number {
+  const eol = text.indexOf('\n');
+  const end = eol === -1 ? text.length : eol;
+  let n = 1;
+  for (let i = text.indexOf(','); i !== -1 && i < end && n < limit; i = text.indexOf(',', i + 1)) n++;
+  return n;
+}
+
+/**
+ * {@link parseCsv} for uploads (up to 1 MiB), through csv-parse's stream API: the text is fed in
+ * chunks of 8 KiB with a turn of the event loop between them, so the work is linear in the size
+ * and never holds other requests for more than a chunk (a 40 000-column header held the loop for
+ * hundreds of milliseconds when parsed in one call on a busy machine). A header row wider than
+ * `maxColumns` is refused before parsing (line 1).
+ */
+export async function parseCsvUpload(text: string, maxColumns = MAX_UPLOAD_COLUMNS): Promise<CsvParseResult> {
+  const width = headerWidthAtLeast(text, maxColumns + 1);
+  if (width > maxColumns) return { ok: false, line: 1, message: `the header row has more than ${maxColumns} columns; no upload has that many` };
+  const buf = Buffer.from(text, 'utf8');
+  const run = parseRun(buf);
+  let failed: CsvParseResult | null = null;
+  const parser = parseStream(run.options);
+  const done = new Promise<void>((resolve) => {
+    parser.on('error', (err) => {
+      failed = run.failure(err);
+      resolve();
+    });
+    parser.on('end', () => resolve());
+    // on_record keeps every record and filters it out of the stream; reading lets 'end' fire.
+    parser.on('data', () => {});
+  });
+  for (let i = 0; i < buf.length && !failed; i += PARSE_CHUNK_BYTES) {
+    parser.write(buf.subarray(i, i + PARSE_CHUNK_BYTES));
+    await new Promise<void>((r) => setImmediate(r));
+  }
+  if (!failed) parser.end();
+  await done;
+  return failed ?? { ok: true, records: run.records };
 }
 
 /** How many names a header message lists before "and N more" (a 40 000-column header must not make a 40 000-name answer). */

@@ -15,7 +15,7 @@ import { BadRequestError, UnsupportedMediaTypeError, ValidationError } from '../
 import { zodFields } from '../http/validate.ts';
 import type { LabRepository, LabRow, NewLabRow } from '../repositories/lab.repository.ts';
 import type { Actor, AuditLog } from './audit.service.ts';
-import { csvHeaderProblem, parseCsv } from './csv.service.ts';
+import { csvHeaderProblem, parseCsvUpload } from './csv.service.ts';
 import type { PlantAccess } from './plant.service.ts';
 
 export function labOut(r: LabRow): LabResultOut {
@@ -95,7 +95,7 @@ export function createLabService({ labRepo: repo, plantAccess, audit }: LabServi
     async importCsv(principal: Actor, plantId: number, text: string | undefined): Promise<{ imported: number; results: LabResultOut[] }> {
       await plantAccess.requirePlant(principal, plantId);
       if (text === undefined) throw new UnsupportedMediaTypeError('send the file as the request body with Content-Type: text/csv');
-      const parsed = parseCsv(text);
+      const parsed = await parseCsvUpload(text);
       if (!parsed.ok) throw new ValidationError({ [`line.${parsed.line}`]: [parsed.message] }, 'the file is not valid CSV (RFC 4180); nothing was stored');
       const [header, ...records] = parsed.records;
       if (!header) throw new ValidationError({ _: ['the file is empty; expected a header row and at least one result'] });

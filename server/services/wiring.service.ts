@@ -28,7 +28,7 @@ import { ConflictError, NotFoundError, UnsupportedMediaTypeError, ValidationErro
 import { zodFields } from '../http/validate.ts';
 import { uniqueViolation, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow, type WiringRepository } from '../repositories/wiring.repository.ts';
 import type { Actor, AuditLog } from './audit.service.ts';
-import { csvHeaderProblem, parseCsv } from './csv.service.ts';
+import { csvHeaderProblem, parseCsvUpload } from './csv.service.ts';
 import type { OpcuaBrowseService } from './opcua-browse.service.ts';
 import { assertPlantScope, type PlantAccess } from './plant.service.ts';
 import type { IngestRepository } from '../repositories/ingest.repository.ts';
@@ -326,7 +326,7 @@ export function createWiringService({ wiringRepo: repo, plantAccess, audit, log,
     async importCsv(principal: Actor, plantId: number, text: string | undefined, dryRun: boolean): Promise<TagImportOut> {
       await plantAccess.requirePlant(principal, plantId);
       if (text === undefined) throw new UnsupportedMediaTypeError('send the file as the request body with Content-Type: text/csv');
-      const parsed = parseCsv(text);
+      const parsed = await parseCsvUpload(text);
       if (!parsed.ok) throw new ValidationError({ [`line.${parsed.line}`]: [parsed.message] }, 'the file is not valid CSV (RFC 4180); nothing was stored');
       const [header, ...records] = parsed.records;
       if (!header) throw new ValidationError({ _: ['the file is empty; expected a header row and at least one tag'] });

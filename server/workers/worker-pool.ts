@@ -6,8 +6,8 @@ import { Worker } from 'node:worker_threads';
  * at a time; tasks beyond the busy workers wait in a bounded queue, and one more is refused at
  * once (`PoolFullError`) instead of piling up. A task that runs longer than `timeout_ms` has its
  * worker terminated (`worker.terminate()` stops even a tight loop) and fails with
- * `PoolTimeoutError`; the next task gets a fresh worker. Workers are started on demand and
- * unref'd, so an idle pool keeps no process alive.
+ * `PoolTimeoutError`; the next task gets a fresh worker. Workers are started at once
+ * (`prestart`) or on demand, and unref'd, so an idle pool keeps no process alive.
  *
  * Protocol with the entry module: it posts `{ ready: true }` once loaded, then answers each
  * `{ id, task }` with `{ id, ok: true, value }` or `{ id, ok: false, error: { name, message, field? } }`.
@@ -22,6 +22,8 @@ export interface WorkerPoolOptions {
   timeout_ms: number;
   /** Heap limit per worker [MB]. */
   maxHeap_MB?: number;
+  /** Start the workers now instead of on the first task (a worker takes a while to start on a busy host). */
+  prestart?: boolean;
 }
 
 export class PoolFullError extends Error {
@@ -126,6 +128,8 @@ export function createWorkerPool(opts: WorkerPoolOptions) {
     const starting = [...slots].filter((s) => !s.ready).length;
     for (let n = slots.size; n < opts.size && waiting.length > starting; n++) spawn();
   }
+
+  if (opts.prestart) for (let n = 0; n < opts.size; n++) spawn();
 
   return {
     /** Runs one task; rejects with PoolFullError at once when every worker is busy and the queue is full. */
