@@ -1,10 +1,10 @@
-import { credentialChanged } from './auth/credential-cache.ts';
+import { credentialChanged, type AuthChange } from './auth/credential-cache.ts';
 import type { Logger } from 'pino';
 import type { Config } from './config.ts';
 import type { Database } from './db/client.ts';
 import { dummyPasswordHash, hashPassword, randomPassword, verifyPassword } from './auth/passwords.ts';
 import { outboxReader } from './mail/outbox.ts';
-import { signSession } from './auth/session.ts';
+import { newSessionId, SESSION_TTL_S, signSession } from './auth/session.ts';
 import { alarmRepository } from './repositories/alarm.repository.ts';
 import { auditRepository } from './repositories/audit.repository.ts';
 import { balanceRepository } from './repositories/balance.repository.ts';
@@ -17,7 +17,7 @@ import { labRepository } from './repositories/lab.repository.ts';
 import { plantRepository } from './repositories/plant.repository.ts';
 import { seriesRepository } from './repositories/series.repository.ts';
 import { settingsRepository } from './repositories/settings.repository.ts';
-import { tokenRepository, userRepository } from './repositories/user.repository.ts';
+import { sessionRepository, tokenRepository, userRepository } from './repositories/user.repository.ts';
 import { createAlarmService } from './services/alarm.service.ts';
 import { createAuditLog } from './services/audit.service.ts';
 import { createStreamService, streamHub } from './services/stream.service.ts';
@@ -61,6 +61,7 @@ function compose(ctx: AppContext) {
     audit: auditRepository(db),
     users: userRepository(db),
     tokens: tokenRepository(db),
+    sessions: sessionRepository(db),
     plants: plantRepository(db, pool),
     settings: settingsRepository(db),
     series: seriesRepository(pool),
@@ -76,14 +77,19 @@ function compose(ctx: AppContext) {
   };
   const audit = createAuditLog({ auditRepo: repos.audit });
   const plantAccess = createPlantAccess({ plantRepo: repos.plants });
+  const credentialsChanged = (c: AuthChange) => credentialChanged(ctx, c);
   const services = {
     audit,
     auth: createAuthService({
       userRepo: repos.users,
+      sessionRepo: repos.sessions,
       audit,
       clock,
       passwords: { verify: verifyPassword, dummyHash: dummyPasswordHash },
-      signSession: (userId) => signSession(ctx.sessionKey, userId),
+      newSessionId,
+      signSession: (userId, sessionId) => signSession(ctx.sessionKey, userId, sessionId),
+      sessionTtl_s: SESSION_TTL_S,
+      credentialsChanged,
     }),
     bootstrap: createBootstrapService({
       userRepo: repos.users,
@@ -91,8 +97,8 @@ function compose(ctx: AppContext) {
       passwords: { hash: hashPassword, random: randomPassword },
       admin: { email: ctx.config.adminEmail, password: ctx.config.adminPassword },
     }),
-    users: createUserService({ userRepo: repos.users, audit, hashPassword, credentialsChanged: (c) => credentialChanged(ctx, c) }),
-    tokens: createTokenService({ tokenRepo: repos.tokens, audit, clock, credentialsChanged: (c) => credentialChanged(ctx, c) }),
+    users: createUserService({ userRepo: repos.users, sessionRepo: repos.sessions, audit, hashPassword, credentialsChanged }),
+    tokens: createTokenService({ tokenRepo: repos.tokens, audit, clock, credentialsChanged }),
     settings: createSettingsService({ settingsRepo: repos.settings, plantRepo: repos.plants, audit }),
     plantAccess,
     plantSeed: createPlantSeedService({ seedRepo: repos.plantSeed, audit }),

@@ -25,6 +25,30 @@ const envSchema = z.object({
   SMTP_URL: z.url().optional(),
   LOG_LEVEL: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
   NODE_ENV: z.string().default('production'),
+  FLOCSTREAM_TRUST_PROXY: z
+    .string()
+    .regex(/^(\d+|[\w.:/]+(\s*,\s*[\w.:/]+)*)$/, 'a hop count, or a comma-separated list of addresses, subnets or loopback/linklocal/uniquelocal')
+    .optional(),
+  FLOCSTREAM_ALLOWED_ORIGINS: z
+    .string()
+    .transform((s, c) => {
+      const out: string[] = [];
+      for (const part of s.split(',').map((p) => p.trim()).filter(Boolean)) {
+        let u: URL | null = null;
+        try {
+          u = new URL(part);
+        } catch {
+          u = null;
+        }
+        if (!u || (u.protocol !== 'http:' && u.protocol !== 'https:') || u.origin !== part.replace(/\/$/, '')) {
+          c.addIssue({ code: 'custom', message: `${part} is not an origin (scheme://host[:port], nothing after)` });
+          return z.NEVER;
+        }
+        out.push(u.origin);
+      }
+      return out;
+    })
+    .optional(),
 });
 
 export type Config = {
@@ -46,6 +70,13 @@ export type Config = {
   smtpUrl: string | undefined;
   logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
   secureCookies: boolean;
+  /**
+   * Express's `trust proxy` (whose X-Forwarded-For and X-Forwarded-Proto to believe): off unless
+   * set, so a client cannot choose the address the sign-in throttle and the audit log see.
+   */
+  trustProxy: number | string | false;
+  /** Origins besides the request's own whose cookie-authenticated writes are accepted (server/auth/csrf.ts). */
+  allowedOrigins: string[];
 };
 
 export class ConfigError extends Error {}
@@ -77,5 +108,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     logLevel: e.LOG_LEVEL,
     // The product binds to 127.0.0.1 over plain HTTP by default; behind TLS set NODE_ENV=production-tls.
     secureCookies: e.NODE_ENV === 'production-tls',
+    trustProxy: e.FLOCSTREAM_TRUST_PROXY === undefined ? false : /^\d+$/.test(e.FLOCSTREAM_TRUST_PROXY) ? Number(e.FLOCSTREAM_TRUST_PROXY) : e.FLOCSTREAM_TRUST_PROXY,
+    allowedOrigins: e.FLOCSTREAM_ALLOWED_ORIGINS ?? [],
   };
 }
