@@ -34,12 +34,7 @@ const envSchema = z.object({
     .transform((s, c) => {
       const out: string[] = [];
       for (const part of s.split(',').map((p) => p.trim()).filter(Boolean)) {
-        let u: URL | null = null;
-        try {
-          u = new URL(part);
-        } catch {
-          u = null;
-        }
+        const u = URL.canParse(part) ? new URL(part) : null;
         if (!u || (u.protocol !== 'http:' && u.protocol !== 'https:') || u.origin !== part.replace(/\/$/, '')) {
           c.addIssue({ code: 'custom', message: `${part} is not an origin (scheme://host[:port], nothing after)` });
           return z.NEVER;

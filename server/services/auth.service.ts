@@ -52,7 +52,7 @@ export function createAuthService({ userRepo, sessionRepo, audit, clock, passwor
         throw tooMany(i.wait_s);
       }
       let user;
-      let ok = false;
+      let ok: boolean;
       try {
         user = await userRepo.byEmail(email);
         ok = await passwords.verify(user?.passwordHash ?? (await passwords.dummyHash()), password);

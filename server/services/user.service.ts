@@ -38,6 +38,10 @@ export function createUserService({ userRepo, sessionRepo, audit, hashPassword, 
     async update(principal: Actor, id: number, body: UpdateUserRequest): Promise<UserOut> {
       const before = await userRepo.byId(id);
       if (!before) throw new NotFoundError(`no user ${id}`);
+      // Signed-in sessions end when what they were granted on changes: the password (a session
+      // opened by whoever knew the old one), the role, or the account being disabled. Open streams
+      // of the user close on the announcement below (server/http/sse.ts).
+      const endsSessions = body.password !== undefined || (body.role !== undefined && body.role !== before.role) || (body.disabled === true && !before.disabled);
       const losesAdmin = before.role === 'admin' && !before.disabled && ((body.role && body.role !== 'admin') || body.disabled === true);
       if (losesAdmin && (await userRepo.countActiveAdmins()) <= 1) throw new ConflictError('this is the last active admin; make another admin first');
       const row = await userRepo.update(id, {
@@ -46,10 +50,6 @@ export function createUserService({ userRepo, sessionRepo, audit, hashPassword, 
         ...(body.disabled !== undefined ? { disabled: body.disabled } : {}),
         ...(body.password !== undefined ? { passwordHash: await hashPassword(body.password) } : {}),
       });
-      // Signed-in sessions end when what they were granted on changes: the password (a session
-      // opened by whoever knew the old one), the role, or the account being disabled. Open streams
-      // of the user close on the announcement below (server/http/sse.ts).
-      const endsSessions = body.password !== undefined || (body.role !== undefined && body.role !== before.role) || (body.disabled === true && !before.disabled);
       const ended = endsSessions ? await sessionRepo.revokeAllForUser(id) : 0;
       await credentialsChanged({ userId: id });
       await audit.record(principal, 'user.update', `user:${id}`, { fields: Object.keys(body), ...(endsSessions ? { sessionsEnded: ended } : {}) });

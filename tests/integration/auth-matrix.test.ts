@@ -133,7 +133,7 @@ describe('role matrix over every /api/v1 route', () => {
     const cookie = String(r.headers['set-cookie']);
     expect(cookie).toMatch(/HttpOnly/);
     expect(cookie).toMatch(/SameSite=Strict/);
-    const out = await request(h.app).post('/api/v1/auth/logout').set('Cookie', cookie.split(';')[0]!);
+    const out = await request(h.app).post('/api/v1/auth/logout').set('Cookie', cookie.split(';')[0]!).set('Sec-Fetch-Site', 'same-origin');
     expect(String(out.headers['set-cookie'])).toMatch(/flocstream_session=;/);
     const forged = await request(h.app).get('/api/v1/auth/me').set('Cookie', 'flocstream_session=eyJhbGciOiJIUzI1NiJ9.eyJzdWIiOiIxIn0.AAAA');
     expect(forged.status).toBe(401);
