@@ -1,4 +1,4 @@
-import { and, asc, count, eq, gt, isNull } from 'drizzle-orm';
+import { and, asc, count, eq, gt, isNull, lt } from 'drizzle-orm';
 import type { Role } from '../../shared/contracts/roles.ts';
 import type { Db } from '../db/client.ts';
 import { apiTokens, sessions, users } from '../db/schema/index.ts';
@@ -98,7 +98,10 @@ export function tokenRepository(db: Db) {
 /** Server-side sessions (server/db/schema/auth.ts `sessions`). */
 export function sessionRepository(db: Db) {
   return {
+    /** Stores a new session; the user's sessions that ended over a week ago go (the table stays small; the audit log keeps the sign-ins). */
     async insert(s: { id: string; userId: number; expiresAt: Date; userAgent: string | null; ip: string | null }): Promise<void> {
+      const weekAgo = new Date(Date.now() - 7 * 86_400_000);
+      await db.delete(sessions).where(and(eq(sessions.userId, s.userId), lt(sessions.expiresAt, weekAgo)));
       await db.insert(sessions).values(s);
     },
     /** The session and its user, whatever their state (the caller judges revoked, expired, disabled). */
