@@ -1,4 +1,4 @@
-import { and, asc, count, eq, gt, isNull, lt } from 'drizzle-orm';
+import { and, asc, count, eq, isNull, lt } from 'drizzle-orm';
 import type { Role } from '../../shared/contracts/roles.ts';
 import type { Db } from '../db/client.ts';
 import { apiTokens, sessions, users } from '../db/schema/index.ts';
@@ -126,13 +126,6 @@ export function sessionRepository(db: Db) {
         .where(and(eq(sessions.userId, userId), isNull(sessions.revokedAt)))
         .returning({ id: sessions.id });
       return r.length;
-    },
-    async countOpenForUser(userId: number, now: Date): Promise<number> {
-      const [r] = await db
-        .select({ n: count() })
-        .from(sessions)
-        .where(and(eq(sessions.userId, userId), isNull(sessions.revokedAt), gt(sessions.expiresAt, now)));
-      return r?.n ?? 0;
     },
     async touch(id: string): Promise<void> {
       await db.update(sessions).set({ lastSeenAt: new Date() }).where(eq(sessions.id, id));
