@@ -9,7 +9,7 @@ import { alarmRepository } from './repositories/alarm.repository.ts';
 import { auditRepository } from './repositories/audit.repository.ts';
 import { balanceRepository } from './repositories/balance.repository.ts';
 import { notificationRepository } from './repositories/notification.repository.ts';
-import { plantSeedRepository } from './repositories/plant-seed.repository.ts';
+import { plantModelRepository } from './repositories/plant-model.repository.ts';
 import { streamRepository } from './repositories/stream.repository.ts';
 import { wiringRepository } from './repositories/wiring.repository.ts';
 import { ingestRepository } from './repositories/ingest.repository.ts';
@@ -25,7 +25,8 @@ import { createAuthService } from './services/auth.service.ts';
 import { createBootstrapService } from './services/bootstrap.service.ts';
 import { createIngestStatusService } from './services/ingest-status.service.ts';
 import { createOutboxService } from './services/outbox.service.ts';
-import { createPlantSeedService } from './services/plant-seed.service.ts';
+import { createPlantConfigService } from './services/plant-config.service.ts';
+import { createPlantModelService } from './services/plant-model.service.ts';
 import { createLabService } from './services/lab.service.ts';
 import { createPlantAccess, createPlantService } from './services/plant.service.ts';
 import { createSeriesService } from './services/series.service.ts';
@@ -72,7 +73,7 @@ function compose(ctx: AppContext) {
     stream: streamRepository(pool),
     balance: balanceRepository(ctx.db),
     notifications: notificationRepository(db),
-    plantSeed: plantSeedRepository(db),
+    plantModel: plantModelRepository(db),
     outbox: outboxReader(db),
   };
   const audit = createAuditLog({ auditRepo: repos.audit });
@@ -101,7 +102,8 @@ function compose(ctx: AppContext) {
     tokens: createTokenService({ tokenRepo: repos.tokens, audit, clock, credentialsChanged }),
     settings: createSettingsService({ settingsRepo: repos.settings, plantRepo: repos.plants, audit }),
     plantAccess,
-    plantSeed: createPlantSeedService({ seedRepo: repos.plantSeed, audit }),
+    plantModel: createPlantModelService({ modelRepo: repos.plantModel, clock }),
+    plantConfig: createPlantConfigService({ modelRepo: repos.plantModel, clock }),
     ingestStatus: createIngestStatusService({ ingest: repos.ingest, wiring: repos.wiring, clock }),
     outbox: createOutboxService({ outbox: repos.outbox }),
     plants: createPlantService({ plantRepo: repos.plants, plantAccess, clock }),

@@ -20,6 +20,7 @@ import { calcRoutes } from './routes/calc.routes.ts';
 import { labRoutes } from './routes/lab.routes.ts';
 import { alarmsRoutes } from './routes/alarms.routes.ts';
 import { outboxRoutes } from './routes/outbox.routes.ts';
+import { plantModelRoutes } from './routes/plant-model.routes.ts';
 import { plantsRoutes } from './routes/plants.routes.ts';
 import { settingsRoutes } from './routes/settings.routes.ts';
 import { streamRoutes } from './routes/stream.routes.ts';
@@ -39,6 +40,7 @@ export function apiRoutes(ctx: AppContext): RouteDef[] {
   defs.push(...outboxRoutes(ctx));
   defs.push(...wiringRoutes(ctx));
   defs.push(...ingestStatusRoutes(ctx));
+  defs.push(...plantModelRoutes(ctx));
   const doc = () => buildOpenApi(defs, VERSION);
   let cached: object | undefined;
   defs.push(

@@ -84,7 +84,7 @@ export function createIngestStatusService(deps: IngestStatusDeps) {
         startedAt: r.startedAt.toISOString(),
         samplesPerSec: statuses.length ? sum((s) => s.samplesPerSec) : null,
         lagMs: statuses.length ? Math.max(...statuses.map((s) => s.lagMs)) : null,
-        spool: statuses.length ? { bytes: sum((s) => s.spool.bytes), files: sum((s) => s.spool.files) } : null,
+        spool: statuses.length ? { bytes: sum((s) => s.spool.bytes), files: sum((s) => s.spool.files), unreadable: statuses.flatMap((s) => s.spool.unreadable), capReached: statuses.some((s) => s.spool.capReached) } : null,
         writer: latest.status?.writer ?? null,
         loadError: statuses.find((s) => s.loadError)?.loadError ?? null,
         sources: statuses.flatMap((s) => s.sources),
