@@ -23,6 +23,7 @@ const envSchema = z.object({
   FLOCSTREAM_SIM_SPEED: z.coerce.number().min(1).max(3600).optional(),
   REDIS_URL: z.url().optional(),
   SMTP_URL: z.url().optional(),
+  FLOCSTREAM_MAIL_CATCHER_PORT: port.optional(),
   LOG_LEVEL: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
   NODE_ENV: z.string().default('production'),
   FLOCSTREAM_TRUST_PROXY: z
@@ -63,6 +64,8 @@ export type Config = {
   simSpeed: number | undefined;
   redisUrl: string | undefined;
   smtpUrl: string | undefined;
+  /** Port of the built-in SMTP catcher; undefined: the global setting mail.catcher_port. */
+  mailCatcherPort: number | undefined;
   logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
   secureCookies: boolean;
   /**
@@ -98,6 +101,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     simOpcuaPort: e.FLOCSTREAM_SIM_OPCUA_PORT,
     simScenario: e.FLOCSTREAM_SIM_SCENARIO,
     simSpeed: e.FLOCSTREAM_SIM_SPEED,
+    mailCatcherPort: e.FLOCSTREAM_MAIL_CATCHER_PORT,
     redisUrl: e.REDIS_URL,
     smtpUrl: e.SMTP_URL,
     logLevel: e.LOG_LEVEL,
