@@ -12,7 +12,8 @@ import type { Config } from '../server/config.ts';
 import { labResults } from '../server/db/schema/index.ts';
 import { demoCredentials, startServer, type RunningServer } from '../server/main.ts';
 import { labRow } from '../server/services/lab.service.ts';
-import { seedPlant, updateSeedEndpoints } from '../server/services/plant-seed.service.ts';
+import { services } from '../server/app-context.ts';
+import { DEMO_SOURCE_NAMES, kestrelBendConfig } from '../simulators/plant/kestrel-bend.config.ts';
 import { labResultInput } from '../shared/contracts/lab.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
 import { spawnTs, waitForLine, type Child } from './children.ts';
@@ -104,9 +105,13 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
   const server = await startServer(config, { say });
   if (!config.demo) return server;
   try {
+    // The demo plant's configuration document goes through the service behind POST
+    // /api/v1/plants; an existing plant with its code is left as it is, only its two demo
+    // sources follow this run's ports.
     const ep = { mqttUrl, opcuaUrl: opcuaUrl(config) };
-    const seeded = await seedPlant(server.ctx, DEMO_PLANT, ep);
-    if (!seeded.created) await updateSeedEndpoints(server.ctx, seeded.plantId, DEMO_PLANT.code, ep);
+    const { plantConfig } = services(server.ctx);
+    const seeded = await plantConfig.ensure(null, kestrelBendConfig(ep));
+    if (!seeded.created) await plantConfig.setSourceUrls(null, seeded.plantId, { [DEMO_SOURCE_NAMES.mqtt]: ep.mqttUrl, [DEMO_SOURCE_NAMES.opcua]: ep.opcuaUrl });
     say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
     if (seeded.created) {
       // The settleability test is a lab entry, not a tag: the demo starts with one diluted

@@ -44,7 +44,7 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
     // The balance engine (repeatable jobs, alarms, mail catcher) unless told not to (jobs: false).
     if (opts.jobs !== false) {
       // An ephemeral HTTP port (tests) gets an ephemeral catcher port too, so runs never collide.
-      engine = await startBalanceEngine(ctx, { databaseUrl, ...(config.port === 0 ? { catcherPort: 0 } : {}) });
+      engine = await startBalanceEngine(ctx, { databaseUrl, ...(config.mailCatcherPort !== undefined ? { catcherPort: config.mailCatcherPort } : config.port === 0 ? { catcherPort: 0 } : {}) });
       if (engine.catcherUrl) say(`mail catcher at ${engine.catcherUrl} (admins read it at /api/v1/outbox)`);
     }
     const app = createApp(ctx);

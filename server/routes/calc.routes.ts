@@ -1,5 +1,7 @@
 import type { z } from 'zod';
 import {
+  dynamicSrtRequest,
+  dynamicSrtResponse,
   settlerRequest,
   settlerResponse,
   srtRequest,
@@ -8,10 +10,12 @@ import {
   statePointResponse,
   stormRequest,
   stormResponse,
+  stormTimelineRequest,
+  stormTimelineResponse,
   sviRequest,
   sviResponse,
 } from '../../shared/contracts/calc.ts';
-import { calcSrt, calcStatePoint, calcStorm, calcSvi } from '../../shared/domain/calculators.ts';
+import { calcDynamicSrt, calcSrt, calcStatePoint, calcStorm, calcStormTimeline, calcSvi } from '../../shared/domain/calculators.ts';
 import { services, type AppContext } from '../app-context.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
 
@@ -39,5 +43,7 @@ export function calcRoutes(ctx: AppContext): RouteDef[] {
     calc('settler', 'Layered 1-D settler steady state (Takács double-exponential settling, BSM1 defaults)', settlerRequest, settlerResponse, (b) => offThread.run('settler', b)),
     calc('srt', 'Sludge age (total and aeration-only) and the WAS flow for a target SRT', srtRequest, srtResponse, calcSrt),
     calc('svi', 'Settleability index: SVI, DSVI (diluted) or SSVI', sviRequest, sviResponse, calcSvi),
+    calc('storm-timeline', 'Storm projection in time over a hydrograph: basin MLSS, clarifier mass, blanket against the depth, checks with the time they first fail', stormTimelineRequest, stormTimelineResponse, calcStormTimeline),
+    calc('dynamic-srt', 'Dynamic SRT of a series: the age balance d(M·θ)/dt = M − W·θ, inputs linear between points', dynamicSrtRequest, dynamicSrtResponse, calcDynamicSrt),
   ];
 }

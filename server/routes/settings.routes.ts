@@ -1,6 +1,8 @@
 import { putSettingsRequest, settingsOut, settingsQuery } from '../../shared/contracts/settings.ts';
 import { services, type AppContext } from '../app-context.ts';
+import { ForbiddenError } from '../http/errors.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
+import { assertPlantScope } from '../services/plant.service.ts';
 
 export function settingsRoutes(ctx: AppContext): RouteDef[] {
   const svc = services(ctx).settings;
@@ -23,7 +25,11 @@ export function settingsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Set values for a plant (plantId 0 = global); null removes an override; audited',
       body: putSettingsRequest,
       response: settingsOut,
-      handler: ({ body, principal }) => svc.put(principal, body),
+      handler: ({ body, principal }) => {
+        if (body.plantId === 0 && principal.plantIds) throw new ForbiddenError('a plant-scoped token cannot change the global settings');
+        if (body.plantId !== 0) assertPlantScope(principal, body.plantId);
+        return svc.put(principal, body);
+      },
     }),
   ];
 }

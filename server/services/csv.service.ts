@@ -15,6 +15,9 @@
 
 import { parse as parseStream, type Options } from 'csv-parse';
 import { parse as parseSync } from 'csv-parse/sync';
+import type { SamplePoint } from '../../shared/contracts/plant-api.ts';
+import type { UnitSystem } from '../../shared/contracts/plant-model.ts';
+import { displayUnit, quantityOfField, quantityOfSiUnit } from '../../shared/domain/unit-systems.ts';
 
 export type CsvCell = string | number | boolean | null | undefined | Date;
 
@@ -221,4 +224,43 @@ export function csvHeaderProblem(cols: readonly string[], allowed: readonly stri
   const d = [...duplicate];
   const parts = [u.length ? `unknown column(s) ${list(u)}` : '', d.length ? `duplicate column(s) ${list(d)}` : '', missing.length ? `missing column(s) ${list(missing)}` : ''].filter(Boolean);
   return { unknown: u, duplicate: d, missing, message: parts.length ? parts.join('; ') : null };
+}
+
+/** A header cell with its unit: `value [gpm]`; a unit-less column keeps its name. */
+export function withUnit(name: string, unit: string | null): string {
+  return unit ? `${name} [${unit}]` : name;
+}
+
+/**
+ * Tag history as CSV cells in the plant's display units: value, min and max converted from the
+ * tag's SI unit when the plant shows US customary units (shared/domain/unit-systems.ts), the
+ * unit written in their headers. A unit with no counterpart (state, %, mL/g) is left as stored.
+ */
+export function sampleCsv(points: readonly SamplePoint[], tagUnit: string, system: UnitSystem): { columns: string[]; cells: CsvCell[][] } {
+  const q = quantityOfSiUnit(tagUnit);
+  const du = q ? displayUnit(system, q) : null;
+  const conv = (v: number | null | undefined) => (v === null || v === undefined || !du ? v : du.fromSi(v));
+  const unit = du?.unit ?? tagUnit;
+  return {
+    columns: ['ts', withUnit('value', unit), withUnit('min', unit), withUnit('max', unit), 'count', 'quality', 'flags'],
+    cells: points.map((p) => [p.ts, conv(p.value), conv(p.min), conv(p.max), p.count, p.quality, p.flags?.join(';')]),
+  };
+}
+
+/**
+ * Flattened balance columns in the plant's display units: a column whose name (or, for a
+ * figure's `.value`, whose parent) carries an SI suffix (`mass_kg`, `influent_m3h`) is
+ * converted and its header names the display unit; other columns are unchanged.
+ */
+export function displayColumns(flat: { columns: string[]; cells: CsvCell[][] }, system: UnitSystem): { columns: string[]; cells: CsvCell[][] } {
+  const conv = flat.columns.map((c) => {
+    const parts = c.split('.');
+    const field = parts[parts.length - 1] === 'value' && parts.length > 1 ? parts[parts.length - 2]! : parts[parts.length - 1]!;
+    const q = quantityOfField(field);
+    return q ? displayUnit(system, q) : null;
+  });
+  return {
+    columns: flat.columns.map((c, i) => withUnit(c, conv[i]?.unit ?? null)),
+    cells: flat.cells.map((row) => row.map((v, i) => (typeof v === 'number' && conv[i] ? conv[i]!.fromSi(v) : v))),
+  };
 }

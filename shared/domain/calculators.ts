@@ -5,6 +5,10 @@
  * calls the same domain functions, so the calculators and the monitor cannot disagree.
  */
 import type {
+  StormTimelineRequest,
+  StormTimelineResponse,
+  DynamicSrtRequest,
+  DynamicSrtResponse,
   SettlerRequest,
   SettlerResponse,
   SrtRequest,
@@ -23,13 +27,16 @@ import { minRecycleRatio } from './ras-margin.js';
 import { blanketHeight_m, BSM1_SETTLER, BSM1_TAKACS, solveSettlerSteadyState, type SettlerBudget, type SettlerConfig } from './settler.js';
 import { settleabilityIndex } from './settleability.js';
 import { vesilindFromIndex } from './settling.js';
-import { srt, wasFlowForTargetSrt_m3h } from './srt.js';
+import { OPERATOR_CAUTION } from '../contracts/balance.js';
+import { dynamicSrt, srt, wasFlowForTargetSrt_m3h } from './srt.js';
 import { statePoint } from './state-point.js';
 import { stormProjection } from './storm.js';
+import { stormTimeline } from './storm-timeline.js';
 
-function summary(...figs: QualityInfo[]): { quality: 'good' | 'estimated' | 'unavailable'; reasons: string[] } {
+/** Quality and reasons of a response (the worst over its figures), with the advisory caution every answer carries. */
+function summary(...figs: QualityInfo[]): { caution: string; quality: 'good' | 'estimated' | 'unavailable'; reasons: string[] } {
   const c = combineQuality(...figs);
-  return { quality: c.quality, reasons: c.reasons };
+  return { caution: OPERATOR_CAUTION, quality: c.quality, reasons: c.reasons };
 }
 
 /**
@@ -132,7 +139,7 @@ export function calcSettler(req: SettlerRequest, budget?: SettlerBudget): Settle
 export function calcSrt(req: SrtRequest): SrtResponse {
   const s = srt(req);
   const figs: QualityInfo[] = [s.total_d, s.aeration_d];
-  const out: SrtResponse = { srtTotal_d: s.total_d.value, srtAeration_d: s.aeration_d.value, quality: 'good', reasons: [] };
+  const out: SrtResponse = { srtTotal_d: s.total_d.value, srtAeration_d: s.aeration_d.value, caution: OPERATOR_CAUTION, quality: 'good', reasons: [] };
   if (req.targetSrt_d !== undefined) {
     const w = wasFlowForTargetSrt_m3h(req.aerationMass_kg + req.clarifierMass_kg, req.targetSrt_d, req.effluentFlow_m3h, req.effluentTss_gL, req.wasTss_gL);
     out.wasFlowForTarget_m3h = w.value;
@@ -152,3 +159,37 @@ export function calcSvi(req: SviRequest): SviResponse {
   return { svi_mLg: r.value.svi_mLg, kind: r.value.kind, ...summary(r) };
 }
 
+
+/**
+ * Dynamic SRT calculator: the age balance d(M·θ)/dt = M − W·θ (see {@link dynamicSrt}; after
+ * Takács et al. 2008 [M]) over the analyst's own series, inputs linear between points, from the
+ * given initial age. One age per point, in days.
+ */
+export function calcDynamicSrt(req: DynamicSrtRequest): DynamicSrtResponse {
+  const r = dynamicSrt(
+    req.points.map((p) => ({ ts_ms: p.t_h * 3_600_000, mass_kg: p.inventory_kg, removal_kgh: p.wasted_kgh })),
+    req.initialSrt_d,
+  );
+  return { srt_d: r.value?.map((p) => p.srt_d) ?? [], ...summary(r) };
+}
+
+/**
+ * Storm timeline calculator (see storm-timeline.ts): the basin/clarifier exchange over the
+ * hydrograph, X_R,max by the rule factor/SVI [CP], with the equilibrium MLSS at stormFlow_m3h
+ * (stormProjection) beside it for comparison.
+ */
+export function calcStormTimeline(req: StormTimelineRequest): StormTimelineResponse {
+  const r = stormTimeline(req);
+  const eq = stormProjection(req);
+  const v = r.value;
+  return {
+    points: v?.points ?? [],
+    peakBlanket_m: v?.peakBlanket_m ?? null,
+    blanketReachesSurface_h: v?.blanketReachesSurface_h ?? null,
+    firstFailure_h: v?.firstFailure_h ?? null,
+    rasConcMax_gL: v?.rasConcMax_gL ?? null,
+    equilibriumMlss_gL: eq.value?.equilibriumMlss_gL ?? null,
+    checks: v?.checks ?? [],
+    ...summary(r, eq),
+  };
+}

@@ -124,6 +124,22 @@ describe('role matrix over every /api/v1 route', () => {
     expect(await snapshotB(), 'plant B unchanged').toBe(before);
   });
 
+  it('plant scope: a token scoped to one plant gets 403 on every plant route of another plant', async () => {
+    const own = await h.ctx.db.pool.query(`INSERT INTO plants (code, name) VALUES ('scope-own', 'Own') RETURNING id`);
+    const other = await h.ctx.db.pool.query(`INSERT INTO plants (code, name) VALUES ('scope-other', 'Other') RETURNING id`);
+    const made = await agents.admin.post('/api/v1/tokens').send({ name: 'scoped', role: 'admin', expiresInDays: 1, plantIds: [own.rows[0].id] });
+    expect(made.status).toBe(201);
+    // GET and DELETE carry no body, so nothing but the scope can refuse them; the other plant exists.
+    const defs = apiRoutes(h.ctx).filter((d) => d.path.includes(':plantId') && (d.method === 'get' || d.method === 'delete') && d.produces !== 'text/event-stream');
+    expect(defs.length).toBeGreaterThan(5);
+    for (const d of defs) {
+      const url = `/api/v1${d.path.replace(':plantId', String(other.rows[0].id)).replace(/:[A-Za-z_]+/g, '999999')}`;
+      const r = await request(h.app)[d.method](url).set('Authorization', `Bearer ${made.body.token}`);
+      expect(r.status, `${d.method} ${d.path} with a token scoped to another plant`).toBe(403);
+    }
+    expect((await request(h.app).get(`/api/v1/settings?plantId=${other.rows[0].id}`).set('Authorization', `Bearer ${made.body.token}`)).status).toBe(403);
+  });
+
   it('route groups give their designed 2xx to the roles allowed', async () => {
     for (const role of ROLES) {
       expect((await agents[role].get('/api/v1/auth/me')).status).toBe(200);
@@ -221,7 +237,7 @@ describe('role matrix over every /api/v1 route', () => {
     const cookie = String(r.headers['set-cookie']);
     expect(cookie).toMatch(/HttpOnly/);
     expect(cookie).toMatch(/SameSite=Strict/);
-    const out = await request(h.app).post('/api/v1/auth/logout').set('Cookie', cookie.split(';')[0]!);
+    const out = await request(h.app).post('/api/v1/auth/logout').set('Cookie', cookie.split(';')[0]!).set('Sec-Fetch-Site', 'same-origin');
     expect(String(out.headers['set-cookie'])).toMatch(/flocstream_session=;/);
     const forged = await request(h.app).get('/api/v1/auth/me').set('Cookie', 'flocstream_session=eyJhbGciOiJIUzI1NiJ9.eyJzdWIiOiIxIn0.AAAA');
     expect(forged.status).toBe(401);

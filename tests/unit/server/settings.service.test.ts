@@ -25,7 +25,7 @@ function fakeSettingsRepo(initial: Row[] = []) {
 }
 const plantRepo = {
   async byId(id: number): Promise<PlantRow | undefined> {
-    return id === 1 ? { id: 1, code: 'kb', name: 'Kestrel Bend', timezone: 'UTC', peakFlow_m3h: null, createdAt: new Date(0) } : undefined;
+    return id === 1 ? { id: 1, code: 'kb', name: 'Kestrel Bend', timezone: 'UTC', peakFlow_m3h: null, unitSystem: 'SI', retiredAt: null, createdAt: new Date(0) } : undefined;
   },
 };
 
