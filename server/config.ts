@@ -25,6 +25,11 @@ const envSchema = z.object({
   SMTP_URL: z.url().optional(),
   LOG_LEVEL: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
   NODE_ENV: z.string().default('production'),
+  /** The embedded broker closes a connection that sends a larger MQTT packet (server/broker/packet-limit.ts). */
+  FLOCSTREAM_MQTT_MAX_PACKET_BYTES: z.coerce.number().int().min(1024).max(256 * 1024 * 1024).default(1024 * 1024),
+  /** With DATABASE_URL (the owner, for migrations): the API's and ingest's own roles (server/db/roles.ts). */
+  FLOCSTREAM_API_DATABASE_URL: z.url().optional(),
+  INGEST_DATABASE_URL: z.url().optional(),
 });
 
 export type Config = {
@@ -46,6 +51,9 @@ export type Config = {
   smtpUrl: string | undefined;
   logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
   secureCookies: boolean;
+  mqttMaxPacketBytes: number;
+  apiDatabaseUrl: string | undefined;
+  ingestDatabaseUrl: string | undefined;
 };
 
 export class ConfigError extends Error {}
@@ -77,5 +85,8 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     logLevel: e.LOG_LEVEL,
     // The product binds to 127.0.0.1 over plain HTTP by default; behind TLS set NODE_ENV=production-tls.
     secureCookies: e.NODE_ENV === 'production-tls',
+    mqttMaxPacketBytes: e.FLOCSTREAM_MQTT_MAX_PACKET_BYTES,
+    apiDatabaseUrl: e.FLOCSTREAM_API_DATABASE_URL,
+    ingestDatabaseUrl: e.INGEST_DATABASE_URL,
   };
 }
