@@ -57,7 +57,8 @@ const ident = (s: string) => `"${s.replace(/"/g, '""')}"`;
 /**
  * Run as the owner after the migrations, every start (so tables of later migrations are covered):
  * the API may read and write every table of `public` but not create, alter or drop one (it owns
- * only the job queue's schema, whose tables BullMQ creates and alters at run time); ingest gets
+ * only the job queue's schema, whose tables BullMQ creates and alters at run time, and may create
+ * schemas of its own); ingest gets
  * INGEST_TABLE_GRANTS only. `ALTER DEFAULT PRIVILEGES` gives the API the tables the owner creates
  * later even before this step runs again. Idempotent.
  */
@@ -69,7 +70,12 @@ export async function grantRuntimeRoles(ownerUrl: string, roles: RuntimeRoles): 
   try {
     await client.query('SELECT pg_advisory_lock(7317001)');
     const q = (sql: string) => client.query(sql);
-    await q(`GRANT CONNECT, TEMPORARY ON DATABASE ${ident((await q('SELECT current_database() AS d')).rows[0].d as string)} TO ${api}, ${ingest}`);
+    const dbName = ident((await q('SELECT current_database() AS d')).rows[0].d as string);
+    await q(`GRANT CONNECT, TEMPORARY ON DATABASE ${dbName} TO ${api}, ${ingest}`);
+    // BullMQ's migrator runs CREATE SCHEMA IF NOT EXISTS, which PostgreSQL checks against the
+    // database's CREATE privilege even when the schema exists. CREATE on a database allows new
+    // schemas only: nothing in public can be altered or dropped with it.
+    await q(`GRANT CREATE ON DATABASE ${dbName} TO ${api}`);
     await q(`GRANT USAGE ON SCHEMA public TO ${api}, ${ingest}`);
     await q(`GRANT SELECT, INSERT, UPDATE, DELETE ON ALL TABLES IN SCHEMA public TO ${api}`);
     await q(`GRANT USAGE, SELECT, UPDATE ON ALL SEQUENCES IN SCHEMA public TO ${api}`);
