@@ -6,13 +6,13 @@
  */
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { and, eq, sql } from 'drizzle-orm';
+import { and, eq } from 'drizzle-orm';
 import { INGEST_NODE_ARGS } from '../ingest/config.ts';
-import type { AppContext } from '../server/app-context.ts';
+import { repositories, type AppContext } from '../server/app-context.ts';
 import { ensureBrokerCredentials, INGEST_USER, SIMULATOR_USER, simulatorPasswordFile } from '../server/broker/broker-users.ts';
 import { BROKER_NODE_ARGS, BROKER_READY } from '../server/broker/process.ts';
 import type { Config } from '../server/config.ts';
-import { alarms, labResults, plants, sources } from '../server/db/schema/index.ts';
+import { labResults, plants, sources } from '../server/db/schema/index.ts';
 import { demoCredentials, startServer, type RunningServer } from '../server/main.ts';
 import { toAlarmOut } from '../server/services/alarm.service.ts';
 import { labRow } from '../server/services/lab.service.ts';
@@ -137,15 +137,13 @@ export async function startBroker(l: Launcher, config: Config): Promise<string> 
  * unacknowledged"), so it stays in the alarm list until an operator acknowledges it.
  */
 export async function raiseProcessAlarm(ctx: AppContext, e: ChildExit): Promise<void> {
-  const db = ctx.db.db;
+  const repos = repositories(ctx);
   const how = e.signal ? `was killed by ${e.signal}` : `exited with code ${e.code}`;
   const message = `The ${e.name} process ${how} after ${Math.round(e.ran_ms / 1000)} s and is restarted in ${e.restartIn_ms / 1000} s (restart ${e.restarts} since start); data may be delayed meanwhile.`;
-  for (const { id } of await db.select({ id: plants.id }).from(plants)) {
-    const [row] = await db
-      .insert(alarms)
-      .values({ plantId: id, rule: 'ingest-down', target: `process:${e.name}`, priority: 1, state: 'raised', message, value: null, limit: null, raisedAt: new Date() })
-      .returning();
-    if (row) await db.execute(sql`SELECT pg_notify('flocstream_stream', ${JSON.stringify({ plantId: id, event: 'alarm', data: { change: 'raised', alarm: toAlarmOut(row) } })})`);
+  for (const { id } of await ctx.db.db.select({ id: plants.id }).from(plants)) {
+    // The repository raises at most one open alarm per rule and target: a crash loop is one alarm.
+    const row = await repos.alarms.raise({ plantId: id, rule: 'ingest-down', target: `process:${e.name}`, priority: 1, message, value: null, limit: null, raisedAt: new Date() });
+    if (row) await repos.stream.notify(id, 'alarm', { change: 'raised', alarm: toAlarmOut(row) });
   }
 }
 

@@ -45,8 +45,8 @@ type LogRecord =
   | { k: 'unsub'; c: string; t: string[] }
   | { k: 'clean'; c: string }
   | { k: 'enq'; c: string[]; p: StoredPacket }
-  | { k: 'upd'; c: string; b: string; n: number; m: number | undefined; p?: StoredPacket }
-  | { k: 'clr'; c: string; m: number };
+  | { k: 'upd'; c: string; b: string; n: number; p: StoredPacket }
+  | { k: 'ack'; c: string; b: string; n: number };
 
 /** Rewrite the log once it has grown this much beyond the last snapshot. */
 const COMPACT_BYTES = 64 * 1024 * 1024;
@@ -129,13 +129,11 @@ export class DurablePersistence extends IndexedMemoryPersistence {
       case 'enq':
         for (const c of r.c) this.queue(c).push(revive(r.p));
         return;
-      case 'upd': {
-        const p = r.p ? revive(r.p) : ({ brokerId: r.b, brokerCounter: r.n, messageId: r.m } as AedesPacket & { messageId?: number });
-        this.queue(r.c).update(p);
+      case 'upd':
+        this.queue(r.c).update(revive(r.p));
         return;
-      }
-      case 'clr':
-        this.queues.get(r.c)?.clear(r.m);
+      case 'ack':
+        this.queues.get(r.c)?.remove({ brokerId: r.b, brokerCounter: r.n });
         return;
     }
   }
@@ -229,16 +227,20 @@ export class DurablePersistence extends IndexedMemoryPersistence {
   }
 
   override async outgoingUpdate(client: Client, packet: AedesPacket): Promise<void> {
-    const p = packet as AedesPacket & { messageId?: number };
+    const p = packet as unknown as PublishLike;
     await super.outgoingUpdate(client, packet);
-    // A PUBREL replaces the queued PUBLISH (QoS 2): keep the packet itself.
-    this.log({ k: 'upd', c: client.id, b: p.brokerId, n: p.brokerCounter, m: p.messageId, ...(p.cmd !== 'publish' ? { p: store(p) } : {}) });
+    // A PUBLISH only gets its packet identifier here, which a restarted broker assigns anew when
+    // it resends the queue: not logged (the acknowledgement below names the message by broker id
+    // and counter). A PUBREL replaces the queued PUBLISH (QoS 2): that is logged.
+    if (p.cmd !== 'publish') this.log({ k: 'upd', c: client.id, b: p.brokerId, n: p.brokerCounter, p: store(packet) });
   }
 
   override async outgoingClearMessageId(client: Client, packet: AedesPacket): Promise<AedesPacket> {
-    const id = (packet as AedesPacket & { messageId?: number }).messageId;
     const removed = await super.outgoingClearMessageId(client, packet);
-    if (removed && id !== undefined) this.log({ k: 'clr', c: client.id, m: id });
+    if (removed) {
+      const r = removed as unknown as PublishLike;
+      this.log({ k: 'ack', c: client.id, b: r.brokerId, n: r.brokerCounter });
+    }
     return removed;
   }
 

@@ -178,6 +178,17 @@ export class OutgoingQueue {
     return e;
   }
 
+  /** Removes the queued copy of `p` (same broker id and counter), if any (replaying a durable log). */
+  remove(p: Pick<Queued, 'brokerId' | 'brokerCounter'>): boolean {
+    const s = this.byCounter.get(p as Queued);
+    const e = s === undefined ? undefined : this.entries.get(s);
+    if (s === undefined || !e) return false;
+    this.entries.delete(s);
+    this.byCounter.delete(e, s);
+    this.unindexId(e.messageId, s);
+    return true;
+  }
+
   snapshot(): Queued[] {
     return [...this.entries.values()];
   }
