@@ -16,7 +16,8 @@ import { labResults, plants, sources } from '../server/db/schema/index.ts';
 import { demoCredentials, startServer, type RunningServer } from '../server/main.ts';
 import { toAlarmOut } from '../server/services/alarm.service.ts';
 import { labRow } from '../server/services/lab.service.ts';
-import { seedPlant, updateSeedEndpoints } from '../server/services/plant-seed.service.ts';
+import { services } from '../server/app-context.ts';
+import { DEMO_SOURCE_NAMES, kestrelBendConfig } from '../simulators/plant/kestrel-bend.config.ts';
 import { labResultInput } from '../shared/contracts/lab.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
 import { spawnTs, superviseTs, waitForLine, type Child, type ChildExit, type SupervisedChild } from './children.ts';
@@ -159,9 +160,13 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
   const server = await startServer(config, { say });
   if (!config.demo) return server;
   try {
+    // The demo plant's configuration document goes through the service behind POST
+    // /api/v1/plants; an existing plant with its code is left as it is, only its two demo
+    // sources follow this run's ports.
     const ep = { mqttUrl, opcuaUrl: opcuaUrl(config) };
-    const seeded = await seedPlant(server.ctx, DEMO_PLANT, ep);
-    if (!seeded.created) await updateSeedEndpoints(server.ctx, seeded.plantId, DEMO_PLANT.code, ep);
+    const { plantConfig } = services(server.ctx);
+    const seeded = await plantConfig.ensure(null, kestrelBendConfig(ep));
+    if (!seeded.created) await plantConfig.setSourceUrls(null, seeded.plantId, { [DEMO_SOURCE_NAMES.mqtt]: ep.mqttUrl, [DEMO_SOURCE_NAMES.opcua]: ep.opcuaUrl });
     if (!config.mqttUrl) {
       // The embedded broker admits only its users: ingest reads its password from the demo
       // plant's MQTT source, as it would an external broker's.
@@ -169,7 +174,7 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
       await server.ctx.db.db
         .update(sources)
         .set({ username: INGEST_USER, secret: creds.ingest.password })
-        .where(and(eq(sources.plantId, seeded.plantId), eq(sources.name, `${DEMO_PLANT.code}-mqtt`)));
+        .where(and(eq(sources.plantId, seeded.plantId), eq(sources.name, DEMO_SOURCE_NAMES.mqtt)));
     }
     say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
     if (seeded.created) {

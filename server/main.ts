@@ -39,14 +39,14 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
     const databaseUrl = urls.api;
     await runMigrations(urls.owner);
     if (urls.roles) await grantRuntimeRoles(urls.owner, urls.roles);
-    const db = openDatabase(databaseUrl);
+    const db = openDatabase(databaseUrl, { statementTimeout_ms: config.apiStatementTimeout_ms });
     const ctx: AppContext = { db, config, log, sessionKey: loadSessionKey(config.dataDir, config.sessionSecret) };
     const credentials = await bootstrapUsers(ctx, config.demo);
     if (config.demo) rememberDemoCredentials(config.dataDir, credentials);
     // The balance engine (repeatable jobs, alarms, mail catcher) unless told not to (jobs: false).
     if (opts.jobs !== false) {
       // An ephemeral HTTP port (tests) gets an ephemeral catcher port too, so runs never collide.
-      engine = await startBalanceEngine(ctx, { databaseUrl, ...(config.port === 0 ? { catcherPort: 0 } : {}) });
+      engine = await startBalanceEngine(ctx, { databaseUrl, ...(config.mailCatcherPort !== undefined ? { catcherPort: config.mailCatcherPort } : config.port === 0 ? { catcherPort: 0 } : {}) });
       if (engine.catcherUrl) say(`mail catcher at ${engine.catcherUrl} (admins read it at /api/v1/outbox)`);
     }
     const app = createApp(ctx);

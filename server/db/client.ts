@@ -20,8 +20,20 @@ export interface Database {
 // timestamptz as JS Date (default), bigint counts as numbers (they stay well below 2^53).
 pg.types.setTypeParser(20, (v) => Number(v));
 
-export function openDatabase(url: string, opts: { max?: number } = {}): Database {
-  const pool = new pg.Pool({ connectionString: url, max: opts.max ?? 10, idleTimeoutMillis: 30_000 });
+/**
+ * `statementTimeout_ms` sets PostgreSQL's statement_timeout on every connection of the pool (a
+ * startup parameter, so it holds per connection from the first query): the API's pool gets
+ * `config.apiStatementTimeout_ms`, so no request can hold a connection and the database for
+ * longer; a cancelled statement fails with SQLSTATE 57014. Ingest and migrations open their own
+ * connections and are not bounded by it.
+ */
+export function openDatabase(url: string, opts: { max?: number; statementTimeout_ms?: number } = {}): Database {
+  const pool = new pg.Pool({
+    connectionString: url,
+    max: opts.max ?? 10,
+    idleTimeoutMillis: 30_000,
+    ...(opts.statementTimeout_ms ? { statement_timeout: opts.statementTimeout_ms } : {}),
+  });
   // An idle client losing its connection (database restart) must not crash the process.
   pool.on('error', () => {});
   const db = drizzle(pool, { schema });

@@ -3,7 +3,7 @@ import os from 'node:os';
 import path from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { portInUse } from '../../server/db/local-postgres.ts';
-import { pgRunning, processesMatching, runLauncher } from '../helpers/launcher.ts';
+import { launcherEnv, pgRunning, processesMatching, runLauncher } from '../helpers/launcher.ts';
 
 /**
  * `npm start`'s launcher as a person runs it: start, wait for the banner, press Ctrl-C (SIGINT
@@ -12,17 +12,7 @@ import { pgRunning, processesMatching, runLauncher } from '../helpers/launcher.t
  */
 const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-start-'));
 const base = 20000 + Math.floor(Math.random() * 20000);
-const env: NodeJS.ProcessEnv = {
-  ...process.env,
-  FLOCSTREAM_DATA_DIR: dataDir,
-  PORT: String(base),
-  FLOCSTREAM_PG_PORT: String(base + 1),
-  FLOCSTREAM_MQTT_PORT: String(base + 2),
-  FLOCSTREAM_SIM_OPCUA_PORT: String(base + 3),
-  FLOCSTREAM_ADMIN_EMAIL: 'start-test@kestrel.invalid',
-  FLOCSTREAM_ADMIN_PASSWORD: 'start-test-password',
-};
-delete env.DATABASE_URL;
+const env = launcherEnv(dataDir, base, { FLOCSTREAM_ADMIN_EMAIL: 'start-test@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'start-test-password' });
 
 const leftovers = () => processesMatching([dataDir, `--opcua-port ${base + 3}`, `server/broker/main.ts 127.0.0.1 ${base + 2}`]);
 
