@@ -26,6 +26,11 @@ const envSchema = z.object({
   FLOCSTREAM_MAIL_CATCHER_PORT: port.optional(),
   LOG_LEVEL: z.enum(['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent']).default('info'),
   NODE_ENV: z.string().default('production'),
+  /** The embedded broker closes a connection that sends a larger MQTT packet (server/broker/packet-limit.ts). */
+  FLOCSTREAM_MQTT_MAX_PACKET_BYTES: z.coerce.number().int().min(1024).max(256 * 1024 * 1024).default(1024 * 1024),
+  /** With DATABASE_URL (the owner, for migrations): the API's and ingest's own roles (server/db/roles.ts). */
+  FLOCSTREAM_API_DATABASE_URL: z.url().optional(),
+  INGEST_DATABASE_URL: z.url().optional(),
   FLOCSTREAM_API_STATEMENT_TIMEOUT_MS: z.coerce.number().int().min(100).max(600_000).default(10_000),
   FLOCSTREAM_CALC_WORKERS: z.coerce.number().int().min(1).max(8).default(1),
   FLOCSTREAM_CALC_QUEUE: z.coerce.number().int().min(0).max(1000).default(8),
@@ -74,6 +79,9 @@ export type Config = {
   mailCatcherPort: number | undefined;
   logLevel: z.infer<typeof envSchema>['LOG_LEVEL'];
   secureCookies: boolean;
+  mqttMaxPacketBytes: number;
+  apiDatabaseUrl: string | undefined;
+  ingestDatabaseUrl: string | undefined;
   /** PostgreSQL statement_timeout of every API pool connection (ingest and migrations have their own connections). */
   apiStatementTimeout_ms: number;
   /** Calculator worker pool (server/services/calc.service.ts): workers, waiting requests beyond them (more → 503), time budget handed to the solver, hard timeout that terminates a worker, settler step budget. */
@@ -117,6 +125,9 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     logLevel: e.LOG_LEVEL,
     // The product binds to 127.0.0.1 over plain HTTP by default; behind TLS set NODE_ENV=production-tls.
     secureCookies: e.NODE_ENV === 'production-tls',
+    mqttMaxPacketBytes: e.FLOCSTREAM_MQTT_MAX_PACKET_BYTES,
+    apiDatabaseUrl: e.FLOCSTREAM_API_DATABASE_URL,
+    ingestDatabaseUrl: e.INGEST_DATABASE_URL,
     apiStatementTimeout_ms: e.FLOCSTREAM_API_STATEMENT_TIMEOUT_MS,
     calc: {
       workers: e.FLOCSTREAM_CALC_WORKERS,
