@@ -64,6 +64,13 @@ const envSchema = z.object({
   INGEST_MQTT_ACKS: z.enum(['pipelined', 'serial']).default('pipelined'),
   /** The `debug` package's namespaces; mqtt.js traces each packet only when it names `mqttjs`. */
   DEBUG: z.string().optional(),
+  /** A new spool file is started once the current one holds this many bytes (default 64 MiB). */
+  INGEST_SPOOL_FILE_BYTES: positiveInt.optional(),
+  /**
+   * Spool size cap [bytes] (default 2 GiB): at the cap the writer holds its batch
+   * unacknowledged and sources pause (the broker keeps the rest); status shows `capReached`.
+   */
+  INGEST_SPOOL_MAX_BYTES: positiveInt.optional(),
 });
 
 export interface IngestConfig {
@@ -83,6 +90,9 @@ export interface IngestConfig {
   mqttTrace: boolean;
   /** Undefined: pipelined (the product's); `serial` only for the benchmark's stock reference. */
   mqttAcks?: 'pipelined' | 'serial';
+  /** Undefined: the spool's defaults (ingest/sink/spool.ts). */
+  spoolFileBytes?: number;
+  spoolMaxBytes?: number;
 }
 
 export class IngestConfigError extends Error {}
@@ -108,6 +118,8 @@ export function loadIngestConfig(env: NodeJS.ProcessEnv = process.env): IngestCo
     mqttClientIdPrefix: e.INGEST_MQTT_CLIENT_ID,
     mqttTrace: /mqttjs/.test(e.DEBUG ?? ''),
     ...(e.INGEST_MQTT_ACKS === 'serial' ? { mqttAcks: 'serial' as const } : {}),
+    ...(e.INGEST_SPOOL_FILE_BYTES ? { spoolFileBytes: e.INGEST_SPOOL_FILE_BYTES } : {}),
+    ...(e.INGEST_SPOOL_MAX_BYTES ? { spoolMaxBytes: e.INGEST_SPOOL_MAX_BYTES } : {}),
   };
 }
 

@@ -80,7 +80,7 @@ export class IngestService {
 
   static async start(cfg: IngestConfig, log: Logger): Promise<IngestService> {
     const paths = ingestPaths(cfg.dataDir);
-    const spool = await Spool.open(paths.spoolDir);
+    const spool = await Spool.open(paths.spoolDir, { fileBytes: cfg.spoolFileBytes, maxBytes: cfg.spoolMaxBytes });
     if (!spool.isEmpty) log.info({ files: spool.fileCount, bytes: spool.sizeBytes }, 'spool from a previous run will be replayed');
     // Partition upkeep has a connection of its own: on a writer's it could land inside a batch's transaction.
     const store = new SampleStore(cfg.databaseUrl, { retentionDays: cfg.retentionDays });
@@ -202,7 +202,7 @@ export class IngestService {
     return {
       samplesPerSec: Math.round(this.rate),
       lagMs: this.writer.stats.lastLagMs,
-      spool: { bytes: this.writer.spoolBytes, files: this.writer.spoolFiles },
+      spool: this.writer.spoolStatus,
       writer: { ...this.writer.stats },
       sources: [...this.connectors.values()].map((x) => x.c.status(now)),
       loadError: this.loadError,

@@ -26,6 +26,9 @@ export interface SimulatorOptions {
   seed?: number;
   /** Broker URL; null disables MQTT. Default mqtt://127.0.0.1:18830. */
   mqttUrl?: string | null;
+  /** Broker credentials (the embedded broker's `simulator` user under `npm start`). */
+  mqttUsername?: string;
+  mqttPassword?: string;
   /** OPC UA port; null disables the OPC UA server. Default 48410. */
   opcuaPort?: number | null;
   opcuaHost?: string;
@@ -90,6 +93,7 @@ export async function startSimulator(opts: SimulatorOptions): Promise<RunningSim
         url: mqttUrl,
         plantCode: plant.code,
         batch: opts.batch ?? false,
+        ...(opts.mqttUsername ? { username: opts.mqttUsername, password: opts.mqttPassword ?? '' } : {}),
         ...(opts.mqttReconnectPeriod_ms ? { reconnectPeriod_ms: opts.mqttReconnectPeriod_ms } : {}),
       })
     : null;

@@ -1,3 +1,5 @@
+import { DEAD_LETTER_ADDRESS_MAX, DEAD_LETTER_REASON_MAX, pgText, pgTextOrNull } from './pg-text.ts';
+
 /** One stored sample: tag, epoch milliseconds (UTC), engineering value (null when bad), quality code. */
 export interface Sample {
   tagId: number;
@@ -37,6 +39,14 @@ export const DEAD_LETTER_PAYLOAD_MAX = 4096;
 export function deadLetter(sourceId: number | null, address: string | null, payload: Buffer | string, reason: string, now = Date.now()): DeadLetter {
   const bytes = typeof payload === 'string' ? Buffer.byteLength(payload) : payload.length;
   const head = typeof payload === 'string' ? payload.slice(0, DEAD_LETTER_PAYLOAD_MAX) : payload.subarray(0, DEAD_LETTER_PAYLOAD_MAX).toString('utf8');
-  // PostgreSQL text cannot hold NUL; keep the rest of the bytes readable.
-  return { ts: now, sourceId, address, payload: head.replaceAll('\u0000', '\\0'), payloadBytes: bytes, reason: reason.slice(0, 1000) };
+  // Every text column through pgText: a parse error's message quotes the payload, NUL included,
+  // and a topic may carry anything the broker let through.
+  return {
+    ts: now,
+    sourceId,
+    address: pgTextOrNull(address, DEAD_LETTER_ADDRESS_MAX),
+    payload: pgText(head, DEAD_LETTER_PAYLOAD_MAX),
+    payloadBytes: bytes,
+    reason: pgText(reason, DEAD_LETTER_REASON_MAX),
+  };
 }

@@ -1,7 +1,8 @@
 import type { Logger } from 'pino';
-import type { DeadLetter, Sample } from '../pipeline/types.ts';
-import { isTransientDbError, type SampleStore } from './sample-store.ts';
-import type { Spool, SpoolRecord } from './spool.ts';
+import { DEAD_LETTER_REASON_MAX, pgText } from '../pipeline/pg-text.ts';
+import { DEAD_LETTER_PAYLOAD_MAX, type DeadLetter, type Sample } from '../pipeline/types.ts';
+import { isPermanentRowError, isTransientDbError, type SampleStore } from './sample-store.ts';
+import type { Spool, SpoolRecord, SpoolStatus } from './spool.ts';
 
 /** Called once the items it was enqueued with are committed or durably spooled. */
 export type Ack = () => void;
@@ -23,8 +24,43 @@ export interface WriterStats {
   lastError: string | null;
   /** Receive → commit (or spool) delay of the oldest item of the last flush [ms]. */
   lastLagMs: number;
-  rejectedSpoolFiles: number;
+  /** Samples the database refused one by one (after splitting), stored as dead letters instead. */
+  refusedSamples: number;
+  /** Dead letters the database refused one by one, stored again in a plain form. */
+  refusedDeadLetters: number;
+  /** Single refused rows kept in `spool/rejected/` because even their plain dead letter was refused. */
+  quarantinedRows: number;
+  /** Extra commits made by splitting batches that failed with a permanent (row) error. */
+  splitCommits: number;
+  /** Times a batch was held unacknowledged because the spool was at its size cap. */
+  spoolCapHolds: number;
 }
+
+/** Part of a batch. */
+interface Part {
+  samples: Sample[];
+  deadLetters: DeadLetter[];
+}
+
+/**
+ * A commit that stopped for a reason other than its rows (the database went away): `rest` is
+ * what was not committed yet (the parts a split had already committed are not in it).
+ */
+class NotCommitted extends Error {
+  constructor(
+    override readonly cause: unknown,
+    readonly rest: Part,
+  ) {
+    super((cause as Error)?.message ?? String(cause));
+  }
+}
+
+const causeOf = (err: unknown): unknown => (err instanceof NotCommitted ? err.cause : err);
+
+const codeOf = (err: unknown): string => {
+  const c = (err as { code?: unknown })?.code;
+  return typeof c === 'string' ? `${c}: ` : '';
+};
 
 interface Pending {
   samples: Sample[];
@@ -73,7 +109,11 @@ export class BatchWriter {
     dbState: 'up',
     lastError: null,
     lastLagMs: 0,
-    rejectedSpoolFiles: 0,
+    refusedSamples: 0,
+    refusedDeadLetters: 0,
+    quarantinedRows: 0,
+    splitCommits: 0,
+    spoolCapHolds: 0,
   };
   /** Called after each commit with the samples committed (for rates in the status file). */
   onCommit: ((n: number) => void) | null = null;
@@ -107,6 +147,11 @@ export class BatchWriter {
     return this.spool.fileCount;
   }
 
+  /** The spool as ingest's status reports it; unreadable files and a reached cap are `ingest` alarm conditions. */
+  get spoolStatus(): SpoolStatus {
+    return this.spool.status();
+  }
+
   enqueue(samples: readonly Sample[], deadLetters: readonly DeadLetter[], ack?: Ack): void {
     const p = this.pending;
     if (p.samples.length === 0 && p.deadLetters.length === 0 && p.acks.length === 0) p.since = Date.now();
@@ -125,6 +170,8 @@ export class BatchWriter {
    * Without it a publisher faster than the database grows the process without bound; with it
    * the excess waits in the broker's queue. (The MQTT connector listens; the OPC UA connector
    * does not pause its subscriptions — plant OPC UA rates are far below the writer's.)
+   * A spool at its size cap raises the same signal: the batch that found it full is held,
+   * unacknowledged, until the database or the spool takes it.
    */
   onPressure(fn: (high: boolean) => void): () => void {
     this.pressureListeners.add(fn);
@@ -139,7 +186,7 @@ export class BatchWriter {
     const backlog = this.pending.samples.length + this.pending.deadLetters.length + this.flushing;
     this.stats.backlog = backlog;
     const high = this.opts.maxBacklog ?? 4 * this.opts.batchRows;
-    const next = this.pressured ? backlog > high / 2 : backlog >= high;
+    const next = this.spool.capReached || (this.pressured ? backlog > high / 2 : backlog >= high);
     if (next === this.pressured) return;
     this.pressured = next;
     if (next) {
@@ -188,7 +235,7 @@ export class BatchWriter {
   /** Resolves with null once committed, or with the error that kept it out of the database. */
   private async commitOnLane(b: Pending): Promise<unknown> {
     try {
-      await this.commit(b.samples, b.deadLetters);
+      await this.commitSplitting(b);
       return null;
     } catch (err) {
       return err ?? new Error('commit failed');
@@ -202,8 +249,8 @@ export class BatchWriter {
         const err = await early;
         if (err === null) this.markUp();
         else {
-          this.markDown(err);
-          await this.toSpool(b);
+          this.markDown(causeOf(err));
+          await this.toSpool(err instanceof NotCommitted ? err.rest : b);
         }
       } else if (!this.spool.isEmpty && Date.now() >= this.retryAt) await this.replaySpool();
       if (hasData && !early) {
@@ -211,11 +258,11 @@ export class BatchWriter {
           await this.toSpool(b);
         } else {
           try {
-            await this.commit(b.samples, b.deadLetters);
+            await this.commitSplitting(b);
             this.markUp();
           } catch (err) {
-            this.markDown(err);
-            await this.toSpool(b);
+            this.markDown(causeOf(err));
+            await this.toSpool(err instanceof NotCommitted ? err.rest : b);
           }
         }
       }
@@ -246,10 +293,10 @@ export class BatchWriter {
         return;
       } catch (err) {
         lastErr = err;
-        // A transient error is handled by the spool; a non-transient one gets one more try
-        // (e.g. a tag deleted between the checks of one batch, a deadlock between two
-        // connections) before it is treated the same.
-        if (isTransientDbError(err)) break;
+        // A transient error is handled by the spool and a row error by splitting; anything else
+        // gets one more try (a deadlock between two connections, a serialization failure)
+        // before it is treated as transient.
+        if (isTransientDbError(err) || isPermanentRowError(err)) break;
       } finally {
         this.unlane(store);
       }
@@ -269,32 +316,122 @@ export class BatchWriter {
     else this.free.push(s);
   }
 
-  private async toSpool(b: Pending): Promise<void> {
-    await this.spool.append({ samples: b.samples, deadLetters: b.deadLetters });
-    this.stats.spooledSamples += b.samples.length;
+  /**
+   * Commits a batch; when it fails with a permanent row error (isPermanentRowError) it is cut in
+   * halves, and so on, until the rows that fail stand alone: each of those is stored as a dead
+   * letter with the database's reason, every other row is committed. One bad row in 50 000 costs
+   * about 2·log2(50 000) ≈ 32 extra transactions. Parts are committed in order; when one fails
+   * for any other reason the rest (this part and those after it) is thrown in a NotCommitted, so
+   * what was committed is not spooled again.
+   */
+  private async commitSplitting(batch: Part): Promise<void> {
+    const todo: Part[] = [{ samples: batch.samples, deadLetters: batch.deadLetters }];
+    while (todo.length) {
+      const part = todo.pop()!;
+      try {
+        await this.commit(part.samples, part.deadLetters);
+      } catch (err) {
+        if (!isPermanentRowError(err)) throw new NotCommitted(err, merge([part, ...todo.reverse()]));
+        const n = part.samples.length + part.deadLetters.length;
+        if (n === 1) {
+          try {
+            await this.refused(part, err);
+          } catch (e) {
+            throw new NotCommitted(e, merge([part, ...todo.reverse()]));
+          }
+          continue;
+        }
+        const [a, b] = halves(part);
+        this.stats.splitCommits += 2;
+        todo.push(b, a);
+      }
+    }
+  }
+
+  /**
+   * One row the database refused: a sample becomes a dead letter carrying its values and the
+   * database's reason; a dead letter is stored again as plain text (its own fields in the
+   * payload). If even that is refused the row goes to `spool/rejected/`.
+   */
+  private async refused(part: Part, err: unknown): Promise<void> {
+    const why = `${codeOf(err)}${(err as Error)?.message ?? String(err)}`;
+    const s = part.samples[0];
+    const d = part.deadLetters[0];
+    // Numbers as text: NaN, ±Infinity and out-of-range values survive JSON that way.
+    const payload = s ? JSON.stringify({ tagId: s.tagId, ts: String(s.ts), value: String(s.value), quality: s.quality }) : JSON.stringify(d);
+    const plain: DeadLetter = {
+      ts: Date.now(),
+      sourceId: null,
+      address: null,
+      payload: pgText(payload, DEAD_LETTER_PAYLOAD_MAX),
+      payloadBytes: Buffer.byteLength(payload),
+      reason: pgText(s ? `sample refused by the database (${why})` : `dead letter refused by the database (${why}); its reason: ${d?.reason ?? ''}`, DEAD_LETTER_REASON_MAX),
+    };
+    if (s) this.stats.refusedSamples++;
+    else this.stats.refusedDeadLetters++;
+    this.opts.log.warn({ reason: plain.reason }, s ? 'sample refused by the database; stored as a dead letter' : 'dead letter refused by the database; stored in plain form');
+    try {
+      await this.commit([], [plain]);
+    } catch (e) {
+      if (!isPermanentRowError(e)) throw e;
+      const file = await this.spool.quarantine({ samples: part.samples, deadLetters: [...part.deadLetters, plain] });
+      this.stats.quarantinedRows++;
+      this.opts.log.error({ err: e, file }, 'a refused row could not be stored as a dead letter either; kept in the quarantine');
+    }
+  }
+
+  /**
+   * Appends to the spool. While the spool is at its cap the batch is held here, not
+   * acknowledged (the chain waits, the backlog stays high, sources pause), and the database is
+   * tried again — spool replay first — until one of them takes it. On close it gives up
+   * without acknowledging: the source keeps the messages.
+   */
+  private async toSpool(b: Part): Promise<void> {
+    let rest = b;
+    if (this.spool.capReached) {
+      this.stats.spoolCapHolds++;
+      this.opts.log.error({ bytes: this.spool.pendingBytes }, 'spool at its size cap; holding the batch unacknowledged');
+    }
+    while (this.spool.capReached) {
+      this.updatePressure();
+      if (this.closed) throw new Error('spool at its size cap and the database unreachable; batch not acknowledged');
+      await new Promise((r) => setTimeout(r, Math.max(50, this.retryAt - Date.now())));
+      await this.replaySpool();
+      if (this.spool.isEmpty) {
+        try {
+          await this.commitSplitting(rest);
+          this.markUp();
+          return;
+        } catch (err) {
+          this.markDown(causeOf(err));
+          if (err instanceof NotCommitted) rest = err.rest;
+        }
+      }
+    }
+    await this.spool.append(rest);
+    this.stats.spooledSamples += rest.samples.length;
+    this.updatePressure();
   }
 
   private async replaySpool(): Promise<void> {
+    const unreadableBefore = this.spool.status().unreadable.length;
     try {
       const before = this.stats.committedSamples;
       const n = await this.spool.replay(async (recs: SpoolRecord[]) => {
-        await this.commit(
-          recs.flatMap((r) => r.samples),
-          recs.flatMap((r) => r.deadLetters),
-        );
+        await this.commitSplitting({ samples: recs.flatMap((r) => r.samples), deadLetters: recs.flatMap((r) => r.deadLetters) });
       });
       this.stats.replayedSamples += this.stats.committedSamples - before;
       if (n) this.opts.log.info({ records: n }, 'spool replayed');
       this.markUp();
     } catch (err) {
-      if (isTransientDbError(err)) {
-        this.markDown(err);
-        return;
-      }
-      const moved = await this.spool.quarantineOldest();
-      this.stats.rejectedSpoolFiles++;
-      this.stats.lastError = `spool file rejected by the database: ${(err as Error).message}`;
-      this.opts.log.error({ err, moved }, 'spool file could not be applied; moved aside');
+      // Rows the database refuses were split off inside commitSplitting; what reaches here is the
+      // database itself failing. The file stays and is tried again after the backoff.
+      this.markDown(causeOf(err));
+    }
+    const unreadable = this.spool.status().unreadable;
+    if (unreadable.length > unreadableBefore) {
+      this.stats.lastError = `spool file unreadable: ${unreadable.at(-1)!.file}: ${unreadable.at(-1)!.error}`;
+      this.opts.log.error({ unreadable }, 'spool file could not be read; kept, out of the replay until ingest restarts');
     }
   }
 
@@ -324,4 +461,25 @@ export class BatchWriter {
   get isClosed(): boolean {
     return this.closed;
   }
+}
+
+function merge(parts: readonly Part[]): Part {
+  return { samples: parts.flatMap((p) => p.samples), deadLetters: parts.flatMap((p) => p.deadLetters) };
+}
+
+/** The part's rows (samples, then dead letters) cut into two halves. */
+function halves(p: Part): [Part, Part] {
+  const n = p.samples.length + p.deadLetters.length;
+  const h = Math.floor(n / 2);
+  if (h <= p.samples.length) {
+    return [
+      { samples: p.samples.slice(0, h), deadLetters: [] },
+      { samples: p.samples.slice(h), deadLetters: p.deadLetters },
+    ];
+  }
+  const k = h - p.samples.length;
+  return [
+    { samples: p.samples, deadLetters: p.deadLetters.slice(0, k) },
+    { samples: [], deadLetters: p.deadLetters.slice(k) },
+  ];
 }

@@ -2,7 +2,8 @@ import { pipeline } from 'node:stream/promises';
 import { Readable } from 'node:stream';
 import pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
-import type { DeadLetter, Sample } from '../pipeline/types.ts';
+import { DEAD_LETTER_ADDRESS_MAX, DEAD_LETTER_REASON_MAX, pgText, pgTextOrNull } from '../pipeline/pg-text.ts';
+import { DEAD_LETTER_PAYLOAD_MAX, type DeadLetter, type Sample } from '../pipeline/types.ts';
 import { encodeSamplesBinary } from './copy-binary.ts';
 import { aggregate, latestPerTag, mergeInto, type RollupRow } from './rollup.ts';
 
@@ -78,6 +79,25 @@ export function isTransientDbError(err: unknown): boolean {
   if (/^(08|53|57P0)/.test(code)) return true;
   if (['ECONNREFUSED', 'ECONNRESET', 'EPIPE', 'ETIMEDOUT', 'ENOTFOUND', 'EHOSTUNREACH', 'ENOENT'].includes(code)) return true;
   return /Connection terminated|not queryable|Client has encountered a connection error|connection is closed|timeout exceeded/i.test(e?.message ?? '');
+}
+
+/**
+ * Errors caused by the rows of a batch rather than by the database or the connection: the same
+ * rows fail again however often they are retried, so the batch is split until only the rows
+ * that fail remain (BatchWriter). SQLSTATE classes from PostgreSQL's Appendix A: 22 data
+ * exception (a timestamp out of range, NUL or a bad byte sequence in text, a number out of
+ * range), 23 integrity constraint violation (a foreign key to a deleted tag, a check; a
+ * duplicate key in `samples` never gets here, write() takes the staging path); and the
+ * RangeError Node's Buffer throws when a row's number does not fit the binary COPY field
+ * (ERR_OUT_OF_RANGE, e.g. a quality above 32 767). Everything else — a lost connection, a
+ * shutdown, a serialization failure (40001), a deadlock (40P01), a missing table — is retried
+ * as a whole (once at once, then from the spool with backoff) and never splits a batch, so a
+ * database fault cannot turn good samples into dead letters.
+ */
+export function isPermanentRowError(err: unknown): boolean {
+  const e = err as { code?: unknown };
+  if (err instanceof RangeError && e.code === 'ERR_OUT_OF_RANGE') return true;
+  return typeof e?.code === 'string' && /^(22|23)[0-9A-Z]{3}$/.test(e.code);
 }
 
 /**
@@ -257,13 +277,15 @@ export class SampleStore {
           name: 'ingest_dead_letters',
           text: `INSERT INTO dead_letters (ts, source_id, address, payload, payload_bytes, reason)
             SELECT * FROM unnest($1::timestamptz[], $2::int[], $3::text[], $4::text[], $5::int[], $6::text[])`,
+          // deadLetter() already cleans its text; this is the last line before PostgreSQL, for
+          // dead letters made anywhere else (a spool written by an older version, the writer's own).
           values: [
             deadLetters.map((d) => new Date(d.ts)),
             deadLetters.map((d) => d.sourceId),
-            deadLetters.map((d) => d.address),
-            deadLetters.map((d) => d.payload),
+            deadLetters.map((d) => pgTextOrNull(d.address, DEAD_LETTER_ADDRESS_MAX)),
+            deadLetters.map((d) => pgText(d.payload, DEAD_LETTER_PAYLOAD_MAX)),
             deadLetters.map((d) => d.payloadBytes),
-            deadLetters.map((d) => d.reason),
+            deadLetters.map((d) => pgText(d.reason, DEAD_LETTER_REASON_MAX)),
           ],
         });
       }

@@ -104,6 +104,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
   const { settings, audit } = services(ctx);
   const repos = repositories(ctx);
   const repo = repos.balance;
+  const lab = repos.lab;
   let catcher: MailCatcher | null = null;
   if (!ctx.config.smtpUrl && opts.mailCatcher !== false) {
     const port = opts.catcherPort ?? (await settings.effective(0))['mail.catcher_port'];
@@ -124,7 +125,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
   async function runOnce(plantId: number): Promise<Balance> {
     const s = await settings.effective(plantId);
     const t = now();
-    const inputs = await readBalanceInputs(repo, plantId, s, t);
+    const inputs = await readBalanceInputs(repo, plantId, s, t, lab);
     if (!inputs) throw new NotFoundError(`no plant ${plantId}`);
     const b = computeBalance(inputs, s);
     const id = await repo.insert(b);

@@ -216,8 +216,13 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
   try {
     const s = await services(ctx).settings.effective(job.plantId);
     const balanceRepo = repositories(ctx).balance;
-    const layout = await balanceRepo.layout(job.plantId);
-    if (!layout) throw new Error(`no plant ${job.plantId}`);
+    // Geometry is effective-dated (issue 13): each time is computed with the layout that held
+    // then. A day whose start and end layouts agree uses one; a day with a change asks per step.
+    const layoutAt = async (t: number) => {
+      const l = await balanceRepo.layoutAt(job.plantId, new Date(t));
+      if (!l) throw new Error(`no plant ${job.plantId}`);
+      return l;
+    };
     const mapped = await balanceRepo.readings(job.plantId);
     const tagIds = [...new Set(mapped.map((m) => m.tagId))];
     const svis = (await repo.svis(job.plantId)).filter((x) => /^m[lL]\/g$/.test(x.unit.trim())).map(({ unit: _unit, ...x }) => x);
@@ -237,6 +242,8 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
     for (let c0 = t0; c0 <= to + step - 1; c0 += DAY_MS) {
       const c1 = Math.min(c0 + DAY_MS, to + step);
       const minutes = await repo.minutes(tagIds, new Date(c0 - window_ms - MINUTE_MS), new Date(c1));
+      const [first, last] = await Promise.all([layoutAt(c0), layoutAt(c1 - 1)]);
+      const steady = JSON.stringify(first) === JSON.stringify(last);
       for (let t = c0; t < c1; t += step) {
         if (signal?.aborted) {
           // A shutdown: what is computed stays; the next start runs the job again over the window.
@@ -246,6 +253,7 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
         }
         while (li < live.length && live[li]! <= t - step) li++;
         if (li < live.length && live[li]! <= t) continue;
+        const layout = steady ? first : await layoutAt(t);
         pending.push(computeBalance(inputsAsOf(t, layout, mapped, minutes, svis, window_ms), s));
         done++;
         if (pending.length >= INSERT_BATCH) {

@@ -126,16 +126,15 @@ export function historyRepository(database: Database) {
 
     /**
      * Opens the job's staging partition (UNLOGGED, job id as its column default, see
-     * drizzle/0007_history_stage.sql) and one binary COPY into it on a connection of its own.
+     * drizzle/0011_history_stage.sql) and one binary COPY into it on a connection of its own.
      * `write` resolves when the COPY stream takes more (backpressure), `end` when PostgreSQL
      * has every row; `abort` drops the partition.
      */
     async openStage(jobId: number) {
       const table = `history_stage_${jobId}`;
       const c = await pool.connect();
-      await c.query(`DROP TABLE IF EXISTS ${table}`);
-      await c.query(`CREATE UNLOGGED TABLE ${table} PARTITION OF history_stage FOR VALUES IN (${jobId})`);
-      await c.query(`ALTER TABLE ${table} ALTER COLUMN job_id SET DEFAULT ${jobId}`);
+      // Created by a function with the owner's rights: the API role may not create tables (drizzle/0011).
+      await c.query('SELECT flocstream_open_history_stage($1)', [jobId]);
       const copy: Writable = c.query(copyFrom(`COPY ${table} (tag_id, ts, value, quality) FROM STDIN (FORMAT binary)`));
       const done = new Promise<void>((resolve, reject) => {
         copy.once('finish', resolve);
@@ -170,7 +169,7 @@ export function historyRepository(database: Database) {
       };
     },
     async dropStage(jobId: number): Promise<void> {
-      await pool.query(`DROP TABLE IF EXISTS history_stage_${jobId}`);
+      await pool.query('SELECT flocstream_drop_history_stage($1)', [jobId]);
     },
 
     /**

@@ -4,7 +4,7 @@ import path from 'node:path';
 import pg from 'pg';
 import { afterAll, describe, expect, it } from 'vitest';
 import { portInUse } from '../../server/db/local-postgres.ts';
-import { pgRunning, processesMatching, runLauncher } from '../helpers/launcher.ts';
+import { launcherEnv, pgRunning, processesMatching, runLauncher } from '../helpers/launcher.ts';
 import { waitFor } from '../helpers/wait.ts';
 
 /**
@@ -14,17 +14,7 @@ import { waitFor } from '../helpers/wait.ts';
  */
 const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-start-'));
 const base = 20000 + Math.floor(Math.random() * 20000);
-const env: NodeJS.ProcessEnv = {
-  ...process.env,
-  FLOCSTREAM_DATA_DIR: dataDir,
-  PORT: String(base),
-  FLOCSTREAM_PG_PORT: String(base + 1),
-  FLOCSTREAM_MQTT_PORT: String(base + 2),
-  FLOCSTREAM_SIM_OPCUA_PORT: String(base + 3),
-  FLOCSTREAM_ADMIN_EMAIL: 'start-test@kestrel.invalid',
-  FLOCSTREAM_ADMIN_PASSWORD: 'start-test-password',
-};
-delete env.DATABASE_URL;
+const env = launcherEnv(dataDir, base, { FLOCSTREAM_ADMIN_EMAIL: 'start-test@kestrel.invalid', FLOCSTREAM_ADMIN_PASSWORD: 'start-test-password' });
 
 /** A query on the launcher's private cluster (password in the data folder). */
 async function query<T extends pg.QueryResultRow>(sql: string): Promise<T[]> {

@@ -5,7 +5,7 @@ import { plants } from './plant.ts';
  * History jobs: a historian import (CSV checked, staged, moved into `samples`, rollups rebuilt)
  * and the balance recompute that follows it. The BullMQ job carries only the row id; this row is
  * what `GET /api/v1/jobs/:jobId` answers, so the state outlives the queue's own retention.
- * The staging table `history_stage` (one UNLOGGED list partition per job) lives in a custom migration (0007).
+ * The staging table `history_stage` (one UNLOGGED list partition per job) lives in a custom migration (0011).
  */
 export const historyJobs = pgTable(
   'history_jobs',
