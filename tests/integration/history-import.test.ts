@@ -162,7 +162,10 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     // blanket 1.0 m × 1500 m² × 8.0 g/L = 12 000 kg; SRT = 30 000 / (20×8 + 780×0.010) / 24 = 7.44934 d
     // (the 24 h window is full: the file starts 26 h before the balance).
     expect(d.inventory.totalMass_kg.value).toBeCloseTo(30_000, 6);
-    expect(d.trains[0].ras.concentrationMargin.value).toBeCloseTo(0.3, 9);
+    // RAS margin on the lower X_R,max: flux theory G_L/u = 9.907676 g/L below the rule's
+    // 1200/120 = 10 g/L (tests/unit/domain/balance-assemble.test.ts), so 1 − 7/9.907676.
+    expect(d.trains[0].ras.rasConcMaxRule_gL.value).toBeCloseTo(10, 9);
+    expect(d.trains[0].ras.concentrationMargin.value).toBeCloseTo(1 - 7 / 9.907675696771152, 6);
     expect(d.srt.total_d.value).toBeCloseTo(7.44934, 4);
     // The recompute raised no alarm and wrote no mail.
     expect(Number((await h.ctx.db.pool.query('SELECT count(*) AS n FROM alarms WHERE plant_id = $1', [plantId])).rows[0].n)).toBe(0);
