@@ -31,8 +31,9 @@ const H_PER_D = 24;
 export const UNITS: Readonly<Record<Dimension, DimensionUnits>> = Object.freeze({
   flow: {
     base: 'm3/h',
-    // US gallon per minute: gallon (US) = 3.785 412 E−03 m³ (NIST SP 811, 2008 ed., Appendix B.9), × 60 min/h.
-    factors: { 'm3/h': 1, 'm³/h': 1, 'm3/d': 1 / H_PER_D, 'm³/d': 1 / H_PER_D, 'm3/s': S_PER_H, 'm³/s': S_PER_H, 'L/s': S_PER_H / L_PER_M3, gpm: 3.785412e-3 * 60 },
+    // US gallon per minute: gallon (US) = 231 in³ = 231 × 0.0254³ m³ = 3.785 411 784 E−03 m³ exactly
+    // (NIST SP 811, 2008 ed., Appendix B.9 lists it rounded as 3.785 412 E−03), × 60 min/h.
+    factors: { 'm3/h': 1, 'm³/h': 1, 'm3/d': 1 / H_PER_D, 'm³/d': 1 / H_PER_D, 'm3/s': S_PER_H, 'm³/s': S_PER_H, 'L/s': S_PER_H / L_PER_M3, gpm: 231 * 0.0254 ** 3 * 60 },
   },
   concentration: {
     base: 'g/L',
