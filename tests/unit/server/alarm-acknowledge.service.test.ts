@@ -46,6 +46,10 @@ const row = (id: number, state: AlarmRow['state'], clearedAt: Date | null = null
   acknowledgedAt: null,
   acknowledgedBy: null,
   clearedAt,
+  suppressedReason: null,
+  shelvedUntil: null,
+  shelvedBy: null,
+  shelveReason: null,
 });
 
 function setup() {
