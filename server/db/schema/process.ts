@@ -1,4 +1,4 @@
-import { bigserial, doublePrecision, index, integer, jsonb, pgTable, serial, smallint, text, timestamp, primaryKey, bigint } from 'drizzle-orm/pg-core';
+import { bigserial, boolean, doublePrecision, index, integer, jsonb, pgTable, serial, smallint, text, timestamp, primaryKey, bigint } from 'drizzle-orm/pg-core';
 import { plants } from './plant.ts';
 import { tags } from './wiring.ts';
 
@@ -42,6 +42,8 @@ export const balances = pgTable(
     quality: text('quality', { enum: ['good', 'estimated', 'unavailable'] }).notNull(),
     data: jsonb('data').notNull(),
     inputs: jsonb('inputs').notNull(),
+    /** Computed afterwards over imported history (server/jobs/balance-recompute.job.ts), not live. */
+    recomputed: boolean('recomputed').notNull().default(false),
   },
   (t) => [index('balances_plant_ts_idx').on(t.plantId, t.ts)],
 );
