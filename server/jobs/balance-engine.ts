@@ -4,7 +4,7 @@ import type { Balance } from '../../shared/contracts/balance.ts';
 import { repositories, services, type AppContext } from '../app-context.ts';
 import { NotFoundError } from '../http/errors.ts';
 import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
-import { createAlarmService } from '../services/alarm.service.ts';
+import { createAlarmService, type AlarmChange } from '../services/alarm.service.ts';
 import { readBalanceInputs } from '../services/balance-inputs.service.ts';
 import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import { createMailService, smtpTransport } from '../services/mail.service.ts';
@@ -116,9 +116,10 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
     ? createMailService({ transport: smtpTransport(mailUrl, { catcher: !ctx.config.smtpUrl }), settings, notificationRepo: repos.notifications, balanceRepo: repo, alarmRepo: repos.alarms, log: ctx.log })
     : null;
 
-  const onAlarm = async (a: AlarmOut, change: 'raised' | 'acknowledged' | 'cleared') => {
+  const onAlarm = async (a: AlarmOut, change: AlarmChange) => {
     await repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed'));
-    if (change === 'raised' && mail) await mail.alarm(a);
+    // Mail only what is annunciated: a new alarm, or one whose shelf expired (ISA-18.2); suppressed and shelved ones are listed only.
+    if ((change === 'raised' || change === 'unshelved') && mail) await mail.alarm(a);
   };
   const alarms = createAlarmService({ alarmRepo: repos.alarms, audit, clock: now, changed: onAlarm });
 

@@ -43,6 +43,9 @@ export function alarmOut(a: AlarmRow): AlarmOut {
     acknowledgedAt: a.acknowledgedAt?.toISOString() ?? null,
     acknowledgedBy: a.acknowledgedBy,
     clearedAt: a.clearedAt?.toISOString() ?? null,
+    suppressedReason: a.suppressedReason,
+    shelvedUntil: a.shelvedUntil?.toISOString() ?? null,
+    shelveReason: a.shelveReason,
   };
 }
 

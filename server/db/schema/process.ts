@@ -87,6 +87,15 @@ export const alarms = pgTable(
     acknowledgedAt: timestamp('acknowledged_at', { withTimezone: true }),
     acknowledgedBy: integer('acknowledged_by'),
     clearedAt: timestamp('cleared_at', { withTimezone: true }),
+    /**
+     * ISA-18.2 designed suppression: non-null while the alarm's condition holds but it is not
+     * annunciated by design (why); set back to null, with raised_at = the time, when it is annunciated.
+     */
+    suppressedReason: text('suppressed_reason'),
+    /** ISA-18.2 shelving by an operator: not annunciated until this time (null: not shelved). */
+    shelvedUntil: timestamp('shelved_until', { withTimezone: true }),
+    shelvedBy: integer('shelved_by'),
+    shelveReason: text('shelve_reason'),
   },
   (t) => [index('alarms_plant_state_idx').on(t.plantId, t.state)],
 );
