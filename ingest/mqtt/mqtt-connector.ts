@@ -9,6 +9,7 @@ import type { TagConfig } from '../pipeline/types.ts';
 import type { BatchWriter } from '../sink/batch-writer.ts';
 import type { Discovery } from './discovery.ts';
 import { MqttMessageHandler } from './message-handler.ts';
+import { ncmdTopic, rebirthPayload } from './sparkplug.ts';
 import { connectOptions, fallbackProtocol, firstProtocol, mqttOptionsOf, type ProtocolLevel } from './mqtt-connection.ts';
 
 /**
@@ -109,7 +110,7 @@ export class MqttConnector implements Connector {
     this.lastError = error;
     this.protocol = firstProtocol(this.opts);
     this.tags.update(tags);
-    this.handler = new MqttMessageHandler(source.id, this.tags, ctx.discovery);
+    this.handler = new MqttMessageHandler(source.id, this.tags, ctx.discovery, { payload: this.opts.payload, requestRebirth: this.opts.requestRebirth });
     this.offPressure = writer.onPressure((high) => {
       if (high) return;
       const resume = this.stalled;
@@ -239,6 +240,7 @@ export class MqttConnector implements Connector {
     this.counters.unmapped += r.unmapped;
     this.counters.deadLetters += r.deadLetters.length;
     this.counters.suppressed += r.suppressed;
+    if (r.rebirth) this.requestRebirth(r.rebirth.group, r.rebirth.node, now);
     if (r.samples.length === 0 && r.deadLetters.length === 0) return false;
     if (!held) {
       this.writer.enqueue(r.samples, r.deadLetters);
@@ -250,6 +252,23 @@ export class MqttConnector implements Connector {
       this.release(held);
     });
     return true;
+  }
+
+  /**
+   * The one message ingest ever publishes, and only on a source with `requestRebirth: true` (the
+   * handler returns a rebirth only then, at most once per edge node per minute): the Sparkplug
+   * rebirth command to an edge node whose aliases ingest does not know (Sparkplug 3.0 §4.2.1
+   * NCMD, QoS 0 and retain false per tck-id-topics-ncmd-mqtt).
+   */
+  private requestRebirth(group: string, node: string, now: number): void {
+    const client = this.client;
+    if (!this.opts.requestRebirth || !client?.connected) return;
+    const topic = ncmdTopic(group, node);
+    client.publish(topic, rebirthPayload(now), { qos: 0, retain: false }, (err) => {
+      if (err) this.ctx.log.warn({ source: this.source.id, topic, err: err.message }, 'rebirth request not sent');
+    });
+    this.handler.sparkplug?.rebirthSent();
+    this.ctx.log.info({ source: this.source.id, topic }, 'Sparkplug rebirth requested');
   }
 
   /** Sends a held PUBACK if its connection is still the current one. */
@@ -313,6 +332,8 @@ export class MqttConnector implements Connector {
         redelivered: this.counters.redelivered,
         /** Intake stopped at the writer's high-water mark: mqtt.js's callback is held, nothing more is read. */
         paused: this.stalled !== null,
+        payload: this.opts.payload,
+        ...(this.handler.sparkplug ? { sparkplug: this.handler.sparkplug.status() } : {}),
       },
     };
   }

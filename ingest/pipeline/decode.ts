@@ -1,4 +1,19 @@
+import type { MqttPayloadFormat } from '../../shared/contracts/wiring.ts';
 import { batchItem, batchPayload, isoTimestampPattern, singleValuePayload, type PayloadQuality } from '../../shared/contracts/mqtt-payload.ts';
+
+/** The Sparkplug B topic namespace element (Eclipse Sparkplug 3.0 §4.1.1, tck-id-topic-structure-namespace-a). */
+export const SPARKPLUG_NAMESPACE = 'spBv1.0';
+
+/**
+ * Which decoder a message goes to, from the source's `payload` option
+ * (shared/contracts/wiring.ts): Sparkplug B for every topic under `spBv1.0/` (the namespace is
+ * mandatory, §4.1, so the topic identifies the encoding even with the default `json`); JSON for
+ * the rest, or, on a `sparkplugB` source, nothing (`other`: counted, not decoded).
+ */
+export function payloadDecoder(topic: string, format: MqttPayloadFormat): 'json' | 'sparkplugB' | 'other' {
+  if (topic.startsWith(SPARKPLUG_NAMESPACE) && topic.charCodeAt(SPARKPLUG_NAMESPACE.length) === 0x2f /* / */) return 'sparkplugB';
+  return format === 'sparkplugB' ? 'other' : 'json';
+}
 
 /** One decoded reading before mapping and scaling. `ts` is epoch ms or undefined (use receive time). */
 export interface DecodedItem {

@@ -13,12 +13,21 @@
  * supported yet"; lib/handlers/connect.js). Clients of the embedded broker must connect with
  * protocolVersion 4; MQTT 5 features (shared subscriptions) need an external broker.
  *
+ * Under `npm start` (server/broker/main.ts with `--data-dir`) the broker also authenticates
+ * every client and checks each PUBLISH and SUBSCRIBE against its user's topic filters
+ * (./broker-users.ts, through aedes' documented authenticate/authorizePublish/authorizeSubscribe
+ * handlers), closes a connection sending a packet over `maxPacketBytes` (./packet-limit.ts), and
+ * keeps its persistent sessions and QoS 1 queue across a restart (./durable-persistence.ts).
+ *
  * close() closes the broker (which disconnects every client) and then the listener, so the
  * port is free for an immediate restart on the same port.
  */
 import net from 'node:net';
 import { Aedes } from 'aedes';
+import type { BrokerAuth } from './broker-users.ts';
+import type { DurablePersistence } from './durable-persistence.ts';
 import { IndexedMemoryPersistence } from './indexed-persistence.ts';
+import { limitPacketSize } from './packet-limit.ts';
 
 export interface EmbeddedBroker {
   url: string;
@@ -41,19 +50,45 @@ export const KEPT_ADAPTERS: BrokerAdapters = { indexedPersistence: true };
  * What the embedded broker does with each new TCP connection. The durable test broker
  * (tests/integration/ingest/helpers.ts) accepts its connections the same way.
  */
-export function acceptConnection(broker: Aedes, conn: net.Socket): void {
+export function acceptConnection(broker: Aedes, conn: net.Socket, maxPacketBytes?: number): void {
+  if (maxPacketBytes) limitPacketSize(conn, maxPacketBytes, (bytes) => broker.emit('packetRefused', bytes, conn.remoteAddress));
   broker.handle(conn);
 }
 
-export async function startEmbeddedBroker(opts: { host?: string; port: number; adapters?: BrokerAdapters }): Promise<EmbeddedBroker> {
+export interface EmbeddedBrokerOptions {
+  host?: string;
+  port: number;
+  adapters?: BrokerAdapters;
+  /** Users and their topic filters; without it anyone may connect (tests and the benchmark). */
+  auth?: BrokerAuth;
+  /** Close a connection that sends a larger packet (fixed header included). */
+  maxPacketBytes?: number;
+  /** A store that survives the process, already opened; replaces the in-memory one. */
+  durable?: DurablePersistence;
+  /** Told of refused packets and refused connections (the broker process logs them). */
+  onRefused?: (what: string) => void;
+}
+
+export async function startEmbeddedBroker(opts: EmbeddedBrokerOptions): Promise<EmbeddedBroker> {
   const host = opts.host ?? '127.0.0.1';
   const adapters = opts.adapters ?? KEPT_ADAPTERS;
-  const broker = await Aedes.createBroker(adapters.indexedPersistence ? { persistence: new IndexedMemoryPersistence() } : {});
+  const persistence = opts.durable ?? (adapters.indexedPersistence ? new IndexedMemoryPersistence() : undefined);
+  const broker = await Aedes.createBroker({
+    ...(persistence ? { persistence: persistence as never } : {}),
+    ...(opts.auth ? { authenticate: opts.auth.authenticate, authorizePublish: opts.auth.authorizePublish, authorizeSubscribe: opts.auth.authorizeSubscribe } : {}),
+  } as never);
+  if (opts.onRefused) {
+    const say = opts.onRefused;
+    broker.on('packetRefused' as never, ((bytes: number, addr: string) => say(`closed a connection from ${addr}: a packet of ${bytes} bytes exceeds ${opts.maxPacketBytes}`)) as never);
+    broker.on('clientError', (client, err) => {
+      if (/not authorized/.test(err.message)) say(`closed client ${client.id}: ${err.message}`);
+    });
+  }
   // A misbehaving client must never take the process down: aedes reports per-client errors
   // as events; without a listener Node would throw them.
   broker.on('clientError', () => {});
   broker.on('connectionError', () => {});
-  const server = net.createServer((conn) => acceptConnection(broker, conn));
+  const server = net.createServer((conn) => acceptConnection(broker, conn, opts.maxPacketBytes));
   const sockets = new Set<net.Socket>();
   server.on('connection', (s) => {
     sockets.add(s);
@@ -78,6 +113,7 @@ export async function startEmbeddedBroker(opts: { host?: string; port: number; a
         // Half-open sockets that never completed CONNECT are not aedes clients yet.
         for (const s of sockets) s.destroy();
         await new Promise<void>((resolve) => server.close(() => resolve()));
+        opts.durable?.close();
       })();
       return closed;
     },

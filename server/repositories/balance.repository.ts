@@ -1,7 +1,8 @@
-import { and, desc, eq, inArray } from 'drizzle-orm';
+import { and, desc, eq, isNull } from 'drizzle-orm';
 import type { Balance } from '../../shared/contracts/balance.ts';
 import type { Database } from '../db/client.ts';
-import { balances, basins, clarifiers, plants, pumps, trains } from '../db/schema/index.ts';
+import { balances, plants } from '../db/schema/index.ts';
+import { plantModelRepository } from './plant-model.repository.ts';
 import type { LayoutIn, SeriesPoint, SignalReading } from '../../shared/domain/balance/inputs.ts';
 
 /** Everything the balance engine reads and writes in the database. */
@@ -9,34 +10,30 @@ export function balanceRepository(database: Database) {
   const { db, pool } = database;
   return {
     async plantIds(): Promise<number[]> {
-      return (await db.select({ id: plants.id }).from(plants).orderBy(plants.id)).map((p) => p.id);
+      // A retired plant keeps its history but is no longer computed.
+      return (await db.select({ id: plants.id }).from(plants).where(isNull(plants.retiredAt)).orderBy(plants.id)).map((p) => p.id);
     },
     async plant(plantId: number) {
       const [p] = await db.select().from(plants).where(eq(plants.id, plantId));
       return p ?? null;
     },
-    async layout(plantId: number): Promise<LayoutIn | null> {
-      const [p] = await db.select().from(plants).where(eq(plants.id, plantId));
-      if (!p) return null;
-      const tr = await db.select().from(trains).where(eq(trains.plantId, plantId)).orderBy(trains.code);
-      const ids = tr.map((t) => t.id);
-      const [bs, cs, ps] = ids.length
-        ? await Promise.all([
-            db.select().from(basins).where(inArray(basins.trainId, ids)).orderBy(basins.code),
-            db.select().from(clarifiers).where(inArray(clarifiers.trainId, ids)).orderBy(clarifiers.code),
-            db.select().from(pumps).where(inArray(pumps.trainId, ids)).orderBy(pumps.code),
-          ])
-        : [[], [], []];
+    /**
+     * The layout valid at `at` (plantModelRepository.layoutAt: the geometry versions that held
+     * then, units out of service then left out), in the engine's shape. Null for an unknown plant.
+     */
+    async layoutAt(plantId: number, at: Date): Promise<LayoutIn | null> {
+      const l = await plantModelRepository(db).layoutAt(plantId, at);
+      if (!l) return null;
       return {
-        plantId: p.id,
-        code: p.code,
-        peakFlow_m3h: p.peakFlow_m3h,
-        trains: tr.map((t) => ({
+        plantId: l.plant.id,
+        code: l.plant.code,
+        peakFlow_m3h: l.plant.peakFlow_m3h,
+        trains: l.trains.map((t) => ({
           id: t.id,
           code: t.code,
-          basins: bs.filter((b) => b.trainId === t.id).map((b) => ({ id: b.id, code: b.code, volume_m3: b.volume_m3 })),
-          clarifiers: cs.filter((c) => c.trainId === t.id).map((c) => ({ id: c.id, code: c.code, area_m2: c.area_m2, sideWaterDepth_m: c.sideWaterDepth_m, count: c.count })),
-          pumps: ps.filter((x) => x.trainId === t.id).map((x) => ({ id: x.id, code: x.code, kind: x.kind, capacity_m3h: x.capacity_m3h })),
+          basins: t.basins.map((b) => ({ id: b.id, code: b.code, volume_m3: b.volume_m3, aeratedFraction: b.aeratedFraction })),
+          clarifiers: t.clarifiers.map((c) => ({ id: c.id, code: c.code, area_m2: c.area_m2, sideWaterDepth_m: c.sideWaterDepth_m, count: c.count })),
+          pumps: t.pumps.map((x) => ({ id: x.id, code: x.code, kind: x.kind, capacity_m3h: x.capacity_m3h })),
         })),
       };
     },

@@ -1,7 +1,9 @@
 import { and, asc, desc, eq, getTableColumns, gte, inArray, lt, sql, type SQL } from 'drizzle-orm';
 import type pg from 'pg';
 import type { Db } from '../db/client.ts';
-import { alarms, balances, basins, clarifiers, plants, pumps, tags, trains } from '../db/schema/index.ts';
+import { alarms, balances, plants, tags } from '../db/schema/index.ts';
+import { versionAt } from '../../shared/domain/geometry-versions.ts';
+import { plantModelRepository } from './plant-model.repository.ts';
 
 export type PlantRow = typeof plants.$inferSelect;
 export type AlarmRow = typeof alarms.$inferSelect;
@@ -85,16 +87,28 @@ export function plantRepository(db: Db, pool: pg.Pool) {
       const [p] = await db.select().from(plants).where(eq(plants.id, id));
       return p;
     },
-    async layout(plantId: number) {
-      const tr = await db.select().from(trains).where(eq(trains.plantId, plantId)).orderBy(asc(trains.code));
-      const ids = tr.map((t) => t.id);
-      if (!ids.length) return { trains: tr, basins: [], clarifiers: [], pumps: [] };
-      const [b, c, p] = await Promise.all([
-        db.select().from(basins).where(inArray(basins.trainId, ids)).orderBy(asc(basins.code)),
-        db.select().from(clarifiers).where(inArray(clarifiers.trainId, ids)).orderBy(asc(clarifiers.code)),
-        db.select().from(pumps).where(inArray(pumps.trainId, ids)).orderBy(asc(pumps.code)),
-      ]);
-      return { trains: tr, basins: b, clarifiers: c, pumps: p };
+    /**
+     * Every train and unit with the geometry that holds now (effective-dated versions, see
+     * plant-model.repository.ts); units out of service now carry inService: false.
+     */
+    async layout(plantId: number, at: Date = new Date()) {
+      const m = await plantModelRepository(db).model(plantId);
+      const now = <G extends { inService: boolean }>(versions: Array<G & { effectiveFrom: Date }>) => versionAt(versions, at);
+      return {
+        trains: m.trains,
+        basins: m.basins.map((b) => {
+          const v = now(b.versions);
+          return { id: b.id, trainId: b.trainId, code: b.code, name: b.name, volume_m3: v?.volume_m3 ?? 0, aeratedFraction: v?.aeratedFraction ?? 0, sideWaterDepth_m: v?.sideWaterDepth_m ?? null, inService: v?.inService ?? false };
+        }),
+        clarifiers: m.clarifiers.map((c) => {
+          const v = now(c.versions);
+          return { id: c.id, trainId: c.trainId, code: c.code, name: c.name, area_m2: v?.area_m2 ?? 0, sideWaterDepth_m: v?.sideWaterDepth_m ?? 0, feedDepth_m: v?.feedDepth_m ?? null, count: v?.count ?? 1, inService: v?.inService ?? false };
+        }),
+        pumps: m.pumps.map((x) => {
+          const v = now(x.versions);
+          return { id: x.id, trainId: x.trainId, code: x.code, name: x.name, kind: x.kind, clarifierId: x.clarifierId, capacity_m3h: v?.capacity_m3h ?? 0, inService: v?.inService ?? false };
+        }),
+      };
     },
     async liveTags(plantId: number): Promise<LiveTagRow[]> {
       const r = await pool.query<{ rows: LiveTagRow[] }>({ name: 'plant_live_tags', text: LIVE_TAGS, values: [plantId] });

@@ -17,9 +17,8 @@ import {
 import { services, type AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
-import { flattenRows } from '../services/csv.service.ts';
+import { displayColumns, flattenRows, sampleCsv } from '../services/csv.service.ts';
 import { ALARM_CSV_COLUMNS, assertPlantScope } from '../services/plant.service.ts';
-import { SAMPLE_CSV_COLUMNS, sampleCsvRows } from '../services/series.service.ts';
 import { liveBalanceCache } from '../services/live-balance-cache.ts';
 
 const DEFAULT_LIST_LIMIT = 500;
@@ -32,7 +31,7 @@ const DEFAULT_HISTORY_LIMIT = 5000;
  * `cursor` + `limit` (nextCursor in the JSON body, `Link: rel="next"` and `X-Next-Cursor` headers).
  */
 export function plantsRoutes(ctx: AppContext): RouteDef[] {
-  const { plants, series } = services(ctx);
+  const { plants, series, plantAccess } = services(ctx);
   const live = liveBalanceCache(ctx);
   const common = { role: 'analyst' as const, tag: 'plants' };
   return [
@@ -98,7 +97,10 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
         setNextPage(req, res, out.nextCursor);
         res.setHeader('X-Resolution', out.resolution);
         if (!wantsCsv(req)) return out;
-        sendCsv(res, `tag-${tagId}-samples.csv`, SAMPLE_CSV_COLUMNS, sampleCsvRows(out.points));
+        // CSV is for people: in the plant's unit system, the unit in the header (JSON stays SI).
+        const plant = await plantAccess.requirePlant(principal, plantId);
+        const csv = sampleCsv(out.points, out.unit, plant.unitSystem);
+        sendCsv(res, `tag-${tagId}-samples.csv`, csv.columns, csv.cells);
       },
     }),
     defineRoute({
@@ -132,7 +134,8 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
         const out = await plants.balanceHistory(principal, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
-        const flat = flattenRows(out.rows);
+        const plant = await plantAccess.requirePlant(principal, params.plantId);
+        const flat = displayColumns(flattenRows(out.rows), plant.unitSystem);
         sendCsv(res, `plant-${out.plantId}-balances.csv`, flat.columns, flat.cells);
       },
     }),

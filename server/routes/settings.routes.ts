@@ -1,6 +1,8 @@
 import { putSettingsRequest, settingsOut, settingsQuery } from '../../shared/contracts/settings.ts';
 import { services, type AppContext } from '../app-context.ts';
+import { ForbiddenError } from '../http/errors.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
+import { assertPlantScope } from '../services/plant.service.ts';
 
 export function settingsRoutes(ctx: AppContext): RouteDef[] {
   const svc = services(ctx).settings;
@@ -13,7 +15,7 @@ export function settingsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Effective settings (thresholds, SRT target, windows, mail) for a plant (?plantId=, 0 = global), with defaults and where each value comes from',
       query: settingsQuery,
       response: settingsOut,
-      handler: ({ query }) => svc.describe(query.plantId),
+      handler: ({ query, principal }) => svc.describe(principal, query.plantId),
     }),
     defineRoute({
       method: 'put',
@@ -23,7 +25,11 @@ export function settingsRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Set values for a plant (plantId 0 = global); null removes an override; audited',
       body: putSettingsRequest,
       response: settingsOut,
-      handler: ({ body, principal }) => svc.put(principal, body),
+      handler: ({ body, principal }) => {
+        if (body.plantId === 0 && principal.plantIds) throw new ForbiddenError('a plant-scoped token cannot change the global settings');
+        if (body.plantId !== 0) assertPlantScope(principal, body.plantId);
+        return svc.put(principal, body);
+      },
     }),
   ];
 }

@@ -22,7 +22,7 @@ export const STALE_PERIODS = 3;
 const QUALITY_NAMES = ['good', 'estimated', 'unavailable'] as const;
 
 function summary(p: PlantRow): PlantSummary {
-  return { id: p.id, code: p.code, name: p.name, timezone: p.timezone, peakFlow_m3h: p.peakFlow_m3h, createdAt: p.createdAt.toISOString() };
+  return { id: p.id, code: p.code, name: p.name, timezone: p.timezone, peakFlow_m3h: p.peakFlow_m3h, unitSystem: p.unitSystem, retiredAt: p.retiredAt?.toISOString() ?? null, createdAt: p.createdAt.toISOString() };
 }
 
 export function balanceOut(b: BalanceRow): BalanceOut {
@@ -43,6 +43,9 @@ export function alarmOut(a: AlarmRow): AlarmOut {
     acknowledgedAt: a.acknowledgedAt?.toISOString() ?? null,
     acknowledgedBy: a.acknowledgedBy,
     clearedAt: a.clearedAt?.toISOString() ?? null,
+    suppressedReason: a.suppressedReason,
+    shelvedUntil: a.shelvedUntil?.toISOString() ?? null,
+    shelveReason: a.shelveReason,
   };
 }
 
@@ -95,9 +98,10 @@ export function createPlantService({ plantRepo: repo, plantAccess, clock }: Plan
           id: t.id,
           code: t.code,
           name: t.name,
-          basins: l.basins.filter((b) => b.trainId === t.id).map(({ id, code, name, volume_m3, aerobic }) => ({ id, code, name, volume_m3, aerobic })),
-          clarifiers: l.clarifiers.filter((c) => c.trainId === t.id).map(({ id, code, name, area_m2, sideWaterDepth_m, count }) => ({ id, code, name, area_m2, sideWaterDepth_m, count })),
-          pumps: l.pumps.filter((x) => x.trainId === t.id).map(({ id, code, name, kind, capacity_m3h }) => ({ id, code, name, kind, capacity_m3h })),
+          // Units out of service now are not part of the plant's current layout.
+          basins: l.basins.filter((b) => b.trainId === t.id && b.inService).map(({ id, code, name, volume_m3, aeratedFraction, sideWaterDepth_m }) => ({ id, code, name, volume_m3, aeratedFraction, sideWaterDepth_m })),
+          clarifiers: l.clarifiers.filter((c) => c.trainId === t.id && c.inService).map(({ id, code, name, area_m2, sideWaterDepth_m, feedDepth_m, count }) => ({ id, code, name, area_m2, sideWaterDepth_m, feedDepth_m, count })),
+          pumps: l.pumps.filter((x) => x.trainId === t.id && x.inService).map(({ id, code, name, kind, capacity_m3h, clarifierId }) => ({ id, code, name, kind, capacity_m3h, clarifierId })),
         })),
       };
     },

@@ -140,7 +140,3 @@ export function createSeriesService({ seriesRepo: series, plantRepo: plants, pla
   }
 }
 
-export const SAMPLE_CSV_COLUMNS = ['ts', 'value', 'min', 'max', 'count', 'quality', 'flags'] as const;
-export function sampleCsvRows(points: SamplePoint[]) {
-  return points.map((p) => [p.ts, p.value, p.min, p.max, p.count, p.quality, p.flags?.join(';')]);
-}

@@ -1,6 +1,6 @@
 import { z } from 'zod';
 import { SETTLING_CORRELATIONS } from '../domain/settling.js';
-import { settleabilityIssues } from '../domain/settleability.js';
+import { MLSS_RANGE_gL, settleabilityIssues } from '../domain/settleability.js';
 
 /**
  * Request and response schemas of the stateless calculators (`POST /api/v1/calc/*`).
@@ -15,17 +15,17 @@ import { settleabilityIssues } from '../domain/settleability.js';
  * | flows (influent, RAS, WAS, storm, effluent, settler feed/underflow) | 0 … 1 000 000 m³/h (zero allowed; results that need a flow become null) |
  * | clarifier / settler area | > 0 … 1 000 000 m² |
  * | aeration volume | > 0 … 10 000 000 m³ |
- * | MLSS | 0.05 … 30 g/L |
+ * | MLSS | 0.1 … 20 g/L (plausibility; the lab's bounds too) |
  * | settler feed TSS | 0 … 30 g/L; WAS TSS 0 … 50 g/L; effluent TSS 0 … 5 g/L |
  * | SVI / SSVI | 20 … 1000 mL/g |
- * | settled volume | > 0 … 1000 mL/L (1 L cylinder); dilution factor 1 … 100 |
+ * | settled volume | > 0 … 1000 mL/L (1 L cylinder); dilution factor 1 … 100; the resulting SVI/DSVI/SSVI 20 … 1000 mL/g |
  * | rule-of-thumb factor X_R,max·SVI | 500 … 2000 mL/L (default 1200) |
  * | Vesilind v0 | > 0 … 50 m/h; k > 0 … 5 L/g |
  * | masses | 0 … 1e9 kg; target SRT > 0 … 200 d |
  * | settler depth | > 0 … 20 m; layers 2 … 100 (integer), feed layer 1 … layers |
  *
- * Responses: a value that cannot be computed is `null` (never NaN) and every response may
- * additionally carry `quality` ('good' | 'estimated' | 'unavailable', the worst over its figures)
+ * Responses: a value that cannot be computed is `null` (never NaN); every response carries the
+ * advisory `caution` the balance carries (OPERATOR_CAUTION) and may additionally carry `quality` ('good' | 'estimated' | 'unavailable', the worst over its figures)
  * and `reasons` (why any figure is estimated or null).
  */
 
@@ -38,11 +38,12 @@ const nullableNum = (description: string) => z.number().nullable().meta({ descri
 
 export const qualityEnum = z.enum(['good', 'estimated', 'unavailable']).meta({ description: 'worst quality over the response figures' });
 const qualityFields = {
+  caution: z.string().meta({ description: 'advisory caution: the licensed operator decides' }),
   quality: qualityEnum.optional(),
   reasons: z.array(z.string()).optional().meta({ description: 'why a figure is estimated or null' }),
 };
 
-const mlss = num('mixed-liquor suspended solids MLSS [g/L]').min(0.05).max(30);
+const mlss = num('mixed-liquor suspended solids MLSS [g/L]').min(MLSS_RANGE_gL.min).max(MLSS_RANGE_gL.max);
 const svi = num('sludge volume index SVI [mL/g]').min(20).max(1000);
 const area = num('clarifier surface area [m²]').positive().max(1_000_000);
 const mass = (what: string) => num(`${what} [kg]`).min(0).max(1e9);
@@ -222,6 +223,101 @@ export const sviResponse = z
   .strict()
   .meta({ id: 'SviResponse' });
 
+// ---- storm timeline ----
+export const hydrographPoint = z.object({ t_h: num('time from the start of the storm [h]').min(0).max(8760), flow_m3h: flow('influent flow at that time') }).strict();
+
+export const stormTimelineRequest = stormRequest
+  .extend({
+    hydrograph: z.array(hydrographPoint).min(2).max(10_000).meta({ description: 'influent flow in time, linear between points; two points at the same time make a step' }),
+    clarifierDepth_m: num('side-water depth of the clarifiers [m]').positive().max(20),
+    blanketNow_m: num('blanket level before the storm [m above the floor]').min(0).max(20).optional(),
+  })
+  .strict()
+  .superRefine((r, ctx) => {
+    for (let i = 1; i < (r.hydrograph?.length ?? 0); i++) {
+      const a = r.hydrograph[i - 1]!.t_h;
+      const b = r.hydrograph[i]!.t_h;
+      if (Number.isFinite(a) && Number.isFinite(b) && b < a) {
+        ctx.addIssue({ code: 'custom', message: 'hydrograph times must not decrease', path: ['hydrograph', i, 't_h'] });
+        return;
+      }
+    }
+    if (r.hydrograph?.length >= 2 && !(r.hydrograph[r.hydrograph.length - 1]!.t_h > r.hydrograph[0]!.t_h)) ctx.addIssue({ code: 'custom', message: 'the hydrograph must span some time', path: ['hydrograph'] });
+    if (typeof r.blanketNow_m === 'number' && typeof r.clarifierDepth_m === 'number' && r.blanketNow_m > r.clarifierDepth_m) {
+      ctx.addIssue({ code: 'custom', message: 'blanket level above the clarifier surface: check the detector and the depth', path: ['blanketNow_m'] });
+    }
+  })
+  .meta({ id: 'StormTimelineRequest', description: 'Storm projection in time over a hydrograph' });
+
+export const stormTimelineCheck = z
+  .object({
+    rule: z.enum(['min-mlss', 'max-stored-fraction', 'max-blanket-rise', 'blanket-below-surface']),
+    ok: z.boolean(),
+    value: num('worst value over the storm (g/L, fraction or m, by rule)'),
+    limit: num('limit of the rule (g/L, fraction or m, by rule)'),
+    firstFailed_h: nullableNum('first time the rule failed [h]; null if it held'),
+  })
+  .strict();
+
+export const stormTimelineResponse = z
+  .object({
+    points: z.array(
+      z
+        .object({
+          t_h: num('time [h]'),
+          mlss_gL: num('basin MLSS [g/L]'),
+          clarifierMass_kg: num('sludge in the clarifiers [kg]'),
+          blanket_m: num('blanket level above the floor, capped at the surface [m]'),
+          rasConcRequired_gL: nullableNum('X·(Q+Q_R)/Q_R at that time [g/L]'),
+        })
+        .strict(),
+    ),
+    peakBlanket_m: nullableNum('highest blanket level over the storm [m]'),
+    blanketReachesSurface_h: nullableNum('first time the blanket reaches the clarifier surface [h]; null if never'),
+    firstFailure_h: nullableNum('first time any check failed [h]; null if none did'),
+    rasConcMax_gL: nullableNum('X_R,max used, factor/SVI [g/L]'),
+    equilibriumMlss_gL: nullableNum('equilibrium MLSS at stormFlow_m3h held long (the storm calculator) [g/L]'),
+    checks: z.array(stormTimelineCheck),
+    ...qualityFields,
+  })
+  .strict()
+  .meta({ id: 'StormTimelineResponse' });
+
+// ---- dynamic SRT ----
+export const dynamicSrtPoint = z
+  .object({
+    t_h: num('time of the point [h], any origin; strictly increasing').min(-1e6).max(1e6),
+    inventory_kg: num('sludge inventory M (aeration + clarifiers) [kg]').positive().max(1e9),
+    wasted_kgh: num('solids removal W = Q_W·X_W + Q_e·X_e (wasting and effluent, not the production) [kg/h]').min(0).max(1e7),
+  })
+  .strict();
+
+export const dynamicSrtRequest = z
+  .object({
+    points: z.array(dynamicSrtPoint).min(1).max(100_000).meta({ description: 'inputs, taken linear between points' }),
+    initialSrt_d: num('sludge age at the first point [d]').min(0).max(1000),
+  })
+  .strict()
+  .superRefine((r, ctx) => {
+    for (let i = 1; i < r.points.length; i++) {
+      const a = r.points[i - 1]!.t_h;
+      const b = r.points[i]!.t_h;
+      if (Number.isFinite(a) && Number.isFinite(b) && !(b > a)) {
+        ctx.addIssue({ code: 'custom', message: 't_h must increase strictly from point to point', path: ['points', i, 't_h'] });
+        return;
+      }
+    }
+  })
+  .meta({ id: 'DynamicSrtRequest', description: 'Dynamic SRT on the age balance d(M·θ)/dt = M − W·θ of your own series' });
+
+export const dynamicSrtResponse = z
+  .object({
+    srt_d: z.array(z.number()).meta({ description: 'mass-weighted mean sludge age θ at each point [d]' }),
+    ...qualityFields,
+  })
+  .strict()
+  .meta({ id: 'DynamicSrtResponse' });
+
 export type StormRequest = z.infer<typeof stormRequest>;
 export type StormResponse = z.infer<typeof stormResponse>;
 export type StatePointRequest = z.infer<typeof statePointRequest>;
@@ -232,3 +328,7 @@ export type SrtRequest = z.infer<typeof srtRequest>;
 export type SrtResponse = z.infer<typeof srtResponse>;
 export type SviRequest = z.infer<typeof sviRequest>;
 export type SviResponse = z.infer<typeof sviResponse>;
+export type StormTimelineRequest = z.infer<typeof stormTimelineRequest>;
+export type StormTimelineResponse = z.infer<typeof stormTimelineResponse>;
+export type DynamicSrtRequest = z.infer<typeof dynamicSrtRequest>;
+export type DynamicSrtResponse = z.infer<typeof dynamicSrtResponse>;

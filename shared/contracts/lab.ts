@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { settleabilityIssues } from '../domain/settleability.js';
+import { MLSS_RANGE_gL, settleabilityIssues } from '../domain/settleability.js';
 
 /**
  * Lab results (`/api/v1/plants/:plantId/lab-results`): the daily settleability test (SVI, DSVI,
@@ -10,7 +10,8 @@ import { settleabilityIssues } from '../domain/settleability.js';
  * server from the test readings), MLSS in g/L, TSS in mg/L (the usual lab unit for suspended
  * solids; Standard Methods 2540 D). A reading outside its bound is refused (422), not clamped;
  * the settleability rules (e.g. "dilute and repeat" above 250 mL/L) are the shared ones of
- * shared/domain/settleability.ts. `sampledAt` may not lie in the future (60 s allowed for
+ * shared/domain/settleability.ts, and implausible results are refused with the reason (MLSS outside
+ * 0.1–20 g/L, settled volume over 1000 mL/L, an SVI-family index outside 20–1000 mL/g). `sampledAt` may not lie in the future (60 s allowed for
  * clock differences between the lab PC and the server).
  */
 
@@ -35,7 +36,7 @@ const common = {
   note: z.string().max(500).optional().meta({ description: 'free text, e.g. who ran the test' }),
 };
 
-const mlss = num('MLSS of the (undiluted) sample [g/L]').min(0.05).max(30);
+const mlss = num('MLSS of the (undiluted) sample [g/L]').min(MLSS_RANGE_gL.min).max(MLSS_RANGE_gL.max);
 const settleability = (kind: 'SVI' | 'DSVI' | 'SSVI', description: string) =>
   z
     .object({

@@ -43,7 +43,16 @@ const windowIssue = { message: 'from must be before to', path: ['to'] };
 
 // ---- plants ----
 export const plantSummary = z
-  .object({ id: z.number().int(), code: z.string(), name: z.string(), timezone: z.string(), peakFlow_m3h: z.number().nullable().meta({ description: 'peak wet-weather flow [m³/h]' }), createdAt: isoOut('created') })
+  .object({
+    id: z.number().int(),
+    code: z.string(),
+    name: z.string(),
+    timezone: z.string(),
+    peakFlow_m3h: z.number().nullable().meta({ description: 'peak wet-weather flow [m³/h]' }),
+    unitSystem: z.enum(['SI', 'US']).meta({ description: 'display units of the plant (values on the wire stay SI)' }),
+    retiredAt: isoOut('retired (history kept, no longer computed)').nullable(),
+    createdAt: isoOut('created'),
+  })
   .meta({ id: 'PlantSummary' });
 export type PlantSummary = z.infer<typeof plantSummary>;
 
@@ -54,13 +63,13 @@ export const plantLayoutOut = plantSummary
         id: z.number().int(),
         code: z.string(),
         name: z.string(),
-        basins: z.array(z.object({ id: z.number().int(), code: z.string(), name: z.string(), volume_m3: z.number(), aerobic: z.boolean() })),
-        clarifiers: z.array(z.object({ id: z.number().int(), code: z.string(), name: z.string(), area_m2: z.number(), sideWaterDepth_m: z.number(), count: z.number().int() })),
-        pumps: z.array(z.object({ id: z.number().int(), code: z.string(), name: z.string(), kind: z.enum(['ras', 'was']), capacity_m3h: z.number() })),
+        basins: z.array(z.object({ id: z.number().int(), code: z.string(), name: z.string(), volume_m3: z.number(), aeratedFraction: z.number().meta({ description: 'aerated share of the volume, 0–1' }), sideWaterDepth_m: z.number().nullable() })),
+        clarifiers: z.array(z.object({ id: z.number().int(), code: z.string(), name: z.string(), area_m2: z.number(), sideWaterDepth_m: z.number(), feedDepth_m: z.number().nullable(), count: z.number().int() })),
+        pumps: z.array(z.object({ id: z.number().int(), code: z.string(), name: z.string(), kind: z.enum(['ras', 'was']), capacity_m3h: z.number(), clarifierId: z.number().int().nullable() })),
       }),
     ),
   })
-  .meta({ id: 'PlantLayout', description: 'a plant with its trains, basins, clarifiers and pumps' });
+  .meta({ id: 'PlantLayout', description: 'a plant with its trains and the basins, clarifiers and pumps in service now, with the geometry that holds now' });
 export type PlantLayoutOut = z.infer<typeof plantLayoutOut>;
 
 // ---- quality on the wire ----
@@ -216,6 +225,9 @@ export const alarmOut = z
     acknowledgedAt: isoOut('acknowledged').nullable(),
     acknowledgedBy: z.number().int().nullable(),
     clearedAt: isoOut('cleared').nullable(),
+    suppressedReason: z.string().nullable().meta({ description: 'ISA-18.2 designed suppression: why the active alarm is not annunciated (null: annunciated)' }),
+    shelvedUntil: isoOut('shelved until (ISA-18.2 shelving; null: not shelved)').nullable(),
+    shelveReason: z.string().nullable(),
   })
   .meta({ id: 'Alarm' });
 export type AlarmOut = z.infer<typeof alarmOut>;

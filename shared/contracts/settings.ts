@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { SETTLING_CORRELATIONS, type SettlingCorrelationId } from '../domain/settling.js';
 
 /**
  * Every setting the balance engine, the alarms and the mailer read, with its schema, default,
@@ -22,7 +23,26 @@ export const SETTINGS = {
   'storm.min_mlss_gL': { schema: pos, default: 2, unit: 'g/L', doc: 'Lowest basin MLSS during storm storage [CP]' },
   'storm.max_stored_fraction': { schema: frac, default: 0.3, unit: '-', doc: 'Highest fraction of the inventory in the clarifiers [CP]' },
   'storm.max_blanket_rise_m': { schema: pos, default: 0.3, unit: 'm', doc: 'Highest blanket rise during storage [CP]' },
+  'storm.hydrograph': {
+    schema: z
+      .array(z.strictObject({ t_h: z.number().min(0).max(168), peakFraction: z.number().min(0).max(1) }))
+      .min(2)
+      .max(200)
+      .refine((h) => h.every((p, i) => i === 0 || p.t_h >= h[i - 1]!.t_h) && h[h.length - 1]!.t_h > h[0]!.t_h, 'times must not decrease and must span some time'),
+    default: [
+      { t_h: 0, peakFraction: 1 },
+      { t_h: 6, peakFraction: 1 },
+      { t_h: 6, peakFraction: 0 },
+      { t_h: 12, peakFraction: 0 },
+    ] as { t_h: number; peakFraction: number }[],
+    unit: 'h, -',
+    doc: 'Design storm of the storm timeline: flow = present + peakFraction × (storm peak − present), linear between points, a repeated time is a step; default a step to the peak for 6 h, then 6 h back at the present flow [ours]',
+  },
   'ras.xr_factor': { schema: z.number().min(100).max(5000), default: 1200, unit: 'mL/L', doc: 'X_R,max = factor / SVI (1000 mL/L with about 20 % margin) [CP]' },
+  'settling.correlation': { schema: z.enum(SETTLING_CORRELATIONS), default: 'haertel-poepel-1992' as SettlingCorrelationId, unit: '', doc: 'SVI → Vesilind correlation of the live state point when no fit to the plant\'s own data is used (shared/domain/settling.ts); Härtel & Pöpel (1992) is the one whose coefficients are not from memory' },
+  'settling.fit_min_points': { schema: z.number().int().min(3).max(1000), default: 10, unit: '-', doc: 'The live state point uses the Vesilind fit to the plant\'s own settleability tests from this many tests on, the correlation below it [ours]' },
+  'settling.fit_window_d': { schema: z.number().min(1).max(730), default: 90, unit: 'd', doc: 'Settleability tests of this many days back enter the Vesilind fit [ours]' },
+  'settling.cylinder_height_m': { schema: z.number().min(0.1).max(1), default: 0.35, unit: 'm', doc: 'Height of the 1 L mark of the SVI cylinder, for the 30-min mean settling velocity of a test [M: about 0.35 m for a 1 L graduated cylinder; measure yours]' },
   'clarifier.blanket_conc_method': { schema: z.enum(['ras', 'mean']), default: 'ras' as 'ras' | 'mean', unit: '', doc: "Blanket concentration: 'ras' = underflow TSS, 'mean' = (MLSS + underflow TSS)/2 (shared/domain/clarifier-inventory.ts)" },
   'clarifier.integral_window_h': { schema: z.number().min(0.1).max(24), default: 1, unit: 'h', doc: 'Window of the clarifier mass-balance integral shown beside the blanket mass [ours]' },
   'alarm.on_delay_s': { schema: z.number().int().min(0).max(3600), default: 60, unit: 's', doc: 'A condition must hold this long before the alarm is raised (ISA-18.2 on-delay) [ours]' },
@@ -39,6 +59,9 @@ export const SETTINGS = {
   'alarm.ras_margin_deadband': { schema: frac, default: 0.02, unit: '-', doc: 'Deadband of the RAS margin alarms [ours]' },
   'alarm.srt_tolerance': { schema: frac, default: 0.2, unit: '-', doc: 'SRT off target when |SRT − target| > tolerance × target [ours]' },
   'alarm.srt_deadband': { schema: frac, default: 0.05, unit: '-', doc: 'Deadband of the SRT alarm, fraction of the target [ours]' },
+  'alarm.start_suppression_periods': { schema: z.number().min(0).max(1000), default: 6, unit: '-', doc: 'ISA-18.2 designed suppression: a tag-stale alarm is suppressed (listed, not annunciated) for this many expected periods of the tag after ingest\'s worker started or the tag\'s source connected, while the source catches up [ours]' },
+  'alarm.start_suppression_min_s': { schema: z.number().int().min(0).max(86_400), default: 180, unit: 's', doc: 'The start suppression of tag-stale alarms lasts at least this long [ours]' },
+  'alarm.flood_per_10min': { schema: z.number().int().min(1).max(1000), default: 10, unit: 'alarms', doc: 'Alarm flood: more than this many alarms annunciated in 10 minutes (for one operator). ANSI/ISA-18.2-2016 gives "more than 10 alarms per 10 minutes" as its example of a flood, as EEMUA 191 does [M: from memory]' },
   'alarm.ingest_down_s': { schema: secs, default: 120, unit: 's', doc: 'Ingest down when no tag of the plant was received for this long [ours]' },
   'mail.recipients': { schema: z.array(z.email()).max(50), default: [] as string[], unit: '', doc: 'Who gets alarm e-mails and the shift summary' },
   'mail.min_priority': { schema: z.number().int().min(1).max(4), default: 2, unit: '', doc: 'Alarm e-mails for priorities 1 … this value (1 highest) [ours]' },

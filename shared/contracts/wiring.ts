@@ -52,6 +52,10 @@ export function sourceUrlIssue(kind: SourceKind, url: string): string | null {
 // ingest (stored rows, unknown keys dropped and defaults applied) and by the API's connection
 // test, which connects exactly as ingest does (ingest/mqtt/mqtt-connection.ts).
 
+/** How an MQTT source's payloads are read (see `mqttOptionFields.payload`). */
+export const MQTT_PAYLOAD_FORMATS = ['json', 'sparkplugB'] as const;
+export type MqttPayloadFormat = (typeof MQTT_PAYLOAD_FORMATS)[number];
+
 const mqttOptionFields = {
   topics: z.array(z.string().min(1).max(1024)).min(1).max(100).meta({ description: 'topic filters to subscribe to (default ["#"], which lets discovery see everything)' }),
   protocolVersion: z.union([z.literal(4), z.literal(5), z.literal('auto')]).meta({ description: '5 = MQTT 5.0, 4 = MQTT 3.1.1, auto (default) = 5.0 falling back to 3.1.1' }),
@@ -65,6 +69,13 @@ const mqttOptionFields = {
     .max(65_536)
     .regex(/-----BEGIN CERTIFICATE-----/, 'a PEM certificate (-----BEGIN CERTIFICATE-----)')
     .meta({ description: 'PEM certificate(s) of the CA that signed the broker’s certificate, for mqtts:// and wss:// when it is not a public CA' }),
+  payload: z.enum(MQTT_PAYLOAD_FORMATS).meta({
+    description: 'json (default): Flocstream JSON, and Sparkplug B on topics under spBv1.0/ (detected); sparkplugB: Sparkplug B only (Eclipse Sparkplug 3.0), other topics ignored',
+  }),
+  requestRebirth: z.boolean().meta({
+    description:
+      'Sparkplug B only; default false. When true, ingest may publish the standard rebirth command (NCMD Node Control/Rebirth = true) to an edge node whose metric aliases it does not know, at most once per node per minute — the only message ingest can ever publish. A rebirth makes the edge node resend its births; ask the plant’s control-system owner before enabling it.',
+  }),
 };
 
 /** `sources.options` of an MQTT source as the API accepts it. */
@@ -79,6 +90,8 @@ export const mqttSourceOptions = z
     clientId: mqttOptionFields.clientId.optional(),
     keepalive_s: mqttOptionFields.keepalive_s.default(30),
     tlsCa_pem: mqttOptionFields.tlsCa_pem.optional(),
+    payload: mqttOptionFields.payload.default('json'),
+    requestRebirth: mqttOptionFields.requestRebirth.default(false),
   })
   .strip();
 export type MqttSourceOptions = z.infer<typeof mqttSourceOptions>;
@@ -218,10 +231,12 @@ export const discoveryOut = z.object({
 
 // ---- tags ----
 const finite = (description: string) => z.number().finite().meta({ description });
+/** What a tag's value is; only an analog value can drift, so only it is checked for a flat line (ingest/pipeline/quality.ts). */
+export const TAG_KINDS = ['analog', 'state', 'counter'] as const;
 const tagFields = {
   name: z.string().trim().min(1).max(64).meta({ description: 'unique within the plant' }),
   sourceId: z.number().int().positive(),
-  address: z.string().min(1).max(1024).meta({ description: 'MQTT topic (or filter with + and #) or OPC UA NodeId (ns=…;s=…)' }),
+  address: z.string().min(1).max(1024).meta({ description: 'MQTT topic (or filter with + and #), Sparkplug B metric path group/node/device/metric (device empty for node metrics), or OPC UA NodeId (ns=…;s=…)' }),
   unit: z.string().trim().min(1).max(16),
   description: z.string().max(200),
   scaleGain: finite('engineering value = raw × scaleGain + scaleOffset'),
@@ -231,8 +246,10 @@ const tagFields = {
   rangeLow: finite('lowest plausible value (engineering unit)').nullable(),
   rangeHigh: finite('highest plausible value (engineering unit)').nullable(),
   samplingInterval_ms: z.number().int().min(0).max(3_600_000).nullable().meta({ description: 'OPC UA sampling interval [ms]; null uses the source default' }),
+  kind: z.enum(TAG_KINDS).meta({ description: 'analog (a measurement), state (e.g. pump running 0/1) or counter (a running total); only analog tags are checked for a flat line' }),
   enabled: z.boolean(),
 };
+export type TagKind = (typeof TAG_KINDS)[number];
 const rangeOk = (t: { rangeLow?: number | null; rangeHigh?: number | null }) => t.rangeLow == null || t.rangeHigh == null || t.rangeLow < t.rangeHigh;
 const rangeIssue = { message: 'rangeLow must be below rangeHigh', path: ['rangeHigh'] };
 
@@ -247,6 +264,7 @@ export const tagCreate = z
     rangeLow: tagFields.rangeLow.optional(),
     rangeHigh: tagFields.rangeHigh.optional(),
     samplingInterval_ms: tagFields.samplingInterval_ms.optional(),
+    kind: tagFields.kind.optional(),
     enabled: tagFields.enabled.optional(),
   })
   .strict()
@@ -279,6 +297,7 @@ export const tagConfigOut = z
     rangeLow: z.number().nullable(),
     rangeHigh: z.number().nullable(),
     samplingInterval_ms: z.number().int().nullable(),
+    kind: z.enum(TAG_KINDS),
     enabled: z.boolean(),
     signals: z.array(mappingOut),
     createdAt: isoOut('created'),
@@ -378,6 +397,23 @@ export const tagImportOut = z.object({
 export type TagImportOut = z.infer<typeof tagImportOut>;
 
 // ---- ingest status (table ingest_workers, written by ingest) ----
+/**
+ * `details.sparkplug` of an MQTT source's status once it has seen a Sparkplug B message
+ * (ingest/mqtt/sparkplug.ts; Eclipse Sparkplug 3.0).
+ */
+export const sparkplugStatus = z.object({
+  messages: z.number().meta({ description: 'Sparkplug B messages received' }),
+  seqGaps: z.number().meta({ description: 'missing payload sequence numbers (seq 0–255 wrapping; each missing number counts one)' }),
+  deaths: z.number().meta({ description: 'NDEATH and DDEATH certificates applied (the tags under them marked bad)' }),
+  rebirthRequests: z.number().meta({ description: 'rebirth commands sent (only with requestRebirth)' }),
+  needRebirth: z.array(z.object({ edgeNode: z.string().meta({ description: 'group_id/edge_node_id' }), reason: z.string() })).meta({ description: 'edge nodes whose data ingest cannot read until they publish their births again' }),
+  ignored: z.record(z.string(), z.number()).meta({ description: 'messages or metrics that produced nothing, counted by reason' }),
+  edgeNodes: z.array(
+    z.object({ edgeNode: z.string(), online: z.boolean(), bdSeq: z.number().nullable(), seq: z.number().nullable(), seqGaps: z.number(), devicesOnline: z.array(z.string()) }),
+  ),
+});
+export type SparkplugStatus = z.infer<typeof sparkplugStatus>;
+
 export const connectorStatus = z
   .object({
     sourceId: z.number(),

@@ -5,6 +5,10 @@
  * calls the same domain functions, so the calculators and the monitor cannot disagree.
  */
 import type {
+  StormTimelineRequest,
+  StormTimelineResponse,
+  DynamicSrtRequest,
+  DynamicSrtResponse,
   SettlerRequest,
   SettlerResponse,
   SrtRequest,
@@ -20,16 +24,19 @@ import { requiredRasConcSimple_gL } from './clarifier-balance.js';
 import { rasConcMaxRuleOfThumb_gL } from './flux.js';
 import { combineQuality, propagate, good, type Figure, type QualityInfo } from './quality.js';
 import { minRecycleRatio } from './ras-margin.js';
-import { blanketHeight_m, BSM1_SETTLER, BSM1_TAKACS, solveSettlerSteadyState, type SettlerConfig } from './settler.js';
+import { blanketHeight_m, BSM1_SETTLER, BSM1_TAKACS, solveSettlerSteadyState, type SettlerBudget, type SettlerConfig } from './settler.js';
 import { settleabilityIndex } from './settleability.js';
 import { vesilindFromIndex } from './settling.js';
-import { srt, wasFlowForTargetSrt_m3h } from './srt.js';
+import { OPERATOR_CAUTION } from '../contracts/balance.js';
+import { dynamicSrt, srt, wasFlowForTargetSrt_m3h } from './srt.js';
 import { statePoint } from './state-point.js';
 import { stormProjection } from './storm.js';
+import { stormTimeline } from './storm-timeline.js';
 
-function summary(...figs: QualityInfo[]): { quality: 'good' | 'estimated' | 'unavailable'; reasons: string[] } {
+/** Quality and reasons of a response (the worst over its figures), with the advisory caution every answer carries. */
+function summary(...figs: QualityInfo[]): { caution: string; quality: 'good' | 'estimated' | 'unavailable'; reasons: string[] } {
   const c = combineQuality(...figs);
-  return { quality: c.quality, reasons: c.reasons };
+  return { caution: OPERATOR_CAUTION, quality: c.quality, reasons: c.reasons };
 }
 
 /**
@@ -105,8 +112,10 @@ export function calcStatePoint(req: StatePointRequest): StatePointResponse {
 /**
  * Layered settler calculator (Takács et al. 1991; BSM1 defaults, Alex et al. 2008): steady
  * state of the given settler, with the blanket height at the clarification threshold Xt.
+ * `budget` bounds the work (the API passes its iteration and time budget): a solve that stops
+ * before steady state answers the last iterate as `estimated` with the reason, never as good.
  */
-export function calcSettler(req: SettlerRequest): SettlerResponse {
+export function calcSettler(req: SettlerRequest, budget?: SettlerBudget): SettlerResponse {
   const cfg: SettlerConfig = {
     area_m2: req.area_m2,
     depth_m: req.depth_m,
@@ -114,8 +123,9 @@ export function calcSettler(req: SettlerRequest): SettlerResponse {
     feedLayer: req.feedLayer ?? BSM1_SETTLER.feedLayer,
     takacs: req.takacs ?? BSM1_TAKACS,
   };
-  const r = solveSettlerSteadyState(cfg, { feedFlow_m3h: req.feedFlow_m3h, feedTss_gL: req.feedTss_gL, underflowFlow_m3h: req.underflowFlow_m3h });
-  const q: Figure<null> = r.converged ? good(null) : { value: null, quality: 'estimated', reasons: [`steady state not reached within ${r.iterations} steps: profile is the last iterate`] };
+  const r = solveSettlerSteadyState(cfg, { feedFlow_m3h: req.feedFlow_m3h, feedTss_gL: req.feedTss_gL, underflowFlow_m3h: req.underflowFlow_m3h }, budget);
+  const why = r.stop === 'deadline' ? `the time budget ran out after ${r.iterations} steps` : `the budget of ${r.iterations} steps ran out`;
+  const q: Figure<null> = r.converged ? good(null) : { value: null, quality: 'estimated', reasons: [`steady state not reached (${why}): the profile is the last iterate`] };
   return {
     layers_gL: r.layers_gL,
     effluentTss_gL: r.effluentTss_gL,
@@ -129,7 +139,7 @@ export function calcSettler(req: SettlerRequest): SettlerResponse {
 export function calcSrt(req: SrtRequest): SrtResponse {
   const s = srt(req);
   const figs: QualityInfo[] = [s.total_d, s.aeration_d];
-  const out: SrtResponse = { srtTotal_d: s.total_d.value, srtAeration_d: s.aeration_d.value, quality: 'good', reasons: [] };
+  const out: SrtResponse = { srtTotal_d: s.total_d.value, srtAeration_d: s.aeration_d.value, caution: OPERATOR_CAUTION, quality: 'good', reasons: [] };
   if (req.targetSrt_d !== undefined) {
     const w = wasFlowForTargetSrt_m3h(req.aerationMass_kg + req.clarifierMass_kg, req.targetSrt_d, req.effluentFlow_m3h, req.effluentTss_gL, req.wasTss_gL);
     out.wasFlowForTarget_m3h = w.value;
@@ -149,3 +159,37 @@ export function calcSvi(req: SviRequest): SviResponse {
   return { svi_mLg: r.value.svi_mLg, kind: r.value.kind, ...summary(r) };
 }
 
+
+/**
+ * Dynamic SRT calculator: the age balance d(M·θ)/dt = M − W·θ (see {@link dynamicSrt}; after
+ * Takács et al. 2008 [M]) over the analyst's own series, inputs linear between points, from the
+ * given initial age. One age per point, in days.
+ */
+export function calcDynamicSrt(req: DynamicSrtRequest): DynamicSrtResponse {
+  const r = dynamicSrt(
+    req.points.map((p) => ({ ts_ms: p.t_h * 3_600_000, mass_kg: p.inventory_kg, removal_kgh: p.wasted_kgh })),
+    req.initialSrt_d,
+  );
+  return { srt_d: r.value?.map((p) => p.srt_d) ?? [], ...summary(r) };
+}
+
+/**
+ * Storm timeline calculator (see storm-timeline.ts): the basin/clarifier exchange over the
+ * hydrograph, X_R,max by the rule factor/SVI [CP], with the equilibrium MLSS at stormFlow_m3h
+ * (stormProjection) beside it for comparison.
+ */
+export function calcStormTimeline(req: StormTimelineRequest): StormTimelineResponse {
+  const r = stormTimeline(req);
+  const eq = stormProjection(req);
+  const v = r.value;
+  return {
+    points: v?.points ?? [],
+    peakBlanket_m: v?.peakBlanket_m ?? null,
+    blanketReachesSurface_h: v?.blanketReachesSurface_h ?? null,
+    firstFailure_h: v?.firstFailure_h ?? null,
+    rasConcMax_gL: v?.rasConcMax_gL ?? null,
+    equilibriumMlss_gL: eq.value?.equilibriumMlss_gL ?? null,
+    checks: v?.checks ?? [],
+    ...summary(r, eq),
+  };
+}

@@ -18,6 +18,15 @@ export const MAX_SETTLED_VOLUME_mLL = 250;
  * with less dilution. Undiluted tests have no lower limit beyond a positive volume.
  */
 export const MIN_DILUTED_SETTLED_VOLUME_mLL = 150;
+/**
+ * Plausible range of an SVI-family result [mL/g]: outside it the test or its MLSS was entered
+ * wrongly (e.g. MLSS in mg/L). 20 mL/g is below the densest granular sludge and 1000 mL/g above
+ * the worst bulking — our bounds around the usual range of the trade [CP].
+ */
+export const SVI_RANGE_mLg = Object.freeze({ min: 20, max: 1000 });
+/** Plausible MLSS of a test or a calculator input [g/L] (0.1–20: our bounds around any activated sludge [CP]). */
+export const MLSS_RANGE_gL = Object.freeze({ min: 0.1, max: 20 });
+
 /** SSVI3.5 is defined at 3.5 g/L; tests outside 3.0–4.0 g/L (our tolerance choice) are flagged estimated. */
 export const SSVI_REFERENCE_MLSS_gL = 3.5;
 export const SSVI_MLSS_TOLERANCE_gL = 0.5;
@@ -50,7 +59,8 @@ export function settleabilityKind(inp: Pick<SettleabilityInputs, 'dilutionFactor
  * White 1975), returned instead of thrown so the zod contract and the domain share them:
  * an undiluted SVI above 250 mL/L must be diluted and repeated; a DSVI's diluted settled
  * volume must be ≤ 250 mL/L and, when diluted (factor > 1), ≥ 150 mL/L; an SVI cannot carry
- * a dilution; an SSVI is a stirred test without dilution. Volumes must be in (0, 1000] mL/L.
+ * a dilution; an SSVI is a stirred test without dilution. Volumes must be in (0, 1000] mL/L,
+ * MLSS within 0.1–20 g/L and the resulting index within 20–1000 mL/g (plausibility [CP]).
  */
 export function settleabilityIssues(inp: SettleabilityInputs): SettleabilityIssue[] {
   const issues: SettleabilityIssue[] = [];
@@ -58,7 +68,9 @@ export function settleabilityIssues(inp: SettleabilityInputs): SettleabilityIssu
   const f = inp.dilutionFactor ?? 1;
   const kind = settleabilityKind(inp);
   if (!Number.isFinite(v) || v <= 0 || v > 1000) issues.push({ field: 'settledVolume_mLL', message: 'settled volume must be > 0 and ≤ 1000 mL/L', range: true });
-  if (!Number.isFinite(inp.mlss_gL) || inp.mlss_gL <= 0) issues.push({ field: 'mlss_gL', message: 'MLSS must be a positive number', range: true });
+  if (!Number.isFinite(inp.mlss_gL) || inp.mlss_gL < MLSS_RANGE_gL.min || inp.mlss_gL > MLSS_RANGE_gL.max) {
+    issues.push({ field: 'mlss_gL', message: `MLSS must lie within ${MLSS_RANGE_gL.min}–${MLSS_RANGE_gL.max} g/L`, range: true });
+  }
   if (!Number.isFinite(f) || f < 1) issues.push({ field: 'dilutionFactor', message: 'dilution factor must be ≥ 1', range: true });
   if (issues.length) return issues;
   if (kind === 'SVI') {
@@ -74,6 +86,16 @@ export function settleabilityIssues(inp: SettleabilityInputs): SettleabilityIssu
     }
   } else if (f > 1) {
     issues.push({ field: 'dilutionFactor', message: 'an SSVI3.5 is a stirred test at 3.5 g/L and takes no dilution factor', range: false });
+  }
+  if (issues.length === 0) {
+    const index = (v * (kind === 'DSVI' ? f : 1)) / inp.mlss_gL;
+    if (index < SVI_RANGE_mLg.min || index > SVI_RANGE_mLg.max) {
+      issues.push({
+        field: 'settledVolume_mLL',
+        message: `${kind} = ${index.toPrecision(3)} mL/g lies outside the plausible ${SVI_RANGE_mLg.min}–${SVI_RANGE_mLg.max} mL/g: check the settled volume, the dilution and the MLSS (g/L, not mg/L)`,
+        range: false,
+      });
+    }
   }
   return issues;
 }

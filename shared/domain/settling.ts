@@ -103,6 +103,10 @@ export interface VesilindFit extends VesilindParams {
   r2: number;
   /** Number of points used. */
   n: number;
+  /** Standard error of k [L/g] (ordinary least squares); null with two points. */
+  kStdErr_Lg: number | null;
+  /** Standard error of ln v0 [-], so v0 lies within v0·e^(±2·se) at about 95 %; null with two points. */
+  lnV0StdErr: number | null;
 }
 
 /**
@@ -112,6 +116,7 @@ export interface VesilindFit extends VesilindParams {
  * non-finite values are skipped (estimated, with the count). Unavailable with fewer than two
  * distinct concentrations or a non-positive k (velocity not falling with concentration);
  * estimated with only two points or when r² < minR2 (default 0.9, our own acceptance choice).
+ * With three or more points it gives the standard errors of k and ln v0 (ordinary least squares).
  */
 export function fitVesilind(points: readonly SettlingTestPoint[], minR2 = 0.9): Figure<VesilindFit> {
   const ok = points.filter((p) => Number.isFinite(p.conc_gL) && Number.isFinite(p.velocity_mh) && p.conc_gL > 0 && p.velocity_mh > 0);
@@ -145,6 +150,10 @@ export function fitVesilind(points: readonly SettlingTestPoint[], minR2 = 0.9): 
   const r2 = syy === 0 ? 1 : (sxy * sxy) / (sxx * syy);
   if (n === 2) reasons.push('only two settling-test points: the fit is exact and r² says nothing');
   else if (r2 < minR2) reasons.push(`weak fit: r² = ${r2.toFixed(3)} < ${minR2}`);
-  const value = { v0_mh: v0, k_Lg: k, r2, n };
+  // OLS standard errors of slope and intercept (e.g. Draper & Smith, Applied Regression Analysis, 3rd ed. 1998, ch. 1 [M for the chapter]).
+  const resid = n > 2 ? Math.max(0, syy - slope * sxy) / (n - 2) : null;
+  const kStdErr_Lg = resid === null ? null : Math.sqrt(resid / sxx);
+  const lnV0StdErr = resid === null ? null : Math.sqrt(resid * (1 / n + (mx * mx) / sxx));
+  const value = { v0_mh: v0, k_Lg: k, r2, n, kStdErr_Lg, lnV0StdErr };
   return reasons.length ? estimated(value, ...reasons) : good(value);
 }

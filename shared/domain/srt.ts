@@ -1,10 +1,10 @@
 /**
  * Sludge age (solids retention time, SRT): steady-state total and aeration-only SRT, a
- * rolling flow-weighted SRT over a window of time series, the dynamic SRT of Takács et al.
- * (2008), and the WAS flow that holds a target SRT. Mass kg, flows m³/h, concentrations g/L
+ * rolling flow-weighted SRT over a window of time series, the dynamic SRT on the age balance
+ * (after Takács et al. 2008 [M]), and the WAS flow that holds a target SRT. Mass kg, flows m³/h, concentrations g/L
  * (= kg/m³), time h inside; SRT reported in d.
  */
-import { combineQuality, estimated, good, unavailable, type Figure, type Quality } from './quality.js';
+import { estimated, good, unavailable, type Figure, type Quality } from './quality.js';
 
 export interface SrtInputs {
   aerationMass_kg: number;
@@ -54,6 +54,29 @@ export function wasFlowForTargetSrt_m3h(mass_kg: number, targetSrt_d: number, ef
   const qw = (allowed - effluentFlow_m3h * effluentTss_gL) / wasTss_gL;
   if (qw < 0) return unavailable(`effluent solids alone (${(effluentFlow_m3h * effluentTss_gL).toFixed(2)} kg/h) exceed the loss the target SRT allows (${allowed.toFixed(2)} kg/h): the target cannot be reached by wasting`);
   return good(qw);
+}
+
+/** A basin as the aerobic SRT weighs it. */
+export interface AerobicBasin {
+  volume_m3: number;
+  mlss_gL: number;
+  /** Aerated fraction of the volume, 0 … 1. */
+  aeratedFraction: number;
+}
+
+/**
+ * Aerobic share of the basin inventory on a mass basis, Σ(Vᵢ·Xᵢ·fᵢ)/Σ(Vᵢ·Xᵢ) with fᵢ the
+ * aerated fraction of basin i: the aerobic SRT is the basin SRT × this share, i.e. the aerated
+ * sludge mass over the solids removal rate (the usual definition of the aerobic SRT, e.g.
+ * Metcalf & Eddy 5th ed. 2014, ch. 7 [M for the chapter]). Clarifier sludge is not aerated and is
+ * not counted. Unavailable without basin mass or with a fraction outside 0–1.
+ */
+export function aerobicMassFraction(basins: readonly AerobicBasin[]): Figure<number> {
+  if (basins.some((b) => !(b.aeratedFraction >= 0 && b.aeratedFraction <= 1))) return unavailable('aerated fraction must lie in 0 … 1');
+  if (!basins.every((b) => Number.isFinite(b.volume_m3) && Number.isFinite(b.mlss_gL) && b.volume_m3 >= 0 && b.mlss_gL >= 0)) return unavailable('basin volumes and MLSS must be finite and ≥ 0');
+  const mass = basins.reduce((a, b) => a + b.volume_m3 * b.mlss_gL, 0);
+  if (!(mass > 0)) return unavailable('no sludge in the basins');
+  return good(basins.reduce((a, b) => a + b.volume_m3 * b.mlss_gL * b.aeratedFraction, 0) / mass);
 }
 
 /** One time-series sample: epoch milliseconds, value (null for a missing/bad sample), optional quality. */
@@ -234,46 +257,65 @@ export const EFFLUENT_TSS_NOT_MEASURED = 'effluent TSS not measured in some trai
 
 export interface DynamicSrtSample {
   ts_ms: number;
-  /** Sludge inventory M [kg]. */
+  /** Sludge inventory M [kg] (> 0). */
   mass_kg: number;
-  /** Solids production / removal rate P [kg/h] (at steady state equal to Q_W·X_W + Q_e·X_e). */
-  production_kgh: number;
+  /**
+   * Solids removal rate W = Q_W·X_W + Q_e·X_e [kg/h]: what leaves by wasting and with the
+   * effluent, at the mean age. Not the production: the production P = W + dM/dt follows from
+   * the inventory's change, which the age balance accounts for itself.
+   */
+  removal_kgh: number;
 }
 
+/** Longest sub-step of the age-balance integration [h]; inputs are linear between samples. */
+const AGE_STEP_H = 0.1;
+
 /**
- * Dynamic SRT after Takács et al. (2008), WEFTEC, "Do you know your sludge age?": the
- * mass-weighted sludge age θ obeys dθ/dt = 1 − θ·P/M (P solids production rate, M inventory),
- * which settles to M/P at steady state — a reconstruction from memory [M], to be checked
- * against the paper. Integrated exactly over each interval with P/M held at the interval's
- * start value (θ → M/P + (θ − M/P)·e^(−Δt·P/M)), so it is stable for any step. Starts from
- * θ0 (default the steady-state M/P of the first sample). Returns θ in days at every sample.
+ * Dynamic SRT: the mass-weighted mean sludge age θ from the age balance
+ * d(M·θ)/dt = M − W·θ — every kilogram in the inventory M ages one hour per hour, new sludge
+ * enters at age 0, and sludge leaves by wasting and with the effluent (W) at the mean age θ.
+ * Expanded, dθ/dt = 1 − θ·(W + dM/dt)/M, i.e. the production P = W + dM/dt drives the age, which
+ * is why feeding the removal W where P belongs reads the age high while the inventory builds up.
+ * The idea of a dynamic, age-balance SRT follows Takács et al. (2008), WEFTEC, "Do you know your
+ * sludge age?" — the paper's exact formulation is recalled from memory [M]; the balance above
+ * is written out here from its definition. M and W are taken linear between samples; the
+ * balance is integrated in A = M·θ by the exponential midpoint rule (A → A·e^(−r·h) +
+ * M·(1 − e^(−r·h))/r with r = W/M and M at the sub-step's midpoint, sub-steps ≤ 0.1 h), stable
+ * for any step. Starts from θ0 (default the steady-state age M/W of the first sample, which
+ * holds when the plant was steady before it). Returns θ in days at every sample.
  */
 export function dynamicSrt(samples: readonly DynamicSrtSample[], theta0_d?: number): Figure<{ ts_ms: number; srt_d: number }[]> {
-  const s = samples.filter((p) => [p.ts_ms, p.mass_kg, p.production_kgh].every(Number.isFinite) && p.mass_kg >= 0 && p.production_kgh >= 0).slice().sort((a, b) => a.ts_ms - b.ts_ms);
-  if (s.length === 0) return unavailable('no valid samples');
+  const s = samples.filter((p) => [p.ts_ms, p.mass_kg, p.removal_kgh].every(Number.isFinite) && p.mass_kg > 0 && p.removal_kgh >= 0).slice().sort((a, b) => a.ts_ms - b.ts_ms);
+  if (s.length === 0) return unavailable('no valid samples (inventory must be > 0, removal ≥ 0)');
   const first = s[0]!;
   let theta_h: number;
   if (theta0_d !== undefined) {
     if (!Number.isFinite(theta0_d) || theta0_d < 0) return unavailable('initial sludge age must be finite and ≥ 0');
     theta_h = theta0_d * 24;
   } else {
-    if (!(first.production_kgh > 0) || !(first.mass_kg > 0)) return unavailable('initial sludge age not given and the first sample has no steady-state age (P or M is zero)');
-    theta_h = first.mass_kg / first.production_kgh;
+    if (!(first.removal_kgh > 0)) return unavailable('initial sludge age not given and the first sample has no steady-state age (no solids removed)');
+    theta_h = first.mass_kg / first.removal_kgh;
   }
+  let age = theta_h * first.mass_kg; // A = M·θ [kg·h]
   const out = [{ ts_ms: first.ts_ms, srt_d: theta_h / 24 }];
   for (let i = 1; i < s.length; i++) {
-    const p = s[i - 1]!;
-    const dt_h = (s[i]!.ts_ms - p.ts_ms) / 3_600_000;
-    const rate = p.mass_kg > 0 ? p.production_kgh / p.mass_kg : 0; // 1/h
-    if (rate > 0) {
-      const eq = 1 / rate;
-      theta_h = eq + (theta_h - eq) * Math.exp(-dt_h * rate);
-    } else {
-      theta_h += dt_h;
+    const a = s[i - 1]!;
+    const b = s[i]!;
+    const dt_h = (b.ts_ms - a.ts_ms) / 3_600_000;
+    const n = Math.max(1, Math.ceil(dt_h / AGE_STEP_H));
+    const h = dt_h / n;
+    for (let j = 0; j < n; j++) {
+      const f = (j + 0.5) / n;
+      const m = a.mass_kg + f * (b.mass_kg - a.mass_kg);
+      const r = (a.removal_kgh + f * (b.removal_kgh - a.removal_kgh)) / m; // 1/h
+      const rh = r * h;
+      // (1 − e^(−rh))/r → h as r → 0; expm1 keeps the small-r case exact.
+      const decay = Math.exp(-rh);
+      const gain = rh > 1e-12 ? -Math.expm1(-rh) / r : h;
+      age = age * decay + m * gain;
     }
-    out.push({ ts_ms: s[i]!.ts_ms, srt_d: theta_h / 24 });
+    out.push({ ts_ms: b.ts_ms, srt_d: age / b.mass_kg / 24 });
   }
   const dropped = samples.length - s.length;
-  const q = combineQuality(dropped ? { quality: 'estimated', reasons: [`${dropped} invalid sample(s) ignored`] } : { quality: 'good', reasons: [] });
-  return q.quality === 'good' ? good(out) : estimated(out, ...q.reasons);
+  return dropped ? estimated(out, `${dropped} invalid sample(s) ignored`) : good(out);
 }

@@ -4,6 +4,7 @@ export const NAV = [
   { to: '/alarms', label: 'Alarms', role: 'analyst' },
   { to: '/trends', label: 'Trends', role: 'analyst' },
   { to: '/signals', label: 'Signals', role: 'analyst' },
+  { to: '/setup', label: 'Setup', role: 'integrator' },
   { to: '/wiring', label: 'Wiring', role: 'integrator' },
   { to: '/what-if', label: 'What-if', role: 'analyst' },
   { to: '/lab', label: 'Lab', role: 'operator' },

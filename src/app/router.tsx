@@ -12,6 +12,7 @@ const WiringPage = lazy(() => import('../features/wiring/components/wiring-page.
 const BoardPage = lazy(() => import('../features/board/components/board-page.tsx'));
 const AlarmsPage = lazy(() => import('../features/alarms/components/alarms-page.tsx'));
 const LabPage = lazy(() => import('../features/lab/components/lab-page.tsx'));
+const SetupPage = lazy(() => import('../features/setup/components/setup-page.tsx'));
 const OutboxPage = lazy(() => import('../features/outbox/components/outbox-page.tsx'));
 
 export const router = createBrowserRouter([
@@ -37,6 +38,7 @@ export const router = createBrowserRouter([
       { path: 'signals', element: <SignalsPage /> },
       { path: 'trends', element: <TrendsPage /> },
       { path: 'wiring', element: <WiringPage /> },
+      { path: 'setup', element: <SetupPage /> },
       { path: '*', element: <p className="p-2">No such view.</p> },
     ],
   },

@@ -35,6 +35,13 @@ export const paths = {
   signalMap: (plantId: number) => `${v1}/plants/${plantId}/signal-map`,
   signalMapping: (id: number) => `${v1}/signal-map/${id}`,
   ingestStatus: `${v1}/ingest/status`,
+  historyImport: (plantId: number) => `${v1}/plants/${plantId}/history`,
+  job: (id: number) => `${v1}/jobs/${id}`,
+  // plant setup (integrator+)
+  plantModel: (plantId: number) => `${v1}/plants/${plantId}/model`,
+  plantConfig: (plantId: number) => `${v1}/plants/${plantId}/config`,
+  plantUnits: (plantId: number, kind: 'trains' | 'basins' | 'clarifiers' | 'pumps') => `${v1}/plants/${plantId}/${kind}`,
+  plantUnit: (plantId: number, kind: 'trains' | 'basins' | 'clarifiers' | 'pumps', id: number) => `${v1}/plants/${plantId}/${kind}/${id}`,
   /** Adds a query string, leaving out undefined values. */
   withQuery: (url: string, q: Record<string, string | number | undefined>) => {
     const sp = new URLSearchParams();

@@ -1,9 +1,8 @@
 import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
-import { seedPlant } from '../../server/services/plant-seed.service.ts';
+import { seedDemoPlant } from '../helpers/plants.ts';
 import { services } from '../../server/app-context.ts';
-import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
 import { startTestServer } from '../helpers/server.ts';
 import { E2E_ADMIN as ADMIN, launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
@@ -18,7 +17,7 @@ describe('admin in Debian Chromium', () => {
   let plantId: number;
   beforeAll(async () => {
     env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password }, { jobs: false });
-    ({ plantId } = await seedPlant(env.server.ctx, DEMO_PLANT, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:2' }));
+    ({ plantId } = await seedDemoPlant(env.server.ctx, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:2' }));
     // The product's own SMTP catcher on a free port: what the engine mails lands in mail_outbox.
     engine = await startBalanceEngine(env.server.ctx, { schedule: false, catcherPort: 0 });
     b = await launchBrowser();

@@ -3,8 +3,7 @@ import path from 'node:path';
 import type { Browser, BrowserContext, Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { parseCsv } from '../../server/services/csv.service.ts';
-import { seedPlant } from '../../server/services/plant-seed.service.ts';
-import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
+import { seedDemoPlant } from '../helpers/plants.ts';
 import { E2E_ADMIN as ADMIN, launchBrowser, SCREENSHOT_DIR, shot, watchConsole, signIn } from '../helpers/browser.ts';
 import { startTestServer } from '../helpers/server.ts';
 
@@ -31,10 +30,10 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
     const login = await fetch(`${env.server.url}/api/v1/auth/login`, { method: 'POST', headers: { 'Content-Type': 'application/json' }, body: JSON.stringify(ADMIN) });
     expect(login.status).toBe(200);
     const cookie = login.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
-    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie }, body: JSON.stringify({ ...ANALYST, role: 'analyst' }) });
+    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie, Origin: env.server.url }, body: JSON.stringify({ ...ANALYST, role: 'analyst' }) });
     expect(made.status).toBe(201);
 
-    kestrel = (await seedPlant(env.server.ctx, DEMO_PLANT, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:1' })).plantId;
+    kestrel = (await seedDemoPlant(env.server.ctx, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:1' })).plantId;
     const id = async (name: string) => (await q(`SELECT id FROM tags WHERE plant_id = $1 AND name = $2`, [kestrel, name])).rows[0].id as number;
     flow = await id('FIT-101');
     mlss = (await q(`SELECT id FROM tags WHERE plant_id = $1 AND unit = 'g/L' ORDER BY name LIMIT 1`, [kestrel])).rows[0].id as number;
@@ -109,7 +108,8 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
     const parsed = parseCsv(await csvRes.text());
     if (!parsed.ok) throw new Error(parsed.message);
     const [header, ...rows] = parsed.records.map((r) => r.fields);
-    expect(header).toEqual(['ts', 'value', 'min', 'max', 'count', 'quality', 'flags']);
+    // Value columns carry the unit in the header (in the plant's unit system).
+    expect(header!.map((c) => c.replace(/ \[[^\]]+\]$/, ''))).toEqual(['ts', 'value', 'min', 'max', 'count', 'quality', 'flags']);
     const json = (await (await fetch(url, { headers: { Authorization: `Bearer ${token}` } })).json()) as { resolution: string; points: { ts: string; value: number; quality: string }[] };
     expect(json.resolution).toBe('raw');
     // 1 h at 10 s minus the 20 min hole: about 240 points, same in both formats

@@ -4,8 +4,7 @@ import { DataType, OPCUACertificateManager, OPCUAServer, StatusCodes } from 'nod
 import type { Browser, Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { IngestService } from '../../ingest/ingest-service.ts';
-import { seedPlant } from '../../server/services/plant-seed.service.ts';
-import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
+import { seedDemoPlant } from '../helpers/plants.ts';
 import { E2E_ADMIN as ADMIN, launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 import { startTestServer } from '../helpers/server.ts';
 import { freePort, ingestConfig, silentLog, startTestBroker, type TestBroker } from '../integration/ingest/helpers.ts';
@@ -32,10 +31,10 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
     env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password });
     const login = await fetch(`${env.server.url}/api/v1/auth/login`, { method: 'POST', headers: { 'Content-Type': 'application/json' }, body: JSON.stringify(ADMIN) });
     const cookie = login.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
-    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie }, body: JSON.stringify({ ...INTEGRATOR, role: 'integrator' }) });
+    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie, Origin: env.server.url }, body: JSON.stringify({ ...INTEGRATOR, role: 'integrator' }) });
     expect(made.status).toBe(201);
     // the OPC UA endpoint points at a closed port: its connection test must say so
-    await seedPlant(env.server.ctx, DEMO_PLANT, { mqttUrl: broker.url, opcuaUrl: `opc.tcp://127.0.0.1:${await freePort()}/none` });
+    await seedDemoPlant(env.server.ctx, { mqttUrl: broker.url, opcuaUrl: `opc.tcp://127.0.0.1:${await freePort()}/none` });
     ingest = await IngestService.start(ingestConfig(env.t.url, env.server.ctx.config.dataDir), silentLog);
     pub = await mqtt.connectAsync(broker.url, { clientId: 'e2e-plant', protocolVersion: 4 });
     let k = 0;

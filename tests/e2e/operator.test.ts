@@ -1,9 +1,8 @@
 import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
-import { seedPlant } from '../../server/services/plant-seed.service.ts';
+import { seedDemoPlant } from '../helpers/plants.ts';
 import { services } from '../../server/app-context.ts';
-import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
 import { startTestServer } from '../helpers/server.ts';
 import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
@@ -40,7 +39,7 @@ type Env = Awaited<ReturnType<typeof startTestServer>>;
 /** Seeds Kestrel Bend and writes the fixture signals into tag_latest and rollup_1m (what ingest would have written). */
 async function seedKestrelBend(env: Env): Promise<number> {
   const ctx = env.server.ctx;
-  const { plantId } = await seedPlant(ctx, DEMO_PLANT, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:2' });
+  const { plantId } = await seedDemoPlant(ctx, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:2' });
   const pool = ctx.db.pool;
   const tags = (await pool.query<{ id: number; name: string }>('SELECT id, name FROM tags WHERE plant_id = $1', [plantId])).rows;
   expect(tags.length).toBe(Object.keys(FIXTURE).length);

@@ -1,6 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { seedPlant } from '../../server/services/plant-seed.service.ts';
-import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
+import { seedDemoPlant } from '../helpers/plants.ts';
 import { E2E_ADMIN, serverAndBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
 
 const fig = (value: number | null, unit: string) => ({ value, unit, quality: value === null ? 'unavailable' : 'good', reasons: value === null ? ['no input'] : [] });
@@ -9,7 +8,7 @@ describe('what-if pre-filled from the live plant', () => {
   const suite = serverAndBrowser();
 
   it('fills the storm form from the latest balance of the invented demo plant', async () => {
-    const { plantId } = await seedPlant(suite.env.server.ctx, DEMO_PLANT, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:1/x' });
+    const { plantId } = await seedDemoPlant(suite.env.server.ctx, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:1/x' });
     // A balance as the engine stores it (only the figures the form reads are set here):
     // two trains of 1 600 and 1 500 m³/h, RAS 850 + 840 m³/h, basins of 6 000 m³ at 3.0 and 3.2 g/L.
     const data = {

@@ -33,8 +33,9 @@ describe('balance engine against PostgreSQL', () => {
     // Numbers: tests/unit/domain/balance-assemble.test.ts (design §3 formulas on the fixture values).
     expect(b.data.inventory.totalMass_kg.value).toBeCloseTo(30_000, 6);
     expect(b.data.inventory.storedFraction.value).toBeCloseTo(0.4, 9);
-    expect(b.data.trains[0]!.ras.concentrationMargin.value).toBeCloseTo(0.3, 9);
-    expect(b.data.trains[0]!.ras.pumpMargin.value).toBeCloseTo(1 - 342.857142857 / 850, 6);
+    // On the lower X_R,max: flux theory G_L/u = 9.907676 g/L below the rule's 10 g/L (balance-assemble.test.ts).
+    expect(b.data.trains[0]!.ras.concentrationMargin.value).toBeCloseTo(1 - 7 / 9.907675696771152, 9);
+    expect(b.data.trains[0]!.ras.pumpMargin.value).toBeCloseTo(1 - (800 * 3) / (9.907675696771152 - 3) / 850, 6);
     expect(b.data.trains[0]!.storm.equilibriumMlss_gL.value).toBeCloseTo(2.727272727, 6);
     expect(b.data.srt.total_d.value).toBeCloseTo(7.44934, 3);
     expect(b.data.srt.wasAdvice_m3h.value).toBeCloseTo(14.65, 6);

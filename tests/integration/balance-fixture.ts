@@ -1,55 +1,54 @@
 import type { AppContext } from '../../server/app-context.ts';
-import { seedPlant } from '../../server/services/plant-seed.service.ts';
-import type { PlantLayout } from '../../shared/contracts/plant-layout.ts';
+import type { PlantConfigInput } from '../../shared/contracts/plant-config.ts';
+import type { SignalKindName } from '../../shared/contracts/plant-layout.ts';
+import { seedPlantConfig } from '../helpers/plants.ts';
 
 /**
  * One-train plant in the database with steady signals written straight into tag_latest and
  * rollup_1m (no broker, no ingest): Q 800 m³/h, Q_R 600, Q_W 20, MLSS 3.0 g/L, underflow
  * 8.0 g/L, effluent 10 mg/L, blanket 1.0 m, SVI 120 mL/g — the same numbers as the unit-test
  * fixture, whose hand computation (tests/unit/domain/balance-assemble.test.ts) applies here.
+ * Created from a configuration document, the path POST /api/v1/plants takes.
  */
-const tag = (name: string, unit: string, kind: NonNullable<PlantLayout['tags'][number]['signal']>['kind'], target: string, period: number) => ({
-  name,
-  unit,
-  protocol: 'mqtt' as const,
-  address: `fx/${name}`,
-  rangeLow: 0,
-  rangeHigh: 5000,
-  expectedPeriod_s: period,
-  signal: { kind, target },
-});
+const FIXTURE_TAGS: Array<{ name: string; unit: string; kind: SignalKindName; target: string; period: number }> = [
+  { name: 'FIT-111', unit: 'm3/h', kind: 'basin.influentFlow', target: 'ab1', period: 10 },
+  { name: 'AIT-111', unit: 'g/L', kind: 'basin.mlss', target: 'ab1', period: 10 },
+  { name: 'LIT-211', unit: 'm', kind: 'clarifier.blanketLevel', target: 'sc1', period: 60 },
+  { name: 'AIT-221', unit: 'g/L', kind: 'clarifier.underflowTss', target: 'sc1', period: 30 },
+  { name: 'AIT-231', unit: 'mg/L', kind: 'clarifier.effluentTss', target: 'sc1', period: 30 },
+  { name: 'FIT-311', unit: 'm3/h', kind: 'pump.flow', target: 'ras1', period: 5 },
+  { name: 'FIT-321', unit: 'm3/h', kind: 'pump.flow', target: 'was1', period: 10 },
+];
 
-export const FIXTURE_LAYOUT: PlantLayout = {
-  name: 'Fixture Works',
-  code: 'fx',
-  peakFlow_m3h: 1600,
-  trains: [
-    {
-      code: 't1',
-      name: 'Train 1',
-      basins: [{ code: 'ab1', name: 'Basin 1', volume_m3: 6000 }],
-      clarifiers: [{ code: 'sc1', name: 'Clarifier 1', area_m2: 1500, sideWaterDepth_m: 4, count: 1 }],
-      pumps: [
-        { code: 'ras1', name: 'RAS 1', kind: 'ras', capacity_m3h: 850 },
-        { code: 'was1', name: 'WAS 1', kind: 'was', capacity_m3h: 60 },
+export function fixtureConfig(code: string): PlantConfigInput {
+  return {
+    formatVersion: 1,
+    plant: { code, name: 'Fixture Works', peakFlow_m3h: 1600 },
+    model: {
+      trains: [
+        {
+          code: 't1',
+          name: 'Train 1',
+          aerationBasins: [{ code: 'ab1', name: 'Basin 1', volume_m3: 6000 }],
+          secondaryClarifiers: [{ code: 'sc1', name: 'Clarifier 1', area_m2: 1500, sideWaterDepth_m: 4, count: 1 }],
+          pumps: [
+            { code: 'ras1', name: 'RAS 1', kind: 'ras', capacity_m3h: 850, servesClarifier: 'sc1' },
+            { code: 'was1', name: 'WAS 1', kind: 'was', capacity_m3h: 60, servesClarifier: 'sc1' },
+          ],
+        },
       ],
     },
-  ],
-  tags: [
-    tag('FIT-111', 'm3/h', 'basin.influentFlow', 'ab1', 10),
-    tag('AIT-111', 'g/L', 'basin.mlss', 'ab1', 10),
-    tag('LIT-211', 'm', 'clarifier.blanketLevel', 'sc1', 60),
-    tag('AIT-221', 'g/L', 'clarifier.underflowTss', 'sc1', 30),
-    tag('AIT-231', 'mg/L', 'clarifier.effluentTss', 'sc1', 30),
-    tag('FIT-311', 'm3/h', 'pump.flow', 'ras1', 5),
-    tag('FIT-321', 'm3/h', 'pump.flow', 'was1', 10),
-  ],
-};
+    sources: [{ kind: 'mqtt', name: `${code}-mqtt`, url: 'mqtt://127.0.0.1:1' }],
+    tags: FIXTURE_TAGS.map((t) => ({ name: t.name, source: `${code}-mqtt`, address: `${code}/${t.name}`, unit: t.unit, rangeLow: 0, rangeHigh: 5000, expectedPeriod_s: t.period })),
+    signalMap: FIXTURE_TAGS.map((t) => ({ signal: t.kind, target: { type: t.kind.split('.')[0] as 'basin' | 'clarifier' | 'pump', code: t.target }, tag: t.name })),
+  };
+}
+
 export const FIXTURE_VALUES: Record<string, number> = { 'FIT-111': 800, 'AIT-111': 3.0, 'LIT-211': 1.0, 'AIT-221': 8.0, 'AIT-231': 10, 'FIT-311': 600, 'FIT-321': 20 };
 
 export async function seedFixturePlant(ctx: AppContext, opts: { code?: string; svi?: boolean } = {}): Promise<{ plantId: number; tagIds: Record<string, number> }> {
   const code = opts.code ?? 'fx';
-  const { plantId } = await seedPlant(ctx, { ...FIXTURE_LAYOUT, code, tags: FIXTURE_LAYOUT.tags.map((t) => ({ ...t, address: `${code}/${t.name}` })) }, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:1' });
+  const { plantId } = await seedPlantConfig(ctx, fixtureConfig(code));
   const r = await ctx.db.pool.query('SELECT id, name FROM tags WHERE plant_id = $1', [plantId]);
   const tagIds = Object.fromEntries(r.rows.map((x) => [x.name, x.id]));
   if (opts.svi !== false) {

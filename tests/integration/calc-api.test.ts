@@ -1,6 +1,7 @@
 import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { stormResponse, statePointResponse, settlerResponse, srtResponse, sviResponse } from '../../shared/contracts/calc.ts';
+import { dynamicSrtResponse, stormTimelineResponse, stormResponse, statePointResponse, settlerResponse, srtResponse, sviResponse } from '../../shared/contracts/calc.ts';
+import { OPERATOR_CAUTION } from '../../shared/contracts/balance.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
 
 const storm = { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, svi_mLg: 120, aerationVolume_m3: 12000, clarifierArea_m2: 1400, stormFlow_m3h: 3000 };
@@ -68,6 +69,10 @@ describe('calculator API', () => {
       ['state-point', { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, clarifierArea_m2: 1400, settling: { v0_mh: -2, k_Lg: 0.4 } }, 'settling.v0_mh'],
       ['svi', { settledVolume_mLL: 400, mlss_gL: 3 }, 'settledVolume_mLL'],
       ['srt', { aerationMass_kg: 'lots' }, 'aerationMass_kg'],
+      // plausibility (issue 16): SVI 1/30 mL/g, MLSS outside 0.1–20 g/L
+      ['svi', { settledVolume_mLL: 1, mlss_gL: 20 }, 'settledVolume_mLL'],
+      ['svi', { settledVolume_mLL: 100, mlss_gL: 25 }, 'mlss_gL'],
+      ['storm', { ...storm, mlss_gL: 0.05 }, 'mlss_gL'],
     ];
     for (const [path, body, field] of cases) {
       const r = await post(path, body);
@@ -77,6 +82,57 @@ describe('calculator API', () => {
     }
     const dilute = await post('svi', { settledVolume_mLL: 400, mlss_gL: 3 });
     expect(dilute.body.error.fields.settledVolume_mLL.join(' ')).toMatch(/dilute and repeat/);
+  });
+
+  it('dynamic SRT of a series: the issue 16 example (42 000 → 46 200 kg over 48 h at 130 kg/h removal) gives 12.41 d', async () => {
+    // Age balance d(M·θ)/dt = M − W·θ from θ0 = M/W = 42 000/130 h = 13.46 d; an RK4 of dθ/dt = 1 − θ·(W + dM/dt)/M gives 12.406 d (tests/unit/domain/srt.test.ts).
+    const r = await post('dynamic-srt', { points: [{ t_h: 0, inventory_kg: 42000, wasted_kgh: 130 }, { t_h: 48, inventory_kg: 46200, wasted_kgh: 130 }], initialSrt_d: 42000 / 130 / 24 });
+    expect(r.status).toBe(200);
+    dynamicSrtResponse.parse(r.body);
+    expect(r.body.srt_d).toHaveLength(2);
+    expect(r.body.srt_d[0]).toBeCloseTo(13.4615, 4);
+    expect(r.body.srt_d[1]).toBeCloseTo(12.406, 3);
+    expect(r.body.caution).toBe(OPERATOR_CAUTION);
+    const back = await post('dynamic-srt', { points: [{ t_h: 0, inventory_kg: 1, wasted_kgh: 1 }, { t_h: 0, inventory_kg: 1, wasted_kgh: 1 }], initialSrt_d: 1 });
+    expect(back.status).toBe(422);
+    expect(Object.keys(back.body.error.fields)).toContain('points.1.t_h');
+  });
+
+  it('storm timeline: a 48 h storm ends within 1 % of the equilibrium, a 2 h one moves less than half (τ = V/(Q_s+Q_R) = 3.08 h), a deep blanket fails', async () => {
+    const flat = (h: number) => [{ t_h: 0, flow_m3h: 3000 }, { t_h: h, flow_m3h: 3000 }];
+    const long = await post('storm-timeline', { ...storm, hydrograph: flat(48), clarifierDepth_m: 4, blanketNow_m: 0.5 });
+    expect(long.status).toBe(200);
+    stormTimelineResponse.parse(long.body);
+    // Equilibrium X' = 10·900/3900 = 2.3077 g/L (the storm calculator above); moved (3.2 − X')·12 000 = 10 615 kg.
+    const moved = (3.2 - 9000 / 3900) * 12000;
+    expect(Math.abs(long.body.points.at(-1).mlss_gL - 9000 / 3900) / (9000 / 3900)).toBeLessThan(0.01);
+    expect(long.body.equilibriumMlss_gL).toBeCloseTo(9000 / 3900, 9);
+    expect(long.body.caution).toBe(OPERATOR_CAUTION);
+    const short = await post('storm-timeline', { ...storm, hydrograph: flat(2), clarifierDepth_m: 4, blanketNow_m: 0.5 });
+    expect(short.body.points.at(-1).clarifierMass_kg / moved).toBeLessThan(0.5);
+    const deep = await post('storm-timeline', { ...storm, hydrograph: flat(12), clarifierDepth_m: 4, blanketNow_m: 3.5 });
+    expect(deep.body.blanketReachesSurface_h).not.toBeNull();
+    expect(deep.body.quality).not.toBe('good');
+    expect(deep.body.checks.find((c: { rule: string }) => c.rule === 'blanket-below-surface').ok).toBe(false);
+    noNaN(deep.body);
+    const above = await post('storm-timeline', { ...storm, hydrograph: flat(2), clarifierDepth_m: 4, blanketNow_m: 4.5 });
+    expect(above.status).toBe(422);
+    expect(Object.keys(above.body.error.fields)).toContain('blanketNow_m');
+  });
+
+  it('every calculator answer carries the operator caution the balance carries', async () => {
+    const bodies: Array<[string, unknown]> = [
+      ['storm', storm],
+      ['state-point', { influentFlow_m3h: 1500, rasFlow_m3h: 900, mlss_gL: 3.2, clarifierArea_m2: 1400, settling: { v0_mh: 7, k_Lg: 0.4 } }],
+      ['settler', { feedFlow_m3h: 1500, feedTss_gL: 3, underflowFlow_m3h: 700, area_m2: 1500, depth_m: 4 }],
+      ['srt', { aerationMass_kg: 38400, clarifierMass_kg: 6000, wasFlow_m3h: 20, wasTss_gL: 8, effluentFlow_m3h: 1480, effluentTss_gL: 0.01 }],
+      ['svi', { settledVolume_mLL: 240, mlss_gL: 3 }],
+    ];
+    for (const [path, body] of bodies) {
+      const r = await post(path, body);
+      expect(r.status, path).toBe(200);
+      expect(r.body.caution, path).toBe(OPERATOR_CAUTION);
+    }
   });
 
   it('needs credentials', async () => {

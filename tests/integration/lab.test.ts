@@ -21,8 +21,8 @@ describe('lab results API', () => {
     plant = (await q(`INSERT INTO plants (code, name) VALUES ('cedar', 'Cedar') RETURNING id`)).rows[0].id;
     other = (await q(`INSERT INTO plants (code, name) VALUES ('dune', 'Dune') RETURNING id`)).rows[0].id;
     const train = (await q(`INSERT INTO trains (plant_id, code, name) VALUES ($1, 't1', 'T1') RETURNING id`, [plant])).rows[0].id;
-    await q(`INSERT INTO basins (train_id, code, name, volume_m3) VALUES ($1, 'ab1', 'AB1', 5000)`, [train]);
-    await q(`INSERT INTO clarifiers (train_id, code, name, area_m2, side_water_depth_m) VALUES ($1, 'fc1', 'FC1', 600, 4)`, [train]);
+    await q(`WITH u AS (INSERT INTO basins (train_id, code, name) VALUES ($1, 'ab1', 'AB1') RETURNING id) INSERT INTO basin_versions (basin_id, effective_from, volume_m3, aerated_fraction) SELECT id, now(), 5000, 1 FROM u`, [train]);
+    await q(`WITH u AS (INSERT INTO clarifiers (train_id, code, name) VALUES ($1, 'fc1', 'FC1') RETURNING id) INSERT INTO clarifier_versions (clarifier_id, effective_from, area_m2, side_water_depth_m, count) SELECT id, now(), 600, 4, 1 FROM u`, [train]);
   });
   afterAll(async () => h.close());
 

@@ -23,9 +23,9 @@ async function fixture(h: TestApp) {
   const a = await plant('alder');
   const b = await plant('birch');
   const train = (await q(`INSERT INTO trains (plant_id, code, name) VALUES ($1, 't1', 'Train 1') RETURNING id`, [a])).rows[0].id;
-  const basin = (await q(`INSERT INTO basins (train_id, code, name, volume_m3) VALUES ($1, 'ab1', 'Aeration 1', 6000) RETURNING id`, [train])).rows[0].id;
-  await q(`INSERT INTO clarifiers (train_id, code, name, area_m2, side_water_depth_m, count) VALUES ($1, 'fc1', 'Final 1', 700, 4.5, 2)`, [train]);
-  await q(`INSERT INTO pumps (train_id, code, name, kind, capacity_m3h) VALUES ($1, 'ras1', 'RAS 1', 'ras', 900)`, [train]);
+  const basin = (await q(`WITH u AS (INSERT INTO basins (train_id, code, name) VALUES ($1, 'ab1', 'Aeration 1') RETURNING id) INSERT INTO basin_versions (basin_id, effective_from, volume_m3, aerated_fraction) SELECT id, now(), 6000, 1 FROM u RETURNING basin_id AS id`, [train])).rows[0].id;
+  await q(`WITH u AS (INSERT INTO clarifiers (train_id, code, name) VALUES ($1, 'fc1', 'Final 1') RETURNING id) INSERT INTO clarifier_versions (clarifier_id, effective_from, area_m2, side_water_depth_m, count) SELECT id, now(), 700, 4.5, 2 FROM u`, [train]);
+  await q(`WITH u AS (INSERT INTO pumps (train_id, code, name, kind) VALUES ($1, 'ras1', 'RAS 1', 'ras') RETURNING id) INSERT INTO pump_versions (pump_id, effective_from, capacity_m3h) SELECT id, now(), 900 FROM u`, [train]);
   const src = (await q(`INSERT INTO sources (plant_id, name, kind, url) VALUES ($1, 'alder-mqtt', 'mqtt', 'mqtt://127.0.0.1:1') RETURNING id`, [a])).rows[0].id;
   const srcB = (await q(`INSERT INTO sources (plant_id, name, kind, url) VALUES ($1, 'birch-opc', 'opcua', 'opc.tcp://127.0.0.1:1') RETURNING id`, [b])).rows[0].id;
   const tag = (await q(`INSERT INTO tags (plant_id, source_id, name, address, unit, expected_period_s) VALUES ($1, $2, 'AB1_MLSS', 'alder/ab1/mlss', 'g/L', 1) RETURNING id`, [a, src])).rows[0].id as number;
@@ -212,7 +212,8 @@ describe('read API', () => {
     expect(csv.headers['content-type']).toMatch(/^text\/csv/);
     expect(csv.text.endsWith('\r\n')).toBe(true);
     const { header, rows } = csvRows(csv.text);
-    expect(header).toEqual(['ts', 'value', 'min', 'max', 'count', 'quality', 'flags']);
+    // Value columns carry the unit in the header (in the plant's unit system).
+    expect(header!.map((c) => c.replace(/ \[[^\]]+\]$/, ''))).toEqual(['ts', 'value', 'min', 'max', 'count', 'quality', 'flags']);
     expect(rows).toHaveLength(json.points.length);
     rows.forEach((r, i) => {
       const p = json.points[i] as SamplePoint;
@@ -316,7 +317,10 @@ describe('read API', () => {
     const wide = balanceHistoryResponse.parse((await agent.get(`/api/v1/plants/${f.a}/balance/history`).query({ from: iso(T0 - 30 * D), to: iso(T0 + D) })).body);
     expect(wide.step_s).toBe(Math.ceil((31 * D) / 1000 / 2000));
     const csv = await agent.get(`/api/v1/plants/${f.a}/balance/history`).query({ from: iso(T0), to: iso(T0 + 10 * 60_000), step: 60, format: 'csv' });
-    const { header, rows } = csvRows(csv.text);
+    const { header: withUnits, rows } = csvRows(csv.text);
+    // Columns with an SI suffix carry their display unit in the header (`data.inventory_kg [kg]`).
+    expect(withUnits).toContain('data.inventory_kg [kg]');
+    const header = withUnits.map((c) => c.replace(/ \[[^\]]+\]$/, ''));
     expect(header).toEqual(expect.arrayContaining(['bucket', 'ts', 'computations', 'data.inventory_kg', 'data.margin.ras']));
     expect(Number(rows[3]![header.indexOf('data.margin.ras')])).toBe(body.rows[3]!.data.margin && (body.rows[3]!.data.margin as { ras: number }).ras);
     const paged = await agent.get(`/api/v1/plants/${f.a}/balance/history`).query({ from: iso(T0), to: iso(T0 + 10 * 60_000), step: 60, limit: 4 });

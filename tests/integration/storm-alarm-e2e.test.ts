@@ -7,8 +7,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startEmbeddedBroker, type EmbeddedBroker } from '../../server/broker/embedded-broker.ts';
 import { loadConfig } from '../../server/config.ts';
 import { startServer, type RunningServer } from '../../server/main.ts';
-import { seedPlant } from '../../server/services/plant-seed.service.ts';
-import { DEMO_PLANT } from '../../simulators/plant/demo-plant.ts';
+import { seedDemoPlant } from '../helpers/plants.ts';
 import { startSimulator, type RunningSimulator } from '../../simulators/simulator.ts';
 import { spawnTs, type Child } from '../../scripts/children.ts';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
@@ -65,7 +64,7 @@ describe('storm scenario → ingest → balance engine → alarm → e-mail', ()
     const opcuaPort = await freePort();
     const config = { ...loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '1' }), port: 0 };
     server = await startServer(config, { log: pino({ level: 'silent' }) });
-    ({ plantId } = await seedPlant(server.ctx, DEMO_PLANT, { mqttUrl: broker.url, opcuaUrl: `opc.tcp://127.0.0.1:${opcuaPort}/flocstream-sim` }));
+    ({ plantId } = await seedDemoPlant(server.ctx, { mqttUrl: broker.url, opcuaUrl: `opc.tcp://127.0.0.1:${opcuaPort}/flocstream-sim` }));
     // The morning's settleability test, as an operator enters it: DSVI 150 mL/g (the scenario's sludge).
     await server.ctx.db.pool.query(
       `INSERT INTO lab_results (plant_id, location, kind, value, unit, sampled_at, details) VALUES ($1, 'ab1', 'DSVI', 150, 'mL/g', now() - interval '2 hours', '{"settledVolume_mLL":170,"dilutionFactor":3,"mlss_gL":3.4}')`,
@@ -105,9 +104,13 @@ describe('storm scenario → ingest → balance engine → alarm → e-mail', ()
     // Raised once the simulated storm was on: simulated hour 6 onwards.
     expect(alarm.raised_at.getTime()).toBeGreaterThan(simStart + 6 * 3_600_000);
 
-    // The basins lost sludge to the clarifiers compared with the dry-weather start (3.4 g/L).
-    const balance = await db.query(`SELECT data FROM balances WHERE plant_id = $1 ORDER BY id DESC LIMIT 1`, [plantId]);
-    const mlss = balance.rows[0].data.basins.map((b: { mlss_gL: { value: number | null } }) => b.mlss_gL.value);
+    // The basins lose sludge to the clarifiers compared with the dry-weather start (3.4 g/L). The
+    // margin on the lower X_R,max (flux theory) can raise the alarm before the basins have drained, so wait for it.
+    const mlss = await until('the basins below 3.3 g/L', 60_000, async () => {
+      const balance = await db.query(`SELECT data FROM balances WHERE plant_id = $1 ORDER BY id DESC LIMIT 1`, [plantId]);
+      const m = balance.rows[0].data.basins.map((b: { mlss_gL: { value: number | null } }) => b.mlss_gL.value);
+      return m.every((v: number | null) => v !== null && v < 3.3) ? m : undefined;
+    });
     for (const m of mlss) expect(m).toBeLessThan(3.3);
 
     const mail = await until('the alarm e-mail in the catcher', 60_000, async () => {

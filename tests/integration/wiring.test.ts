@@ -41,9 +41,9 @@ describe('wiring API', () => {
     plant = (await q(`INSERT INTO plants (code, name) VALUES ('alder', 'Alder') RETURNING id`)).rows[0].id;
     other = (await q(`INSERT INTO plants (code, name) VALUES ('birch', 'Birch') RETURNING id`)).rows[0].id;
     const train = (await q(`INSERT INTO trains (plant_id, code, name) VALUES ($1, 't1', 'T1') RETURNING id`, [plant])).rows[0].id;
-    await q(`INSERT INTO basins (train_id, code, name, volume_m3) VALUES ($1, 'ab1', 'AB1', 5000)`, [train]);
-    await q(`INSERT INTO clarifiers (train_id, code, name, area_m2, side_water_depth_m) VALUES ($1, 'fc1', 'FC1', 600, 4)`, [train]);
-    await q(`INSERT INTO pumps (train_id, code, name, kind, capacity_m3h) VALUES ($1, 'ras1', 'RAS 1', 'ras', 800)`, [train]);
+    await q(`WITH u AS (INSERT INTO basins (train_id, code, name) VALUES ($1, 'ab1', 'AB1') RETURNING id) INSERT INTO basin_versions (basin_id, effective_from, volume_m3, aerated_fraction) SELECT id, now(), 5000, 1 FROM u`, [train]);
+    await q(`WITH u AS (INSERT INTO clarifiers (train_id, code, name) VALUES ($1, 'fc1', 'FC1') RETURNING id) INSERT INTO clarifier_versions (clarifier_id, effective_from, area_m2, side_water_depth_m, count) SELECT id, now(), 600, 4, 1 FROM u`, [train]);
+    await q(`WITH u AS (INSERT INTO pumps (train_id, code, name, kind) VALUES ($1, 'ras1', 'RAS 1', 'ras') RETURNING id) INSERT INTO pump_versions (pump_id, effective_from, capacity_m3h) SELECT id, now(), 800 FROM u`, [train]);
 
     const { Aedes } = await import('aedes');
     const b = await Aedes.createBroker();

@@ -7,15 +7,17 @@
  */
 import { OPERATOR_CAUTION, type Balance, type BalanceData } from '../../contracts/balance.js';
 import type { EffectiveSettings } from '../../contracts/settings.js';
-import { estimated, meanFigures, sumFigures, unavailable, withUnit, worstQuality, type Figure, type Quality } from '../quality.js';
+import { estimated, fromFigures, meanFigures, sumFigures, unavailable, withUnit, worstQuality, type Figure, type Quality } from '../quality.js';
 import { effluentFlowSeries, trainInfluentFlow } from './flows.js';
 import type { BalanceEngineInputs, TrainLayout } from './inputs.js';
 import { basinMass_kg, blanketMassSeries, blanketRate_m_h, clarifierArea_m2, clarifierBlanket, clarifierIntegral, inventoryTotals, trainMlss_gL } from './inventory.js';
 import { rasConcMaxFromSvi_gL, trainRasMargins } from './ras.js';
 import { joinSeries, meanSeries, sumSeries, weightedSumSeries } from './series.js';
 import { readSignals, settleability, type Signals } from './signals.js';
-import { effluentTssMissing, plantDynamicSrt, plantMassSeries, plantRollingSrt, solidsLossSeries, wasAdvice, type TrainSrtSeries } from './srt.js';
-import { stormPeakFlow, stormShare, trainStorm, trainStormFlow_m3h } from './storm.js';
+import { plantSettlingFit } from '../settling-fit.js';
+import { chooseSettling, clarifierStatePoint, trainRasConcMax, type SettlingUsed } from './state-point.js';
+import { effluentTssMissing, plantAerobicSrt, plantDynamicSrt, plantMassSeries, plantRollingSrt, solidsLossSeries, wasAdvice, type TrainSrtSeries } from './srt.js';
+import { stormPeakFlow, stormShare, trainStorm, trainStormFlow_m3h, trainStormTimeline } from './storm.js';
 
 const H = 3_600_000;
 const iso = (ms: number) => new Date(ms).toISOString();
@@ -47,6 +49,8 @@ interface PlantContext {
   settings: EffectiveSettings;
   plantInfluent: Figure<number>;
   totalVolume_m3: number;
+  settling: SettlingUsed;
+  rasConcMaxRule_gL: Figure<number>;
 }
 
 /** One train: basins, flows, clarifiers (blanket, rise rate, balance integral) and its SRT-window series. */
@@ -64,7 +68,7 @@ function trainFigures(t: TrainLayout, ctx: PlantContext): TrainFigures {
     const x = sig.figure('basin.mlss', 'basin', b.id, b.code);
     const m = basinMass_kg(x, b.volume_m3);
     basinMasses.push(m);
-    basins.push({ code: b.code, train: t.code, volume_m3: b.volume_m3, mlss_gL: withUnit(x, 'g/L'), mass_kg: withUnit(m, 'kg') });
+    basins.push({ code: b.code, train: t.code, volume_m3: b.volume_m3, aeratedFraction: b.aeratedFraction ?? 1, mlss_gL: withUnit(x, 'g/L'), mass_kg: withUnit(m, 'kg') });
   }
   const mlss_gL = trainMlss_gL(basinMasses, volume_m3, t.code);
   const basinFlows = t.basins.map((b) => sig.figure('basin.influentFlow', 'basin', b.id, b.code));
@@ -78,6 +82,7 @@ function trainFigures(t: TrainLayout, ctx: PlantContext): TrainFigures {
   const mlssSeries = (from: number) => joinSeries(basinSeries('basin.mlss', from), (v) => v.reduce((acc, vi, i) => acc + vi * t.basins[i]!.volume_m3, 0) / volume_m3);
 
   const clarifiers: BalanceData['clarifiers'] = [];
+  const trainArea_m2 = t.clarifiers.reduce((a, c) => a + clarifierArea_m2(c), 0);
   const clarifierMasses: Figure<number>[] = [];
   const xrs: Figure<number>[] = [];
   const xes: Figure<number>[] = [];
@@ -124,6 +129,18 @@ function trainFigures(t: TrainLayout, ctx: PlantContext): TrainFigures {
       blanketMass_kg: withUnit(blanket.mass_kg, 'kg'),
       integratedMass_kg: withUnit(integral.integratedMass_kg, 'kg'),
       integralDiscrepancy_kg: withUnit(integral.discrepancy_kg, 'kg'),
+      statePoint: clarifierStatePoint({
+        share: clarifierArea_m2(c) / trainArea_m2,
+        entries: t.clarifiers.length,
+        code: c.code,
+        area_m2: clarifierArea_m2(c),
+        influentFlow_m3h,
+        rasFlow_m3h,
+        wasFlow_m3h,
+        mlss_gL,
+        settling: ctx.settling,
+        rasConcMaxRule_gL: ctx.rasConcMaxRule_gL,
+      }),
     });
   }
   // Effluent TSS unavailable: taken as 0 for the SRT and the WAS advice (which it then overstates), said so.
@@ -138,6 +155,7 @@ function trainFigures(t: TrainLayout, ctx: PlantContext): TrainFigures {
   const wasWindow = pumpFlowSeries(was, from);
   const srtSeries: TrainSrtSeries = {
     aerationMass_kg: weightedSumSeries(basinSeries('basin.mlss', from), t.basins.map((b) => b.volume_m3)),
+    aerobicMass_kg: weightedSumSeries(basinSeries('basin.mlss', from), t.basins.map((b) => b.volume_m3 * (b.aeratedFraction ?? 1))),
     clarifierMass_kg: sumSeries(
       t.clarifiers.map((c, i) => blanketMassSeries({ method, clarifier: c, level: sig.series('clarifier.blanketLevel', 'clarifier', c.id, from), rasConc: underflow[i]!, mlss: mlssWindow })),
     ),
@@ -180,10 +198,12 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
   const signals = readSignals(inp, { staleFactor: s['inputs.stale_factor'], maxAge_s: s['inputs.max_age_s'] });
   const clock = signals.clock_ms;
   const svi = settleability(inp.svi, now_ms, s['svi.max_age_d']);
-  const rasConcMax = rasConcMaxFromSvi_gL(svi, s['ras.xr_factor']);
+  const rasConcMaxRule = rasConcMaxFromSvi_gL(svi, s['ras.xr_factor']);
+  const fit = plantSettlingFit(inp.settlingTests ?? [], s['settling.cylinder_height_m']);
+  const { used: settling, out: settlingOut } = chooseSettling(svi, s['settling.correlation'], fit, s['settling.fit_min_points']);
   const totalVolume_m3 = layout.trains.reduce((a, t) => a + t.basins.reduce((b, x) => b + x.volume_m3, 0), 0);
   const plantInfluent = signals.figure('plant.influentFlow', 'plant', layout.plantId, layout.code);
-  const trains = layout.trains.map((t) => trainFigures(t, { signals, settings: s, plantInfluent, totalVolume_m3 }));
+  const trains = layout.trains.map((t) => trainFigures(t, { signals, settings: s, plantInfluent, totalVolume_m3, settling, rasConcMaxRule_gL: rasConcMaxRule }));
 
   const inventory = inventoryTotals(
     trains.flatMap((t) => t.basinMasses),
@@ -198,15 +218,23 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
   const influents = trains.map((t) => t.influentFlow_m3h);
   const stormChecks = { minMlss_gL: s['storm.min_mlss_gL'], maxStoredFraction: s['storm.max_stored_fraction'], maxBlanketRise_m: s['storm.max_blanket_rise_m'] };
 
-  const trainsOut: BalanceData['trains'] = trains.map((t) => ({
+  const trainsOut: BalanceData['trains'] = trains.map((t) => {
+    const xrMax = trainRasConcMax(rasConcMaxRule, t.clarifiers.map((c) => c.statePoint));
+    return {
     code: t.layout.code,
     influentFlow_m3h: withUnit(t.influentFlow_m3h, 'm3/h'),
     rasFlow_m3h: withUnit(t.rasFlow_m3h, 'm3/h'),
     wasFlow_m3h: withUnit(t.wasFlow_m3h, 'm3/h'),
     mlss_gL: withUnit(t.mlss_gL, 'g/L'),
     rasPumpCapacity_m3h: t.rasPumpCapacity_m3h,
-    ras: trainRasMargins({ influentFlow_m3h: t.influentFlow_m3h, rasFlow_m3h: t.rasFlow_m3h, mlss_gL: t.mlss_gL, rasConcMax_gL: rasConcMax, rasPumpCapacity_m3h: t.rasPumpCapacity_m3h }),
-    storm: trainStorm({
+    ras: {
+      ...trainRasMargins({ influentFlow_m3h: t.influentFlow_m3h, rasFlow_m3h: t.rasFlow_m3h, mlss_gL: t.mlss_gL, rasConcMax_gL: xrMax.value, rasPumpCapacity_m3h: t.rasPumpCapacity_m3h }),
+      rasConcMaxRule_gL: withUnit(rasConcMaxRule, 'g/L'),
+      rasConcMaxFlux_gL: withUnit(minFlux(t.clarifiers), 'g/L'),
+    },
+    rasConcMaxBasis: xrMax.used,
+    storm: {
+      ...trainStorm({
       trainCode: t.layout.code,
       influentFlow_m3h: t.influentFlow_m3h,
       rasFlow_m3h: t.rasFlow_m3h,
@@ -218,13 +246,34 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
       clarifierArea_m2: t.area_m2,
       xrFactor: s['ras.xr_factor'],
       checks: stormChecks,
-    }),
-  }));
+      blanketNow_m: maxBlanket(t.clarifiers),
+      clarifierDepth_m: Math.min(...t.layout.clarifiers.map((c) => c.sideWaterDepth_m)),
+      }),
+      timeline: trainStormTimeline({
+        trainCode: t.layout.code,
+        influentFlow_m3h: t.influentFlow_m3h,
+        rasFlow_m3h: t.rasFlow_m3h,
+        mlss_gL: t.mlss_gL,
+        svi_mLg: svi,
+        stormFlow_m3h: trainStormFlow_m3h(storm.peak, stormShare(t.influentFlow_m3h, influents, t.volume_m3, totalVolume_m3)),
+        hydrograph: s['storm.hydrograph'],
+        rasConcMax_gL: xrMax.value,
+        clarifierMass_kg: t.clarifierMass_kg,
+        blanketNow_m: maxBlanket(t.clarifiers),
+        clarifierDepth_m: Math.min(...t.layout.clarifiers.map((c) => c.sideWaterDepth_m)),
+        aerationVolume_m3: t.volume_m3,
+        clarifierArea_m2: t.area_m2,
+        checks: stormChecks,
+      }),
+    },
+  };
+  });
 
   // SRT: rolling over the window and dynamic, from the trains' series; WAS advice from the present totals.
   const srtSeries = trains.map((t) => t.srtSeries);
   const rolling = plantRollingSrt(srtSeries, clock, s['srt.window_h']);
   const dynamic = plantDynamicSrt(plantMassSeries(srtSeries).total_kg, solidsLossSeries(srtSeries), s['srt.window_h'], effluentTssMissing(srtSeries));
+  const aerobic = plantAerobicSrt(rolling.aerobic_d, layout, trains.flatMap((t) => t.basins));
   const target_d = s['srt.target_d'];
   const advice = wasAdvice(
     trains.map((t) => ({ influentFlow_m3h: t.influentFlow_m3h, wasFlow_m3h: t.wasFlow_m3h, rasConc_gL: t.rasConc_gL, effluentTss_gL: t.effluentTss_gL })),
@@ -243,10 +292,13 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
     clarifiers: trains.flatMap((t) => t.clarifiers),
     trains: trainsOut,
     settleability: { svi_mLg: withUnit(svi, 'mL/g'), kind: inp.svi?.kind ?? null, sampledAt: inp.svi ? iso(inp.svi.sampledAt_ms) : null },
+    settling: settlingOut,
     storm: { peakFlow_m3h: withUnit(storm.peak, 'm3/h'), source: storm.source },
     srt: {
       total_d: withUnit(rolling.total_d, 'd'),
       aeration_d: withUnit(rolling.aeration_d, 'd'),
+      aerobic_d: withUnit(aerobic.srt_d, 'd'),
+      aerobicFraction: withUnit(aerobic.fraction, '-'),
       coverage: Math.round(rolling.coverage * 1000) / 1000,
       dynamic_d: withUnit(dynamic, 'd'),
       target_d,
@@ -268,6 +320,19 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
       svi: inp.svi ? { kind: inp.svi.kind, value_mLg: inp.svi.value_mLg, sampledAt: iso(inp.svi.sampledAt_ms) } : null,
     },
   };
+}
+
+/** The highest present blanket level of a train's clarifiers [m] (unavailable when any is). */
+function maxBlanket(clarifiers: BalanceData['clarifiers']): Figure<number> {
+  return fromFigures(clarifiers.map((c) => ({ value: c.blanketLevel_m.value, quality: c.blanketLevel_m.quality, reasons: [...c.blanketLevel_m.reasons] })), (...v) => Math.max(...v));
+}
+
+/** The lowest flux-theory X_R,max over a train's clarifiers (unavailable when none has one). */
+function minFlux(clarifiers: BalanceData['clarifiers']): Figure<number> {
+  const f = clarifiers.map((c) => c.statePoint.rasConcMax.flux_gL).filter((x) => x.value !== null);
+  if (f.length === 0) return unavailable(...(clarifiers[0]?.statePoint.rasConcMax.flux_gL.reasons ?? ['no clarifier']));
+  const m = f.reduce((a, b) => (b.value! < a.value! ? b : a));
+  return { value: m.value, quality: m.quality, reasons: [...m.reasons] };
 }
 
 /** Quality of a balance: the worst of its headline figures (total inventory, SRT, each train's concentration margin and storm MLSS). */

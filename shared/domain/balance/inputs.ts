@@ -5,6 +5,7 @@
  * passed to computeBalance (./assemble.ts).
  */
 import type { SignalKindName } from '../../contracts/plant-layout.js';
+import type { LabSettlingTest } from '../settling-fit.js';
 
 export type TargetType = 'plant' | 'train' | 'basin' | 'clarifier' | 'pump';
 
@@ -53,6 +54,11 @@ export interface BasinLayout {
   id: number;
   code: string;
   volume_m3: number;
+  /**
+   * Aerated fraction of the basin's volume, 0 (anoxic/anaerobic) … 1 (fully aerated), from the
+   * plant model; taken as 1 when absent (said so on the aerobic SRT).
+   */
+  aeratedFraction?: number;
 }
 export interface ClarifierLayout {
   id: number;
@@ -89,4 +95,6 @@ export interface BalanceEngineInputs {
   svi: SviReading | null;
   /** Newest received_at over all tags of the plant (wall clock), or null when none ever arrived. */
   lastReceived_ms: number | null;
+  /** The plant's settleability tests over the fit window (setting settling.fit_window_d), for the Vesilind fit; none when omitted. */
+  settlingTests?: LabSettlingTest[];
 }

@@ -7,7 +7,8 @@ import { rasConcMaxRuleOfThumb_gL } from '../flux.js';
 import { combineQuality, propagate, unavailable, withUnit, type Figure } from '../quality.js';
 import { rasMargin } from '../ras-margin.js';
 
-export type TrainRasOut = BalanceData['trains'][number]['ras'];
+/** The margins of a train's `ras`; the two X_R,max it was chosen from are added by the assembly. */
+export type TrainRasOut = Omit<BalanceData['trains'][number]['ras'], 'rasConcMaxRule_gL' | 'rasConcMaxFlux_gL'>;
 
 /** X_R,max = factor/SVI [g/L] (rasConcMaxRuleOfThumb_gL), carrying the SVI's quality. */
 export function rasConcMaxFromSvi_gL(svi: Figure<number>, xrFactor: number): Figure<number> {

@@ -5,9 +5,11 @@
 import type { BalanceData } from '../../contracts/balance.js';
 import { combineQuality, estimated, fromFigures, good, propagate, unavailable, withUnit, type Figure } from '../quality.js';
 import { stormProjection, type StormCheckSettings, type StormProjection } from '../storm.js';
+import { stormTimeline, type HydrographPoint } from '../storm-timeline.js';
 import { seriesMean, type MinuteSeries } from './series.js';
 
-export type TrainStormOut = BalanceData['trains'][number]['storm'];
+export type TrainStormOut = Omit<BalanceData['trains'][number]['storm'], 'timeline'>;
+export type TrainStormTimelineOut = BalanceData['trains'][number]['storm']['timeline'];
 export type StormSource = BalanceData['storm']['source'];
 
 /**
@@ -51,6 +53,9 @@ export interface TrainStormInputs {
   clarifierArea_m2: number;
   xrFactor: number;
   checks: StormCheckSettings;
+  /** Highest blanket level now [m] and the shallowest side-water depth [m]: a rise that would lift the blanket above the surface is never good. */
+  blanketNow_m?: Figure<number>;
+  clarifierDepth_m?: number;
 }
 
 /** stormProjection for one train, every figure carrying the quality of its inputs. */
@@ -76,6 +81,13 @@ export function trainStorm(inp: TrainStormInputs): TrainStormOut {
       ...ins,
     );
   }
+  const level = inp.blanketNow_m?.value ?? 0;
+  if (storm.value && inp.clarifierDepth_m !== undefined && level + storm.value.blanketRise_m >= inp.clarifierDepth_m) {
+    storm = propagate(storm, {
+      quality: 'estimated',
+      reasons: [`${inp.trainCode}: the blanket would rise to ${(level + storm.value.blanketRise_m).toFixed(2)} m, above the clarifier surface (${inp.clarifierDepth_m} m): sludge would leave with the effluent, so the clarifiers cannot hold this equilibrium`],
+    });
+  }
   const pick = (f: (p: StormProjection) => number, unit: string) =>
     withUnit(storm.value === null ? unavailable(...storm.reasons) : { value: f(storm.value), quality: storm.quality, reasons: storm.reasons }, unit);
   return {
@@ -91,4 +103,80 @@ export function trainStorm(inp: TrainStormInputs): TrainStormOut {
 /** The train's storm flow: plant storm flow × share [m³/h]. */
 export function trainStormFlow_m3h(peak: Figure<number>, share: number): Figure<number> {
   return fromFigures([peak], (p) => p * share);
+}
+
+export interface TrainStormTimelineInputs {
+  trainCode: string;
+  influentFlow_m3h: Figure<number>;
+  rasFlow_m3h: Figure<number>;
+  mlss_gL: Figure<number>;
+  svi_mLg: Figure<number>;
+  /** The train's storm peak flow [m³/h]. */
+  stormFlow_m3h: Figure<number>;
+  /** The design storm: flow = present + peakFraction × (peak − present) (setting storm.hydrograph). */
+  hydrograph: readonly { t_h: number; peakFraction: number }[];
+  /** X_R,max the RAS margins use (the lower of the rule and flux theory) [g/L]. */
+  rasConcMax_gL: Figure<number>;
+  clarifierMass_kg: Figure<number>;
+  /** Highest blanket level of the train's clarifiers now [m]; unknown is left out (estimated, said so). */
+  blanketNow_m: Figure<number>;
+  /** Shallowest side-water depth of the train's clarifiers [m]. */
+  clarifierDepth_m: number;
+  aerationVolume_m3: number;
+  clarifierArea_m2: number;
+  checks: StormCheckSettings;
+}
+
+/**
+ * The plant's design storm in time for one train (stormTimeline): the hydrograph of the setting
+ * scaled between the present flow and the train's storm peak, X_R,max the lower of the rule and
+ * flux theory, the blanket from the highest present level against the shallowest clarifier.
+ * Carries the quality of its inputs; unavailable with their reasons when one is missing.
+ */
+export function trainStormTimeline(inp: TrainStormTimelineInputs): TrainStormTimelineOut {
+  const ins = [inp.influentFlow_m3h, inp.rasFlow_m3h, inp.mlss_gL, inp.svi_mLg, inp.stormFlow_m3h, inp.rasConcMax_gL];
+  const m0 = inp.clarifierMass_kg.value !== null ? inp.clarifierMass_kg : estimated(0, ...inp.clarifierMass_kg.reasons, `${inp.trainCode}: clarifier mass unknown, taken as 0`);
+  const empty = (q: Figure<unknown>): TrainStormTimelineOut => ({
+    points: [],
+    peakBlanket_m: withUnit(unavailable(...q.reasons), 'm'),
+    blanketReachesSurface_h: null,
+    firstFailure_h: null,
+    firstFailedRule: null,
+    checks: [],
+    quality: 'unavailable',
+    reasons: [...q.reasons],
+  });
+  if (ins.some((f) => f.value === null)) return empty(unavailable(...combineQuality(...ins).reasons));
+  const q = inp.influentFlow_m3h.value!;
+  const peak = inp.stormFlow_m3h.value!;
+  const hydrograph: HydrographPoint[] = inp.hydrograph.map((p) => ({ t_h: p.t_h, flow_m3h: q + p.peakFraction * Math.max(0, peak - q) }));
+  const blanket = inp.blanketNow_m.value;
+  const r = stormTimeline({
+    influentFlow_m3h: q,
+    rasFlow_m3h: inp.rasFlow_m3h.value!,
+    mlss_gL: inp.mlss_gL.value!,
+    svi_mLg: inp.svi_mLg.value!,
+    aerationVolume_m3: inp.aerationVolume_m3,
+    clarifierArea_m2: inp.clarifierArea_m2,
+    hydrograph,
+    clarifierDepth_m: inp.clarifierDepth_m,
+    ...(blanket !== null ? { blanketNow_m: Math.min(blanket, inp.clarifierDepth_m) } : {}),
+    clarifierMass_kg: m0.value!,
+    rasConcMax_gL: inp.rasConcMax_gL.value!,
+    checks: inp.checks,
+  });
+  const fig = propagate(r, ...ins, m0, ...(blanket !== null ? [inp.blanketNow_m] : []));
+  const v = fig.value;
+  if (!v) return empty(fig);
+  const failed = v.checks.filter((c) => c.firstFailed_h !== null).sort((a, b) => a.firstFailed_h! - b.firstFailed_h!)[0];
+  return {
+    points: v.points,
+    peakBlanket_m: withUnit({ value: v.peakBlanket_m, quality: fig.quality, reasons: fig.reasons }, 'm'),
+    blanketReachesSurface_h: v.blanketReachesSurface_h,
+    firstFailure_h: v.firstFailure_h,
+    firstFailedRule: failed?.rule ?? null,
+    checks: v.checks,
+    quality: fig.quality,
+    reasons: [...fig.reasons],
+  };
 }

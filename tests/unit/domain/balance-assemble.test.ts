@@ -1,6 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { balanceOut } from '../../../shared/contracts/balance.ts';
 import { computeBalance } from '../../../shared/domain/balance/assemble.ts';
+import { calcStatePoint } from '../../../shared/domain/calculators.ts';
 import { signalUnitFactor } from '../../../shared/domain/balance/signals.ts';
 import { fixtureInputs, NOW, settings } from './balance-fixture.ts';
 
@@ -43,14 +44,22 @@ describe('computeBalance: fixture signals against a hand computation', () => {
     expect(d.inventory.storedFraction.value).toBeCloseTo(0.4, 9);
     expect(d.clarifiers[0]!.effluentTss_gL.value).toBeCloseTo(0.01, 12);
   });
-  it('RAS margins', () => {
-    expect(t.ras.rasConcMax_gL.value).toBeCloseTo(10, 9);
+  it('RAS margins on the lower X_R,max: flux theory 9.9077 g/L below the rule 1200/120 = 10 g/L', () => {
+    // Flux theory (Keinath et al. 1977): Härtel & Pöpel (1992) at SVI 120 → v0 = 8.41480 m/h, k = 0.553289 L/g;
+    // u = (Q_R + Q_W)/A = 620/1500 m/h; G_L/u = 9.907676 g/L (the what-if calculator gives the same, see below).
+    const xr = 9.907675696771152;
+    expect(t.ras.rasConcMaxRule_gL.value).toBeCloseTo(10, 9);
+    expect(t.ras.rasConcMaxFlux_gL.value).toBeCloseTo(xr, 9);
+    expect(t.rasConcMaxBasis).toBe('flux');
+    expect(t.ras.rasConcMax_gL.value).toBeCloseTo(xr, 9);
     expect(t.ras.requiredRasConc_gL.value).toBeCloseTo(7, 9);
     expect(t.ras.concentrationMargin).toMatchObject({ quality: 'good' });
-    expect(t.ras.concentrationMargin.value).toBeCloseTo(0.3, 9);
-    expect(t.ras.minRecycleRatio.value).toBeCloseTo(3 / 7, 9);
-    expect(t.ras.minRasFlow_m3h.value).toBeCloseTo(342.857142857, 6);
-    expect(t.ras.pumpMargin.value).toBeCloseTo(1 - 342.857142857 / 850, 6);
+    expect(t.ras.concentrationMargin.value).toBeCloseTo(1 - 7 / xr, 9);
+    // the reason travels with the margin the alarm reads
+    expect(t.ras.concentrationMargin.reasons.join(' ')).toMatch(/flux theory 9\.91 g\/L .* below the rule's 10\.00 g\/L .* the lower one limits the RAS margin/);
+    expect(t.ras.minRecycleRatio.value).toBeCloseTo(3 / (xr - 3), 9);
+    expect(t.ras.minRasFlow_m3h.value).toBeCloseTo((800 * 3) / (xr - 3), 6);
+    expect(t.ras.pumpMargin.value).toBeCloseTo(1 - (800 * 3) / (xr - 3) / 850, 6);
   });
   it('SRT and WAS advice', () => {
     expect(d.srt.total_d.quality).toBe('good');
@@ -171,5 +180,91 @@ describe('computeBalance: missing, stale and bad inputs', () => {
     expect(signalUnitFactor('basin.mlss', 'm')).toBeNull();
     const b = computeBalance(fixtureInputs({ override: { x: { unit: 'm' } } }), settings());
     expect(b.data.basins[0]!.mlss_gL.reasons.join()).toMatch(/unit 'm' does not fit signal basin.mlss/);
+  });
+});
+
+describe('computeBalance: aerobic SRT from the basins\' aerated fraction', () => {
+  it('fixture basin 70 % aerated: aerobic SRT = 0.7 × 18 000/167.8/24 = 3.12873 d (mass basis); unset fraction is said', () => {
+    const inp = fixtureInputs();
+    inp.layout.trains[0]!.basins[0]!.aeratedFraction = 0.7;
+    const d = computeBalance(inp, settings()).data;
+    expect(d.basins[0]!.aeratedFraction).toBe(0.7);
+    expect(d.srt.aerobicFraction.value).toBeCloseTo(0.7, 12);
+    expect(d.srt.aerobic_d.value).toBeCloseTo((0.7 * 18_000) / 167.8 / 24, 6);
+    expect(d.srt.aeration_d.value).toBeCloseTo(4.46961, 4);
+    const unset = computeBalance(fixtureInputs(), settings()).data.srt;
+    expect(unset.aerobic_d.value).toBeCloseTo(4.46961, 4);
+    expect(unset.aerobic_d.reasons.join(' ')).toMatch(/aerated fraction not set .* ab1: taken as fully aerated/);
+  });
+});
+
+describe('computeBalance: live state point per clarifier equals the what-if calculator (Keinath 1985; Keinath et al. 1977)', () => {
+  const req = { influentFlow_m3h: 800, rasFlow_m3h: 600, wasFlow_m3h: 20, mlss_gL: 3, clarifierArea_m2: 1500 };
+  it('fixture at SVI 120, Härtel & Pöpel (1992): every figure identical to POST /calc/state-point on the same inputs', () => {
+    const sp = computeBalance(fixtureInputs(), settings()).data.clarifiers[0]!.statePoint;
+    const calc = calcStatePoint({ ...req, settling: { svi_mLg: 120, correlation: 'haertel-poepel-1992' } });
+    for (const k of ['overflowRate_mh', 'solidsLoading_kgm2h', 'underflowRate_mh', 'limitingFlux_kgm2h', 'limitingConc_gL', 'maxUnderflowConc_gL', 'requiredUnderflowConc_gL', 'thickeningMargin', 'clarificationMargin'] as const) {
+      expect(sp[k].value, k).not.toBeNull();
+      expect(sp[k].value, k).toBe(calc[k]);
+    }
+    expect(sp.settling).toMatchObject({ v0_mh: calc.settling.v0_mh, k_Lg: calc.settling.k_Lg, source: 'correlation', correlation: 'haertel-poepel-1992' });
+    // hand check of the plain ones: SOR = (800 − 20)/1500 = 0.52 m/h; SLR = 1400·3/1500 = 2.8 kg/(m²·h)
+    expect(sp.overflowRate_mh.value).toBeCloseTo(0.52, 12);
+    expect(sp.solidsLoading_kgm2h.value).toBeCloseTo(2.8, 12);
+    expect(sp.rasConcMax).toMatchObject({ used: 'flux' });
+    expect(sp.rasConcMax.rule_gL.value).toBeCloseTo(10, 9);
+    expect(sp.rasConcMax.flux_gL.value).toBe(calc.maxUnderflowConc_gL);
+  });
+  it('a bulking sludge (SVI 250): the rule 1200/250 = 4.8 g/L is below flux theory (5.857 g/L) and limits the margin', () => {
+    const b = computeBalance(fixtureInputs({ svi: 250 }), settings()).data.trains[0]!;
+    const calc = calcStatePoint({ ...req, settling: { svi_mLg: 250, correlation: 'haertel-poepel-1992' } });
+    expect(b.rasConcMaxBasis).toBe('rule');
+    expect(b.ras.rasConcMax_gL.value).toBeCloseTo(4.8, 9);
+    expect(b.ras.rasConcMaxFlux_gL.value).toBe(calc.maxUnderflowConc_gL);
+    expect(calc.maxUnderflowConc_gL!).toBeGreaterThan(4.8);
+    expect(b.ras.concentrationMargin.value).toBeCloseTo(1 - 7 / 4.8, 9);
+  });
+  it('no SVI: no settling parameters, no X_R,max either way, every state point figure unavailable with the reason', () => {
+    const d = computeBalance(fixtureInputs({ svi: null }), settings()).data;
+    expect(d.clarifiers[0]!.statePoint.limitingFlux_kgm2h.value).toBeNull();
+    expect(d.clarifiers[0]!.statePoint.limitingFlux_kgm2h.reasons.join(' ')).toMatch(/no SVI/);
+    expect(d.trains[0]!.rasConcMaxBasis).toBeNull();
+  });
+});
+
+describe('computeBalance: the design storm in time (setting storm.hydrograph: 6 h at the peak, then 6 h back)', () => {
+  // Fixture: Q 800, Q_R 600 m³/h, X 3 g/L, V 6000 m³, A 1500 m², depth 4 m, peak 1600 m³/h, SVI 120.
+  // X_R,max = 9.907676 g/L (flux theory, the lower); capped: 2200·3 = 6600 > 9.907676·600 = 5944.6 kg/h.
+  // X' = 5944.6/2200 = 2.70209 g/L; τ = 6000/2200 = 2.7273 h; moved after 6 h = (3 − X')·6000·(1 − e^(−6/τ)).
+  const xr = 9.907675696771152;
+  const xEq = (xr * 600) / 2200;
+  const tau = 6000 / 2200;
+  it('peak blanket = 1.0 m + moved·SVI·1e-3/A; the stored fraction already fails at t = 0 (0.4 > 0.30 [CP])', () => {
+    const tl = computeBalance(fixtureInputs(), settings()).data.trains[0]!.storm.timeline;
+    const moved6 = (3 - xEq) * 6000 * (1 - Math.exp(-6 / tau));
+    expect(tl.peakBlanket_m.value).toBeCloseTo(1 + (moved6 * 0.12) / 1500, 3);
+    expect(tl.quality).toBe('good');
+    expect(tl.blanketReachesSurface_h).toBeNull();
+    expect(tl.firstFailedRule).toBe('max-stored-fraction');
+    expect(tl.firstFailure_h).toBe(0);
+    expect(tl.points.at(-1)!.t_h).toBe(12);
+  });
+  it('a blanket at 3.9 m of 4 m reaches the surface after 0.1 m of rise = 1250 kg: t = −τ·ln(1 − 1250/((3 − X′)·6000)) = 3.26 h; never good', () => {
+    const tl = computeBalance(fixtureInputs({ override: { lv: { value: 3.9 } } }), settings()).data.trains[0]!.storm.timeline;
+    expect(tl.blanketReachesSurface_h!).toBeCloseTo(-tau * Math.log(1 - 1250 / ((3 - xEq) * 6000)), 1);
+    expect(tl.quality).toBe('estimated');
+    expect(tl.peakBlanket_m.quality).not.toBe('good');
+    expect(tl.checks.find((c) => c.rule === 'blanket-below-surface')).toMatchObject({ ok: false, limit: 4 });
+  });
+});
+
+describe('computeBalance: the equilibrium storm projection against the clarifier depth', () => {
+  it('a rise that lifts the blanket above the surface is never good (issue 16: an 18.75 m rise came out good)', () => {
+    // SVI 120 rule projection at 1600 m³/h: rise 0.1309 m (hand computation above); blanket at 3.95 m of 4 m → 4.08 m.
+    const st = computeBalance(fixtureInputs({ override: { lv: { value: 3.95 } } }), settings()).data.trains[0]!.storm;
+    expect(st.blanketRise_m.quality).toBe('estimated');
+    expect(st.blanketRise_m.reasons.join(' ')).toMatch(/above the clarifier surface \(4 m\)/);
+    const ok = computeBalance(fixtureInputs(), settings()).data.trains[0]!.storm;
+    expect(ok.blanketRise_m.quality).toBe('good');
   });
 });

@@ -35,9 +35,22 @@ describe('plant SRT from the trains', () => {
   it('dynamic SRT at steady state stays at M/P = 30 000/167.8/24 d; needs two minutes; says when X_e was taken as 0', () => {
     const d = plantDynamicSrt(plantMassSeries([A]).total_kg, solidsLossSeries([A]), 24, false);
     expect(d.value).toBeCloseTo(30_000 / 167.8 / 24, 9);
-    expect(d.reasons[0]).toMatch(/integrated over 24\.0 h .*Takács et al\. 2008/);
+    expect(d.reasons[0]).toMatch(/age balance integrated over 24\.0 h .*Takács et al\. 2008/);
     expect(plantDynamicSrt(new Map([[0, 1]]), new Map([[0, 1]]), 24, false).value).toBeNull();
     expect(plantDynamicSrt(plantMassSeries([A, B]).total_kg, solidsLossSeries([A, B]), 24, true).reasons).toContain(EFFLUENT_TSS_NOT_MEASURED);
+  });
+});
+
+describe('dynamic SRT fed with what the engine measures (issue 16)', () => {
+  it('inventory 42 000 → 46 200 kg over 48 h at 130 kg/h removal: 12.41 d, not the 13.55 d of removal-as-production', () => {
+    // Minute series; production P = 130 + 4200/48 = 217.5 kg/h is implied by dM/dt. Start age M/W = 42 000/130 h.
+    const n = 48 * 60;
+    const mass = new Map(Array.from({ length: n + 1 }, (_, i) => [i * M, 42_000 + (4200 * i) / n] as [number, number]));
+    const removal = new Map(Array.from({ length: n + 1 }, (_, i) => [i * M, 130] as [number, number]));
+    const d = plantDynamicSrt(mass, removal, 48, false);
+    // Hand reference (RK4 of dθ/dt = 1 − θ·217.5/M(t), h = 0.001 h): 12.4060 d.
+    expect(d.value).toBeCloseTo(12.406, 3);
+    expect(d.quality).toBe('estimated');
   });
 });
 

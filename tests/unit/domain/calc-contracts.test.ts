@@ -2,6 +2,8 @@ import { describe, expect, it } from 'vitest';
 import { settlerRequest, srtRequest, statePointRequest, stormRequest, stormResponse, statePointResponse, settlerResponse, srtResponse, sviRequest, sviResponse } from '../../../shared/contracts/calc.js';
 import { calcSettler, calcSrt, calcStatePoint, calcStorm, calcSvi } from '../../../shared/domain/calculators.js';
 import { DomainValidationError } from '../../../shared/domain/errors.js';
+import { OPERATOR_CAUTION } from '../../../shared/contracts/balance.js';
+import { labResultInput } from '../../../shared/contracts/lab.js';
 
 const storm = { influentFlow_m3h: 1000, rasFlow_m3h: 600, mlss_gL: 3, svi_mLg: 120, aerationVolume_m3: 12000, clarifierArea_m2: 1600, stormFlow_m3h: 3000 };
 const sp = { influentFlow_m3h: 1000, rasFlow_m3h: 600, mlss_gL: 3, clarifierArea_m2: 1600, settling: { v0_mh: 7.8, k_Lg: 0.4 } };
@@ -113,5 +115,31 @@ describe('calculators produce responses that satisfy their schemas, without NaN'
     const s = calcSvi(sviRequest.parse({ settledVolume_mLL: 200, mlss_gL: 4, dilutionFactor: 2 }));
     expect(sviResponse.safeParse(s).success).toBe(true);
     expect(s).toMatchObject({ svi_mLg: 100, kind: 'DSVI', quality: 'good' });
+  });
+});
+
+describe('plausibility (issue 16): implausible lab and calculator inputs are refused with the reason', () => {
+  it('SVI-family results outside 20–1000 mL/g [CP bounds]: 1 mL/L at 30 g/L … and 250 mL/L × 100 at 0.1 g/L', () => {
+    // 0.03 mL/g and 500 000 mL/g came out `good` before; now the MLSS bound catches 30 g/L and the index bound the rest.
+    const low = sviRequest.safeParse({ settledVolume_mLL: 1, mlss_gL: 3 }); // 0.33 mL/g
+    expect(low.success).toBe(false);
+    expect(low.error!.issues[0]!.message).toMatch(/0\.333 mL\/g lies outside the plausible 20–1000 mL\/g/);
+    const high = labResultInput.safeParse({ kind: 'DSVI', settledVolume_mLL: 200, dilutionFactor: 100, mlss_gL: 1, sampledAt: '2026-01-01T00:00:00Z' }); // 20 000 mL/g
+    expect(high.success).toBe(false);
+    expect(high.error!.issues.map((i) => i.path.join('.'))).toContain('settledVolume_mLL');
+    expect(labResultInput.safeParse({ kind: 'SVI', settledVolume_mLL: 240, mlss_gL: 3, sampledAt: '2026-01-01T00:00:00Z' }).success).toBe(true); // 80 mL/g
+  });
+  it('settled volumes over 1000 mL/L and MLSS outside 0.1–20 g/L', () => {
+    expect(labResultInput.safeParse({ kind: 'SVI', settledVolume_mLL: 1001, mlss_gL: 3, sampledAt: '2026-01-01T00:00:00Z' }).success).toBe(false);
+    for (const mlss_gL of [0.05, 25]) {
+      expect(labResultInput.safeParse({ kind: 'MLSS', mlss_gL, sampledAt: '2026-01-01T00:00:00Z' }).success, `lab MLSS ${mlss_gL}`).toBe(false);
+      expect(paths(stormRequest.safeParse({ ...storm, mlss_gL })), `storm MLSS ${mlss_gL}`).toEqual(['mlss_gL']);
+    }
+    expect(labResultInput.safeParse({ kind: 'MLSS', mlss_gL: 0.1, sampledAt: '2026-01-01T00:00:00Z' }).success).toBe(true);
+  });
+  it('every calculator answer carries the operator caution of the balance', () => {
+    expect(calcStorm(stormRequest.parse(storm)).caution).toBe(OPERATOR_CAUTION);
+    expect(calcStatePoint(statePointRequest.parse(sp)).caution).toBe(OPERATOR_CAUTION);
+    expect(calcSvi(sviRequest.parse({ settledVolume_mLL: 200, mlss_gL: 3 })).caution).toBe(OPERATOR_CAUTION);
   });
 });

@@ -9,7 +9,7 @@ describe('MQTT connection options (one definition for the API and ingest)', () =
   it('applies the defaults ingest runs with and drops keys it does not know', () => {
     const { options, error } = mqttOptionsOf(row('mqtt://b', { topics: ['a/#'], legacy: 1 }));
     expect(error).toBeNull();
-    expect(options).toEqual({ topics: ['a/#'], protocolVersion: 'auto', keepalive_s: 30 });
+    expect(options).toEqual({ topics: ['a/#'], protocolVersion: 'auto', keepalive_s: 30, payload: 'json', requestRebirth: false });
   });
 
   it('falls back to the defaults with the reason when the stored options are invalid', () => {

@@ -36,7 +36,7 @@ export function fakePlantAccess(ids: number[]): PlantAccess {
     async requirePlant(principal, plantId) {
       assertPlantScope(principal, plantId);
       if (!ids.includes(plantId)) throw new NotFoundError(`no plant ${plantId}`);
-      const row: PlantRow = { id: plantId, code: `p${plantId}`, name: `Plant ${plantId}`, timezone: 'UTC', peakFlow_m3h: null, createdAt: new Date(0) };
+      const row: PlantRow = { id: plantId, code: `p${plantId}`, name: `Plant ${plantId}`, timezone: 'UTC', peakFlow_m3h: null, unitSystem: 'SI', retiredAt: null, createdAt: new Date(0) };
       return row;
     },
   };

@@ -50,7 +50,8 @@ export const SrtPanel = memo(function SrtPanel({ srt }: { srt: BalanceData['srt'
           </span>{' '}
           <span className="text-ink-3 text-[11px]">%</span>
         </Row>
-        <FigureRow label="Aerobic SRT" f={srt.aeration_d} />
+        <FigureRow label="Aeration-basin SRT" f={srt.aeration_d} />
+        <FigureRow label="Aerobic SRT" f={srt.aerobic_d} />
         <Row label="Window coverage">
           <FigureValue value={srt.coverage * 100} unit="%" digits={3} label="share of the rolling window with data" />
         </Row>

@@ -92,7 +92,9 @@ export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarif
             <FigureRow label="WAS flow" f={train.wasFlow_m3h} />
           </Group>
           <Group title="RAS margins" testid="ras">
-            <FigureRow label="X_R,max from SVI" f={train.ras.rasConcMax_gL} />
+            <FigureRow label="X_R,max from SVI" f={train.ras.rasConcMaxRule_gL} />
+            <FigureRow label="X_R,max by flux theory" f={train.ras.rasConcMaxFlux_gL} />
+            <FigureRow label="X_R,max used (the lower)" f={train.ras.rasConcMax_gL} />
             <FigureRow label="X_R required now" f={train.ras.requiredRasConc_gL} />
             <FigureRow label="Concentration margin" f={train.ras.concentrationMargin} percent watch={{ rule: 'ras-concentration-margin-low', target: train.code, word: 'LOW' }} />
             <FigureRow label="Influent flow at zero margin" f={train.ras.concentrationLimitFlow_m3h} digits={4} />

@@ -1,6 +1,6 @@
 import { useState } from 'react';
 import { useForm, useWatch } from 'react-hook-form';
-import { OPCUA_SECURITY_MODES, OPCUA_SECURITY_POLICIES, sourceCreate, type ConnectionTestOut, type SourceCreate, type SourceKind } from '../../../../shared/contracts/wiring.ts';
+import { OPCUA_SECURITY_MODES, OPCUA_SECURITY_POLICIES, sourceCreate, sparkplugStatus, type ConnectionTestOut, type MqttPayloadFormat, type SourceCreate, type SourceKind } from '../../../../shared/contracts/wiring.ts';
 import { Button, ErrorNote, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
 import { applyServerErrors, contractResolver, fieldError } from '../../../lib/form.ts';
 import { formatAge, formatUtc } from '../../../lib/format.ts';
@@ -63,6 +63,7 @@ export function SourcesPanel({ plantId, selected, onSelect }: { plantId: number;
                       {c.state}
                       {c.lastMessageAt ? <span className="text-ink-3"> · last {formatAge((Date.now() - Date.parse(c.lastMessageAt)) / 1000)} ago</span> : null}
                       {c.staleTags ? <span className="text-unavailable"> · {c.staleTags} stale</span> : null}
+                      <SparkplugNote details={c.details} />
                     </span>
                   ) : (
                     <span className="text-ink-3">—</span>
@@ -93,6 +94,24 @@ export function SourcesPanel({ plantId, selected, onSelect }: { plantId: number;
   );
 }
 
+/** Sparkplug B figures of a source's status: edge nodes whose data cannot be read until they rebirth, and seq gaps. */
+function SparkplugNote({ details }: { details: Record<string, unknown> }) {
+  const parsed = sparkplugStatus.safeParse(details.sparkplug);
+  if (!parsed.success) return null;
+  const sp = parsed.data;
+  return (
+    <span data-testid="sparkplug-status">
+      {sp.needRebirth.length ? (
+        <span className="text-alarm-1" title={sp.needRebirth.map((n) => `${n.edgeNode}: ${n.reason}`).join('\n')}>
+          {' '}
+          · {sp.needRebirth.length} Sparkplug edge node{sp.needRebirth.length > 1 ? 's' : ''} need a rebirth
+        </span>
+      ) : null}
+      {sp.seqGaps ? <span className="text-ink-3"> · {sp.seqGaps} seq gaps</span> : null}
+    </span>
+  );
+}
+
 function IngestBadge({ running, reason }: { running: boolean | undefined; reason: string | undefined }) {
   if (running === undefined) return null;
   return (
@@ -108,15 +127,29 @@ type SourceValues = {
   url: string;
   username: string;
   password: string;
-  options: { topics: string; securityMode: string; securityPolicy: string };
+  options: { topics: string; payload: MqttPayloadFormat; requestRebirth: boolean; securityMode: string; securityPolicy: string };
 };
-const EMPTY_SOURCE: SourceValues = { kind: 'mqtt', name: '', url: '', username: '', password: '', options: { topics: '#', securityMode: 'None', securityPolicy: 'None' } };
+const EMPTY_SOURCE: SourceValues = {
+  kind: 'mqtt',
+  name: '',
+  url: '',
+  username: '',
+  password: '',
+  options: { topics: '#', payload: 'json', requestRebirth: false, securityMode: 'None', securityPolicy: 'None' },
+};
 
 /** The request body of the chosen kind: MQTT topic filters from a comma list, OPC UA security settings. */
 function sourceBody(v: SourceValues): Record<string, unknown> {
   const common = { kind: v.kind, name: v.name, url: v.url.trim(), username: v.username || null, password: v.password || null };
   return v.kind === 'mqtt'
-    ? { ...common, options: { topics: v.options.topics.split(',').map((t) => t.trim()).filter(Boolean) } }
+    ? {
+        ...common,
+        options: {
+          topics: v.options.topics.split(',').map((t) => t.trim()).filter(Boolean),
+          payload: v.options.payload,
+          ...(v.options.requestRebirth ? { requestRebirth: true } : {}),
+        },
+      }
     : { ...common, options: { securityMode: v.options.securityMode, securityPolicy: v.options.securityPolicy } };
 }
 const sourceResolver = contractResolver(sourceCreate, sourceBody);
@@ -161,9 +194,27 @@ function NewSourceForm({ plantId }: { plantId: number }) {
         <TextInput type="password" {...form.register('password')} autoComplete="new-password" />
       </Field>
       {kind === 'mqtt' ? (
-        <Field label="Topic filters" error={fe('options.topics') ?? fe('options')} hint="comma-separated; # sees everything">
-          <TextInput {...form.register('options.topics')} className="num" />
-        </Field>
+        <>
+          <Field label="Topic filters" error={fe('options.topics') ?? fe('options')} hint="comma-separated; # sees everything">
+            <TextInput {...form.register('options.topics')} className="num" />
+          </Field>
+          <Field label="Payload" error={fe('options.payload')} hint="Sparkplug B is read on spBv1.0/ topics either way">
+            <Select {...form.register('options.payload')}>
+              <option value="json">Flocstream JSON</option>
+              <option value="sparkplugB">Sparkplug B only</option>
+            </Select>
+          </Field>
+          <div className="col-span-full text-[12px]">
+            <label className="inline-flex items-center gap-1">
+              <input type="checkbox" {...form.register('options.requestRebirth')} /> Sparkplug B: request a rebirth from edge nodes whose aliases ingest does not know
+            </label>
+            <p className="text-ink-3" data-testid="rebirth-caution">
+              Caution: off by default. When on, ingest publishes the standard Sparkplug rebirth command (NCMD Node Control/Rebirth, at most once per edge node per
+              minute) — the only message Flocstream ever sends to the plant network. A rebirth makes the edge node resend all its metrics; agree it with the owner
+              of the control system and the licensed operators first. Without it, such edge nodes are listed here until they rebirth on their own.
+            </p>
+          </div>
+        </>
       ) : (
         <>
           <Field label="Security mode" error={fe('options.securityMode')}>

@@ -1,0 +1,60 @@
+import { plantConfig, type PlantConfig } from '../../shared/contracts/plant-config.ts';
+import { DEMO_PLANT } from './demo-plant.ts';
+
+export interface DemoEndpoints {
+  /** The broker the simulator publishes to (the embedded one on `npm start`). */
+  mqttUrl: string;
+  /** The simulator's OPC UA endpoint. */
+  opcuaUrl: string;
+}
+
+/** Source names of the demo plant (their URLs change per run: the ports are chosen at start). */
+export const DEMO_SOURCE_NAMES = { mqtt: `${DEMO_PLANT.code}-mqtt`, opcua: `${DEMO_PLANT.code}-opcua` } as const;
+
+/**
+ * Kestrel Bend as a plant configuration document (format 1, shared/contracts/plant-config.ts):
+ * what `npm start` posts through the same service as `POST /api/v1/plants`, so the demo uses
+ * exactly the path a real install uses. Built from DEMO_PLANT, the simulator's own description,
+ * so the plant the product knows and the plant the simulator runs cannot drift apart; validated
+ * by the shared schema here.
+ */
+export function kestrelBendConfig(ep: DemoEndpoints): PlantConfig {
+  return plantConfig.parse({
+    formatVersion: 1,
+    plant: { code: DEMO_PLANT.code, name: DEMO_PLANT.name, timezone: 'UTC', peakFlow_m3h: null, unitSystem: 'SI' },
+    model: {
+      trains: DEMO_PLANT.trains.map((t) => ({
+        code: t.code,
+        name: t.name,
+        // Fully aerated basins: the demo's former `aerobic: true`.
+        aerationBasins: t.basins.map((b) => ({ code: b.code, name: b.name, volume_m3: b.volume_m3, aeratedFraction: 1 })),
+        secondaryClarifiers: t.clarifiers.map((c) => ({ code: c.code, name: c.name, area_m2: c.area_m2, sideWaterDepth_m: c.sideWaterDepth_m, count: c.count })),
+        pumps: t.pumps.map((p) => ({ code: p.code, name: p.name, kind: p.kind, capacity_m3h: p.capacity_m3h, servesClarifier: p.clarifier })),
+      })),
+    },
+    settings: {},
+    sources: [
+      { kind: 'mqtt', name: DEMO_SOURCE_NAMES.mqtt, url: ep.mqttUrl },
+      { kind: 'opcua', name: DEMO_SOURCE_NAMES.opcua, url: ep.opcuaUrl, options: { securityMode: 'None' } },
+    ],
+    tags: DEMO_PLANT.tags.map((t) => ({
+      name: t.name,
+      source: t.protocol === 'mqtt' ? DEMO_SOURCE_NAMES.mqtt : DEMO_SOURCE_NAMES.opcua,
+      address: t.address,
+      unit: t.unit,
+      description: t.description,
+      rangeLow: t.rangeLow,
+      rangeHigh: t.rangeHigh,
+      expectedPeriod_s: t.expectedPeriod_s,
+      // One second: the simulator may run faster than real time, and the server's data-change
+      // filter only reports changes anyway.
+      samplingInterval_ms: t.protocol === 'opcua' ? 1000 : null,
+      // A run-feedback state holds still by nature: never checked for a flat line.
+      kind: t.signal.kind === 'pump.running' ? ('state' as const) : ('analog' as const),
+    })),
+    signalMap: DEMO_PLANT.tags.map((t) => {
+      const type = t.signal.kind.split('.')[0] as 'plant' | 'basin' | 'clarifier' | 'pump';
+      return { signal: t.signal.kind, target: { type, code: type === 'plant' ? null : t.signal.target }, tag: t.name };
+    }),
+  });
+}

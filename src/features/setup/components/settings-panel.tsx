@@ -1,0 +1,61 @@
+import { useState } from 'react';
+import { Button, ErrorNote, Panel, TextInput } from '../../../components/ui/controls.tsx';
+import { usePlantSettings, usePutSettings } from '../api/setup.ts';
+
+const td = 'px-1.5 py-1 border-b border-edge/50 align-top';
+const th = 'text-left font-semibold text-ink-2 px-1.5 py-1 border-b border-edge';
+
+/** The plant's settings with their defaults and where each default comes from; changing one needs the admin role (the server checks it too). */
+export function SettingsPanel({ plantId, isAdmin }: { plantId: number; isAdmin: boolean }) {
+  const settings = usePlantSettings(plantId);
+  const put = usePutSettings(plantId);
+  const [draft, setDraft] = useState<Record<string, string>>({});
+  const save = (key: string) => {
+    let value: unknown;
+    try {
+      value = JSON.parse(draft[key] ?? '');
+    } catch {
+      value = draft[key];
+    }
+    put.mutate({ plantId, values: { [key]: value } }, { onSuccess: () => setDraft(({ [key]: _gone, ...rest }) => rest) });
+  };
+  return (
+    <Panel title="Settings of this plant">
+      {!isAdmin ? <p className="text-[12px] text-ink-3 mb-1">Read only: settings are changed by an admin.</p> : null}
+      <ErrorNote error={settings.error ?? put.error} />
+      <table className="w-full text-[12px]" aria-label="Settings">
+        <thead>
+          <tr>
+            <th className={th}>Setting</th>
+            <th className={`${th} text-right`}>Value</th>
+            <th className={`${th} text-right`}>Default</th>
+            <th className={th}>From</th>
+          </tr>
+        </thead>
+        <tbody>
+          {(settings.data?.settings ?? []).map((s) => (
+            <tr key={s.key} data-key={s.key}>
+              <td className={td}>
+                <div className="font-semibold">{s.key}</div>
+                <div className="text-ink-3">{s.doc}</div>
+              </td>
+              <td className={`${td} text-right num whitespace-nowrap`}>
+                {isAdmin ? (
+                  <span className="inline-flex gap-1">
+                    <TextInput aria-label={s.key} className="w-28 num text-right" value={draft[s.key] ?? JSON.stringify(s.value)} onChange={(e) => setDraft((d) => ({ ...d, [s.key]: e.target.value }))} />
+                    {draft[s.key] !== undefined ? <Button onClick={() => save(s.key)}>Save</Button> : null}
+                  </span>
+                ) : (
+                  JSON.stringify(s.value)
+                )}{' '}
+                <span className="text-ink-3">{s.unit === '-' ? '' : s.unit}</span>
+              </td>
+              <td className={`${td} text-right num`}>{JSON.stringify(s.default)}</td>
+              <td className={td}>{s.source}</td>
+            </tr>
+          ))}
+        </tbody>
+      </table>
+    </Panel>
+  );
+}
