@@ -21,14 +21,14 @@ describe('historian import line checks', () => {
     expect(timestampParser('iso', 'UTC')('yesterday')).toBeNull();
   });
 
-  it('units in the header are converted to the tag unit (NIST SP 811 B.9: US gallon = 3.785412e-3 m³)', () => {
+  it('units in the header are converted to the tag unit (NIST SP 811 B.9: US gallon = 231 in³ = 3.785411784e-3 m³ exactly, rounded there to 3.785412e-3)', () => {
     expect(splitUnit('FIT-101 [gpm]')).toEqual({ name: 'FIT-101', unit: 'gpm' });
     const c = new RowChecker(tags, opts);
     expect(c.header(['ts', 'FIT-101 [gpm]', 'AIT-231 [g/L]'])).toBe(true);
     const out: Sample[] = [];
     c.row(['2026-01-01T00:00:00Z', '100', '0.012'], 2, out);
-    // 100 gpm × 3.785412e-3 m³ × 60 min/h = 22.712472 m³/h; 0.012 g/L = 12 mg/L.
-    expect(out[0]!.value).toBeCloseTo(22.712472, 9);
+    // 100 gpm × 3.785411784e-3 m³ × 60 min/h = 22.7124707 m³/h; 0.012 g/L = 12 mg/L.
+    expect(out[0]!.value).toBeCloseTo(22.712470704, 9);
     expect(out[1]!.value).toBeCloseTo(12, 9);
   });
 
