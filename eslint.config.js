@@ -47,7 +47,8 @@ export default tseslint.config(
   },
   {
     // One module per protocol, used by both: the API's wiring test and browse reuse ingest's
-    // protocol clients (one OPC UA client certificate), and nothing else of ingest.
+    // protocol clients (one OPC UA client certificate), and nothing else of ingest; the historian
+    // import writes samples with ingest's binary COPY encoder (one encoding of a sample row).
     files: ['server/**/*.ts'],
     rules: {
       'no-restricted-imports': [
@@ -55,8 +56,8 @@ export default tseslint.config(
         {
           patterns: [
             {
-              regex: '(^|/)ingest/(?!(opcua/opcua-client|mqtt/mqtt-connection)\\.ts$)',
-              message: 'server/ may import only ingest\'s protocol modules (ingest/opcua/opcua-client.ts, ingest/mqtt/mqtt-connection.ts)',
+              regex: '(^|/)ingest/(?!(opcua/opcua-client|mqtt/mqtt-connection|sink/copy-binary|pipeline/types)\\.ts$)',
+              message: 'server/ may import only ingest\'s protocol modules (ingest/opcua/opcua-client.ts, ingest/mqtt/mqtt-connection.ts), the COPY encoder ingest/sink/copy-binary.ts and its Sample type',
             },
           ],
         },

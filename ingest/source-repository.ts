@@ -23,8 +23,9 @@ export async function loadWiring(pool: pg.Pool): Promise<WiringSnapshot> {
     range_low: number | null;
     range_high: number | null;
     sampling_interval_ms: number | null;
+    kind: 'analog' | 'state' | 'counter';
   }>(
-    `SELECT t.id, t.source_id, t.address, t.scale_gain, t.scale_offset, t.deadband, t.expected_period_s, t.range_low, t.range_high, t.sampling_interval_ms
+    `SELECT t.id, t.source_id, t.address, t.scale_gain, t.scale_offset, t.deadband, t.expected_period_s, t.range_low, t.range_high, t.sampling_interval_ms, t.kind
      FROM tags t JOIN sources s ON s.id = t.source_id WHERE t.enabled AND s.enabled ORDER BY t.id`,
   );
   const tagsBySource = new Map<number, TagConfig[]>();
@@ -41,6 +42,7 @@ export async function loadWiring(pool: pg.Pool): Promise<WiringSnapshot> {
       rangeLow: r.range_low,
       rangeHigh: r.range_high,
       samplingInterval_ms: r.sampling_interval_ms,
+      kind: r.kind,
     });
     tagsBySource.set(r.source_id, list);
   }

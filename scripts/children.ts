@@ -102,3 +102,86 @@ export function waitForLine(proc: ChildProcess, name: string, re: RegExp, timeou
     lines.on('line', onLine);
   });
 }
+
+/** Restart backoff of a supervised child: 1 s, doubling to 30 s; back to 1 s once a run lasted a minute. */
+export const RESTART_BACKOFF = { first_ms: 1000, max_ms: 30_000, stable_ms: 60_000 } as const;
+
+export interface SupervisedChild {
+  name: string;
+  /** The process running now (a new one after each restart). */
+  readonly proc: ChildProcess;
+  readonly restarts: number;
+  stop(): Promise<void>;
+}
+
+export interface ChildExit {
+  name: string;
+  code: number | null;
+  signal: NodeJS.Signals | null;
+  /** How long the process had run [ms]. */
+  ran_ms: number;
+  /** When it is started again [ms from now]. */
+  restartIn_ms: number;
+  restarts: number;
+}
+
+/**
+ * spawnTs under a supervisor: when the process exits and no stop was asked for, it is started
+ * again after a backoff (RESTART_BACKOFF) and `onExit` is told (the launcher raises an alarm).
+ * stop() cancels a pending restart and stops the running process.
+ */
+export function superviseTs(
+  root: string,
+  name: string,
+  entry: string,
+  args: string[],
+  env: Record<string, string>,
+  onExit: (e: ChildExit) => void,
+  nodeArgs: readonly string[] = [],
+  clock: () => number = Date.now,
+): SupervisedChild {
+  let stopping = false;
+  let restarts = 0;
+  let delay_ms: number = RESTART_BACKOFF.first_ms;
+  let timer: NodeJS.Timeout | null = null;
+  let current: Child;
+  const start = () => {
+    const startedAt = clock();
+    current = spawnTs(
+      root,
+      name,
+      entry,
+      args,
+      env,
+      (code) => {
+        if (stopping) return;
+        const ran_ms = clock() - startedAt;
+        if (ran_ms >= RESTART_BACKOFF.stable_ms) delay_ms = RESTART_BACKOFF.first_ms;
+        const wait = delay_ms;
+        delay_ms = Math.min(delay_ms * 2, RESTART_BACKOFF.max_ms);
+        restarts++;
+        onExit({ name, code, signal: current.proc.signalCode, ran_ms, restartIn_ms: wait, restarts });
+        timer = setTimeout(() => {
+          timer = null;
+          if (!stopping) start();
+        }, wait);
+      },
+      nodeArgs,
+    );
+  };
+  start();
+  return {
+    name,
+    get proc() {
+      return current.proc;
+    },
+    get restarts() {
+      return restarts;
+    },
+    async stop() {
+      stopping = true;
+      if (timer) clearTimeout(timer);
+      await current.stop();
+    },
+  };
+}

@@ -27,19 +27,24 @@ runLauncher('flocstream dev', async (l) => {
   const { values } = parseArgs({ options: { 'vite-port': { type: 'string' } } });
   const config = loadConfig();
   let databaseUrl = config.databaseUrl;
+  let ingestUrl = config.ingestDatabaseUrl ?? databaseUrl;
+  const apiEnv: Record<string, string> = {};
   if (!databaseUrl) {
     // Owned here, not by the API, so a reload of the API does not restart the database.
     const pg = await startLocalPostgres({ dataDir: config.dataDir, port: config.pgPort, log: l.say });
     l.onStop(() => pg.stop());
     databaseUrl = pg.url;
+    ingestUrl = pg.ingestUrl;
+    // The API migrates as the owner and serves as its own role, as under npm start (server/db/client.ts).
+    Object.assign(apiEnv, { FLOCSTREAM_API_DATABASE_URL: pg.apiUrl, INGEST_DATABASE_URL: pg.ingestUrl });
   }
   const mqttUrl = await startBroker(l, config);
 
-  const api = l.child('api', tsxCli(), ['watch', '--clear-screen=false', 'scripts/api.ts', '--mqtt-url', mqttUrl], { DATABASE_URL: databaseUrl });
+  const api = l.child('api', tsxCli(), ['watch', '--clear-screen=false', 'scripts/api.ts', '--mqtt-url', mqttUrl], { DATABASE_URL: databaseUrl, ...apiEnv });
   // The first start migrates and may create the cluster's users: give it as long as npm start has.
   const apiUrl = (await waitForLine(api.proc, 'api', API_READY, 120_000))[1]!;
   startSimulator(l, config, mqttUrl);
-  startIngest(l, config, databaseUrl);
+  startIngest(l, config, ingestUrl!);
 
   const vite = await createServer({
     configFile: path.join(root, 'vite.config.ts'),

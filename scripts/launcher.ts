@@ -4,19 +4,27 @@
  * start.ts runs the API in its own process; dev.ts runs the same API under `tsx watch`
  * (scripts/api.ts) so it restarts when its sources change.
  */
+import { spawn } from 'node:child_process';
+import { once } from 'node:events';
+import fs from 'node:fs';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { and, eq } from 'drizzle-orm';
 import { INGEST_NODE_ARGS } from '../ingest/config.ts';
+import { repositories, type AppContext } from '../server/app-context.ts';
+import { ensureBrokerCredentials, INGEST_USER, SIMULATOR_USER, simulatorPasswordFile } from '../server/broker/broker-users.ts';
 import { BROKER_NODE_ARGS, BROKER_READY } from '../server/broker/process.ts';
 import type { Config } from '../server/config.ts';
-import { labResults } from '../server/db/schema/index.ts';
+import { labResults, plants, sources } from '../server/db/schema/index.ts';
 import { demoCredentials, startServer, type RunningServer } from '../server/main.ts';
-import { labRow } from '../server/services/lab.service.ts';
 import { services } from '../server/app-context.ts';
+import { toAlarmOut } from '../server/services/alarm.service.ts';
+import { labRow } from '../server/services/lab.service.ts';
+import { historyImportQuery } from '../shared/contracts/history.ts';
 import { DEMO_SOURCE_NAMES, kestrelBendConfig } from '../simulators/plant/kestrel-bend.config.ts';
 import { labResultInput } from '../shared/contracts/lab.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
-import { spawnTs, waitForLine, type Child } from './children.ts';
+import { spawnTs, superviseTs, waitForLine, type Child, type ChildExit, type SupervisedChild } from './children.ts';
 
 export const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..');
 
@@ -32,6 +40,10 @@ export interface Launcher {
   stop(why: string, code?: number): Promise<void>;
   /** Spawns a TypeScript child whose unexpected exit stops everything. */
   child(name: string, entry: string, args: string[], env?: Record<string, string>, nodeArgs?: readonly string[]): Child;
+  /** Spawns a TypeScript child that is restarted with backoff when it exits (children.ts superviseTs); only a stop ends it. */
+  supervised(name: string, entry: string, args: string[], env?: Record<string, string>, nodeArgs?: readonly string[]): SupervisedChild;
+  /** Called whenever a supervised child exited and a restart is scheduled (besides the line printed). */
+  onChildExit(handler: (e: ChildExit) => Promise<void> | void): void;
 }
 
 /**
@@ -41,6 +53,7 @@ export interface Launcher {
 export function runLauncher(tag: string, main: (l: Launcher) => Promise<void>): void {
   const say = (m: string) => console.log(`[${tag}] ${m}`);
   const steps: Array<() => Promise<void> | void> = [];
+  const exitHandlers: Array<(e: ChildExit) => Promise<void> | void> = [];
   let stopping = false;
   const l: Launcher = {
     say,
@@ -77,6 +90,28 @@ export function runLauncher(tag: string, main: (l: Launcher) => Promise<void>): 
       steps.push(() => c.stop());
       return c;
     },
+    supervised(name, entry, args, env = {}, nodeArgs = []) {
+      const c = superviseTs(
+        root,
+        name,
+        entry,
+        args,
+        env,
+        (e) => {
+          const how = e.signal ? `signal ${e.signal}` : `code ${e.code}`;
+          console.error(`[${tag}] ${name} exited (${how}) after ${Math.round(e.ran_ms / 1000)} s; restarting in ${e.restartIn_ms / 1000} s (restart ${e.restarts})`);
+          for (const h of exitHandlers) {
+            void Promise.resolve()
+              .then(() => h(e))
+              .catch((err: unknown) => console.error(`[${tag}] could not record ${name}'s exit: ${(err as Error).message}`));
+          }
+        },
+        nodeArgs,
+      );
+      steps.push(() => c.stop());
+      return c;
+    },
+    onChildExit: (h) => void exitHandlers.push(h),
   };
   process.on('SIGINT', () => void l.stop('SIGINT'));
   process.on('SIGTERM', () => void l.stop('SIGTERM'));
@@ -86,11 +121,35 @@ export function runLauncher(tag: string, main: (l: Launcher) => Promise<void>): 
   });
 }
 
-/** The embedded MQTT broker in its own process, unless MQTT_URL names an external one; resolves with the broker URL. */
+/**
+ * The embedded MQTT broker in its own process, unless MQTT_URL names an external one; resolves
+ * with the broker URL. Its two users (ingest, simulator) are created in `<dataDir>/broker/` at
+ * the first start; the simulator may publish only below the demo plant's topic prefix.
+ */
 export async function startBroker(l: Launcher, config: Config): Promise<string> {
   if (config.mqttUrl) return config.mqttUrl;
-  const broker = l.child('broker', 'server/broker/main.ts', ['127.0.0.1', String(config.mqttPort)], {}, BROKER_NODE_ARGS);
+  ensureBrokerCredentials(config.dataDir, [`${DEMO_PLANT.code}/#`]);
+  const args = ['127.0.0.1', String(config.mqttPort), '--data-dir', config.dataDir, '--max-packet-bytes', String(config.mqttMaxPacketBytes)];
+  const broker = l.supervised('broker', 'server/broker/main.ts', args, {}, BROKER_NODE_ARGS);
   return (await waitForLine(broker.proc, broker.name, BROKER_READY))[1]!;
+}
+
+/**
+ * The alarm a child's exit raises, on every plant (a process serves them all): `ingest-down`
+ * (priority 1: the monitor is blind while ingest or the broker is away) with the process as
+ * target, announced on the live stream as the balance engine announces its alarms. The engine
+ * clears it at its next evaluation (the process is back: ISA-18.2's "returned to normal,
+ * unacknowledged"), so it stays in the alarm list until an operator acknowledges it.
+ */
+export async function raiseProcessAlarm(ctx: AppContext, e: ChildExit): Promise<void> {
+  const repos = repositories(ctx);
+  const how = e.signal ? `was killed by ${e.signal}` : `exited with code ${e.code}`;
+  const message = `The ${e.name} process ${how} after ${Math.round(e.ran_ms / 1000)} s and is restarted in ${e.restartIn_ms / 1000} s (restart ${e.restarts} since start); data may be delayed meanwhile.`;
+  for (const { id } of await ctx.db.db.select({ id: plants.id }).from(plants)) {
+    // The repository raises at most one open alarm per rule and target: a crash loop is one alarm.
+    const row = await repos.alarms.raise({ plantId: id, rule: 'ingest-down', target: `process:${e.name}`, priority: 1, message, value: null, limit: null, raisedAt: new Date() });
+    if (row) await repos.stream.notify(id, 'alarm', { change: 'raised', alarm: toAlarmOut(row) });
+  }
 }
 
 function opcuaUrl(config: Config): string {
@@ -112,6 +171,15 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
     const { plantConfig } = services(server.ctx);
     const seeded = await plantConfig.ensure(null, kestrelBendConfig(ep));
     if (!seeded.created) await plantConfig.setSourceUrls(null, seeded.plantId, { [DEMO_SOURCE_NAMES.mqtt]: ep.mqttUrl, [DEMO_SOURCE_NAMES.opcua]: ep.opcuaUrl });
+    if (!config.mqttUrl) {
+      // The embedded broker admits only its users: ingest reads its password from the demo
+      // plant's MQTT source, as it would an external broker's.
+      const creds = ensureBrokerCredentials(config.dataDir, [`${DEMO_PLANT.code}/#`]);
+      await server.ctx.db.db
+        .update(sources)
+        .set({ username: INGEST_USER, secret: creds.ingest.password })
+        .where(and(eq(sources.plantId, seeded.plantId), eq(sources.name, DEMO_SOURCE_NAMES.mqtt)));
+    }
     say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
     if (seeded.created) {
       // The settleability test is a lab entry, not a tag: the demo starts with one diluted
@@ -127,19 +195,93 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
   }
 }
 
-/** In demo mode, the simulator of Kestrel Bend publishing to `mqttUrl` and serving OPC UA. */
-export function startSimulator(l: Launcher, config: Config, mqttUrl: string): void {
+/** Days of simulated past the demo loads at its first start (longer than any window a figure reads). */
+
+/** The demo's simulated past as a CSV file being written (prepareDemoHistory). */
+export interface DemoHistoryFile {
+  file: string;
+  written: Promise<void>;
+}
+
+/**
+ * At a first start (no PostgreSQL cluster in the data folder yet), starts the simulator writing
+ * FLOCSTREAM_DEMO_HISTORY_DAYS (35) days of Kestrel Bend as a historian CSV (the model run fast, dry weather, one-minute values;
+ * nothing over MQTT) while the cluster is created and migrated; null otherwise.
+ */
+export function prepareDemoHistory(config: Config): DemoHistoryFile | null {
+  if (!config.demo || config.demoHistoryDays === 0 || config.databaseUrl || fs.existsSync(path.join(config.dataDir, 'pg'))) return null;
+  const file = path.join(config.dataDir, 'imports', 'demo-history.csv');
+  fs.mkdirSync(path.dirname(file), { recursive: true });
+  const args = ['--import', 'tsx', 'simulators/cli.ts', '--scenario', 'dry-weather', '--history-days', String(config.demoHistoryDays), '--history-end', new Date().toISOString(), '--history-out', file];
+  const sim = spawn(process.execPath, args, { cwd: root, stdio: ['ignore', 'ignore', 'pipe'] });
+  let stderr = '';
+  sim.stderr!.on('data', (b: Buffer) => (stderr += b.toString()));
+  const written = once(sim, 'exit').then(([code]) => {
+    if (code !== 0) throw new Error(`demo history: the simulator failed (code ${code}): ${stderr}`);
+  });
+  written.catch(() => {});
+  return { file, written };
+}
+
+/**
+ * The demo's past, before it goes live. When the demo plant has no stored sample yet, the file
+ * of prepareDemoHistory goes through the historian import service like any upload and is waited
+ * for (rows stored, rollups built; the balance recompute of the window goes on in the
+ * background). Every start then resumes the simulation after the newest stored sample, read from
+ * the database, so no start writes into a window that holds data. Returns that time, or
+ * undefined outside demo mode.
+ */
+export async function loadDemoHistory(config: Config, server: RunningServer, say: (m: string) => void, prepared: DemoHistoryFile | null): Promise<Date | undefined> {
+  if (!config.demo) return undefined;
+  const { pool } = server.ctx.db;
+  const plant = (await pool.query<{ id: number }>('SELECT id FROM plants WHERE code = $1', [DEMO_PLANT.code])).rows[0];
+  if (!plant) return undefined;
+  const history = repositories(server.ctx).history;
+  const last = await history.lastSampleTime(plant.id);
+  if (last || !prepared) {
+    if (last) say(`resuming the simulation after the last stored sample (${last.toISOString()})`);
+    return last ?? undefined;
+  }
+  const t0 = Date.now();
+  say(`first start: loading ${config.demoHistoryDays} days of simulated history…`);
+  await prepared.written;
+  const user = (await pool.query<{ id: number; email: string }>(`SELECT id, email FROM users WHERE role = 'integrator' AND NOT disabled ORDER BY id LIMIT 1`)).rows[0];
+  if (!user) throw new Error('demo history: no integrator user to import as');
+  const principal = { userId: user.id, email: user.email, role: 'integrator' as const, tokenId: null, plantIds: null, ip: null };
+  // Hourly balances over the 35 days (840), not one per engine interval: enough for the trends,
+  // and the live engine takes over at its own interval.
+  const q = historyImportQuery.parse({ balanceStep_s: '3600' });
+  const { jobId } = await services(server.ctx).historyImport.start(principal, plant.id, q, fs.createReadStream(prepared.file), { contentType: 'text/csv', fileName: 'demo-history.csv' });
+  fs.rmSync(prepared.file, { force: true });
+  for (;;) {
+    const j = await history.job(jobId);
+    if (!j) throw new Error(`demo history: job ${jobId} vanished`);
+    if (j.state === 'failed') throw new Error(`demo history: import failed: ${JSON.stringify(j.result)} ${JSON.stringify(j.errors.slice(0, 5))}`);
+    if (j.state === 'done') {
+      say(`loaded ${j.rows} samples of simulated history in ${((Date.now() - t0) / 1000).toFixed(1)} s (the balances of the past are recomputed in the background)`);
+      return (await history.lastSampleTime(plant.id)) ?? undefined;
+    }
+    await new Promise((r) => setTimeout(r, 250));
+  }
+}
+
+/**
+ * In demo mode, the simulator of Kestrel Bend publishing to `mqttUrl` and serving OPC UA:
+ * after `resumeFrom` (loadDemoHistory) caught up fast to the wall clock, or, without it, two
+ * simulated hours replayed fast; then real time, so no timestamp is in the future.
+ */
+export function startSimulator(l: Launcher, config: Config, mqttUrl: string, resumeFrom?: Date): void {
   if (!config.demo) return;
-  // Two simulated hours of history replayed fast (the demo storm starts half an hour in),
-  // then real time: the board shows a storm within minutes and no timestamp is in the future.
-  const args = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir, '--catch-up-h', '2'];
+  const args = ['--scenario', config.simScenario, '--mqtt-url', mqttUrl, '--opcua-port', String(config.simOpcuaPort), '--data-dir', config.dataDir];
+  args.push(...(resumeFrom ? ['--resume-from', resumeFrom.toISOString()] : ['--catch-up-h', '2']));
   if (config.simSpeed) args.push('--speed', String(config.simSpeed));
-  l.child('simulator', 'simulators/cli.ts', args);
+  if (!config.mqttUrl) args.push('--mqtt-username', SIMULATOR_USER, '--mqtt-password-file', simulatorPasswordFile(config.dataDir));
+  l.supervised('simulator', 'simulators/cli.ts', args);
 }
 
 /** The ingest process, writing to `databaseUrl`. */
 export function startIngest(l: Launcher, config: Config, databaseUrl: string): void {
-  l.child('ingest', 'ingest/main.ts', [], { DATABASE_URL: databaseUrl, FLOCSTREAM_DATA_DIR: config.dataDir }, INGEST_NODE_ARGS);
+  l.supervised('ingest', 'ingest/main.ts', [], { DATABASE_URL: databaseUrl, FLOCSTREAM_DATA_DIR: config.dataDir }, INGEST_NODE_ARGS);
 }
 
 /** The first admin's password, shown once when it was just created. */

@@ -1,10 +1,11 @@
-import { credentialChanged } from './auth/credential-cache.ts';
+import path from 'node:path';
+import { credentialChanged, type AuthChange } from './auth/credential-cache.ts';
 import type { Logger } from 'pino';
 import type { Config } from './config.ts';
 import type { Database } from './db/client.ts';
 import { dummyPasswordHash, hashPassword, randomPassword, verifyPassword } from './auth/passwords.ts';
 import { outboxReader } from './mail/outbox.ts';
-import { signSession } from './auth/session.ts';
+import { newSessionId, SESSION_TTL_S, signSession } from './auth/session.ts';
 import { alarmRepository } from './repositories/alarm.repository.ts';
 import { auditRepository } from './repositories/audit.repository.ts';
 import { balanceRepository } from './repositories/balance.repository.ts';
@@ -14,14 +15,19 @@ import { streamRepository } from './repositories/stream.repository.ts';
 import { wiringRepository } from './repositories/wiring.repository.ts';
 import { ingestRepository } from './repositories/ingest.repository.ts';
 import { labRepository } from './repositories/lab.repository.ts';
+import { historyRepository } from './repositories/history.repository.ts';
+import { enqueueHistoryJob } from './jobs/history-queue.ts';
+import { createHistoryImportService } from './services/history-import.service.ts';
 import { plantRepository } from './repositories/plant.repository.ts';
 import { seriesRepository } from './repositories/series.repository.ts';
 import { settingsRepository } from './repositories/settings.repository.ts';
-import { tokenRepository, userRepository } from './repositories/user.repository.ts';
+import { sessionRepository, tokenRepository, userRepository } from './repositories/user.repository.ts';
 import { createAlarmService } from './services/alarm.service.ts';
 import { createAuditLog } from './services/audit.service.ts';
 import { createStreamService, streamHub } from './services/stream.service.ts';
 import { createAuthService } from './services/auth.service.ts';
+import { createCalcService } from './services/calc.service.ts';
+import { createWorkerPool } from './workers/worker-pool.ts';
 import { createBootstrapService } from './services/bootstrap.service.ts';
 import { createIngestStatusService } from './services/ingest-status.service.ts';
 import { createOutboxService } from './services/outbox.service.ts';
@@ -45,6 +51,9 @@ export interface AppContext {
   sessionKey: Uint8Array;
 }
 
+/** Largest historian file accepted [bytes]: 4 GiB, well above a year of a plant's tags at 10 s. */
+const HISTORY_MAX_BYTES = 4 * 1024 ** 3;
+
 /** Wall clock in epoch ms; services take it as a dependency so a test can set the time. */
 export type Clock = () => number;
 export const systemClock: Clock = () => Date.now();
@@ -62,6 +71,7 @@ function compose(ctx: AppContext) {
     audit: auditRepository(db),
     users: userRepository(db),
     tokens: tokenRepository(db),
+    sessions: sessionRepository(db),
     plants: plantRepository(db, pool),
     settings: settingsRepository(db),
     series: seriesRepository(pool),
@@ -74,17 +84,23 @@ function compose(ctx: AppContext) {
     notifications: notificationRepository(db),
     plantModel: plantModelRepository(db),
     outbox: outboxReader(db),
+    history: historyRepository(ctx.db),
   };
   const audit = createAuditLog({ auditRepo: repos.audit });
   const plantAccess = createPlantAccess({ plantRepo: repos.plants });
+  const credentialsChanged = (c: AuthChange) => credentialChanged(ctx, c);
   const services = {
     audit,
     auth: createAuthService({
       userRepo: repos.users,
+      sessionRepo: repos.sessions,
       audit,
       clock,
       passwords: { verify: verifyPassword, dummyHash: dummyPasswordHash },
-      signSession: (userId) => signSession(ctx.sessionKey, userId),
+      newSessionId,
+      signSession: (userId, sessionId) => signSession(ctx.sessionKey, userId, sessionId),
+      sessionTtl_s: SESSION_TTL_S,
+      credentialsChanged,
     }),
     bootstrap: createBootstrapService({
       userRepo: repos.users,
@@ -92,8 +108,8 @@ function compose(ctx: AppContext) {
       passwords: { hash: hashPassword, random: randomPassword },
       admin: { email: ctx.config.adminEmail, password: ctx.config.adminPassword },
     }),
-    users: createUserService({ userRepo: repos.users, audit, hashPassword, credentialsChanged: (c) => credentialChanged(ctx, c) }),
-    tokens: createTokenService({ tokenRepo: repos.tokens, audit, clock, credentialsChanged: (c) => credentialChanged(ctx, c) }),
+    users: createUserService({ userRepo: repos.users, sessionRepo: repos.sessions, audit, hashPassword, credentialsChanged }),
+    tokens: createTokenService({ tokenRepo: repos.tokens, audit, clock, credentialsChanged }),
     settings: createSettingsService({ settingsRepo: repos.settings, plantRepo: repos.plants, audit }),
     plantAccess,
     plantModel: createPlantModelService({ modelRepo: repos.plantModel, clock }),
@@ -109,6 +125,18 @@ function compose(ctx: AppContext) {
       audit,
       clock,
       changed: (a, change) => repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed')),
+    }),
+    historyImport: createHistoryImportService({
+      historyRepo: repos.history,
+      plantAccess,
+      audit,
+      uploadDir: path.join(ctx.config.dataDir, 'imports'),
+      maxBytes: HISTORY_MAX_BYTES,
+      enqueue: (kind, id) => enqueueHistoryJob(ctx, kind, id),
+    }),
+    calc: createCalcService({
+      pool: createWorkerPool({ entry: new URL('./workers/calc.worker.ts', import.meta.url), size: ctx.config.calc.workers, queue: ctx.config.calc.queue, timeout_ms: ctx.config.calc.timeout_ms, prestart: true }),
+      limits: { budget_ms: ctx.config.calc.budget_ms, timeout_ms: ctx.config.calc.timeout_ms, settlerMaxSteps: ctx.config.calc.settlerMaxSteps },
     }),
     wiring: createWiringService({ wiringRepo: repos.wiring, plantAccess, audit, log: ctx.log, ingestRepo: repos.ingest, opcua: createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir }) }),
   };

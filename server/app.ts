@@ -6,7 +6,9 @@ import cookieParser from 'cookie-parser';
 import express, { type Express, type RequestHandler, Router } from 'express';
 import helmet from 'helmet';
 import { pinoHttp } from 'pino-http';
-import type { AppContext } from './app-context.ts';
+import { services, type AppContext } from './app-context.ts';
+import { credentialCache } from './auth/credential-cache.ts';
+import { csrfGuard } from './auth/csrf.ts';
 import { authenticate } from './auth/middleware.ts';
 import { errorMiddleware } from './http/error-middleware.ts';
 import { NotFoundError } from './http/errors.ts';
@@ -25,6 +27,7 @@ import { streamRoutes } from './routes/stream.routes.ts';
 import { tokensRoutes } from './routes/tokens.routes.ts';
 import { usersRoutes } from './routes/users.routes.ts';
 import { wiringRoutes } from './routes/wiring.routes.ts';
+import { historyRoutes } from './routes/history.routes.ts';
 import { ingestStatusRoutes } from './routes/ingest-status.routes.ts';
 
 export const VERSION = '0.1.0';
@@ -38,6 +41,7 @@ export function apiRoutes(ctx: AppContext): RouteDef[] {
   defs.push(...outboxRoutes(ctx));
   defs.push(...wiringRoutes(ctx));
   defs.push(...ingestStatusRoutes(ctx));
+  defs.push(...historyRoutes(ctx));
   defs.push(...plantModelRoutes(ctx));
   const doc = () => buildOpenApi(defs, VERSION);
   let cached: object | undefined;
@@ -92,7 +96,10 @@ function requestLogger(ctx: AppContext): RequestHandler {
 export function createApp(ctx: AppContext, opts: { serveMonitor?: boolean } = {}): Express {
   const app = express();
   app.disable('x-powered-by');
-  app.set('trust proxy', 'loopback');
+  // X-Forwarded-For / -Proto are believed only from the proxies configured (FLOCSTREAM_TRUST_PROXY);
+  // by default the address is the socket's, so a client cannot pick the address the sign-in
+  // throttle counts and the audit log shows.
+  app.set('trust proxy', ctx.config.trustProxy);
   app.use(
     helmet({
       contentSecurityPolicy: {
@@ -117,7 +124,13 @@ export function createApp(ctx: AppContext, opts: { serveMonitor?: boolean } = {}
     res.status(database.ok ? 200 : 503).json({ status: database.ok ? 'ok' : 'degraded', version: VERSION, database });
   });
 
+  // The recovery command (scripts/admin.ts) clears a lock-out through NOTIFY flocstream_auth.
+  credentialCache(ctx).onChange((c) => {
+    if ('unlockUserId' in c) services(ctx).auth.unlock(c.unlockUserId).catch((err) => ctx.log.warn({ err }, 'sign-in unlock failed'));
+  });
+
   const api = Router();
+  api.use(csrfGuard({ allowedOrigins: ctx.config.allowedOrigins }));
   api.use(authenticate(ctx));
   api.use(rateLimit());
   mount(api, apiRoutes(ctx));

@@ -6,17 +6,20 @@ import { createApp } from './app.ts';
 import type { AppContext } from './app-context.ts';
 import { loadSessionKey } from './auth/session.ts';
 import type { Config } from './config.ts';
-import { openDatabase } from './db/client.ts';
+import { databaseUrls, openDatabase } from './db/client.ts';
 import { startLocalPostgres, type LocalPostgres } from './db/local-postgres.ts';
-import { runMigrations } from './db/migrate.ts';
+import { grantRuntimeRoles, runMigrations } from './db/migrate.ts';
 import { startBalanceEngine, type BalanceEngine } from './jobs/balance-engine.ts';
+import { startHistoryJobs, type HistoryJobs } from './jobs/history-jobs.ts';
 import { createLogger } from './logger.ts';
 import { bootstrapUsers, type Credential } from './services/bootstrap.service.ts';
 
 export interface RunningServer {
   url: string;
   ctx: AppContext;
+  /** The API's database URL (its own role); ingest's below. */
   databaseUrl: string;
+  ingestDatabaseUrl: string;
   credentials: Credential[];
   close(): Promise<void>;
 }
@@ -29,23 +32,25 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
   const say = opts.say ?? (() => {});
   const log = opts.log ?? createLogger('server', config.logLevel, config.dataDir);
   let pgLocal: LocalPostgres | undefined;
-  let databaseUrl = config.databaseUrl;
-  if (!databaseUrl) {
-    pgLocal = await startLocalPostgres({ dataDir: config.dataDir, port: config.pgPort, log: say });
-    databaseUrl = pgLocal.url;
-  }
+  if (!config.databaseUrl) pgLocal = await startLocalPostgres({ dataDir: config.dataDir, port: config.pgPort, log: say });
   let engine: BalanceEngine | undefined;
+  let history: HistoryJobs | undefined;
   try {
-    await runMigrations(databaseUrl);
-    const db = openDatabase(databaseUrl);
+    // Migrations as the owner; the API and ingest as roles with only what they need.
+    const urls = databaseUrls(config, pgLocal);
+    const databaseUrl = urls.api;
+    await runMigrations(urls.owner);
+    if (urls.roles) await grantRuntimeRoles(urls.owner, urls.roles);
+    const db = openDatabase(databaseUrl, { statementTimeout_ms: config.apiStatementTimeout_ms });
     const ctx: AppContext = { db, config, log, sessionKey: loadSessionKey(config.dataDir, config.sessionSecret) };
     const credentials = await bootstrapUsers(ctx, config.demo);
     if (config.demo) rememberDemoCredentials(config.dataDir, credentials);
     // The balance engine (repeatable jobs, alarms, mail catcher) unless told not to (jobs: false).
     if (opts.jobs !== false) {
       // An ephemeral HTTP port (tests) gets an ephemeral catcher port too, so runs never collide.
-      engine = await startBalanceEngine(ctx, { databaseUrl, ...(config.port === 0 ? { catcherPort: 0 } : {}) });
+      engine = await startBalanceEngine(ctx, { databaseUrl, ...(config.mailCatcherPort !== undefined ? { catcherPort: config.mailCatcherPort } : config.port === 0 ? { catcherPort: 0 } : {}) });
       if (engine.catcherUrl) say(`mail catcher at ${engine.catcherUrl} (admins read it at /api/v1/outbox)`);
+      history = await startHistoryJobs(ctx, { databaseUrl });
     }
     const app = createApp(ctx);
     const server: Server = await new Promise((resolve, reject) => {
@@ -60,16 +65,19 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
       url: `http://${config.host}:${port}`,
       ctx,
       databaseUrl,
+      ingestDatabaseUrl: urls.ingest,
       credentials,
       async close() {
         server.closeAllConnections();
         await new Promise<void>((r) => server.close(() => r()));
+        await history?.stop();
         await engine?.stop();
         await db.close();
         pgLocal?.stop();
       },
     };
   } catch (err) {
+    await history?.stop().catch(() => {});
     await engine?.stop().catch(() => {});
     pgLocal?.stop();
     throw err;

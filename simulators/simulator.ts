@@ -26,6 +26,9 @@ export interface SimulatorOptions {
   seed?: number;
   /** Broker URL; null disables MQTT. Default mqtt://127.0.0.1:18830. */
   mqttUrl?: string | null;
+  /** Broker credentials (the embedded broker's `simulator` user under `npm start`). */
+  mqttUsername?: string;
+  mqttPassword?: string;
   /** OPC UA port; null disables the OPC UA server. Default 48410. */
   opcuaPort?: number | null;
   opcuaHost?: string;
@@ -43,6 +46,12 @@ export interface SimulatorOptions {
    * behaviour within minutes.
    */
   catchUp_h?: number;
+  /**
+   * Start the simulated clock at this time (the newest sample a previous run stored) and catch
+   * up to the wall clock as with `catchUp_h`: every reading is stamped after it, so a restart
+   * never writes into a window that already holds data.
+   */
+  resumeFrom?: Date;
   /** Real-time period of the simulation loop [ms]; default 100. */
   tick_ms?: number;
   /** Fixed model step [s]; default 5. */
@@ -68,9 +77,10 @@ export async function startSimulator(opts: SimulatorOptions): Promise<RunningSim
   const speed = opts.speed ?? scenario.recommendedSpeed;
   if (!(speed >= 1 && speed <= 3600)) throw new RangeError(`speed must be between 1 and 3600, got ${speed}`);
   const seed = opts.seed ?? 1;
-  const catchUp = opts.catchUp_h !== undefined;
-  if (catchUp && !(opts.catchUp_h! > 0 && opts.catchUp_h! <= 24 * 30)) throw new RangeError(`catch-up must be between 0 and 720 h, got ${opts.catchUp_h}`);
-  const start = opts.startTime ?? new Date(Date.now() - (opts.catchUp_h ?? 0) * 3_600_000);
+  const catchUp = opts.catchUp_h !== undefined || opts.resumeFrom !== undefined;
+  if (opts.catchUp_h !== undefined && !(opts.catchUp_h > 0 && opts.catchUp_h <= 24 * 30)) throw new RangeError(`catch-up must be between 0 and 720 h, got ${opts.catchUp_h}`);
+  if (opts.resumeFrom && !(opts.resumeFrom.getTime() <= Date.now())) throw new RangeError(`resume time ${opts.resumeFrom.toISOString()} is in the future`);
+  const start = opts.startTime ?? opts.resumeFrom ?? new Date(Date.now() - (opts.catchUp_h ?? 0) * 3_600_000);
   const epoch0 = start.getTime();
   const startHourOfDay = start.getUTCHours() + start.getUTCMinutes() / 60;
   const model = new PlantModel(plant, scenario, { seed, startHourOfDay, ...(opts.modelStep_s ? { step_s: opts.modelStep_s } : {}) });
@@ -83,6 +93,7 @@ export async function startSimulator(opts: SimulatorOptions): Promise<RunningSim
         url: mqttUrl,
         plantCode: plant.code,
         batch: opts.batch ?? false,
+        ...(opts.mqttUsername ? { username: opts.mqttUsername, password: opts.mqttPassword ?? '' } : {}),
         ...(opts.mqttReconnectPeriod_ms ? { reconnectPeriod_ms: opts.mqttReconnectPeriod_ms } : {}),
       })
     : null;
@@ -128,7 +139,7 @@ export async function startSimulator(opts: SimulatorOptions): Promise<RunningSim
   const endpoints = { mqtt: mqttUrl, opcua: opcua?.endpointUrl ?? null };
   log(
     `flocstream simulator: plant ${plant.code} (${plant.name}), scenario ${scenario.name}, speed ${speed}×` +
-      (catchUp ? ` from ${opts.catchUp_h} h ago until it meets the wall clock, then real time` : '') +
+      (opts.resumeFrom ? ` resuming after ${opts.resumeFrom.toISOString()} until it meets the wall clock, then real time` : catchUp ? ` from ${opts.catchUp_h} h ago until it meets the wall clock, then real time` : '') +
       `, seed ${seed}; ` +
       `MQTT ${endpoints.mqtt ?? 'off'}${endpoints.mqtt ? (opts.batch ? ' (batched)' : ' (one value per message)') : ''}; OPC UA ${endpoints.opcua ?? 'off'}`,
   );

@@ -330,6 +330,8 @@ export class MqttConnector implements Connector {
         invalidFilters: this.handler.invalidFilters,
         /** Redeliveries of messages already stored, acknowledged without writing them again. */
         redelivered: this.counters.redelivered,
+        /** Intake stopped at the writer's high-water mark: mqtt.js's callback is held, nothing more is read. */
+        paused: this.stalled !== null,
         payload: this.opts.payload,
         ...(this.handler.sparkplug ? { sparkplug: this.handler.sparkplug.status() } : {}),
       },

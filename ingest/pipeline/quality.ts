@@ -32,7 +32,8 @@ function withGrade(code: number, grade: QualityGrade): number {
  * - the source's own quality (MQTT `q`, OPC UA StatusCode) is kept, with the sourceStatus flag;
  * - outside [rangeLow, rangeHigh] → Uncertain + outOfRange, in the spirit of OPC UA's
  *   Uncertain_EngineeringUnitsExceeded (OPC 10000-8 §5.6.2, EURange);
- * - unchanged for flatLinePeriods × expectedPeriod (at least 5 min) → Uncertain + flatLine;
+ * - an analog value unchanged for flatLinePeriods × expectedPeriod (at least 5 min) → Uncertain +
+ *   flatLine; a state (pump running) or counter tag is never flagged, as it holds still by nature;
  * - source timestamp too far in the future → Uncertain + clockSkew.
  * Staleness (no sample at all) cannot be a property of a sample; it is reported by the status
  * file from `lastSeen` (see `isStale`).
@@ -68,7 +69,9 @@ export class TagProcessor {
       if ((t.rangeLow !== null && value < t.rangeLow) || (t.rangeHigh !== null && value > t.rangeHigh)) {
         quality = withGrade(quality | QUALITY_FLAG.outOfRange, 'uncertain');
       }
-      if (this.lastValue !== null && value === this.lastValue) {
+      if (t.kind !== 'analog') {
+        this.unchangedSince = ts;
+      } else if (this.lastValue !== null && value === this.lastValue) {
         const window = Math.max(300_000, this.opts.flatLinePeriods * t.expectedPeriod_s * 1000);
         if (ts - this.unchangedSince >= window) quality = withGrade(quality | QUALITY_FLAG.flatLine, 'uncertain');
       } else {

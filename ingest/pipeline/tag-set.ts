@@ -10,7 +10,8 @@ function sameConfig(a: TagConfig, b: TagConfig): boolean {
     a.expectedPeriod_s === b.expectedPeriod_s &&
     a.rangeLow === b.rangeLow &&
     a.rangeHigh === b.rangeHigh &&
-    a.samplingInterval_ms === b.samplingInterval_ms
+    a.samplingInterval_ms === b.samplingInterval_ms &&
+    a.kind === b.kind
   );
 }
 

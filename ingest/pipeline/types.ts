@@ -32,6 +32,8 @@ export interface TagConfig {
   rangeLow: number | null;
   rangeHigh: number | null;
   samplingInterval_ms: number | null;
+  /** analog | state | counter: only an analog value is checked for a flat line (a state or a count holds still by nature). */
+  kind: 'analog' | 'state' | 'counter';
 }
 
 export const DEAD_LETTER_PAYLOAD_MAX = 4096;

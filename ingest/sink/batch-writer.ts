@@ -93,6 +93,7 @@ export class BatchWriter {
   private chain: Promise<void> = Promise.resolve();
   private retryAt = 0;
   private backoffMs = 250;
+  private readonly now: () => number;
   private closed = false;
   private replayTimer: NodeJS.Timeout;
   readonly stats: WriterStats = {
@@ -128,13 +129,21 @@ export class BatchWriter {
   constructor(
     stores: SampleStore | readonly SampleStore[],
     private spool: Spool,
-    private opts: { batchRows: number; flushMs: number; log: Logger; maxBacklog?: number },
+    private opts: {
+      batchRows: number;
+      flushMs: number;
+      log: Logger;
+      maxBacklog?: number;
+      /** The clock the retry backoff is judged by [ms] (default Date.now; tests step one instead of waiting it out). */
+      now?: () => number;
+    },
   ) {
+    this.now = opts.now ?? Date.now;
     this.free = Array.isArray(stores) ? [...stores] : [stores as SampleStore];
     if (this.free.length === 0) throw new Error('BatchWriter needs at least one SampleStore');
     // Without new traffic nothing would flush: retry a non-empty spool by itself.
     this.replayTimer = setInterval(() => {
-      if (!this.spool.isEmpty && Date.now() >= this.retryAt) void this.flush();
+      if (!this.spool.isEmpty && this.now() >= this.retryAt) void this.flush();
     }, 1_000);
     this.replayTimer.unref();
   }
@@ -220,7 +229,7 @@ export class BatchWriter {
     // own, overlapping the batches before it; what is done with the outcome (acks, spooling on
     // failure) still happens strictly in flush order on the chain. Otherwise the batch waits
     // its turn and goes the serial way (spool replay first), as before.
-    const early = items > 0 && this.spool.isEmpty && this.stats.dbState === 'up' && Date.now() >= this.retryAt ? this.commitOnLane(batch) : null;
+    const early = items > 0 && this.spool.isEmpty && this.stats.dbState === 'up' && this.now() >= this.retryAt ? this.commitOnLane(batch) : null;
     this.chain = this.chain.then(async () => {
       try {
         await this.write(batch, early);
@@ -252,9 +261,9 @@ export class BatchWriter {
           this.markDown(causeOf(err));
           await this.toSpool(err instanceof NotCommitted ? err.rest : b);
         }
-      } else if (!this.spool.isEmpty && Date.now() >= this.retryAt) await this.replaySpool();
+      } else if (!this.spool.isEmpty && this.now() >= this.retryAt) await this.replaySpool();
       if (hasData && !early) {
-        if (!this.spool.isEmpty || Date.now() < this.retryAt) {
+        if (!this.spool.isEmpty || this.now() < this.retryAt) {
           await this.toSpool(b);
         } else {
           try {
@@ -395,7 +404,7 @@ export class BatchWriter {
     while (this.spool.capReached) {
       this.updatePressure();
       if (this.closed) throw new Error('spool at its size cap and the database unreachable; batch not acknowledged');
-      await new Promise((r) => setTimeout(r, Math.max(50, this.retryAt - Date.now())));
+      await new Promise((r) => setTimeout(r, Math.max(50, this.retryAt - this.now())));
       await this.replaySpool();
       if (this.spool.isEmpty) {
         try {
@@ -446,7 +455,7 @@ export class BatchWriter {
     if (this.stats.dbState === 'up') this.opts.log.warn({ err: (err as Error).message }, 'database write failed; spooling');
     this.stats.dbState = 'down';
     this.stats.lastError = (err as Error).message;
-    this.retryAt = Date.now() + this.backoffMs;
+    this.retryAt = this.now() + this.backoffMs;
     this.backoffMs = Math.min(this.backoffMs * 2, 5_000);
   }
 

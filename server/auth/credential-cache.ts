@@ -23,7 +23,17 @@ import type { Principal } from './principal.ts';
  * moves its entry to the end).
  */
 export const AUTH_CHANNEL = 'flocstream_auth';
-export const authNotification = z.union([z.object({ userId: z.number().int().positive() }), z.object({ tokenId: z.number().int().positive() })]);
+/**
+ * `userId`: a user changed (password, role, disabled, removed); `tokenId`: a token revoked;
+ * `sessionId`: one session signed out; `unlockUserId`: the recovery command (scripts/admin.ts)
+ * cleared a user's sign-in lock-out, which the API processes forget at once.
+ */
+export const authNotification = z.union([
+  z.object({ userId: z.number().int().positive() }).strict(),
+  z.object({ tokenId: z.number().int().positive() }).strict(),
+  z.object({ sessionId: z.string().min(1).max(64) }).strict(),
+  z.object({ unlockUserId: z.number().int().positive() }).strict(),
+]);
 export type AuthChange = z.infer<typeof authNotification>;
 
 export interface CredentialCacheOptions {
@@ -83,9 +93,25 @@ export class CredentialCache {
 
   drop(change: AuthChange): void {
     this.generation++;
-    for (const [k, e] of this.entries) {
-      if ('userId' in change ? e.principal.userId === change.userId : e.principal.tokenId === change.tokenId) this.entries.delete(k);
+    for (const [k, e] of this.entries) if (affects(change, e.principal)) this.entries.delete(k);
+    for (const l of this.listeners) {
+      try {
+        l(change);
+      } catch {
+        // A listener's failure (a closed stream) must not stop the others from hearing it.
+      }
     }
+  }
+
+  private readonly listeners = new Set<(change: AuthChange) => void>();
+  /**
+   * Called after every change is applied here (this process's or another's, through NOTIFY):
+   * open streams re-check their caller, the sign-in throttle forgets an unlocked account.
+   * Returns the unsubscribe.
+   */
+  onChange(listener: (change: AuthChange) => void): () => void {
+    this.listeners.add(listener);
+    return () => this.listeners.delete(listener);
   }
 
   dropKey(key: string): void {
@@ -98,6 +124,14 @@ export class CredentialCache {
     this.entries.clear();
     this.enabled = on;
   }
+}
+
+/** Whether `change` concerns a caller (the entries to drop, the streams to re-check). */
+export function affects(change: AuthChange, p: Principal): boolean {
+  if ('userId' in change) return p.userId === change.userId;
+  if ('tokenId' in change) return p.tokenId === change.tokenId;
+  if ('sessionId' in change) return p.sessionId === change.sessionId;
+  return false;
 }
 
 const caches = new WeakMap<AppContext, CredentialCache>();
@@ -130,7 +164,8 @@ export function credentialCache(ctx: AppContext): CredentialCache {
 }
 
 /**
- * A user or token changed (revoked, disabled, role or password changed, removed): drop it from
+ * A user, token or session changed (revoked, signed out, disabled, role or password changed,
+ * removed), or a lock-out was cleared: drop it from
  * this process's cache now and tell every other API process. Call after the change committed.
  */
 export async function credentialChanged(ctx: AppContext, change: AuthChange): Promise<void> {

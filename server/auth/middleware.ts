@@ -2,9 +2,9 @@ import type { NextFunction, Request, Response } from 'express';
 import { roleAtLeast, roleRank, type Role } from '../../shared/contracts/roles.ts';
 import type { AppContext } from '../app-context.ts';
 import { ForbiddenError, UnauthorizedError } from '../http/errors.ts';
-import { tokenRepository, userRepository } from '../repositories/user.repository.ts';
+import { sessionRepository, tokenRepository } from '../repositories/user.repository.ts';
 import { hashToken } from './api-tokens.ts';
-import { CredentialCache, credentialCache } from './credential-cache.ts';
+import { affects, CredentialCache, credentialCache } from './credential-cache.ts';
 import { SESSION_COOKIE, verifySessionClaims } from './session.ts';
 import type { Principal } from './principal.ts';
 
@@ -15,71 +15,106 @@ function minRole(a: Role, b: Role): Role {
 }
 
 /**
+ * What an open, long-lived answer (a Server-Sent Events stream) needs to keep checking that its
+ * caller still stands: `recheck` resolves the request's credentials again (the cache is dropped
+ * on every revocation, so this reaches the database after one) and `onChange` announces every
+ * credential change of this or another API process that concerns this caller.
+ */
+export interface CredentialWatch {
+  recheck(): Promise<boolean>;
+  onChange(listener: () => void): () => void;
+}
+
+declare module 'express-serve-static-core' {
+  interface Request {
+    credentialWatch?: CredentialWatch;
+  }
+}
+
+/**
  * Resolves the caller from `Authorization: Bearer <token>` or the session cookie and puts it on
  * `req.principal`. It never rejects by itself: `requireRole` decides. A Bearer header that does
  * not resolve is remembered so the 401 can say why. Resolved callers are kept a short while in
  * the credential cache (`credential-cache.ts`: dropped at once on revocation or user change).
+ * A session cookie stands only while its `sessions` row is neither revoked nor expired and its
+ * user is not disabled.
  */
 export function authenticate(ctx: AppContext) {
-  const users = userRepository(ctx.db.db);
   const tokens = tokenRepository(ctx.db.db);
+  const sessions = sessionRepository(ctx.db.db);
   const cache = credentialCache(ctx);
-  /** Token id → when its last-used time was last written by this process [epoch ms]. */
-  const touched = new Map<number, number>();
-  return async (req: Request, _res: Response, next: NextFunction) => {
+  /** Token id or session id → when its last-used time was last written by this process [epoch ms]. */
+  const touched = new Map<string, number>();
+  const touch = (key: string, write: () => Promise<void>) => {
+    // Last-used is informative (token list, session row): written at most once a minute per
+    // credential, and the request does not wait for it.
+    const now = Date.now();
+    if (now - (touched.get(key) ?? 0) < TOUCH_EVERY_MS) return;
+    if (touched.size >= 10_000) touched.clear();
+    touched.set(key, now);
+    write().catch(() => {});
+  };
+
+  async function byToken(secret: string | undefined): Promise<Principal | undefined> {
+    if (!secret) return undefined;
+    const tokenHash = hashToken(secret);
+    const key = CredentialCache.tokenKey(tokenHash);
+    const cached = cache.get(key);
+    if (cached) return cached;
+    const generation = cache.generation;
+    const row = await tokens.byHashWithUser(tokenHash);
+    if (!row || row.token.revokedAt || row.token.expiresAt.getTime() <= Date.now() || row.user.disabled) return undefined;
+    const principal: Principal = {
+      userId: row.user.id,
+      email: row.user.email,
+      role: minRole(row.token.role, row.user.role),
+      tokenId: row.token.id,
+      plantIds: row.token.plantIds ?? null,
+    };
+    cache.set(key, principal, generation, row.token.expiresAt.getTime());
+    return principal;
+  }
+
+  async function bySession(cookie: string): Promise<Principal | undefined> {
+    const key = CredentialCache.sessionKey(cookie);
+    const cached = cache.get(key);
+    if (cached) return cached;
+    const generation = cache.generation;
+    const claims = await verifySessionClaims(ctx.sessionKey, cookie);
+    if (!claims) return undefined;
+    const row = await sessions.byIdWithUser(claims.sessionId);
+    const now = Date.now();
+    if (!row || row.user.id !== claims.userId || row.session.revokedAt || row.session.expiresAt.getTime() <= now || row.user.disabled) return undefined;
+    const principal: Principal = { userId: row.user.id, email: row.user.email, role: row.user.role, tokenId: null, plantIds: null, sessionId: row.session.id };
+    cache.set(key, principal, generation, Math.min(claims.expiresAt_ms, row.session.expiresAt.getTime()));
+    return principal;
+  }
+
+  /** The caller of a request as its credentials say now; `failure` says why a Bearer header did not resolve. */
+  async function resolve(req: Request): Promise<{ principal?: Principal; failure?: string }> {
     const header = req.headers.authorization;
     if (header !== undefined) {
-      const m = /^Bearer\s+(\S+)$/i.exec(header);
-      const tokenHash = m ? hashToken(m[1]!) : null;
-      const key = tokenHash ? CredentialCache.tokenKey(tokenHash) : null;
-      let principal = key ? cache.get(key) : undefined;
-      if (!principal && tokenHash) {
-        const generation = cache.generation;
-        const row = await tokens.byHashWithUser(tokenHash);
-        const now = Date.now();
-        if (row && !row.token.revokedAt && row.token.expiresAt.getTime() > now && !row.user.disabled) {
-          principal = {
-            userId: row.user.id,
-            email: row.user.email,
-            role: minRole(row.token.role, row.user.role),
-            tokenId: row.token.id,
-            plantIds: row.token.plantIds ?? null,
-          } satisfies Principal;
-          cache.set(key!, principal, generation, row.token.expiresAt.getTime());
-        }
-      }
-      if (principal) {
-        req.principal = principal;
-        // Last-used is informative (shown in the token list): written at most once a minute per
-        // token, and the request does not wait for it.
-        const now = Date.now();
-        const tokenId = principal.tokenId!;
-        if (now - (touched.get(tokenId) ?? 0) >= TOUCH_EVERY_MS) {
-          if (touched.size >= 10_000) touched.clear();
-          touched.set(tokenId, now);
-          tokens.touch(tokenId).catch(() => {});
-        }
-      } else {
-        (req as Request & { authFailure?: string }).authFailure = 'the API token is unknown, revoked or expired';
-      }
-      return next();
+      const principal = await byToken(/^Bearer\s+(\S+)$/i.exec(header)?.[1]);
+      return principal ? { principal } : { failure: 'the API token is unknown, revoked or expired' };
     }
     const cookie = (req.cookies as Record<string, string> | undefined)?.[SESSION_COOKIE];
-    if (cookie) {
-      const key = CredentialCache.sessionKey(cookie);
-      const cached = cache.get(key);
-      if (cached) {
-        req.principal = cached;
-        return next();
-      }
-      const generation = cache.generation;
-      const claims = await verifySessionClaims(ctx.sessionKey, cookie);
-      const user = claims ? await users.byId(claims.userId) : undefined;
-      if (claims && user && !user.disabled) {
-        req.principal = { userId: user.id, email: user.email, role: user.role, tokenId: null, plantIds: null };
-        cache.set(key, req.principal, generation, claims.expiresAt_ms);
-      }
-    }
+    return cookie ? { principal: await bySession(cookie) } : {};
+  }
+
+  return async (req: Request, _res: Response, next: NextFunction) => {
+    const { principal, failure } = await resolve(req);
+    if (failure) (req as Request & { authFailure?: string }).authFailure = failure;
+    if (!principal) return next();
+    req.principal = principal;
+    if (principal.tokenId) touch(`t:${principal.tokenId}`, () => tokens.touch(principal.tokenId!));
+    else if (principal.sessionId) touch(`s:${principal.sessionId}`, () => sessions.touch(principal.sessionId!));
+    req.credentialWatch = {
+      async recheck() {
+        const now = (await resolve(req)).principal;
+        return !!now && now.userId === principal.userId && now.tokenId === principal.tokenId && now.sessionId === principal.sessionId && now.role === principal.role;
+      },
+      onChange: (listener) => cache.onChange((change) => affects(change, principal) && listener()),
+    };
     next();
   };
 }

@@ -8,6 +8,8 @@ export interface Principal {
   tokenId: number | null;
   /** Plants this caller may read; null = all. */
   plantIds: number[] | null;
+  /** The `sessions` row of a signed-in caller (absent for API tokens and callers built in code). */
+  sessionId?: string | null;
 }
 
 declare module 'express-serve-static-core' {

@@ -17,8 +17,14 @@ export function loadSessionKey(dataDir: string, fromEnv: string | undefined): Ui
   return new TextEncoder().encode(fs.readFileSync(file, 'utf8').trim());
 }
 
-export async function signSession(key: Uint8Array, userId: number): Promise<string> {
-  return new SignJWT({})
+/** 128 random bits naming a `sessions` row (base64url). */
+export function newSessionId(): string {
+  return randomBytes(16).toString('base64url');
+}
+
+/** The cookie of session `sessionId` of `userId`: a JWT (HS256) that names its `sessions` row in `sid`. */
+export async function signSession(key: Uint8Array, userId: number, sessionId: string): Promise<string> {
+  return new SignJWT({ sid: sessionId })
     .setProtectedHeader({ alg: 'HS256' })
     .setSubject(String(userId))
     .setIssuedAt()
@@ -27,18 +33,24 @@ export async function signSession(key: Uint8Array, userId: number): Promise<stri
     .sign(key);
 }
 
-/** The user id of a valid session token, or null (expired, forged, malformed). */
-export async function verifySession(key: Uint8Array, token: string): Promise<number | null> {
-  return (await verifySessionClaims(key, token))?.userId ?? null;
+export interface SessionClaims {
+  userId: number;
+  sessionId: string;
+  expiresAt_ms: number;
 }
 
-/** The user id and expiry [epoch ms] of a valid session token, or null (expired, forged, malformed). */
-export async function verifySessionClaims(key: Uint8Array, token: string): Promise<{ userId: number; expiresAt_ms: number } | null> {
+/**
+ * The user id, session id and expiry [epoch ms] of a well-signed, unexpired session token, or
+ * null (expired, forged, malformed, or from before sessions were kept server-side). Whether the
+ * session still stands is the `sessions` row's to say.
+ */
+export async function verifySessionClaims(key: Uint8Array, token: string): Promise<SessionClaims | null> {
   try {
     const { payload } = await jwtVerify(token, key, { issuer: 'flocstream', algorithms: ['HS256'] });
     const id = Number(payload.sub);
-    if (!Number.isInteger(id) || id <= 0 || payload.exp === undefined) return null;
-    return { userId: id, expiresAt_ms: payload.exp * 1000 };
+    const sid = payload.sid;
+    if (!Number.isInteger(id) || id <= 0 || payload.exp === undefined || typeof sid !== 'string' || !/^[\w-]{16,64}$/.test(sid)) return null;
+    return { userId: id, sessionId: sid, expiresAt_ms: payload.exp * 1000 };
   } catch {
     return null;
   }

@@ -178,6 +178,17 @@ export class OutgoingQueue {
     return e;
   }
 
+  /** Removes the queued copy of `p` (same broker id and counter), if any (replaying a durable log). */
+  remove(p: Pick<Queued, 'brokerId' | 'brokerCounter'>): boolean {
+    const s = this.byCounter.get(p as Queued);
+    const e = s === undefined ? undefined : this.entries.get(s);
+    if (s === undefined || !e) return false;
+    this.entries.delete(s);
+    this.byCounter.delete(e, s);
+    this.unindexId(e.messageId, s);
+    return true;
+  }
+
   snapshot(): Queued[] {
     return [...this.entries.values()];
   }
@@ -187,7 +198,7 @@ export class OutgoingQueue {
 const MAX_MEMO_TOPICS = 50_000;
 
 export class IndexedMemoryPersistence extends MemoryPersistence {
-  private queues = new Map<string, OutgoingQueue>();
+  protected queues = new Map<string, OutgoingQueue>();
   /**
    * Topic → the persistent QoS > 0 subscriptions matching it. aedes asks this for every QoS 1
    * PUBLISH (to queue it for persistent sessions); a plant's tags publish on a fixed set of
@@ -232,7 +243,7 @@ export class IndexedMemoryPersistence extends MemoryPersistence {
     return p;
   }
 
-  private queue(clientId: string): OutgoingQueue {
+  protected queue(clientId: string): OutgoingQueue {
     let q = this.queues.get(clientId);
     if (!q) this.queues.set(clientId, (q = new OutgoingQueue()));
     return q;

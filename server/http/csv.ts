@@ -1,3 +1,4 @@
+import { createHmac, randomBytes, timingSafeEqual } from 'node:crypto';
 import type { Request, Response } from 'express';
 import { BadRequestError } from './errors.ts';
 import { toCsv, type CsvCell } from '../services/csv.service.ts';
@@ -14,8 +15,11 @@ import { toCsv, type CsvCell } from '../services/csv.service.ts';
  *   `Link: <…>; rel="next"` header (RFC 8288) with the same query and the next cursor, and
  *   `X-Next-Cursor` for CSV callers that do not read Link headers. No header on the last page.
  * - A cursor is opaque to clients: base64url of a small JSON object that the route itself wrote
- *   (position plus whatever keeps the pages of one query consistent). A cursor that does not
- *   decode, or belongs to another route, is a 400.
+ *   (position plus whatever keeps the pages of one query consistent — the window, the step, the
+ *   resolution), then `.` and an HMAC-SHA-256 tag of it (RFC 2104) under a key this process draws
+ *   at start. The cursor's fields choose how much a page reads, so a client must not be able to
+ *   write them: one that was not written by this process (altered, forged, or from before a
+ *   restart), longer than 1 KiB, that does not decode, or belongs to another route is a 400.
  */
 
 export function wantsCsv(req: Request): boolean {
@@ -33,17 +37,29 @@ export function sendCsv(res: Response, filename: string, columns: readonly strin
   res.send(toCsv(columns, rows));
 }
 
+const CURSOR_KEY = randomBytes(32);
+const MAX_CURSOR_CHARS = 1024;
+const tagOf = (body: string): Buffer => createHmac('sha256', CURSOR_KEY).update(body).digest().subarray(0, 16);
+
 export function encodeCursor(kind: string, payload: Record<string, string | number | null>): string {
-  return Buffer.from(JSON.stringify({ k: kind, ...payload }), 'utf8').toString('base64url');
+  const body = Buffer.from(JSON.stringify({ k: kind, ...payload }), 'utf8').toString('base64url');
+  return `${body}.${tagOf(body).toString('base64url')}`;
 }
 
-/** Decodes a cursor written by `encodeCursor(kind, …)`; 400 for anything else. */
+/** Decodes a cursor written by `encodeCursor(kind, …)` in this process; 400 for anything else. */
 export function decodeCursor<T extends Record<string, unknown>>(kind: string, cursor: string, check: (o: Record<string, unknown>) => o is T): T {
+  const notOurs = () => new BadRequestError('the cursor is not one this API wrote (or the server restarted since); pass nextCursor unchanged or start the query again');
+  if (cursor.length > MAX_CURSOR_CHARS) throw notOurs();
+  const [body, tag, ...rest] = cursor.split('.');
+  if (!body || !tag || rest.length) throw notOurs();
+  const given = Buffer.from(tag, 'base64url');
+  const expected = tagOf(body);
+  if (given.length !== expected.length || !timingSafeEqual(given, expected)) throw notOurs();
   let o: unknown;
   try {
-    o = JSON.parse(Buffer.from(cursor, 'base64url').toString('utf8'));
+    o = JSON.parse(Buffer.from(body, 'base64url').toString('utf8'));
   } catch {
-    throw new BadRequestError('the cursor is not one this API wrote; pass nextCursor unchanged');
+    throw notOurs();
   }
   if (!o || typeof o !== 'object' || (o as { k?: unknown }).k !== kind || !check(o as Record<string, unknown>)) {
     throw new BadRequestError('the cursor does not belong to this route; pass nextCursor unchanged');

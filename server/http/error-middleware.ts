@@ -23,7 +23,12 @@ export function errorMiddleware(log: Logger) {
       res.status(422).json({ error: { code: 'validation_failed', message: err.message, fields: { [err.field]: [err.message] } } });
       return;
     }
-    const e = err as { type?: string; status?: number; message?: string };
+    const e = err as { type?: string; status?: number; message?: string; code?: unknown };
+    // PostgreSQL cancelled the statement at the API pool's statement_timeout (SQLSTATE 57014, query_canceled).
+    if (e?.code === '57014') {
+      res.status(503).json({ error: { code: 'query_timeout', message: 'the database query took too long and was cancelled; narrow the request (a shorter time range) or try again' } });
+      return;
+    }
     if (e?.type === 'entity.parse.failed') {
       res.status(400).json({ error: { code: 'malformed_json', message: 'the request body is not valid JSON' } });
       return;

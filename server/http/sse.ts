@@ -7,15 +7,28 @@ import type { StreamHub, StreamSession } from '../services/stream.service.ts';
  * headers, `retry:`, events as `id/event/data`, heartbeat comments, `: ready` once the
  * subscription is live, and cleanup (unsubscribe, slot released) when the client goes away or
  * cannot keep up (more than `maxBufferedBytes` queued on its socket).
+ *
+ * A stream outlives the check made when it opened, so its caller is checked again
+ * (`req.credentialWatch`, server/auth/middleware.ts): at once when a credential change that
+ * concerns it is announced (sign-out, token revoked, user changed or disabled — in this or another
+ * API process, through NOTIFY), and every `recheckMs` in any case (expiry, a missed announcement).
+ * A caller that no longer stands gets a last comment and the stream ends; EventSource's
+ * reconnection then meets a 401.
  */
-export async function sendSse(req: Request, res: Response, session: StreamSession): Promise<void> {
+export const CREDENTIAL_RECHECK_MS = 10_000;
+
+export async function sendSse(req: Request, res: Response, session: StreamSession, opts: { recheckMs?: number } = {}): Promise<void> {
   let closed = false;
   let unsubscribe: (() => void) | null = null;
   let heartbeat: NodeJS.Timeout | null = null;
+  let recheckTimer: NodeJS.Timeout | null = null;
+  let stopWatching: (() => void) | null = null;
   const close = () => {
     if (closed) return;
     closed = true;
     if (heartbeat) clearInterval(heartbeat);
+    if (recheckTimer) clearInterval(recheckTimer);
+    stopWatching?.();
     unsubscribe?.();
     session.release();
     if (!res.writableEnded) res.end();
@@ -54,6 +67,39 @@ export async function sendSse(req: Request, res: Response, session: StreamSessio
   }
   unsubscribe = unsub;
   heartbeat = setInterval(() => write(`: heartbeat ${new Date().toISOString()}\n\n`), session.heartbeatMs);
+  const watch = req.credentialWatch;
+  if (watch) {
+    let checking = false;
+    // A change announced while a check runs may postdate what that check read: check again after it.
+    let again = false;
+    const recheck = () => {
+      if (closed) return;
+      if (checking) {
+        again = true;
+        return;
+      }
+      checking = true;
+      watch
+        .recheck()
+        .then((ok) => {
+          if (ok) return;
+          write(`: credentials revoked\n\n`);
+          close();
+        })
+        // A failed check (database unreachable) keeps the stream; the next one decides.
+        .catch((err: unknown) => session.log.warn({ err }, 'stream: credential re-check failed'))
+        .finally(() => {
+          checking = false;
+          if (again) {
+            again = false;
+            recheck();
+          }
+        });
+    };
+    stopWatching = watch.onChange(recheck);
+    recheckTimer = setInterval(recheck, opts.recheckMs ?? CREDENTIAL_RECHECK_MS);
+    recheckTimer.unref();
+  }
   write(`: ready\n\n`);
 }
 

@@ -4,7 +4,7 @@ import type { Balance } from '../../shared/contracts/balance.ts';
 import { repositories, services, type AppContext } from '../app-context.ts';
 import { NotFoundError } from '../http/errors.ts';
 import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
-import { createAlarmService } from '../services/alarm.service.ts';
+import { createAlarmService, type AlarmChange } from '../services/alarm.service.ts';
 import { readBalanceInputs } from '../services/balance-inputs.service.ts';
 import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import { createMailService, smtpTransport } from '../services/mail.service.ts';
@@ -38,21 +38,21 @@ export interface BalanceEngine {
 type JobData = { plantId?: number };
 
 /** The part of a BullMQ Queue the engine uses (the same for the Redis and PostgreSQL backends). */
-interface SchedulingQueue {
+export interface SchedulingQueue {
   upsertJobScheduler(id: string, repeat: { every?: number; pattern?: string; tz?: string }, template: { name: string; data: JobData }): Promise<unknown>;
   getJobSchedulers(): Promise<{ key: string }[]>;
   removeJobScheduler(id: string): Promise<boolean>;
   close(): Promise<void>;
 }
-interface ClosableWorker {
+export interface ClosableWorker {
   on(event: 'failed', fn: (job: Job | undefined, err: Error) => void): unknown;
   on(event: 'error', fn: (err: Error) => void): unknown;
   close(): Promise<void>;
 }
 type Processor = (j: Job<JobData>) => Promise<unknown>;
 
-/** BullMQ connection: PostgreSQL by default (STACK.md "BullMQ without Redis"), Redis when REDIS_URL is set. */
-function queueBackend(ctx: AppContext, databaseUrl: string) {
+/** BullMQ connection: PostgreSQL by default (STACK.md "BullMQ without Redis"), Redis when REDIS_URL is set; also the history jobs' queue (server/jobs/history-jobs.ts). */
+export function queueBackend(ctx: AppContext, databaseUrl: string, name = BALANCE_QUEUE) {
   if (ctx.config.redisUrl) {
     const u = new URL(ctx.config.redisUrl);
     const connection = {
@@ -64,14 +64,14 @@ function queueBackend(ctx: AppContext, databaseUrl: string) {
       maxRetriesPerRequest: null,
     };
     return {
-      queue: (): SchedulingQueue => new Queue(BALANCE_QUEUE, { connection }) as unknown as SchedulingQueue,
-      worker: (fn: Processor): ClosableWorker => new Worker(BALANCE_QUEUE, fn, { connection, concurrency: 1 }) as unknown as ClosableWorker,
+      queue: (): SchedulingQueue => new Queue(name, { connection }) as unknown as SchedulingQueue,
+      worker: (fn: Processor): ClosableWorker => new Worker(name, fn, { connection, concurrency: 1 }) as unknown as ClosableWorker,
     };
   }
   const connection = { connectionString: databaseUrl, schema: 'bullmq', migrate: true, max: 3 };
   return {
-    queue: (): SchedulingQueue => new Queue(BALANCE_QUEUE, { connection }, createPostgresBackend) as unknown as SchedulingQueue,
-    worker: (fn: Processor): ClosableWorker => new Worker(BALANCE_QUEUE, fn as never, { connection, concurrency: 1 }, createPostgresBackend) as unknown as ClosableWorker,
+    queue: (): SchedulingQueue => new Queue(name, { connection }, createPostgresBackend) as unknown as SchedulingQueue,
+    worker: (fn: Processor): ClosableWorker => new Worker(name, fn as never, { connection, concurrency: 1 }, createPostgresBackend) as unknown as ClosableWorker,
   };
 }
 
@@ -116,9 +116,10 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
     ? createMailService({ transport: smtpTransport(mailUrl, { catcher: !ctx.config.smtpUrl }), settings, notificationRepo: repos.notifications, balanceRepo: repo, alarmRepo: repos.alarms, log: ctx.log })
     : null;
 
-  const onAlarm = async (a: AlarmOut, change: 'raised' | 'acknowledged' | 'cleared') => {
+  const onAlarm = async (a: AlarmOut, change: AlarmChange) => {
     await repos.stream.notify(a.plantId, 'alarm', { change, alarm: a }).catch((err) => ctx.log.warn({ err }, 'alarm notify failed'));
-    if (change === 'raised' && mail) await mail.alarm(a);
+    // Mail only what is annunciated: a new alarm, or one whose shelf expired (ISA-18.2); suppressed and shelved ones are listed only.
+    if ((change === 'raised' || change === 'unshelved') && mail) await mail.alarm(a);
   };
   const alarms = createAlarmService({ alarmRepo: repos.alarms, audit, clock: now, changed: onAlarm });
 
@@ -179,6 +180,9 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
       if (job.name === 'sync') return sync();
       const plantId = Number(job.data.plantId);
       if (job.name === 'balance') {
+        // A plant that never received a value has nothing to balance yet (a new plant, or the
+        // demo while its history loads): no row of only 'unavailable' figures is stored.
+        if ((await repo.lastReceived(plantId)) === null) return { skipped: 'no data yet' };
         try {
           const b = await runOnce(plantId);
           return { id: b.id, quality: b.quality };

@@ -1,7 +1,7 @@
-import { and, asc, count, eq, isNull } from 'drizzle-orm';
+import { and, asc, count, eq, isNull, lt } from 'drizzle-orm';
 import type { Role } from '../../shared/contracts/roles.ts';
 import type { Db } from '../db/client.ts';
-import { apiTokens, users } from '../db/schema/index.ts';
+import { apiTokens, sessions, users } from '../db/schema/index.ts';
 
 export type UserRow = typeof users.$inferSelect;
 export type TokenRow = typeof apiTokens.$inferSelect;
@@ -95,5 +95,43 @@ export function tokenRepository(db: Db) {
     },
   };
 }
+/** Server-side sessions (server/db/schema/auth.ts `sessions`). */
+export function sessionRepository(db: Db) {
+  return {
+    /** Stores a new session; the user's sessions that ended over a week ago go (the table stays small; the audit log keeps the sign-ins). */
+    async insert(s: { id: string; userId: number; expiresAt: Date; userAgent: string | null; ip: string | null }): Promise<void> {
+      const weekAgo = new Date(Date.now() - 7 * 86_400_000);
+      await db.delete(sessions).where(and(eq(sessions.userId, s.userId), lt(sessions.expiresAt, weekAgo)));
+      await db.insert(sessions).values(s);
+    },
+    /** The session and its user, whatever their state (the caller judges revoked, expired, disabled). */
+    async byIdWithUser(id: string) {
+      const [row] = await db.select({ session: sessions, user: users }).from(sessions).innerJoin(users, eq(users.id, sessions.userId)).where(eq(sessions.id, id));
+      return row;
+    },
+    /** Ends one session; false when it was unknown or already ended. */
+    async revoke(id: string): Promise<boolean> {
+      const r = await db
+        .update(sessions)
+        .set({ revokedAt: new Date() })
+        .where(and(eq(sessions.id, id), isNull(sessions.revokedAt)))
+        .returning({ id: sessions.id });
+      return r.length > 0;
+    },
+    /** Ends every open session of a user; the number ended. */
+    async revokeAllForUser(userId: number): Promise<number> {
+      const r = await db
+        .update(sessions)
+        .set({ revokedAt: new Date() })
+        .where(and(eq(sessions.userId, userId), isNull(sessions.revokedAt)))
+        .returning({ id: sessions.id });
+      return r.length;
+    },
+    async touch(id: string): Promise<void> {
+      await db.update(sessions).set({ lastSeenAt: new Date() }).where(eq(sessions.id, id));
+    },
+  };
+}
 export type UserRepository = ReturnType<typeof userRepository>;
+export type SessionRepository = ReturnType<typeof sessionRepository>;
 export type TokenRepository = ReturnType<typeof tokenRepository>;

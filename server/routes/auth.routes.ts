@@ -1,7 +1,6 @@
 import { z } from 'zod';
 import { loginRequest, me } from '../../shared/contracts/auth.ts';
 import { services, type AppContext } from '../app-context.ts';
-import { CredentialCache, credentialCache } from '../auth/credential-cache.ts';
 import { SESSION_COOKIE, SESSION_TTL_S } from '../auth/session.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
 
@@ -18,7 +17,7 @@ export function authRoutes(ctx: AppContext): RouteDef[] {
       body: loginRequest,
       response: me,
       handler: async ({ body, req, res }) => {
-        const { session, me } = await auth.login(body.email, body.password, req.ip ?? null);
+        const { session, me } = await auth.login(body.email, body.password, { ip: req.ip ?? null, userAgent: req.get('user-agent') ?? null });
         res.cookie(SESSION_COOKIE, session, { ...cookie, maxAge: SESSION_TTL_S * 1000 });
         return me;
       },
@@ -28,12 +27,9 @@ export function authRoutes(ctx: AppContext): RouteDef[] {
       path: '/auth/logout',
       role: 'public',
       tag: 'auth',
-      summary: 'Sign out; clears the session cookie',
+      summary: 'Sign out; ends the session server-side (a copy of the cookie stops working) and clears the cookie',
       response: z.object({ ok: z.literal(true) }),
-      handler: ({ principal, req, res }) => {
-        // The cached caller of this cookie goes at once (server/auth/credential-cache.ts).
-        const sent = (req.cookies as Record<string, string> | undefined)?.[SESSION_COOKIE];
-        if (sent) credentialCache(ctx).dropKey(CredentialCache.sessionKey(sent));
+      handler: ({ principal, res }) => {
         res.clearCookie(SESSION_COOKIE, cookie);
         return auth.logout(principal);
       },

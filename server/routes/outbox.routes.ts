@@ -18,7 +18,7 @@ export function outboxRoutes(ctx: AppContext): RouteDef[] {
       summary: 'Messages the built-in mail catcher received, newest first (?limit=, ?beforeId= to page)',
       query: listQuery,
       response: z.array(summary),
-      handler: ({ query }) => outbox.list(query.limit, query.beforeId),
+      handler: ({ query, principal }) => outbox.list(principal, query.limit, query.beforeId),
     }),
     defineRoute({
       method: 'get',
@@ -28,7 +28,7 @@ export function outboxRoutes(ctx: AppContext): RouteDef[] {
       summary: 'One caught message: decoded text and the raw message',
       params: idParams,
       response: outboxMessage,
-      handler: ({ params }) => outbox.get(params.id),
+      handler: ({ params, principal }) => outbox.get(principal, params.id),
     }),
   ];
 }

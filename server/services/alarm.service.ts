@@ -7,12 +7,20 @@
  *   beyond the limit by the rule's deadband;
  * - states raised → acknowledged → cleared, with who and when (alarm.repository.ts);
  * - designed suppression: while ingest is down, no new tag-stale alarm is raised for each tag
- *   (they would only repeat the one ingest-down alarm).
+ *   (they would only repeat the one ingest-down alarm); and after ingest's worker started or a
+ *   source connected, a tag-stale alarm is stored *suppressed* (listed with its reason, not
+ *   annunciated) for `alarm.start_suppression_periods` expected periods of the tag (at least
+ *   `alarm.start_suppression_min_s`) while the source catches up, and annunciated only if the
+ *   tag is still stale after that — against the alarm flood at a start (ISA-18.2 defines a
+ *   flood, e.g. more than 10 alarms in 10 minutes for one operator [M]);
+ * - shelving: an operator shelves an alarm for a time with a reason (audited); it is not
+ *   annunciated (no mail) until the shelf expires, judged on the engine's clock, and is then
+ *   annunciated again if still active.
  * A condition whose figure is unavailable is *unknown*: it neither raises nor clears (the
  * tag-stale / tag-bad alarms report the missing input), and it restarts the on-delay.
  * Process alarms carry the operator caution: the figures are advisory, the licensed operator decides.
  */
-import { ALARM_PRIORITY, type AlarmOut, type AlarmRule } from '../../shared/contracts/alarm.ts';
+import { ALARM_PRIORITY, ALARM_SUMMARY_BUCKET_MIN, type AlarmOut, type AlarmRule, type AlarmSummaryOut } from '../../shared/contracts/alarm.ts';
 import { OPERATOR_CAUTION, type Balance, type FigureOut } from '../../shared/contracts/balance.ts';
 import type { EffectiveSettings } from '../../shared/contracts/settings.ts';
 import type { Clock } from '../app-context.ts';
@@ -30,6 +38,8 @@ export interface AlarmCondition {
   value: number | null;
   limit: number | null;
   message: string;
+  /** Designed suppression (why), or null: annunciated when raised. */
+  suppressed?: string | null;
 }
 
 const key = (rule: string, target: string) => `${rule}|${target}`;
@@ -112,8 +122,27 @@ export function alarmConditions(b: Balance, s: EffectiveSettings, isActive: (rul
   return out;
 }
 
+/**
+ * Designed suppression of tag-stale alarms after a start (pure): a stale tag whose latest start
+ * (worker start or source connection, `starts` by tag name, epoch ms) is younger than
+ * max(periods × expected period, min_s) gets the reason; other conditions are left as they are.
+ */
+export function suppressAfterStart(conds: AlarmCondition[], b: Balance, s: EffectiveSettings, starts: Map<string, number>, now_ms: number): AlarmCondition[] {
+  const period = new Map(b.inputs.signals.map((i) => [i.tag, i.expectedPeriod_s]));
+  return conds.map((c) => {
+    if (c.rule !== 'tag-stale' || c.active !== true) return c;
+    const start = starts.get(c.target);
+    if (start === undefined) return c;
+    const window_s = Math.max(s['alarm.start_suppression_periods'] * (period.get(c.target) ?? 0), s['alarm.start_suppression_min_s']);
+    const since_s = (now_ms - start) / 1000;
+    if (since_s >= window_s) return c;
+    return { ...c, suppressed: `source catching up after a start ${Math.round(since_s)} s ago: suppressed by design for ${Math.round(window_s)} s (ISA-18.2 designed suppression)` };
+  });
+}
+
 export type AlarmAction =
   | { kind: 'raise'; condition: AlarmCondition }
+  | { kind: 'annunciate'; alarmId: number; condition: AlarmCondition }
   | { kind: 'clear'; alarmId: number; condition: AlarmCondition };
 
 /**
@@ -121,7 +150,7 @@ export type AlarmAction =
  * which alarms to raise and which to clear. `pending` (key → since epoch ms) is updated in
  * place: a condition that turns true starts its timer, one that is false or unknown drops it.
  */
-export function stepAlarms(conds: AlarmCondition[], open: Map<string, { id: number }>, pending: Map<string, number>, now_ms: number, onDelay_s: number): AlarmAction[] {
+export function stepAlarms(conds: AlarmCondition[], open: Map<string, { id: number; suppressedReason?: string | null }>, pending: Map<string, number>, now_ms: number, onDelay_s: number): AlarmAction[] {
   const actions: AlarmAction[] = [];
   const seen = new Set<string>();
   for (const c of conds) {
@@ -129,7 +158,11 @@ export function stepAlarms(conds: AlarmCondition[], open: Map<string, { id: numb
     seen.add(k);
     const openAlarm = open.get(k);
     if (c.active === true) {
-      if (openAlarm) continue;
+      if (openAlarm) {
+        // A suppressed alarm whose suppression ended and whose condition still holds is annunciated now.
+        if (openAlarm.suppressedReason && !c.suppressed) actions.push({ kind: 'annunciate', alarmId: openAlarm.id, condition: c });
+        continue;
+      }
       const since = pending.get(k) ?? now_ms;
       pending.set(k, since);
       if (now_ms - since >= onDelay_s * 1000) {
@@ -162,15 +195,27 @@ export function toAlarmOut(r: AlarmRow): AlarmOut {
     acknowledgedAt: r.acknowledgedAt?.toISOString() ?? null,
     acknowledgedBy: r.acknowledgedBy,
     clearedAt: r.clearedAt?.toISOString() ?? null,
+    suppressedReason: r.suppressedReason,
+    shelvedUntil: r.shelvedUntil?.toISOString() ?? null,
+    shelvedBy: r.shelvedBy,
+    shelveReason: r.shelveReason,
   };
 }
 
+/** Whether an alarm is told to the operator now (ISA-18.2: neither suppressed nor shelved). */
+export function annunciated(a: AlarmOut, now_ms: number): boolean {
+  return a.suppressedReason === null && (a.shelvedUntil === null || Date.parse(a.shelvedUntil) <= now_ms);
+}
+
+/** An alarm change; 'raised' and 'unshelved' are annunciations (mailed), 'suppressed' and 'shelved' are listed only. */
+export type AlarmChange = 'raised' | 'acknowledged' | 'cleared' | 'suppressed' | 'shelved' | 'unshelved';
+
 export interface AlarmServiceDeps {
-  alarmRepo: Pick<AlarmRepository, 'open' | 'raise' | 'clear' | 'get' | 'acknowledge'>;
+  alarmRepo: Pick<AlarmRepository, 'open' | 'raise' | 'clear' | 'get' | 'acknowledge' | 'annunciate' | 'shelve' | 'byId' | 'tagStarts' | 'raisedPerBucket'>;
   audit: AuditLog;
   clock: Clock;
-  /** Called for every state change (raise, ack, clear) after it is stored (stream notice, mail). */
-  changed?: (a: AlarmOut, change: 'raised' | 'acknowledged' | 'cleared') => Promise<void> | void;
+  /** Called for every change after it is stored (stream notice; mail on 'raised' and 'unshelved'). */
+  changed?: (a: AlarmOut, change: AlarmChange) => Promise<void> | void;
 }
 
 /** Evaluates and stores alarms for balances; acknowledges on request. Holds the on-delay timers of this process. */
@@ -181,26 +226,93 @@ export function createAlarmService({ alarmRepo: repo, audit, clock, changed }: A
     async evaluate(b: Balance, s: EffectiveSettings, now_ms: number): Promise<{ raised: AlarmOut[]; cleared: AlarmOut[] }> {
       const openRows = await repo.open(b.plantId);
       const open = new Map(openRows.map((r) => [key(r.rule, r.target), r]));
-      const conds = alarmConditions(b, s, (rule, target) => open.has(key(rule, target)));
+      const starts = await repo.tagStarts(b.plantId);
+      const conds = suppressAfterStart(
+        alarmConditions(b, s, (rule, target) => open.has(key(rule, target))),
+        b,
+        s,
+        starts,
+        now_ms,
+      );
       let p = pending.get(b.plantId);
       if (!p) pending.set(b.plantId, (p = new Map()));
       const actions = stepAlarms(conds, open, p, now_ms, s['alarm.on_delay_s']);
       const raised: AlarmOut[] = [];
       const cleared: AlarmOut[] = [];
+      const notices: Array<[AlarmOut, AlarmChange]> = [];
+      const at = new Date(now_ms);
       for (const a of actions) {
         if (a.kind === 'raise') {
           const c = a.condition;
-          const row = await repo.raise({ plantId: b.plantId, rule: c.rule, target: c.target, priority: c.priority, message: c.message, value: c.value, limit: c.limit, raisedAt: new Date(now_ms) });
+          const row = await repo.raise({ plantId: b.plantId, rule: c.rule, target: c.target, priority: c.priority, message: c.message, value: c.value, limit: c.limit, raisedAt: at, suppressedReason: c.suppressed ?? null });
           if (!row) continue; // another process raised it first (unique open alarm per rule and target)
-          raised.push(toAlarmOut(row));
+          const out = toAlarmOut(row);
+          raised.push(out);
+          notices.push([out, out.suppressedReason ? 'suppressed' : annunciated(out, now_ms) ? 'raised' : 'shelved']);
+        } else if (a.kind === 'annunciate') {
+          const row = await repo.annunciate(a.alarmId, at);
+          if (!row) continue;
+          const out = toAlarmOut(row);
+          raised.push(out);
+          notices.push([out, annunciated(out, now_ms) ? 'raised' : 'shelved']);
         } else {
-          const row = await repo.clear(a.alarmId, new Date(now_ms));
-          if (row) cleared.push(toAlarmOut(row));
+          const row = await repo.clear(a.alarmId, at);
+          if (row) {
+            cleared.push(toAlarmOut(row));
+            notices.push([toAlarmOut(row), 'cleared']);
+          }
         }
       }
-      for (const a of raised) await changed?.(a, 'raised');
-      for (const a of cleared) await changed?.(a, 'cleared');
+      // Shelves expired on the engine's clock: the alarm is annunciated again if still active.
+      for (const r of openRows) {
+        if (!r.shelvedUntil || r.shelvedUntil.getTime() > now_ms) continue;
+        if (cleared.some((c) => c.id === r.id)) continue;
+        const row = await repo.shelve(r.id, null, null, null);
+        if (row && row.state !== 'cleared') notices.push([toAlarmOut(row), row.suppressedReason ? 'suppressed' : 'unshelved']);
+      }
+      for (const [a, change] of notices) await changed?.(a, change);
       return { raised, cleared };
+    },
+    /** ISA-18.2 shelving by an operator (audited): not annunciated for `minutes` from now on the engine's clock. */
+    async shelve(principal: Actor, alarmId: number, minutes: number, reason: string): Promise<AlarmOut> {
+      const existing = await repo.byId(alarmId);
+      if (!existing) throw new NotFoundError(`no alarm ${alarmId}`);
+      assertPlantScope(principal, existing.plantId);
+      if (existing.state === 'cleared') throw new ConflictError(`alarm ${alarmId} is cleared: only an active alarm can be shelved`);
+      const until = new Date(clock() + minutes * 60_000);
+      const row = (await repo.shelve(alarmId, until, principal.userId, reason))!;
+      await audit.record(principal, 'alarm.shelve', `alarm:${alarmId}`, { plantId: row.plantId, rule: row.rule, target: row.target, minutes, until: until.toISOString(), reason });
+      const out = toAlarmOut(row);
+      await changed?.(out, 'shelved');
+      return out;
+    },
+    /** Ends a shelf early (audited); an active alarm is annunciated again. */
+    async unshelve(principal: Actor, alarmId: number, comment?: string): Promise<AlarmOut> {
+      const existing = await repo.byId(alarmId);
+      if (!existing) throw new NotFoundError(`no alarm ${alarmId}`);
+      assertPlantScope(principal, existing.plantId);
+      if (!existing.shelvedUntil) throw new ConflictError(`alarm ${alarmId} is not shelved`);
+      const row = (await repo.shelve(alarmId, null, null, null))!;
+      await audit.record(principal, 'alarm.unshelve', `alarm:${alarmId}`, { plantId: row.plantId, rule: row.rule, target: row.target, ...(comment ? { comment } : {}) });
+      const out = toAlarmOut(row);
+      if (row.state !== 'cleared') await changed?.(out, row.suppressedReason ? 'suppressed' : 'unshelved');
+      return out;
+    },
+    /** Annunciated (and suppressed) raises per 10 minutes with the flood flag (ISA-18.2 / EEMUA 191 alarm-rate measure). */
+    async summary(principal: Actor, plantId: number, s: EffectiveSettings, q: { from?: string; to?: string }): Promise<AlarmSummaryOut> {
+      assertPlantScope(principal, plantId);
+      const bucket_ms = ALARM_SUMMARY_BUCKET_MIN * 60_000;
+      const to_ms = q.to ? Date.parse(q.to) : Math.ceil(clock() / bucket_ms) * bucket_ms;
+      const from_ms = q.from ? Date.parse(q.from) : to_ms - 6 * 3_600_000;
+      const n = Math.ceil((to_ms - from_ms) / bucket_ms);
+      const rows = await repo.raisedPerBucket(plantId, new Date(from_ms), new Date(to_ms), bucket_ms);
+      const threshold = s['alarm.flood_per_10min'];
+      const buckets = Array.from({ length: n }, (_, i) => {
+        const r = rows.find((x) => x.bucket === i);
+        const raised = r?.raised ?? 0;
+        return { from: new Date(from_ms + i * bucket_ms).toISOString(), raised, suppressed: r?.suppressed ?? 0, flood: raised > threshold };
+      });
+      return { plantId, from: new Date(from_ms).toISOString(), to: new Date(to_ms).toISOString(), bucket_min: ALARM_SUMMARY_BUCKET_MIN, floodThreshold: threshold, buckets, floodBuckets: buckets.filter((x) => x.flood).length };
     },
     /** ISA-18.2 acknowledge by an operator (audited). A cleared, unacknowledged alarm can be acknowledged too. */
     async acknowledge(principal: Actor, plantId: number, alarmId: number, comment?: string): Promise<AlarmOut> {

@@ -104,5 +104,5 @@ function notRunningReason(w: IngestWorkerRow, status: IngestWorkerStatus | null)
   const unread = status ? '' : ' (its status could not be read: a different ingest version?)';
   if (w.stoppedAt) return `ingest stopped at ${w.stoppedAt.toISOString()} (worker ${w.id} on ${w.host}); the figures below are its last${unread}`;
   const limit_s = (INGEST_HEARTBEAT_PERIODS * w.heartbeat_ms) / 1000;
-  return `the last ingest heartbeat is ${w.heartbeatAge_s} s old (more than ${INGEST_HEARTBEAT_PERIODS} periods, ${limit_s} s): ingest has stopped or is stuck; the figures below are its last${unread}`;
+  return `the last ingest heartbeat is ${Math.round(w.heartbeatAge_s)} s old (more than ${INGEST_HEARTBEAT_PERIODS} periods, ${limit_s} s): ingest has stopped or is stuck; the figures below are its last${unread}`;
 }

@@ -15,7 +15,7 @@ import { BadRequestError, UnsupportedMediaTypeError, ValidationError } from '../
 import { zodFields } from '../http/validate.ts';
 import type { LabRepository, LabRow, NewLabRow } from '../repositories/lab.repository.ts';
 import type { Actor, AuditLog } from './audit.service.ts';
-import { parseCsv } from './csv.service.ts';
+import { csvHeaderProblem, parseCsvUpload } from './csv.service.ts';
 import type { PlantAccess } from './plant.service.ts';
 
 export function labOut(r: LabRow): LabResultOut {
@@ -95,21 +95,14 @@ export function createLabService({ labRepo: repo, plantAccess, audit }: LabServi
     async importCsv(principal: Actor, plantId: number, text: string | undefined): Promise<{ imported: number; results: LabResultOut[] }> {
       await plantAccess.requirePlant(principal, plantId);
       if (text === undefined) throw new UnsupportedMediaTypeError('send the file as the request body with Content-Type: text/csv');
-      const parsed = parseCsv(text);
+      const parsed = await parseCsvUpload(text);
       if (!parsed.ok) throw new ValidationError({ [`line.${parsed.line}`]: [parsed.message] }, 'the file is not valid CSV (RFC 4180); nothing was stored');
       const [header, ...records] = parsed.records;
       if (!header) throw new ValidationError({ _: ['the file is empty; expected a header row and at least one result'] });
       const cols = header.fields.map((c) => c.trim());
-      const unknown = cols.filter((c) => !(LAB_CSV_COLUMNS as readonly string[]).includes(c));
-      const dup = cols.filter((c, i) => cols.indexOf(c) !== i);
-      const missing = (['kind', 'sampledAt'] as const).filter((c) => !cols.includes(c));
-      if (unknown.length || dup.length || missing.length) {
-        const msg = [
-          unknown.length ? `unknown column(s) ${unknown.join(', ')}` : '',
-          dup.length ? `duplicate column(s) ${dup.join(', ')}` : '',
-          missing.length ? `missing column(s) ${missing.join(', ')}` : '',
-        ].filter(Boolean);
-        throw new ValidationError({ 'line.1': [`${msg.join('; ')}; the columns are ${LAB_CSV_COLUMNS.join(', ')}`] }, 'the header row is not usable; nothing was stored');
+      const headerCheck = csvHeaderProblem(cols, LAB_CSV_COLUMNS, ['kind', 'sampledAt']);
+      if (headerCheck.message) {
+        throw new ValidationError({ 'line.1': [`${headerCheck.message}; the columns are ${LAB_CSV_COLUMNS.join(', ')}`] }, 'the header row is not usable; nothing was stored');
       }
       if (!records.length) throw new ValidationError({ _: ['the file has a header but no results'] });
       if (records.length > LAB_CSV_MAX_ROWS) throw new ValidationError({ _: [`at most ${LAB_CSV_MAX_ROWS} rows per file; this one has ${records.length}`] });

@@ -184,6 +184,7 @@ export function createPlantConfigService({ modelRepo: repo, clock }: PlantConfig
         rangeLow: t.rangeLow,
         rangeHigh: t.rangeHigh,
         samplingInterval_ms: t.samplingInterval_ms,
+        kind: t.kind,
         enabled: t.enabled,
       })),
       signalMap: maps.flatMap((mp): PlantConfig['signalMap'] => {

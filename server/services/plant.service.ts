@@ -43,6 +43,9 @@ export function alarmOut(a: AlarmRow): AlarmOut {
     acknowledgedAt: a.acknowledgedAt?.toISOString() ?? null,
     acknowledgedBy: a.acknowledgedBy,
     clearedAt: a.clearedAt?.toISOString() ?? null,
+    suppressedReason: a.suppressedReason,
+    shelvedUntil: a.shelvedUntil?.toISOString() ?? null,
+    shelveReason: a.shelveReason,
   };
 }
 
@@ -73,7 +76,7 @@ export function createPlantAccess({ plantRepo }: { plantRepo: Pick<PlantReposito
 }
 
 export interface PlantServiceDeps {
-  plantRepo: Pick<PlantRepository, 'list' | 'layout' | 'liveTags' | 'signals' | 'latestBalance' | 'balanceBuckets' | 'alarms'>;
+  plantRepo: Pick<PlantRepository, 'list' | 'layout' | 'liveTags' | 'latestBalance' | 'balanceBuckets' | 'alarms'>;
   plantAccess: PlantAccess;
   clock: Clock;
 }
@@ -104,39 +107,35 @@ export function createPlantService({ plantRepo: repo, plantAccess, clock }: Plan
     },
 
     async tags(principal: Principal, plantId: number): Promise<{ plantId: number; asOf: string; tags: TagLive[] }> {
-      const p = await requirePlant(principal, plantId);
-      const [rows, signals, layout] = await Promise.all([repo.liveTags(plantId), repo.signals(plantId), repo.layout(plantId)]);
-      const codes = new Map<string, string>([[`plant:${p.id}`, p.code]]);
-      for (const t of layout.trains) codes.set(`train:${t.id}`, t.code);
-      for (const b of layout.basins) codes.set(`basin:${b.id}`, b.code);
-      for (const c of layout.clarifiers) codes.set(`clarifier:${c.id}`, c.code);
-      for (const x of layout.pumps) codes.set(`pump:${x.id}`, x.code);
-      const byTag = new Map<number, TagLive['signals']>();
-      for (const s of signals) {
-        const list = byTag.get(s.tagId) ?? [];
-        list.push({ signal: s.signal, targetType: s.targetType, targetId: s.targetId, targetCode: codes.get(`${s.targetType}:${s.targetId}`) ?? null });
-        byTag.set(s.tagId, list);
-      }
+      await requirePlant(principal, plantId);
+      const rows = await repo.liveTags(plantId);
       const now = clock();
+      // A plant's tags share few quality codes: each is decoded once per answer.
+      const qualities = new Map<number, NonNullable<TagLive['quality']>>();
+      const qualityOf = (code: number) => {
+        let q = qualities.get(code);
+        if (!q) qualities.set(code, (q = { code, grade: qualityGrade(code), flags: qualityFlags(code) }));
+        return q;
+      };
       return {
         plantId,
         asOf: new Date(now).toISOString(),
-        tags: rows.map((r) => {
-          const age_s = r.ts ? (now - r.ts.getTime()) / 1000 : null;
+        tags: rows.map(([id, name, description, unit, enabled, expectedPeriod_s, sourceId, sourceName, sourceKind, ts_ms, value, quality, signals]) => {
+          const age_s = ts_ms === null ? null : (now - ts_ms) / 1000;
           return {
-            id: r.id,
-            name: r.name,
-            description: r.description,
-            unit: r.unit,
-            enabled: r.enabled,
-            expectedPeriod_s: r.expectedPeriod_s,
-            source: { id: r.sourceId, name: r.sourceName, kind: r.sourceKind },
-            signals: byTag.get(r.id) ?? [],
-            value: r.value,
-            ts: r.ts?.toISOString() ?? null,
+            id,
+            name,
+            description,
+            unit,
+            enabled,
+            expectedPeriod_s,
+            source: { id: sourceId, name: sourceName, kind: sourceKind },
+            signals: signals.map(([signal, targetType, targetId, targetCode]) => ({ signal, targetType, targetId, targetCode })),
+            value,
+            ts: ts_ms === null ? null : new Date(ts_ms).toISOString(),
             age_s,
-            stale: age_s === null || age_s > STALE_PERIODS * r.expectedPeriod_s,
-            quality: r.quality === null ? null : { code: r.quality, grade: qualityGrade(r.quality), flags: qualityFlags(r.quality) },
+            stale: age_s === null || age_s > STALE_PERIODS * expectedPeriod_s,
+            quality: quality === null ? null : qualityOf(quality),
           };
         }),
       };

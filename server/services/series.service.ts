@@ -5,7 +5,7 @@ import type { Principal } from '../auth/principal.ts';
 import { BadRequestError, NotFoundError } from '../http/errors.ts';
 import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
 import type { PlantRepository } from '../repositories/plant.repository.ts';
-import type { BucketRow, RawRow, SeriesRepository } from '../repositories/series.repository.ts';
+import type { RawRow, SeriesRepository } from '../repositories/series.repository.ts';
 import type { PlantAccess } from './plant.service.ts';
 
 const HOUR_MS = 3_600_000;
@@ -41,14 +41,22 @@ export function chooseResolution(span_ms: number, expectedPeriod_s: number, requ
   return { resolution, step_s: Math.ceil(step / unit) * unit };
 }
 
-/** The value of a bucket for an aggregate. */
-function aggValue(b: BucketRow, agg: Agg): number | null {
-  return agg === 'mean' ? b.mean : agg === 'min' ? b.min : agg === 'max' ? b.max : b.last;
-}
+/** Position of each aggregate in a BucketRow. */
+const AGG_AT: Record<Agg, 2 | 3 | 4 | 6> = { mean: 2, min: 3, max: 4, last: 6 };
 
-function qualityOf(code: number): Pick<SamplePoint, 'quality' | 'flags'> {
-  const flags = qualityFlags(code);
-  return flags.length ? { quality: qualityGrade(code), flags } : { quality: qualityGrade(code) };
+type QualityFields = Pick<SamplePoint, 'quality' | 'flags'>;
+/** A window holds few distinct quality codes: each is decoded once per answer. */
+function qualityDecoder(): (code: number) => QualityFields {
+  const seen = new Map<number, QualityFields>();
+  return (code) => {
+    let q = seen.get(code);
+    if (!q) {
+      const flags = qualityFlags(code);
+      q = flags.length ? { quality: qualityGrade(code), flags } : { quality: qualityGrade(code) };
+      seen.set(code, q);
+    }
+    return q;
+  };
 }
 
 interface SamplesCursor extends Record<string, unknown> {
@@ -114,8 +122,9 @@ export function createSeriesService({ seriesRepo: series, plantRepo: plants, pla
       const rows: RawRow[] = await series.raw(tagId, new Date(after ?? from), new Date(to), limit + 1, after !== null);
       const more = rows.length > limit;
       const page = more ? rows.slice(0, limit) : rows;
-      const points = page.map((r) => ({ ts: r.ts.toISOString(), value: r.value, ...qualityOf(r.quality) }));
-      return { ...base, from: new Date(from).toISOString(), to: new Date(to).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]!.ts.getTime()) : null };
+      const qualityOf = qualityDecoder();
+      const points = page.map(([ts, , value, quality]) => ({ ts, value, ...qualityOf(quality) }));
+      return { ...base, from: new Date(from).toISOString(), to: new Date(to).toISOString(), points, nextCursor: more ? cursorOf(Math.floor(page[page.length - 1]![1])) : null };
     }
     // Buckets: the window widened to whole buckets, so the first and last bucket are complete.
     const stepMs = choice.step_s * 1000;
@@ -124,8 +133,10 @@ export function createSeriesService({ seriesRepo: series, plantRepo: plants, pla
     const rows = await series.buckets(choice.resolution, tagId, new Date(after ?? lo), new Date(hi), choice.step_s, limit + 1, agg === 'last');
     const more = rows.length > limit;
     const page = more ? rows.slice(0, limit) : rows;
-    const points = page.map((b) => ({ ts: b.ts.toISOString(), value: aggValue(b, agg), min: b.min, max: b.max, count: b.count, ...qualityOf(b.quality) }));
-    return { ...base, from: new Date(lo).toISOString(), to: new Date(hi).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]!.ts.getTime() + stepMs) : null };
+    const at = AGG_AT[agg];
+    const qualityOf = qualityDecoder();
+    const points = page.map((b) => ({ ts: b[0], value: b[at], min: b[3], max: b[4], count: b[5], ...qualityOf(b[7]) }));
+    return { ...base, from: new Date(lo).toISOString(), to: new Date(hi).toISOString(), points, nextCursor: more ? cursorOf(page[page.length - 1]![1] + stepMs) : null };
   }
 }
 

@@ -7,10 +7,12 @@ import {
   type SettingKey,
   type SettingsOut,
 } from '../../shared/contracts/settings.ts';
-import { NotFoundError } from '../http/errors.ts';
+import type { Principal } from '../auth/principal.ts';
+import { ForbiddenError, NotFoundError } from '../http/errors.ts';
 import type { PlantRepository } from '../repositories/plant.repository.ts';
 import type { SettingsRepository } from '../repositories/settings.repository.ts';
 import type { Actor, AuditLog } from './audit.service.ts';
+import { assertPlantScope } from './plant.service.ts';
 
 /**
  * Settings with their precedence: the plant's own value, else the global (plantId 0) value,
@@ -38,13 +40,27 @@ export interface SettingsServiceDeps {
   audit: AuditLog;
 }
 
+/**
+ * Plant scope of settings (issue 15): a plant-scoped caller reads and writes only its own plants'
+ * levels. The global level (plantId 0) sets every plant that does not override a key, and holds
+ * the global mail recipients, so it is outside every plant scope: 403. Checked before existence,
+ * so a scope does not reveal which plants exist. `null` is the system (scripts, tests).
+ */
+function assertSettingsScope(principal: Principal | null, plantId: number): void {
+  if (!principal?.plantIds) return;
+  if (plantId === 0) throw new ForbiddenError('this token is scoped to some plants; the global settings (plantId 0) apply to every plant');
+  assertPlantScope(principal, plantId);
+}
+
 export function createSettingsService({ settingsRepo, plantRepo, audit }: SettingsServiceDeps) {
-  const assertPlant = async (plantId: number) => {
+  const assertPlant = async (principal: Principal | null, plantId: number) => {
+    assertSettingsScope(principal, plantId);
     if (plantId === 0) return;
     if (!(await plantRepo.byId(plantId))) throw new NotFoundError(`no plant ${plantId}`);
   };
-  async function describe(plantId: number): Promise<SettingsOut> {
-    await assertPlant(plantId);
+  /** The settings of one level with defaults and sources; `principal` null: the system. */
+  async function describe(principal: Principal | null, plantId: number): Promise<SettingsOut> {
+    await assertPlant(principal, plantId);
     const { values, source } = resolveSettings(await settingsRepo.rowsFor(plantId), plantId);
     return {
       plantId,
@@ -59,7 +75,7 @@ export function createSettingsService({ settingsRepo, plantRepo, audit }: Settin
     describe,
     /** Stores (or with null removes) values for one level; audited with old and new values. `principal` null: the system (scripts, tests). */
     async put(principal: Actor | null, body: PutSettingsRequest): Promise<SettingsOut> {
-      await assertPlant(body.plantId);
+      await assertPlant(principal, body.plantId);
       const before = resolveSettings(await settingsRepo.rowsFor(body.plantId), body.plantId).values as Record<string, unknown>;
       const changes: Record<string, { from: unknown; to: unknown }> = {};
       for (const [key, value] of Object.entries(body.values)) {
@@ -68,7 +84,7 @@ export function createSettingsService({ settingsRepo, plantRepo, audit }: Settin
         changes[key] = { from: before[key], to: value };
       }
       await audit.record(principal, 'settings.update', `plant:${body.plantId}`, { changes });
-      return describe(body.plantId);
+      return describe(principal, body.plantId);
     },
   };
 }

@@ -28,7 +28,7 @@ import { ConflictError, NotFoundError, UnsupportedMediaTypeError, ValidationErro
 import { zodFields } from '../http/validate.ts';
 import { uniqueViolation, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow, type WiringRepository } from '../repositories/wiring.repository.ts';
 import type { Actor, AuditLog } from './audit.service.ts';
-import { parseCsv } from './csv.service.ts';
+import { csvHeaderProblem, parseCsvUpload } from './csv.service.ts';
 import type { OpcuaBrowseService } from './opcua-browse.service.ts';
 import { assertPlantScope, type PlantAccess } from './plant.service.ts';
 import type { IngestRepository } from '../repositories/ingest.repository.ts';
@@ -148,6 +148,7 @@ export function createWiringService({ wiringRepo: repo, plantAccess, audit, log,
       rangeLow: t.rangeLow,
       rangeHigh: t.rangeHigh,
       samplingInterval_ms: t.samplingInterval_ms,
+      kind: t.kind,
       enabled: t.enabled,
       signals: maps.filter((m) => m.tagId === t.id).map((m) => mappingOut(m, targets)),
       createdAt: t.createdAt.toISOString(),
@@ -326,17 +327,14 @@ export function createWiringService({ wiringRepo: repo, plantAccess, audit, log,
     async importCsv(principal: Actor, plantId: number, text: string | undefined, dryRun: boolean): Promise<TagImportOut> {
       await plantAccess.requirePlant(principal, plantId);
       if (text === undefined) throw new UnsupportedMediaTypeError('send the file as the request body with Content-Type: text/csv');
-      const parsed = parseCsv(text);
+      const parsed = await parseCsvUpload(text);
       if (!parsed.ok) throw new ValidationError({ [`line.${parsed.line}`]: [parsed.message] }, 'the file is not valid CSV (RFC 4180); nothing was stored');
       const [header, ...records] = parsed.records;
       if (!header) throw new ValidationError({ _: ['the file is empty; expected a header row and at least one tag'] });
       const cols = header.fields.map((c) => c.trim());
-      const unknown = cols.filter((c) => !(TAG_CSV_COLUMNS as readonly string[]).includes(c));
-      const dup = cols.filter((c, i) => cols.indexOf(c) !== i);
-      const missing = TAG_CSV_REQUIRED.filter((c) => !cols.includes(c));
-      if (unknown.length || dup.length || missing.length) {
-        const msg = [unknown.length ? `unknown column(s) ${unknown.join(', ')}` : '', dup.length ? `duplicate column(s) ${dup.join(', ')}` : '', missing.length ? `missing column(s) ${missing.join(', ')}` : ''].filter(Boolean);
-        throw new ValidationError({ 'line.1': [`${msg.join('; ')}; the columns are ${TAG_CSV_COLUMNS.join(', ')}`] }, 'the header row is not usable; nothing was stored');
+      const headerCheck = csvHeaderProblem(cols, TAG_CSV_COLUMNS, TAG_CSV_REQUIRED);
+      if (headerCheck.message) {
+        throw new ValidationError({ 'line.1': [`${headerCheck.message}; the columns are ${TAG_CSV_COLUMNS.join(', ')}`] }, 'the header row is not usable; nothing was stored');
       }
       if (!records.length) throw new ValidationError({ _: ['the file has a header but no tags'] });
       if (records.length > TAG_CSV_MAX_ROWS) throw new ValidationError({ _: [`at most ${TAG_CSV_MAX_ROWS} rows per file; this one has ${records.length}`] });

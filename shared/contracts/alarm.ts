@@ -53,8 +53,41 @@ export const alarmOut = z.object({
   acknowledgedAt: z.iso.datetime().nullable(),
   acknowledgedBy: z.number().int().nullable(),
   clearedAt: z.iso.datetime().nullable(),
+  /** ISA-18.2 designed suppression: why the active alarm is not annunciated (null: annunciated). */
+  suppressedReason: z.string().nullable(),
+  /** ISA-18.2 shelving: not annunciated until this time (null: not shelved). */
+  shelvedUntil: z.iso.datetime().nullable(),
+  shelvedBy: z.number().int().nullable(),
+  shelveReason: z.string().nullable(),
 });
 export type AlarmOut = z.infer<typeof alarmOut>;
 
 export const alarmAckParams = z.strictObject({ plantId: z.coerce.number().int().positive(), alarmId: z.coerce.number().int().positive() });
 export const alarmAckRequest = z.strictObject({ comment: z.string().max(500).optional() });
+
+/** Longest shelving an operator can set: 8 h, one shift (ISA-18.2 shelving always expires) [ours]. */
+export const ALARM_SHELVE_MAX_MIN = 480;
+export const alarmIdParams = z.strictObject({ alarmId: z.coerce.number().int().positive() });
+export const alarmShelveRequest = z.strictObject({
+  minutes: z.number().int().min(1).max(ALARM_SHELVE_MAX_MIN).meta({ description: `shelved for this many minutes (1 … ${ALARM_SHELVE_MAX_MIN})` }),
+  reason: z.string().trim().min(1).max(500),
+});
+export const alarmUnshelveRequest = z.strictObject({ comment: z.string().max(500).optional() });
+
+/** Bucket length of the alarm-rate summary (ISA-18.2 / EEMUA 191 measure alarm floods per 10 minutes). */
+export const ALARM_SUMMARY_BUCKET_MIN = 10;
+export const alarmSummaryQuery = z
+  .strictObject({ from: z.iso.datetime({ offset: true }).optional(), to: z.iso.datetime({ offset: true }).optional() })
+  .refine((q) => !q.from || !q.to || Date.parse(q.from) < Date.parse(q.to), { message: 'from must be before to', path: ['to'] })
+  .refine((q) => !q.from || !q.to || Date.parse(q.to) - Date.parse(q.from) <= 7 * 86_400_000, { message: 'at most 7 days', path: ['from'] });
+export const alarmSummaryOut = z.object({
+  plantId: z.number().int(),
+  from: z.iso.datetime(),
+  to: z.iso.datetime(),
+  bucket_min: z.number().int(),
+  /** A bucket with more annunciated alarms than this is a flood (setting alarm.flood_per_10min). */
+  floodThreshold: z.number().int(),
+  buckets: z.array(z.object({ from: z.iso.datetime(), raised: z.number().int(), suppressed: z.number().int(), flood: z.boolean() })),
+  floodBuckets: z.number().int(),
+});
+export type AlarmSummaryOut = z.infer<typeof alarmSummaryOut>;

@@ -225,6 +225,9 @@ export const alarmOut = z
     acknowledgedAt: isoOut('acknowledged').nullable(),
     acknowledgedBy: z.number().int().nullable(),
     clearedAt: isoOut('cleared').nullable(),
+    suppressedReason: z.string().nullable().meta({ description: 'ISA-18.2 designed suppression: why the active alarm is not annunciated (null: annunciated)' }),
+    shelvedUntil: isoOut('shelved until (ISA-18.2 shelving; null: not shelved)').nullable(),
+    shelveReason: z.string().nullable(),
   })
   .meta({ id: 'Alarm' });
 export type AlarmOut = z.infer<typeof alarmOut>;

@@ -118,6 +118,7 @@ export const configTag = z
     rangeLow: z.number().finite().nullable().default(null),
     rangeHigh: z.number().finite().nullable().default(null),
     samplingInterval_ms: z.number().int().min(0).max(3_600_000).nullable().default(null),
+    kind: z.enum(['analog', 'state', 'counter']).default('analog').meta({ description: 'analog, state (e.g. pump running) or counter; only analog tags are checked for a flat line' }),
     enabled: z.boolean().default(true),
   })
   .strict()

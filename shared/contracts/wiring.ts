@@ -231,6 +231,8 @@ export const discoveryOut = z.object({
 
 // ---- tags ----
 const finite = (description: string) => z.number().finite().meta({ description });
+/** What a tag's value is; only an analog value can drift, so only it is checked for a flat line (ingest/pipeline/quality.ts). */
+export const TAG_KINDS = ['analog', 'state', 'counter'] as const;
 const tagFields = {
   name: z.string().trim().min(1).max(64).meta({ description: 'unique within the plant' }),
   sourceId: z.number().int().positive(),
@@ -244,8 +246,10 @@ const tagFields = {
   rangeLow: finite('lowest plausible value (engineering unit)').nullable(),
   rangeHigh: finite('highest plausible value (engineering unit)').nullable(),
   samplingInterval_ms: z.number().int().min(0).max(3_600_000).nullable().meta({ description: 'OPC UA sampling interval [ms]; null uses the source default' }),
+  kind: z.enum(TAG_KINDS).meta({ description: 'analog (a measurement), state (e.g. pump running 0/1) or counter (a running total); only analog tags are checked for a flat line' }),
   enabled: z.boolean(),
 };
+export type TagKind = (typeof TAG_KINDS)[number];
 const rangeOk = (t: { rangeLow?: number | null; rangeHigh?: number | null }) => t.rangeLow == null || t.rangeHigh == null || t.rangeLow < t.rangeHigh;
 const rangeIssue = { message: 'rangeLow must be below rangeHigh', path: ['rangeHigh'] };
 
@@ -260,6 +264,7 @@ export const tagCreate = z
     rangeLow: tagFields.rangeLow.optional(),
     rangeHigh: tagFields.rangeHigh.optional(),
     samplingInterval_ms: tagFields.samplingInterval_ms.optional(),
+    kind: tagFields.kind.optional(),
     enabled: tagFields.enabled.optional(),
   })
   .strict()
@@ -292,6 +297,7 @@ export const tagConfigOut = z
     rangeLow: z.number().nullable(),
     rangeHigh: z.number().nullable(),
     samplingInterval_ms: z.number().int().nullable(),
+    kind: z.enum(TAG_KINDS),
     enabled: z.boolean(),
     signals: z.array(mappingOut),
     createdAt: isoOut('created'),

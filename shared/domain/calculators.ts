@@ -24,7 +24,7 @@ import { requiredRasConcSimple_gL } from './clarifier-balance.js';
 import { rasConcMaxRuleOfThumb_gL } from './flux.js';
 import { combineQuality, propagate, good, type Figure, type QualityInfo } from './quality.js';
 import { minRecycleRatio } from './ras-margin.js';
-import { blanketHeight_m, BSM1_SETTLER, BSM1_TAKACS, solveSettlerSteadyState, type SettlerConfig } from './settler.js';
+import { blanketHeight_m, BSM1_SETTLER, BSM1_TAKACS, solveSettlerSteadyState, type SettlerBudget, type SettlerConfig } from './settler.js';
 import { settleabilityIndex } from './settleability.js';
 import { vesilindFromIndex } from './settling.js';
 import { OPERATOR_CAUTION } from '../contracts/balance.js';
@@ -112,8 +112,10 @@ export function calcStatePoint(req: StatePointRequest): StatePointResponse {
 /**
  * Layered settler calculator (Takács et al. 1991; BSM1 defaults, Alex et al. 2008): steady
  * state of the given settler, with the blanket height at the clarification threshold Xt.
+ * `budget` bounds the work (the API passes its iteration and time budget): a solve that stops
+ * before steady state answers the last iterate as `estimated` with the reason, never as good.
  */
-export function calcSettler(req: SettlerRequest): SettlerResponse {
+export function calcSettler(req: SettlerRequest, budget?: SettlerBudget): SettlerResponse {
   const cfg: SettlerConfig = {
     area_m2: req.area_m2,
     depth_m: req.depth_m,
@@ -121,8 +123,9 @@ export function calcSettler(req: SettlerRequest): SettlerResponse {
     feedLayer: req.feedLayer ?? BSM1_SETTLER.feedLayer,
     takacs: req.takacs ?? BSM1_TAKACS,
   };
-  const r = solveSettlerSteadyState(cfg, { feedFlow_m3h: req.feedFlow_m3h, feedTss_gL: req.feedTss_gL, underflowFlow_m3h: req.underflowFlow_m3h });
-  const q: Figure<null> = r.converged ? good(null) : { value: null, quality: 'estimated', reasons: [`steady state not reached within ${r.iterations} steps: profile is the last iterate`] };
+  const r = solveSettlerSteadyState(cfg, { feedFlow_m3h: req.feedFlow_m3h, feedTss_gL: req.feedTss_gL, underflowFlow_m3h: req.underflowFlow_m3h }, budget);
+  const why = r.stop === 'deadline' ? `the time budget ran out after ${r.iterations} steps` : `the budget of ${r.iterations} steps ran out`;
+  const q: Figure<null> = r.converged ? good(null) : { value: null, quality: 'estimated', reasons: [`steady state not reached (${why}): the profile is the last iterate`] };
   return {
     layers_gL: r.layers_gL,
     effluentTss_gL: r.effluentTss_gL,

@@ -180,22 +180,40 @@ export function stepSettler(cfg: SettlerConfig, inp: SettlerInputs, layers_gL: F
 }
 
 /**
+ * The work a steady-state solve may spend: at most `maxIter` explicit steps and, when a
+ * deadline is given, no step started after `now() ≥ deadline_ms` (the clock is passed in, so
+ * this module stays pure and a test can drive it). The clock is read every `CLOCK_EVERY` steps.
+ */
+export interface SettlerBudget {
+  maxIter?: number;
+  deadline?: { now: () => number; deadline_ms: number };
+}
+
+/** Why a steady-state solve stopped. */
+export type SettlerStop = 'converged' | 'iterations' | 'deadline';
+
+const CLOCK_EVERY = 256;
+
+/**
  * Steady state of the layered settler by pseudo-transient continuation: integrates the
  * layer balances (Takács et al. 1991; BSM1 rules, Alex et al. 2008) from the initial profile
  * (default: every layer at the feed TSS) until the largest |dX/dt|·h, expressed as a fraction
- * of the applied solids flux Qf·Xf/A, falls below tol (default 1e-10). Reports convergence
- * rather than throwing when maxIter (explicit steps, default 2 000 000) is exhausted.
+ * of the applied solids flux Qf·Xf/A, falls below tol (default 1e-10). Reports why it stopped
+ * (`stop`) rather than throwing when the budget is spent: maxIter explicit steps (default
+ * 2 000 000) or the deadline of `budget.deadline`.
  */
 export function solveSettlerSteadyState(
   cfg: SettlerConfig,
   inp: SettlerInputs,
-  opts?: { initial_gL?: Float64Array; tol?: number; maxIter?: number },
-): { layers_gL: number[]; effluentTss_gL: number; underflowTss_gL: number; converged: boolean; iterations: number } {
+  opts?: { initial_gL?: Float64Array; tol?: number } & SettlerBudget,
+): { layers_gL: number[]; effluentTss_gL: number; underflowTss_gL: number; converged: boolean; stop: SettlerStop; iterations: number } {
   checkConfig(cfg);
   checkInputs(inp);
   const n = cfg.layers;
   const tol = opts?.tol ?? 1e-10;
   const maxIter = opts?.maxIter ?? 2_000_000;
+  if (!Number.isInteger(maxIter) || maxIter < 0) throw new DomainValidationError('maxIter', 'the iteration budget must be an integer ≥ 0');
+  const deadline = opts?.deadline;
   const x = opts?.initial_gL ? Float64Array.from(opts.initial_gL) : new Float64Array(n).fill(inp.feedTss_gL);
   if (x.length !== n) throw new DomainValidationError('initial_gL', `expected ${n} layer concentrations, got ${x.length}`);
   const h = cfg.depth_m / n;
@@ -203,21 +221,25 @@ export function solveSettlerSteadyState(
   const scale = Math.max(feedFlux, 1e-9);
   const dt = stableStep_h(cfg, inp);
   const d = new Float64Array(n);
-  let converged = false;
+  let stop: SettlerStop = 'iterations';
   let it = 0;
   while (it < maxIter) {
+    if (deadline && it % CLOCK_EVERY === 0 && deadline.now() >= deadline.deadline_ms) {
+      stop = 'deadline';
+      break;
+    }
     settlerDerivatives(cfg, inp, x, d);
     let worst = 0;
     for (let i = 0; i < n; i++) worst = Math.max(worst, Math.abs(d[i]!) * h);
     if (worst / scale < tol) {
-      converged = true;
+      stop = 'converged';
       break;
     }
     for (let i = 0; i < n; i++) x[i] = Math.max(0, x[i]! + dt * d[i]!);
     it++;
   }
   const layers = Array.from(x);
-  return { layers_gL: layers, effluentTss_gL: layers[0]!, underflowTss_gL: layers[n - 1]!, converged, iterations: it };
+  return { layers_gL: layers, effluentTss_gL: layers[0]!, underflowTss_gL: layers[n - 1]!, converged: stop === 'converged', stop, iterations: it };
 }
 
 /**

@@ -31,7 +31,9 @@ const H_PER_D = 24;
 export const UNITS: Readonly<Record<Dimension, DimensionUnits>> = Object.freeze({
   flow: {
     base: 'm3/h',
-    factors: { 'm3/h': 1, 'm³/h': 1, 'm3/d': 1 / H_PER_D, 'm³/d': 1 / H_PER_D, 'm3/s': S_PER_H, 'm³/s': S_PER_H, 'L/s': S_PER_H / L_PER_M3 },
+    // US gallon per minute: gallon (US) = 231 in³ = 231 × 0.0254³ m³ = 3.785 411 784 E−03 m³ exactly
+    // (NIST SP 811, 2008 ed., Appendix B.9 lists it rounded as 3.785 412 E−03), × 60 min/h.
+    factors: { 'm3/h': 1, 'm³/h': 1, 'm3/d': 1 / H_PER_D, 'm³/d': 1 / H_PER_D, 'm3/s': S_PER_H, 'm³/s': S_PER_H, 'L/s': S_PER_H / L_PER_M3, gpm: 231 * 0.0254 ** 3 * 60 },
   },
   concentration: {
     base: 'g/L',
@@ -72,4 +74,20 @@ export function ms_to_h(t_ms: number): number {
 /** Sludge volume index mL/g → specific sludge volume m³/kg (1 mL/g = 10⁻³ m³/kg). */
 export function sviMLg_to_m3kg(svi_mLg: number): number {
   return svi_mLg / UNITS.specificVolume.factors['m3/kg']!;
+}
+
+/**
+ * Factor that turns a value in `from` into the same quantity in `to` (value_to = value × factor),
+ * looked up in the one dimension holding both units; null when no dimension holds both (a flow
+ * column for a concentration tag is refused, never scaled).
+ */
+export function conversionFactor(from: string, to: string): number | null {
+  const a = from.trim();
+  const b = to.trim();
+  for (const d of Object.values(UNITS)) {
+    const fa = d.factors[a];
+    const fb = d.factors[b];
+    if (fa !== undefined && fb !== undefined) return fa / fb;
+  }
+  return null;
 }

@@ -49,6 +49,8 @@ export function kestrelBendConfig(ep: DemoEndpoints): PlantConfig {
       // One second: the simulator may run faster than real time, and the server's data-change
       // filter only reports changes anyway.
       samplingInterval_ms: t.protocol === 'opcua' ? 1000 : null,
+      // A run-feedback state holds still by nature: never checked for a flat line.
+      kind: t.signal.kind === 'pump.running' ? ('state' as const) : ('analog' as const),
     })),
     signalMap: DEMO_PLANT.tags.map((t) => {
       const type = t.signal.kind.split('.')[0] as 'plant' | 'basin' | 'clarifier' | 'pump';

@@ -16,6 +16,9 @@ export interface MqttPublisherOptions {
   plantCode: string;
   batch?: boolean;
   clientId?: string;
+  /** Broker credentials; the embedded broker refuses a CONNECT without them (server/broker/broker-users.ts). */
+  username?: string;
+  password?: string;
   reconnectPeriod_ms?: number;
   protocolVersion?: 4 | 5;
   onError?: (e: Error) => void;
@@ -42,6 +45,7 @@ export class MqttPublisher {
       protocolVersion: opts.protocolVersion ?? 4,
       queueQoSZero: false,
       clean: true,
+      ...(opts.username ? { username: opts.username, password: opts.password ?? '' } : {}),
     });
     this.client.on('connect', () => {
       this.stats.connects++;

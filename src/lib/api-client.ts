@@ -1,6 +1,9 @@
 /**
  * The one fetch client: JSON in and out (or a CSV file up), the session cookie rides along (same origin), and
  * a non-2xx answer becomes an ApiError carrying the server's `{ error: { code, message, fields } }`.
+ * What the server's CSRF guard (server/auth/csrf.ts) asks of a signed-in write is what this sends:
+ * a body only as application/json or text/csv, and the browser adds `Origin` (every non-GET
+ * fetch, Fetch Standard) and `Sec-Fetch-Site` itself; scripts cannot set either, so nothing more.
  */
 export class ApiError extends Error {
   constructor(

@@ -35,6 +35,8 @@ export const paths = {
   signalMap: (plantId: number) => `${v1}/plants/${plantId}/signal-map`,
   signalMapping: (id: number) => `${v1}/signal-map/${id}`,
   ingestStatus: `${v1}/ingest/status`,
+  historyImport: (plantId: number) => `${v1}/plants/${plantId}/history`,
+  job: (id: number) => `${v1}/jobs/${id}`,
   // plant setup (integrator+)
   plantModel: (plantId: number) => `${v1}/plants/${plantId}/model`,
   plantConfig: (plantId: number) => `${v1}/plants/${plantId}/config`,

@@ -11,7 +11,9 @@
  * (a) sequential latency, 200 requests each after a warm-up: balance/live, the 30-day samples
  *     query (must go through rollup_1m), the one-year query (rollup_1h);
  * (b) mixed load: autocannon, 50 connections for 10 s over a mix of those and the live tag list,
- *     three rounds; the median p99 is held to < 250 ms;
+ *     three rounds; the median p99 is held to < 250 ms; each round notes the CPU per request of
+ *     the API process and of the PostgreSQL cluster (with 50 connections in a closed loop the
+ *     p99 is about the queue times the service time, and either side can be the queue);
  * (c) balance/live beside the reference: tests/bench/api-baseline.ts, a minimal Express + pg
  *     process on the same database returning the same row as the same JSON (checked), measured
  *     with the same autocannon settings (50 connections, 1 s warm-up, 5 s), three rounds that
@@ -168,6 +170,35 @@ function cpuSeconds(pid: number | undefined): number {
   }
 }
 
+/**
+ * CPU seconds the bench's PostgreSQL cluster has used so far: the postmaster, its live children
+ * (the pools' backends stay connected through a round) and the children it has reaped.
+ */
+function clusterCpuSeconds(pgData: string): number {
+  try {
+    const postmaster = Number(fs.readFileSync(path.join(pgData, 'postmaster.pid'), 'utf8').split('\n')[0]);
+    const fields = (pid: number) => {
+      const stat = fs.readFileSync(`/proc/${pid}/stat`, 'utf8');
+      return stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+    };
+    const own = fields(postmaster);
+    // utime, stime, cutime, cstime are the 12th–15th fields after the command name.
+    let ticks = Number(own[11]) + Number(own[12]) + Number(own[13]) + Number(own[14]);
+    for (const entry of fs.readdirSync('/proc')) {
+      if (!/^\d+$/.test(entry)) continue;
+      try {
+        const f = fields(Number(entry));
+        if (Number(f[1]) === postmaster) ticks += Number(f[11]) + Number(f[12]);
+      } catch {
+        // gone meanwhile
+      }
+    }
+    return ticks / 100;
+  } catch {
+    return NaN;
+  }
+}
+
 const median = (xs: number[]) => {
   const s = [...xs].sort((a, b) => a - b);
   return s.length % 2 ? s[(s.length - 1) / 2]! : (s[s.length / 2 - 1]! + s[s.length / 2]!) / 2;
@@ -185,6 +216,7 @@ async function main(): Promise<void> {
     const cluster = await startLocalPostgres({ dataDir: tmp, port: await freePort(), dbName: 'bench' });
     cleanup.push(() => cluster.stop());
     await runMigrations(cluster.url);
+    const pgData = path.join(tmp, 'pg');
     const pool = new pg.Pool({ connectionString: cluster.url, max: 3 });
     cleanup.push(() => pool.end());
 
@@ -242,6 +274,7 @@ async function main(): Promise<void> {
     const mixRounds: Array<Record<string, number>> = [];
     for (let r = 0; r < ROUNDS; r++) {
       const c0 = cpuSeconds(child.pid);
+      const pg0 = clusterCpuSeconds(pgData);
       const load = await autocannon({ url: base, connections: 50, duration: MIX_S, headers: { Cookie: cookie }, requests: order.map((p) => ({ method: 'GET', path: p })) });
       mixRounds.push({
         requests: load.requests.total,
@@ -252,6 +285,8 @@ async function main(): Promise<void> {
         max_ms: load.latency.max,
         apiCpu_s: round(cpuSeconds(child.pid) - c0, 2),
         apiCpuPerRequest_ms: round(((cpuSeconds(child.pid) - c0) * 1000) / Math.max(1, load.requests.total), 2),
+        pgCpu_s: round(clusterCpuSeconds(pgData) - pg0, 2),
+        pgCpuPerRequest_ms: round(((clusterCpuSeconds(pgData) - pg0) * 1000) / Math.max(1, load.requests.total), 2),
       });
       if (load.errors || load.timeouts || load.non2xx) failures.push(`mixed load round ${r + 1}: ${load.errors} errors, ${load.timeouts} timeouts, ${load.non2xx} non-2xx`);
     }
@@ -335,7 +370,7 @@ async function main(): Promise<void> {
     const l = results.load as { requestsPerSec: number; p99_ms: number; rounds: Array<Record<string, number>> };
     console.log(`\nmixed load: 50 connections, ${MIX_S} s per round (${(results.load as { mix: string }).mix})`);
     for (const [i, m] of l.rounds.entries()) {
-      console.log(`  round ${i + 1}: ${m.requestsPerSec} req/s, p50 ${m.p50_ms} ms, p97.5 ${m.p97_5_ms} ms, p99 ${m.p99_ms} ms, max ${m.max_ms} ms; API process ${m.apiCpu_s} CPU s (${m.apiCpuPerRequest_ms} ms/request)`);
+      console.log(`  round ${i + 1}: ${m.requestsPerSec} req/s, p50 ${m.p50_ms} ms, p97.5 ${m.p97_5_ms} ms, p99 ${m.p99_ms} ms, max ${m.max_ms} ms; API process ${m.apiCpu_s} CPU s (${m.apiCpuPerRequest_ms} ms/request), PostgreSQL ${m.pgCpu_s} CPU s (${m.pgCpuPerRequest_ms} ms/request)`);
     }
     console.log(`  median: ${l.requestsPerSec} req/s, p99 ${l.p99_ms} ms (target < ${MIX_P99_MS} ms)`);
     console.log(`\nbalance/live, 50 connections, ${LIVE_S} s per side per round (after 1 s warm-up each): product vs minimal Express + pg`);

@@ -14,8 +14,7 @@
  *
  * `--stock` (npm run bench:ingest -- --stock) also runs (b) with each kept adapter replaced by the
  * stock behaviour, in this run, one at a time: aedes-persistence's memory store instead of
- * server/broker/indexed-persistence.ts, aedes writing to its sockets itself instead of
- * server/broker/coalesce-writes.ts, and mqtt.js's handleMessage callback held until the commit
+ * server/broker/indexed-persistence.ts, and mqtt.js's handleMessage callback held until the commit
  * instead of ingest's pipelined PUBACKs (ingest/mqtt/mqtt-connector.ts) — and prints each
  * adapter's gain on the median. An adapter stays only where that gain is 15 % or more.
  * `--rounds N` (default 3) sets the rounds of every median, for a quick look while iterating.
@@ -442,7 +441,6 @@ try {
      */
     const variants = [
       { key: 'stockPersistence', what: "aedes-persistence's memory store instead of the indexed one", flags: ['--stock-persistence'], env: {}, single: SINGLE, batchedMessages: BATCHED / PER },
-      { key: 'stockWrites', what: 'aedes writing to its sockets itself instead of gathered writes', flags: ['--stock-writes'], env: {}, single: SINGLE, batchedMessages: BATCHED / PER },
       { key: 'stockAcks', what: "mqtt.js's handleMessage callback held until the commit instead of pipelined PUBACKs", flags: [], env: { INGEST_MQTT_ACKS: 'serial' }, single: 50, batchedMessages: 10 },
     ] as const;
     for (const [k, v] of variants.entries()) {
@@ -500,8 +498,6 @@ const targets: Record<string, string> = {
   peakRssMb: '< 300',
   stockPersistenceSingleSamplesPerSec: '(stock reference)',
   stockPersistenceBatchedSamplesPerSec: '(stock reference)',
-  stockWritesSingleSamplesPerSec: '(stock reference)',
-  stockWritesBatchedSamplesPerSec: '(stock reference)',
   stockAcksSingleSamplesPerSec: '(stock reference)',
   stockAcksBatchedSamplesPerSec: '(stock reference)',
 };

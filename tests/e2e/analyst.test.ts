@@ -30,7 +30,7 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
     const login = await fetch(`${env.server.url}/api/v1/auth/login`, { method: 'POST', headers: { 'Content-Type': 'application/json' }, body: JSON.stringify(ADMIN) });
     expect(login.status).toBe(200);
     const cookie = login.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
-    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie }, body: JSON.stringify({ ...ANALYST, role: 'analyst' }) });
+    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie, Origin: env.server.url }, body: JSON.stringify({ ...ANALYST, role: 'analyst' }) });
     expect(made.status).toBe(201);
 
     kestrel = (await seedDemoPlant(env.server.ctx, { mqttUrl: 'mqtt://127.0.0.1:1', opcuaUrl: 'opc.tcp://127.0.0.1:1' })).plantId;

@@ -31,7 +31,7 @@ describe('integrator in Debian Chromium: test connections, wire a new MQTT topic
     env = await startTestServer({ FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password });
     const login = await fetch(`${env.server.url}/api/v1/auth/login`, { method: 'POST', headers: { 'Content-Type': 'application/json' }, body: JSON.stringify(ADMIN) });
     const cookie = login.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
-    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie }, body: JSON.stringify({ ...INTEGRATOR, role: 'integrator' }) });
+    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie, Origin: env.server.url }, body: JSON.stringify({ ...INTEGRATOR, role: 'integrator' }) });
     expect(made.status).toBe(201);
     // the OPC UA endpoint points at a closed port: its connection test must say so
     await seedDemoPlant(env.server.ctx, { mqttUrl: broker.url, opcuaUrl: `opc.tcp://127.0.0.1:${await freePort()}/none` });

@@ -74,7 +74,7 @@ describe('integrator in Debian Chromium: describe a plant from an empty database
     uaUrl = `opc.tcp://127.0.0.1:${port}/hf`;
     const login = await fetch(`${env.server.url}/api/v1/auth/login`, { method: 'POST', headers: { 'Content-Type': 'application/json' }, body: JSON.stringify(ADMIN) });
     const cookie = login.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
-    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie }, body: JSON.stringify({ ...INTEGRATOR, role: 'integrator' }) });
+    const made = await fetch(`${env.server.url}/api/v1/users`, { method: 'POST', headers: { 'Content-Type': 'application/json', Cookie: cookie, Origin: env.server.url }, body: JSON.stringify({ ...INTEGRATOR, role: 'integrator' }) });
     expect(made.status).toBe(201);
     b = await launchBrowser();
   }, 120_000);

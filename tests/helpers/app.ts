@@ -46,7 +46,9 @@ export async function createTestApp(): Promise<TestApp> {
     t,
     users,
     async agent(role) {
-      const a = request.agent(app);
+      // A browser on the monitor's own page sends this on every request; the CSRF guard
+      // (server/auth/csrf.ts) refuses cookie-authenticated writes without it or a matching Origin.
+      const a = request.agent(app).set('Sec-Fetch-Site', 'same-origin');
       const r = await a.post('/api/v1/auth/login').send({ email: users[role].email, password: users[role].password });
       if (r.status !== 200) throw new Error(`login as ${role} failed: ${r.status} ${JSON.stringify(r.body)}`);
       return a;

@@ -19,6 +19,26 @@ export interface LauncherRun {
 export const root = path.resolve(import.meta.dirname, '../..');
 export const READY = /Press Ctrl-C to stop/;
 
+/**
+ * The environment a launcher test runs `npm start` / `npm run dev` with: its own data folder and
+ * five consecutive ports from `base` (API, PostgreSQL, MQTT broker, simulator OPC UA, mail
+ * catcher), never the system cluster (DATABASE_URL removed).
+ */
+export function launcherEnv(dataDir: string, base: number, extra: NodeJS.ProcessEnv = {}): NodeJS.ProcessEnv {
+  const env: NodeJS.ProcessEnv = {
+    ...process.env,
+    FLOCSTREAM_DATA_DIR: dataDir,
+    PORT: String(base),
+    FLOCSTREAM_PG_PORT: String(base + 1),
+    FLOCSTREAM_MQTT_PORT: String(base + 2),
+    FLOCSTREAM_SIM_OPCUA_PORT: String(base + 3),
+    FLOCSTREAM_MAIL_CATCHER_PORT: String(base + 5),
+    ...extra,
+  };
+  delete env.DATABASE_URL;
+  return env;
+}
+
 export async function runLauncher(args: string[], env: NodeJS.ProcessEnv, ready_ms = 90_000): Promise<LauncherRun> {
   const proc = spawn('npm', args, { cwd: root, env, detached: true, stdio: ['ignore', 'pipe', 'pipe'] });
   const out: string[] = [];

@@ -151,4 +151,89 @@ describe('alarms: raise, acknowledge, clear (ISA-18.2 on-delay and deadband)', (
     await p.run();
     expect((await p.alarms('tag-stale')).map((a) => a.state)).toEqual(['cleared']);
   });
+
+  /**
+   * ISA-18.2 designed suppression at a start (flood: ISA-18.2 gives more than 10 alarms in 10
+   * minutes for one operator as its example [M]). An ingest worker starts at the clock's time
+   * and every tag arrives 100 s late (stale after 3 periods; ingest not down: 100 s < 120 s).
+   */
+  it('after a start, stale tags are suppressed by design (listed with the reason) for the window, then annunciated', async () => {
+    const p = await plant();
+    const worker = `test-${p.plantId}`;
+    await h.ctx.db.pool.query(`INSERT INTO ingest_workers (id, host, pid, started_at, heartbeat_at, heartbeat_ms, status) VALUES ($1, 'test', 1, $2, now(), 5000, '{}')`, [worker, p.at()]);
+    try {
+      const allLate = { receivedAgo_s: Object.fromEntries(Object.keys(FIXTURE_VALUES).map((n) => [n, 100])) };
+      await p.run(allLate);
+      p.advance(ON_DELAY_S);
+      await p.run(allLate);
+      const during = await p.alarms('tag-stale');
+      // Every tag stale after 3 periods < 100 s is listed suppressed, none annunciated (LIT-211, period 60 s, is not stale yet).
+      expect(during.map((a) => a.target).sort()).toEqual(Object.keys(FIXTURE_VALUES).filter((n) => n !== 'LIT-211').sort());
+      expect(during.every((a) => a.state === 'raised' && /suppressed by design/.test(a.suppressed_reason))).toBe(true);
+      const listed = await (await h.agent('analyst')).get(`/api/v1/plants/${p.plantId}/alarms?state=raised`);
+      expect(listed.body.alarms.filter((a: { suppressedReason: string | null }) => a.suppressedReason !== null)).toHaveLength(during.length);
+      // The window: max(6 periods, 180 s) after the start; the fixture periods are at most 30 s, so 180 s.
+      p.advance(SETTINGS['alarm.start_suppression_min_s'].default - ON_DELAY_S - 1);
+      await p.run(allLate);
+      expect((await p.alarms('tag-stale')).every((a) => a.suppressed_reason !== null)).toBe(true);
+      p.advance(1);
+      await p.run(allLate);
+      const after = await p.alarms('tag-stale');
+      expect(after.map((a) => a.id)).toEqual(during.map((a) => a.id));
+      expect(after.every((a) => a.suppressed_reason === null && a.raised_at.getTime() === p.at().getTime())).toBe(true);
+    } finally {
+      await h.ctx.db.pool.query(`UPDATE ingest_workers SET stopped_at = now() WHERE id = $1`, [worker]);
+    }
+  });
+
+  it('summary: raises per 10 minutes, a flood above 10 (ISA-18.2 / EEMUA 191 measure [M]); suppressed ones counted apart', async () => {
+    const p = await plant();
+    const from = Date.parse('2026-01-01T00:00:00Z');
+    const insert = (n: number, at_ms: number, suppressed: string | null = null) =>
+      h.ctx.db.pool.query(
+        `INSERT INTO alarms (plant_id, rule, target, priority, state, message, raised_at, suppressed_reason, cleared_at)
+         SELECT $1, 'tag-bad', 't' || g, 3, 'cleared', 'x', $2, $3, $2 FROM generate_series(1, $4) g`,
+        [p.plantId, new Date(at_ms), suppressed, n],
+      );
+    await insert(10, from + 60_000); // bucket 0: 10, exactly the threshold: no flood
+    await insert(11, from + 10 * 60_000); // bucket 1 starts at 10 min: 11 > 10, a flood
+    await insert(5, from + 25 * 60_000, 'start'); // bucket 2: suppressed only
+    await insert(1, from + 30 * 60_000); // at `to`: outside [from, to)
+    const r = await (await h.agent('analyst')).get(`/api/v1/plants/${p.plantId}/alarms/summary?from=${new Date(from).toISOString()}&to=${new Date(from + 30 * 60_000).toISOString()}`);
+    expect(r.status).toBe(200);
+    expect(r.body).toMatchObject({ bucket_min: 10, floodThreshold: 10, floodBuckets: 1 });
+    expect(r.body.buckets).toEqual([
+      { from: '2026-01-01T00:00:00.000Z', raised: 10, suppressed: 0, flood: false },
+      { from: '2026-01-01T00:10:00.000Z', raised: 11, suppressed: 0, flood: true },
+      { from: '2026-01-01T00:20:00.000Z', raised: 0, suppressed: 5, flood: false },
+    ]);
+  });
+
+  it('shelving: operator+, audited, expires on the engine clock; a new occurrence during the shelf stays shelved', async () => {
+    const p = await raisedLowMlss();
+    const url = `/api/v1/alarms/${p.alarm.id}/shelve`;
+    expect((await (await h.agent('analyst')).post(url).send({ minutes: 5, reason: 'probe cleaning' })).status).toBe(403);
+    const op = await h.agent('operator');
+    expect((await op.post(url).send({ minutes: 481, reason: 'too long' })).status).toBe(422);
+    const r = await op.post(url).send({ minutes: 5, reason: 'probe cleaning' });
+    expect(r.status).toBe(200);
+    expect(r.body).toMatchObject({ shelvedBy: h.users.operator.id, shelveReason: 'probe cleaning' });
+    const audit = await h.ctx.db.pool.query(`SELECT details FROM audit_log WHERE action = 'alarm.shelve' AND target = $1`, [`alarm:${p.alarm.id}`]);
+    expect(audit.rows[0].details).toMatchObject({ minutes: 5, reason: 'probe cleaning' });
+    // Clears and comes back while shelved: the new occurrence carries the shelf (not annunciated).
+    p.advance(10);
+    await p.mlss(2.3);
+    await p.mlss(1.9);
+    p.advance(ON_DELAY_S);
+    await p.mlss(1.9);
+    const [, again] = await p.mlssAlarms();
+    expect(again).toMatchObject({ state: 'raised', shelve_reason: 'probe cleaning' });
+    expect(again.shelved_until.getTime()).toBeGreaterThan(p.at().getTime());
+    // Past the five minutes on the engine's clock: the shelf is gone, the alarm annunciated again.
+    p.advance(5 * 60);
+    await p.mlss(1.9);
+    const [, expired] = await p.mlssAlarms();
+    expect(expired).toMatchObject({ state: 'raised', shelved_until: null });
+    expect((await op.post(`/api/v1/alarms/${again.id}/unshelve`).send({})).status).toBe(409);
+  });
 });

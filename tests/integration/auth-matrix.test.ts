@@ -1,13 +1,42 @@
 import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { z } from 'zod';
 import { ROLES, roleAtLeast, type Role } from '../../shared/contracts/roles.ts';
 import { apiRoutes } from '../../server/app.ts';
 import { hashToken } from '../../server/auth/api-tokens.ts';
+import { services } from '../../server/app-context.ts';
+import type { RouteDef } from '../../server/http/route.ts';
 import { createTestApp, type TestApp } from '../helpers/app.ts';
+import { seedFixturePlant } from './balance-fixture.ts';
 
 /** Fill Express path parameters with an id that exists in no table (routes answer 404 or 422, never 500). */
 function concrete(path: string): string {
   return path.replace(/:[A-Za-z_]+/g, '999999');
+}
+
+/** Whether a route's query or body schema has a top-level `plantId` key (settings take the plant there). */
+function takesPlantId(schema: z.ZodType | undefined): boolean {
+  return schema instanceof z.ZodObject && 'plantId' in schema.shape;
+}
+
+/** One plant's ids by path-parameter name; `id` is the plant's signal mapping (the one plant-owned `:id`). */
+type PlantIds = { plantId: number; tagId: number; sourceId: number; alarmId: number; id: number };
+
+/** The request a route list entry makes against one plant: its path parameters, and `plantId` in the query or body where the route takes one. */
+function probe(d: RouteDef, ids: PlantIds): { url: string; body: Record<string, unknown>; addressesPlant: boolean } {
+  let addressesPlant = false;
+  const path = d.path.replace(/:([A-Za-z_]+)/g, (_m, name: string) => {
+    const v = ids[name as keyof PlantIds];
+    if (v === undefined) return '999999';
+    // tokens/:id and users/:id are not plant data; every other `:id` route is the signal map.
+    if (name === 'id' && !d.path.startsWith('/signal-map/')) return '999999';
+    addressesPlant = true;
+    return String(v);
+  });
+  const query = takesPlantId(d.query) ? `?plantId=${ids.plantId}` : '';
+  const body: Record<string, unknown> = takesPlantId(d.body) ? { plantId: ids.plantId } : {};
+  if (query || Object.keys(body).length) addressesPlant = true;
+  return { url: `/api/v1${path}${query}`, body, addressesPlant };
 }
 
 describe('role matrix over every /api/v1 route', () => {
@@ -34,6 +63,65 @@ describe('role matrix over every /api/v1 route', () => {
         expect(r.status, `${d.method} ${d.path} as ${role} never 500`).toBeLessThan(500);
       }
     }
+  });
+
+  it('every route with a token scoped to plant A: plant B is 403 (absent from lists), nothing of B leaks or changes; plant A passes', async () => {
+    const a = await seedFixturePlant(h.ctx, { code: 'pa' });
+    // "zq9secret" marks plant B's data: its code, tag addresses, mail recipient, outbox mail.
+    const b = await seedFixturePlant(h.ctx, { code: 'zq9secret' });
+    const pool = h.ctx.db.pool;
+    await services(h.ctx).settings.put(null, { plantId: b.plantId, values: { 'mail.recipients': ['zq9secret@test.invalid'] } });
+    await pool.query(`INSERT INTO mail_outbox (mail_from, rcpt_to, subject, text, raw, size) VALUES ('f@test.invalid', '{zq9secret@test.invalid}', 'zq9secret alarm', 'zq9secret', 'zq9secret', 9)`);
+    const idsOf = async (plantId: number, tagIds: Record<string, number>): Promise<PlantIds> => {
+      const alarm = await pool.query(`INSERT INTO alarms (plant_id, rule, target, priority, state, message, raised_at) VALUES ($1, 'mlss-floor', 'ab1', 2, 'active', 'zq9 test alarm', now()) RETURNING id`, [plantId]);
+      const src = await pool.query('SELECT id FROM sources WHERE plant_id = $1 ORDER BY id LIMIT 1', [plantId]);
+      const map = await pool.query('SELECT id FROM signal_map WHERE plant_id = $1 ORDER BY id LIMIT 1', [plantId]);
+      return { plantId, tagId: Object.values(tagIds)[0]!, sourceId: src.rows[0].id, alarmId: alarm.rows[0].id, id: map.rows[0].id };
+    };
+    const A = await idsOf(a.plantId, a.tagIds);
+    const B = await idsOf(b.plantId, b.tagIds);
+    const snapshotB = async () =>
+      JSON.stringify(
+        await Promise.all(
+          ['settings', 'sources', 'tags', 'signal_map', 'alarms', 'lab_results', 'trains'].map(async (t) => (await pool.query(`SELECT * FROM ${t} WHERE plant_id = $1 ORDER BY 1, 2`, [B.plantId])).rows),
+        ),
+      );
+    const before = await snapshotB();
+
+    const admin = await h.agent('admin');
+    const made = await admin.post('/api/v1/tokens').send({ name: 'plant A only', role: 'admin', expiresInDays: 1, plantIds: [A.plantId] });
+    expect(made.status).toBe(201);
+    const auth = { Authorization: `Bearer ${made.body.token}` };
+
+    const defs = apiRoutes(h.ctx).filter((d) => d.role !== 'public' && d.path !== '/auth/login');
+    for (const d of defs) {
+      const p = probe(d, B);
+      const r = await request(h.app)[d.method](p.url).set(auth).send(p.body);
+      const what = `${d.method} ${p.url} with a plant-A token`;
+      expect(r.status, `${what} never 500`).toBeLessThan(500);
+      if (r.status < 300) expect(JSON.stringify(r.body) + r.text, `${what} leaks plant B`).not.toMatch(/zq9secret/);
+      // A read of plant B is refused outright; a write may fail its body validation first (422), never succeed.
+      if (p.addressesPlant) expect(d.method === 'get' ? [403] : [403, 422], `${what}: ${r.status} ${r.text.slice(0, 200)}`).toContain(r.status);
+    }
+    expect(await snapshotB(), 'plant B unchanged').toBe(before);
+
+    // The same token reads its own plant A: every plant read (not the SSE stream, whose answer never ends) passes the scope check.
+    for (const d of defs.filter((x) => x.method === 'get' && x.produces !== 'text/event-stream')) {
+      const p = probe(d, A);
+      if (!p.addressesPlant || d.path.startsWith('/sources/')) continue; // source test/browse/discovery would dial the fixture's dead endpoints
+      const r = await request(h.app).get(p.url).set(auth);
+      expect(r.status, `GET ${p.url} of its own plant: ${r.text.slice(0, 200)}`).toBe(200);
+    }
+    // Lists keep only plant A's rows; the global settings and the outbox span every plant.
+    const plants = await request(h.app).get('/api/v1/plants').set(auth);
+    expect(plants.body.map((x: { id: number }) => x.id)).toEqual([A.plantId]);
+    expect((await request(h.app).get('/api/v1/settings?plantId=0').set(auth)).status).toBe(403);
+    expect((await request(h.app).put('/api/v1/settings').set(auth).send({ plantId: B.plantId, values: { 'alarm.on_delay_s': 1 } })).status).toBe(403);
+    expect((await request(h.app).put('/api/v1/settings').set(auth).send({ plantId: 0, values: { 'mail.recipients': ['x@test.invalid'] } })).status).toBe(403);
+    expect((await request(h.app).put('/api/v1/settings').set(auth).send({ plantId: A.plantId, values: { 'alarm.on_delay_s': 1 } })).status).toBe(200);
+    expect((await request(h.app).get('/api/v1/outbox').set(auth)).status).toBe(403);
+    expect((await admin.get('/api/v1/outbox')).body.some((m: { subject: string }) => m.subject === 'zq9secret alarm')).toBe(true);
+    expect(await snapshotB(), 'plant B unchanged').toBe(before);
   });
 
   it('plant scope: a token scoped to one plant gets 403 on every plant route of another plant', async () => {
@@ -149,7 +237,7 @@ describe('role matrix over every /api/v1 route', () => {
     const cookie = String(r.headers['set-cookie']);
     expect(cookie).toMatch(/HttpOnly/);
     expect(cookie).toMatch(/SameSite=Strict/);
-    const out = await request(h.app).post('/api/v1/auth/logout').set('Cookie', cookie.split(';')[0]!);
+    const out = await request(h.app).post('/api/v1/auth/logout').set('Cookie', cookie.split(';')[0]!).set('Sec-Fetch-Site', 'same-origin');
     expect(String(out.headers['set-cookie'])).toMatch(/flocstream_session=;/);
     const forged = await request(h.app).get('/api/v1/auth/me').set('Cookie', 'flocstream_session=eyJhbGciOiJIUzI1NiJ9.eyJzdWIiOiIxIn0.AAAA');
     expect(forged.status).toBe(401);

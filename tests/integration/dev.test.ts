@@ -3,7 +3,7 @@ import os from 'node:os';
 import path from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { portInUse } from '../../server/db/local-postgres.ts';
-import { pgRunning, processesMatching, root, runLauncher } from '../helpers/launcher.ts';
+import { launcherEnv, pgRunning, processesMatching, root, runLauncher } from '../helpers/launcher.ts';
 
 /**
  * `npm run dev` as a person runs it: PostgreSQL, broker, simulator and ingest as under npm start,
@@ -12,15 +12,7 @@ import { pgRunning, processesMatching, root, runLauncher } from '../helpers/laun
 const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-dev-'));
 const base = 20000 + Math.floor(Math.random() * 20000);
 const vitePort = base + 4;
-const env: NodeJS.ProcessEnv = {
-  ...process.env,
-  FLOCSTREAM_DATA_DIR: dataDir,
-  PORT: String(base),
-  FLOCSTREAM_PG_PORT: String(base + 1),
-  FLOCSTREAM_MQTT_PORT: String(base + 2),
-  FLOCSTREAM_SIM_OPCUA_PORT: String(base + 3),
-};
-delete env.DATABASE_URL;
+const env = launcherEnv(dataDir, base);
 
 describe('npm run dev and Ctrl-C', () => {
   afterAll(() => fs.rmSync(dataDir, { recursive: true, force: true }));

@@ -64,7 +64,7 @@ describe('read-path caches', () => {
     expect((await request(other.app).get('/api/v1/plants').set('Authorization', bearer)).status).toBe(401);
   });
 
-  it('a disabled user is refused on the next request (session and token), a role change applies at once', async () => {
+  it('a disabled user is refused on the next request (session and token), a role change applies at once (and ends the session)', async () => {
     const admin = await h.agent('admin');
     const integrator = await h.agent('integrator');
     const made = await integrator.post('/api/v1/tokens').send({ name: 'mine', role: 'integrator', expiresInDays: 1 });
@@ -74,7 +74,9 @@ describe('read-path caches', () => {
     expect(credentialCache(h.ctx).size).toBeGreaterThan(0);
 
     expect((await admin.patch(`/api/v1/users/${h.users.integrator.id}`).send({ role: 'analyst' })).status).toBe(200);
-    expect((await integrator.get('/api/v1/auth/me')).body.role).toBe('analyst');
+    // The role change ended the session (server/services/user.service.ts); a new one has the new role.
+    expect((await integrator.get('/api/v1/auth/me')).status).toBe(401);
+    expect((await (await h.agent('integrator')).get('/api/v1/auth/me')).body.role).toBe('analyst');
     // A token's role is capped by its owner's.
     expect((await request(h.app).get('/api/v1/auth/me').set('Authorization', bearer)).body.role).toBe('analyst');
 

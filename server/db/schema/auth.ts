@@ -38,6 +38,29 @@ export const apiTokens = pgTable(
   (t) => [uniqueIndex('api_tokens_hash_uq').on(t.tokenHash), index('api_tokens_user_idx').on(t.userId)],
 );
 
+/**
+ * Signed-in sessions, one row per sign-in. The session cookie is a signed JWT that names its row
+ * (`sid`); a session is valid only while its row is neither revoked nor expired, so sign-out, a
+ * password or role change, and disabling a user end it at once (OWASP Session Management Cheat
+ * Sheet: server-side invalidation). The id is 128 random bits, base64url.
+ */
+export const sessions = pgTable(
+  'sessions',
+  {
+    id: text('id').primaryKey(),
+    userId: integer('user_id')
+      .notNull()
+      .references(() => users.id, { onDelete: 'cascade' }),
+    createdAt: timestamp('created_at', { withTimezone: true }).notNull().defaultNow(),
+    lastSeenAt: timestamp('last_seen_at', { withTimezone: true }).notNull().defaultNow(),
+    expiresAt: timestamp('expires_at', { withTimezone: true }).notNull(),
+    revokedAt: timestamp('revoked_at', { withTimezone: true }),
+    userAgent: text('user_agent'),
+    ip: text('ip'),
+  },
+  (t) => [index('sessions_user_idx').on(t.userId)],
+);
+
 export const auditLog = pgTable(
   'audit_log',
   {

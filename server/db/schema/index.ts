@@ -5,3 +5,4 @@ export * from './process.ts';
 export * from './samples.ts';
 export * from './mail.ts';
 export * from './ingest.ts';
+export * from './history.ts';

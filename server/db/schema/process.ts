@@ -1,4 +1,4 @@
-import { bigserial, doublePrecision, index, integer, jsonb, pgTable, serial, smallint, text, timestamp, primaryKey, bigint } from 'drizzle-orm/pg-core';
+import { bigserial, boolean, doublePrecision, index, integer, jsonb, pgTable, serial, smallint, text, timestamp, primaryKey, bigint } from 'drizzle-orm/pg-core';
 import { plants } from './plant.ts';
 import { tags } from './wiring.ts';
 
@@ -42,6 +42,8 @@ export const balances = pgTable(
     quality: text('quality', { enum: ['good', 'estimated', 'unavailable'] }).notNull(),
     data: jsonb('data').notNull(),
     inputs: jsonb('inputs').notNull(),
+    /** Computed afterwards over imported history (server/jobs/balance-recompute.job.ts), not live. */
+    recomputed: boolean('recomputed').notNull().default(false),
   },
   (t) => [index('balances_plant_ts_idx').on(t.plantId, t.ts)],
 );
@@ -85,6 +87,15 @@ export const alarms = pgTable(
     acknowledgedAt: timestamp('acknowledged_at', { withTimezone: true }),
     acknowledgedBy: integer('acknowledged_by'),
     clearedAt: timestamp('cleared_at', { withTimezone: true }),
+    /**
+     * ISA-18.2 designed suppression: non-null while the alarm's condition holds but it is not
+     * annunciated by design (why); set back to null, with raised_at = the time, when it is annunciated.
+     */
+    suppressedReason: text('suppressed_reason'),
+    /** ISA-18.2 shelving by an operator: not annunciated until this time (null: not shelved). */
+    shelvedUntil: timestamp('shelved_until', { withTimezone: true }),
+    shelvedBy: integer('shelved_by'),
+    shelveReason: text('shelve_reason'),
   },
   (t) => [index('alarms_plant_state_idx').on(t.plantId, t.state)],
 );

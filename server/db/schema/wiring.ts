@@ -44,6 +44,8 @@ export const tags = pgTable(
     rangeLow: doublePrecision('range_low'),
     rangeHigh: doublePrecision('range_high'),
     samplingInterval_ms: integer('sampling_interval_ms'),
+    /** What the value is: analog (a measurement), state (e.g. pump running 0/1) or counter (a running total); only analog values are checked for a flat line. */
+    kind: text('kind', { enum: ['analog', 'state', 'counter'] }).notNull().default('analog'),
     enabled: boolean('enabled').notNull().default(true),
     createdAt: timestamp('created_at', { withTimezone: true }).notNull().defaultNow(),
   },

@@ -8,6 +8,8 @@ import pino from 'pino';
 import { acceptConnection } from '../../../server/broker/embedded-broker.ts';
 import { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
 import type { IngestConfig } from '../../../ingest/config.ts';
+import type { IngestService } from '../../../ingest/ingest-service.ts';
+import { waitFor as waitUntil } from '../../helpers/wait.ts';
 export { freePort } from '../../helpers/net.ts';
 
 export const silentLog = pino({ level: 'silent' });
@@ -31,7 +33,8 @@ export interface TestBroker {
   port: number;
   broker: Aedes;
   stop(): Promise<void>;
-  restart(downMs?: number): Promise<void>;
+  /** Stops the broker, waits until `down()` holds (e.g. ingest has seen the connection go), starts it again on the same port and store. */
+  restart(down: () => boolean | Promise<boolean>): Promise<void>;
   close(): Promise<void>;
 }
 
@@ -66,9 +69,9 @@ export async function startTestBroker(port: number): Promise<TestBroker> {
       return broker;
     },
     stop,
-    async restart(downMs = 500) {
+    async restart(down) {
       await stop();
-      await new Promise((r) => setTimeout(r, downMs));
+      await waitUntil(down, undefined, { what: 'the clients to see the broker down', timeout_ms: 15_000 });
       broker = await Aedes.createBroker({ persistence } as Parameters<typeof Aedes.createBroker>[0]);
       await listen();
     },
@@ -106,19 +109,40 @@ export async function seedWiring(url: string, opts: { kind: 'mqtt' | 'opcua'; so
   }
 }
 
+/**
+ * Polls `fn` until `ok` holds, with a deadline (tests/helpers/wait.ts); a probe that throws
+ * counts as not yet (the database may be down on purpose).
+ */
 export async function waitFor<T>(what: string, fn: () => Promise<T>, ok: (v: T) => boolean, timeoutMs = 30_000, everyMs = 100): Promise<T> {
-  const end = Date.now() + timeoutMs;
-  let last: T | undefined;
-  for (;;) {
+  const probe = async (): Promise<{ v: T } | { err: string }> => {
     try {
-      last = await fn();
-      if (ok(last)) return last;
-    } catch {
-      // the database may be down on purpose; keep polling
+      return { v: await fn() };
+    } catch (e) {
+      return { err: (e as Error).message };
     }
-    if (Date.now() > end) throw new Error(`timed out waiting for ${what}; last value ${JSON.stringify(last)}`);
-    await new Promise((r) => setTimeout(r, everyMs));
-  }
+  };
+  const r = await waitUntil(probe, (x) => 'v' in x && ok(x.v), { what, timeout_ms: timeoutMs, every_ms: everyMs });
+  return (r as { v: T }).v;
+}
+
+/**
+ * Resolves once nothing is in flight between the broker and ingest: the broker's queue for
+ * `clientId` is empty (every message it sent was acknowledged, none waits for a reconnect) and,
+ * when `svc` is given, ingest holds no unacknowledged message and no unwritten row. A count read
+ * after this is final; a duplicate still on its way would be in one of those places.
+ */
+export async function drained(broker: TestBroker, clientId: string, svc?: IngestService, timeoutMs = 20_000): Promise<void> {
+  const store = (broker.broker as unknown as { persistence: IndexedMemoryPersistence }).persistence;
+  await waitFor(
+    `nothing in flight for ${clientId}`,
+    async () => {
+      const src = svc?.status().sources[0];
+      return { queued: store.outgoingCount(clientId), unacknowledged: src?.unacknowledged ?? 0, backlog: svc?.writer.stats.backlog ?? 0 };
+    },
+    (x) => x.queued === 0 && x.unacknowledged === 0 && x.backlog === 0,
+    timeoutMs,
+    20,
+  );
 }
 
 export async function scalar(pool: pg.Pool, sql: string, params: unknown[] = []): Promise<number> {

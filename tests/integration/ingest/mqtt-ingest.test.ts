@@ -4,7 +4,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { IngestService } from '../../../ingest/ingest-service.ts';
 import type { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
 import { createTestDatabase, type TestDatabase } from '../../helpers/db.ts';
-import { freePort, ingestConfig, scalar, seedWiring, silentLog, startTestBroker, tempDir, waitFor, type TestBroker } from './helpers.ts';
+import { drained, freePort, ingestConfig, scalar, seedWiring, silentLog, startTestBroker, tempDir, waitFor, type TestBroker } from './helpers.ts';
 
 const TAGS = 20;
 
@@ -36,6 +36,8 @@ describe('MQTT → PostgreSQL', () => {
   let pub: MqttClient;
   let tagIds: number[];
   const dataDir = tempDir('mqtt-it');
+  /** Ingest's MQTT client identifier at the broker (prefix and source id). */
+  const ingestClientId = () => 'it-ingest-' + (svc.status().sources[0]?.sourceId ?? 0);
 
   beforeAll(async () => {
     t = await createTestDatabase();
@@ -69,7 +71,7 @@ describe('MQTT → PostgreSQL', () => {
     const q = `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`;
     const range = [ids, new Date(t0), new Date(t0 + 86_400_000)];
     await waitFor('N rows', () => scalar(pool, q, range), (n) => n >= N);
-    await new Promise((r) => setTimeout(r, 500));
+    await drained(broker, ingestClientId(), svc);
     expect(await scalar(pool, q, range)).toBe(N);
     // Rollups count each inserted sample once.
     expect(await scalar(pool, `SELECT sum(count) FROM rollup_1m WHERE tag_id = ANY($1) AND bucket >= $2 AND bucket < $3`, range)).toBe(N);
@@ -139,7 +141,9 @@ describe('MQTT → PostgreSQL', () => {
       await locker.query('LOCK TABLE samples IN ACCESS EXCLUSIVE MODE');
       await publishSeries(pub, N, t0);
       await waitFor('pressure', async () => svc.status().writer.pressureEvents, (n) => n > pressureBefore, 10_000);
-      await new Promise((r) => setTimeout(r, 1_000));
+      // Intake paused: mqtt.js's callback for the message in hand is held, and mqtt.js handles
+      // one message at a time, so nothing more is read until the backlog falls.
+      await waitFor('intake paused', async () => svc.status().sources[0]!.details.paused, (p) => p === true, 10_000);
       // at most the high-water mark plus the message being handled when it was reached
       const held = received() - receivedBefore;
       expect(held).toBeGreaterThanOrEqual(1_000);
@@ -151,7 +155,7 @@ describe('MQTT → PostgreSQL', () => {
       locker.release();
     }
     await waitFor('N rows after the pause', () => scalar(pool, q, range), (n) => n >= N, 20_000);
-    await new Promise((r) => setTimeout(r, 300));
+    await drained(broker, ingestClientId(), svc);
     expect(await scalar(pool, q, range)).toBe(N);
     expect(received() - receivedBefore).toBe(N);
   });
@@ -169,11 +173,12 @@ describe('MQTT → PostgreSQL', () => {
       await locker.query('LOCK TABLE dead_letters IN ACCESS EXCLUSIVE MODE');
       for (let i = 0; i < N; i++) await pub.publishAsync('bad/value', `{"v": "not a number ${i}"}`, { qos: 1 });
       await waitFor('ingest holding the messages', async () => svc.status().sources[0]!.unacknowledged, (n) => n >= N, 10_000);
-      await new Promise((r) => setTimeout(r, 300));
+      // The writer's insert waits on the lock, so its commit is what the dropped connection misses.
+      await waitFor('writer waiting on the dead_letters lock', () => scalar(pool, `SELECT count(*) FROM pg_locks WHERE NOT granted`), (n) => n >= 1, 10_000);
       const client = (broker.broker as unknown as { clients: Record<string, { close(): void }> }).clients[ingestId];
       expect(client).toBeDefined();
       client!.close();
-      await new Promise((r) => setTimeout(r, 200));
+      await waitFor('ingest saw the connection drop', async () => svc.status().sources[0]?.state, (st) => st !== 'connected', 10_000);
       await locker.query('COMMIT');
     } finally {
       await locker.query('ROLLBACK').catch(() => {});
@@ -183,7 +188,7 @@ describe('MQTT → PostgreSQL', () => {
     await waitFor('N dead letters', () => scalar(pool, `SELECT count(*) FROM dead_letters WHERE address = 'bad/value'`), (n) => n >= before + N, 15_000);
     // Give the redelivery time to arrive and be recognised.
     await waitFor('redeliveries recognised', async () => Number(svc.status().sources[0]!.details.redelivered ?? 0), (n) => n > 0, 15_000);
-    await new Promise((r) => setTimeout(r, 1_000));
+    await drained(broker, ingestId, svc);
     expect(await scalar(pool, `SELECT count(*) FROM dead_letters WHERE address = 'bad/value'`)).toBe(before + N);
   });
 
@@ -208,7 +213,7 @@ describe('MQTT → PostgreSQL', () => {
       }
       await Promise.all(ps);
       await waitFor('600 PUBACKs from ingest', async () => acks.cleared + acks.stray, (n) => n >= 600, 15_000);
-      await new Promise((r) => setTimeout(r, 300));
+      await drained(broker, ingestId, svc);
       expect(acks).toEqual({ cleared: 600, stray: 0 });
     } finally {
       broker.broker.off('ack', onAck);
@@ -229,7 +234,7 @@ describe('MQTT → PostgreSQL', () => {
         // broker — observed as exactly 100 (mqemitter's default concurrency) missing rows.
         // Ingest still holds PUBACKs of its unflushed batch here, so the broker redelivers those.
         await waitFor('broker drained to ingest', async () => svc.status().sources[0]!.messages, (m) => m >= sentBefore + sent, 10_000);
-        await broker.restart(700);
+        await broker.restart(() => svc.status().sources[0]?.state !== 'connected');
       }
     });
     expect(restarted).toBe(true);
@@ -241,7 +246,7 @@ describe('MQTT → PostgreSQL', () => {
       console.log('MISSING', r.rows.length, r.rows.slice(0, 5), r.rows.slice(-5));
       throw e;
     });
-    await new Promise((r) => setTimeout(r, 500));
+    await drained(broker, ingestClientId(), svc);
     expect(await scalar(pool, q, range)).toBe(N);
     expect(await scalar(pool, `SELECT sum(count) FROM rollup_1m WHERE tag_id = ANY($1) AND bucket >= $2 AND bucket < $3`, range)).toBe(N);
     expect(svc.status().sources[0]?.reconnects).toBeGreaterThanOrEqual(1);
@@ -292,7 +297,7 @@ describe('MQTT → PostgreSQL', () => {
     await waitFor('dead letters', () => scalar(pool, `SELECT count(*) FROM dead_letters`), (n) => n >= dlBefore + deadExpected, 30_000);
     const range = [tagIds.slice(0, TAGS), new Date(t0), new Date(t0 + 86_400_000)];
     await waitFor('good rows', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range), (n) => n >= good);
-    await new Promise((r) => setTimeout(r, 300));
+    await drained(broker, ingestClientId(), svc, 30_000);
     expect(await scalar(pool, `SELECT count(*) FROM dead_letters`)).toBe(dlBefore + deadExpected);
     expect(await scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range)).toBe(good);
     const after = svc.status().sources[0]!;

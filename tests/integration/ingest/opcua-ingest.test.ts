@@ -76,7 +76,8 @@ describe('OPC UA → PostgreSQL', () => {
     ];
     for (const [ts, v, sc] of steps) {
       level.setValueFromSource({ dataType: DataType.Double, value: v }, sc, new Date(ts));
-      await new Promise((r) => setTimeout(r, 250));
+      // Each change stored before the next is made, so the subscription's sampling never merges two.
+      await waitFor(`sample at ${new Date(ts).toISOString()}`, () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = $1 AND ts = $2`, [tagIds[0], new Date(ts)]), (n) => n === 1, 15_000);
     }
     const q = `SELECT (extract(epoch FROM ts) * 1000)::float8 ms, value, quality FROM samples WHERE tag_id = $1 AND ts >= $2 ORDER BY ts`;
     const rows = await waitFor('four samples', async () => (await pool.query(q, [tagIds[0], new Date(base)])).rows, (r) => r.length === 4, 15_000);

@@ -7,7 +7,7 @@ import { IngestService } from '../../../ingest/ingest-service.ts';
 import { startLocalPostgres, type LocalPostgres } from '../../../server/db/local-postgres.ts';
 import { runMigrations } from '../../../server/db/migrate.ts';
 import { createTestDatabase } from '../../helpers/db.ts';
-import { freePort, ingestConfig, scalar, seedWiring, silentLog, startTestBroker, tempDir, waitFor } from './helpers.ts';
+import { drained, freePort, ingestConfig, scalar, seedWiring, silentLog, startTestBroker, tempDir, waitFor } from './helpers.ts';
 
 const TAGS = 10;
 const ROOT = path.resolve(import.meta.dirname, '../../..');
@@ -16,7 +16,8 @@ function message(k: number, t0: number): [string, string] {
   return [`o/tag${k % TAGS}`, JSON.stringify({ v: k, ts: new Date(t0 + Math.floor(k / TAGS) * 10).toISOString() })];
 }
 
-async function publishRange(c: MqttClient, from: number, to: number, t0: number, pauseMs = 0): Promise<void> {
+/** Publishes messages [from, to) in windows of 500, each window's PUBACKs awaited before the next (the broker paces the stream). */
+async function publishRange(c: MqttClient, from: number, to: number, t0: number): Promise<void> {
   for (let i = from; i < to; i += 500) {
     await Promise.all(
       Array.from({ length: Math.min(500, to - i) }, (_, j) => {
@@ -24,7 +25,6 @@ async function publishRange(c: MqttClient, from: number, to: number, t0: number,
         return c.publishAsync(topic, p, { qos: 1 });
       }),
     );
-    if (pauseMs) await new Promise((r) => setTimeout(r, pauseMs));
   }
 }
 
@@ -54,20 +54,20 @@ describe('outages', () => {
 
     const N = 20_000;
     const t0 = Date.UTC(2026, 1, 1);
-    await publishRange(pub, 0, 5_000, t0, 20);
+    await publishRange(pub, 0, 5_000, t0);
     cluster.stop();
     // Publishing goes on while the database is down: acknowledgements now come from the spool.
-    await publishRange(pub, 5_000, 12_000, t0, 20);
+    await publishRange(pub, 5_000, 12_000, t0);
     await waitFor('spooled', async () => svc.writer.stats.spooledSamples, (n) => n > 0, 10_000);
     expect(svc.writer.stats.dbState).toBe('down');
     cluster = await startLocalPostgres({ dataDir: pgDir, port: pgPort });
-    await publishRange(pub, 12_000, N, t0, 20);
+    await publishRange(pub, 12_000, N, t0);
 
     const pool = new pg.Pool({ connectionString: url, max: 2 });
     cleanups.push(() => pool.end());
     const range = [tagIds, new Date(t0), new Date(t0 + 86_400_000)];
     await waitFor('N rows after the outage', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range), (n) => n >= N, 30_000);
-    await new Promise((r) => setTimeout(r, 500));
+    await drained(broker, `it-ingest-${svc.status().sources[0]!.sourceId}`, svc, 30_000);
     expect(await scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range)).toBe(N);
     expect(await scalar(pool, `SELECT count(DISTINCT value) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range)).toBe(N);
     expect(await scalar(pool, `SELECT sum(count) FROM rollup_1m WHERE tag_id = ANY($1) AND bucket >= $2 AND bucket < $3`, range)).toBe(N);
@@ -89,6 +89,11 @@ describe('outages', () => {
     (broker.broker as unknown as NodeJS.EventEmitter).on('ack', (packet: { payload?: Buffer } | undefined, client: { id: string } | undefined) => {
       if (client?.id.startsWith(clientId) && packet?.payload) acked.add((JSON.parse(packet.payload.toString()) as { v: number }).v);
     });
+    // aedes announces each SUBSCRIBE it has stored: messages published after it reach ingest.
+    let subscribed = false;
+    (broker.broker as unknown as NodeJS.EventEmitter).on('subscribe', (_subs: unknown, client: { id: string } | undefined) => {
+      if (client?.id.startsWith(clientId)) subscribed = true;
+    });
     const spawnIngest = (): ChildProcess => {
       // `node --import tsx`: one process, so SIGKILL hits ingest itself (the tsx CLI would run it
       // in a child that survives the parent's SIGKILL).
@@ -105,20 +110,19 @@ describe('outages', () => {
     let child = spawnIngest();
     const pool = new pg.Pool({ connectionString: t.url, max: 2 });
     cleanups.push(() => pool.end());
-    await waitFor('ingest subscribed', async () => Object.keys((broker.broker as unknown as { clients: Record<string, unknown> }).clients).some((id) => id.startsWith(clientId)), (x) => x, 30_000);
-    await new Promise((r) => setTimeout(r, 300));
+    await waitFor('ingest subscribed', async () => subscribed, (x) => x, 30_000);
     const pub = await mqtt.connectAsync(broker.url, { clientId: 'kill-pub', clean: false, protocolVersion: 4 });
     cleanups.push(() => pub.endAsync());
     const N = 20_000;
     const t0 = Date.UTC(2026, 1, 2);
-    await publishRange(pub, 0, 8_000, t0, 10);
+    await publishRange(pub, 0, 8_000, t0);
     await waitFor('some acknowledged', async () => acked.size, (n) => n > 1_000, 10_000);
     child.kill('SIGKILL');
     await new Promise<void>((r) => child.once('exit', () => r()));
     const ackedAtKill = [...acked];
-    await publishRange(pub, 8_000, 14_000, t0, 10);
+    await publishRange(pub, 8_000, 14_000, t0);
     child = spawnIngest();
-    await publishRange(pub, 14_000, N, t0, 10);
+    await publishRange(pub, 14_000, N, t0);
 
     const range = [tagIds, new Date(t0), new Date(t0 + 86_400_000)];
     await waitFor('N rows after restart', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range), (n) => n >= N, 40_000);

@@ -29,9 +29,13 @@ describe('one unit table, per dimension', () => {
   it('a unit of another dimension or an unknown symbol is refused, not scaled', () => {
     expect(unitFactor('concentration', 'm')).toBeNull();
     expect(unitFactor('length', 'mg/L')).toBeNull();
-    expect(unitFactor('flow', 'gpm')).toBeNull();
+    expect(unitFactor('flow', 'furlong/fortnight')).toBeNull();
+    expect(unitFactor('concentration', 'gpm')).toBeNull();
     expect(toBaseUnit(3, 'concentration', 'm3/h')).toBeNull();
     expect(unitFactor('flow', ' m3/h ')).toBe(1); // surrounding blanks of a typed tag unit are ignored
+  });
+  it('US gallon per minute: 231 in³ × 0.0254³ m³/in³ × 60 min/h = 0.227 124 707 04 m³/h (NIST SP 811 App. B.9; NIST Handbook 44 App. C)', () => {
+    expect(unitFactor('flow', 'gpm')).toBeCloseTo(0.22712470704, 12);
   });
   it('every base unit converts with factor 1, and to and from the base unit are inverse', () => {
     for (const d of Object.values(UNITS)) expect(d.factors[d.base]).toBe(1);

@@ -32,12 +32,12 @@ afterEach(() => {
   for (const d of dirs.splice(0)) fs.rmSync(d, { recursive: true, force: true });
 });
 
-async function setup(plan: (first: number) => { delayMs: number; fail?: Error }, lanes = 2) {
+async function setup(plan: (first: number) => { delayMs: number; fail?: Error }, lanes = 2, now?: () => number) {
   const dir = fs.mkdtempSync(path.join(os.tmpdir(), 'bw-'));
   dirs.push(dir);
   const spool = await Spool.open(dir);
   const stores = Array.from({ length: lanes }, () => new FakeStore(plan));
-  const writer = new BatchWriter(stores as unknown as SampleStore[], spool, { batchRows: 1_000_000, flushMs: 10_000, log: pino({ level: 'silent' }) });
+  const writer = new BatchWriter(stores as unknown as SampleStore[], spool, { batchRows: 1_000_000, flushMs: 10_000, log: pino({ level: 'silent' }), now });
   return { writer, stores, spool };
 }
 
@@ -87,15 +87,21 @@ describe('BatchWriter with two database connections', () => {
   it('while anything is spooled, new batches wait their turn behind the replay (no early commit)', async () => {
     let down = true;
     const seen: number[] = [];
-    const { writer } = await setup((first) => {
-      seen.push(first);
-      return down ? { delayMs: 1, fail: transient() } : { delayMs: 1 };
-    }, 2);
+    // The writer's retry backoff on an injected clock: stepped past it instead of waited out.
+    let clock_ms = 1_000_000;
+    const { writer } = await setup(
+      (first) => {
+        seen.push(first);
+        return down ? { delayMs: 1, fail: transient() } : { delayMs: 1 };
+      },
+      2,
+      () => clock_ms,
+    );
     writer.enqueue([sample(0)], []);
     await writer.flush();
     expect(writer.stats.spooledSamples).toBe(1);
     down = false;
-    await new Promise((r) => setTimeout(r, 300));
+    clock_ms += 250; // the first backoff after a failure
     seen.length = 0;
     writer.enqueue([sample(10)], []);
     await writer.flush();

@@ -12,7 +12,7 @@ import { encodeSamplesBinary } from '../../../ingest/sink/copy-binary.ts';
 import { QUALITY_FLAG, qualityFlags, qualityGrade } from '../../../shared/contracts/sample-quality.ts';
 import { mulberry32 } from '../domain/prng.js';
 
-const tag = (over: Partial<TagConfig> = {}): TagConfig => ({ id: 7, sourceId: 1, address: 'a/b', scaleGain: 1, scaleOffset: 0, deadband: 0, expectedPeriod_s: 10, rangeLow: null, rangeHigh: null, samplingInterval_ms: null, ...over });
+const tag = (over: Partial<TagConfig> = {}): TagConfig => ({ id: 7, sourceId: 1, address: 'a/b', scaleGain: 1, scaleOffset: 0, deadband: 0, expectedPeriod_s: 10, rangeLow: null, rangeHigh: null, samplingInterval_ms: null, kind: 'analog', ...over });
 
 describe('topic filters (MQTT 5.0 §4.7)', () => {
   it('matches + and # as the spec examples do', () => {
@@ -87,6 +87,14 @@ describe('TagProcessor', () => {
     const late = p.process(3, t0 + 600_000, 'good', t0);
     expect(isSample(late) && qualityFlags(late.quality)).toEqual(['flatLine']);
     expect(p.process(4, t0 + 600_001, 'good', t0)).toMatchObject({ quality: 0 });
+  });
+  it('never flags a state or counter tag flat-lined (a pump-running state holds still by nature)', () => {
+    for (const kind of ['state', 'counter'] as const) {
+      const p = new TagProcessor(tag({ expectedPeriod_s: 1, kind }), { flatLinePeriods: 600, futureSkewMs: 1e12, deadbandMaxPeriods: 10 });
+      expect(p.process(1, 0, 'good', 0)).toMatchObject({ quality: 0 });
+      // Held for ten times the analog window: still good.
+      expect(p.process(1, 6_000_000, 'good', 0)).toMatchObject({ quality: 0 });
+    }
   });
   it('drops samples inside the deadband but stores one per max interval', () => {
     const p = new TagProcessor(tag({ deadband: 0.5, expectedPeriod_s: 1 }));

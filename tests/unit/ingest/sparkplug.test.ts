@@ -202,7 +202,7 @@ describe('SparkplugState', () => {
 });
 
 describe('MqttMessageHandler with Sparkplug B', () => {
-  const tag = (id: number, address: string): TagConfig => ({ id, sourceId: 1, address, scaleGain: 1, scaleOffset: 0, deadband: 0, expectedPeriod_s: 10, rangeLow: null, rangeHigh: null, samplingInterval_ms: null });
+  const tag = (id: number, address: string): TagConfig => ({ id, sourceId: 1, address, scaleGain: 1, scaleOffset: 0, deadband: 0, expectedPeriod_s: 10, rangeLow: null, rangeHigh: null, samplingInterval_ms: null, kind: 'analog' });
 
   it('maps metrics by address, writes bad samples at a death, dead-letters mapped unreadable metrics, lists metrics in discovery', () => {
     const tags = new TagSet();

@@ -23,6 +23,21 @@ function fakeAlarmRepo(rows: AlarmRow[]) {
     async clear(): Promise<AlarmRow | null> {
       throw new Error('not used here');
     },
+    async annunciate(): Promise<AlarmRow | null> {
+      throw new Error('not used here');
+    },
+    async shelve(): Promise<AlarmRow | null> {
+      throw new Error('not used here');
+    },
+    async byId(id: number) {
+      return rows.find((r) => r.id === id) ?? null;
+    },
+    async tagStarts(): Promise<Map<string, number>> {
+      throw new Error('not used here');
+    },
+    async raisedPerBucket(): Promise<{ bucket: number; raised: number; suppressed: number }[]> {
+      throw new Error('not used here');
+    },
     async acknowledge(plantId: number, id: number, userId: number, at: Date) {
       const r = rows.find((x) => x.plantId === plantId && x.id === id && x.acknowledgedAt === null);
       if (!r) return null;
@@ -46,6 +61,10 @@ const row = (id: number, state: AlarmRow['state'], clearedAt: Date | null = null
   acknowledgedAt: null,
   acknowledgedBy: null,
   clearedAt,
+  suppressedReason: null,
+  shelvedUntil: null,
+  shelvedBy: null,
+  shelveReason: null,
 });
 
 function setup() {

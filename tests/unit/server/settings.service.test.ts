@@ -1,9 +1,9 @@
 import { describe, expect, it } from 'vitest';
 import { SETTINGS } from '../../../shared/contracts/settings.ts';
-import { NotFoundError } from '../../../server/http/errors.ts';
+import { ForbiddenError, NotFoundError } from '../../../server/http/errors.ts';
 import type { PlantRow } from '../../../server/repositories/plant.repository.ts';
 import { createSettingsService } from '../../../server/services/settings.service.ts';
-import { admin, fakeAudit } from './service-fakes.ts';
+import { admin, fakeAudit, scopedToken } from './service-fakes.ts';
 
 type Row = { plantId: number; key: string; value: unknown; updatedBy: number | null };
 
@@ -41,7 +41,7 @@ describe('settings service with fake repositories (no HTTP, no database)', () =>
     expect(eff['srt.target_d']).toBe(12);
     expect(eff['alarm.on_delay_s']).toBe(0);
     expect(eff['srt.window_h']).toBe(SETTINGS['srt.window_h'].default);
-    const d = await svc.describe(1);
+    const d = await svc.describe(null, 1);
     const src = Object.fromEntries(d.settings.map((s) => [s.key, s.source]));
     expect([src['srt.target_d'], src['alarm.on_delay_s'], src['srt.window_h']]).toEqual(['global', 'plant', 'default']);
     expect((await svc.effective(0))['alarm.on_delay_s']).toBe(30);
@@ -83,5 +83,20 @@ describe('settings service with fake repositories (no HTTP, no database)', () =>
     await svc.put(null, { plantId: 0, values: { 'srt.target_d': 9 } });
     expect(settingsRepo.rows.get('0|srt.target_d')?.updatedBy).toBeNull();
     expect(audit.entries[0]?.actor).toBeNull();
+  });
+
+  it('a plant-scoped token reads and writes only its own plants: another plant and the global level are 403, nothing written', async () => {
+    const settingsRepo = fakeSettingsRepo([{ plantId: 0, key: 'mail.recipients', value: ['chief@kestrel.invalid'], updatedBy: 1 }]);
+    const audit = fakeAudit();
+    const svc = createSettingsService({ settingsRepo, plantRepo, audit });
+    const scopedAdmin = { ...scopedToken, role: 'admin' as const }; // scoped to plant 2 only
+    await expect(svc.describe(scopedAdmin, 1)).rejects.toBeInstanceOf(ForbiddenError);
+    await expect(svc.describe(scopedAdmin, 0)).rejects.toBeInstanceOf(ForbiddenError);
+    await expect(svc.put(scopedAdmin, { plantId: 1, values: { 'alarm.on_delay_s': 0 } })).rejects.toBeInstanceOf(ForbiddenError);
+    await expect(svc.put(scopedAdmin, { plantId: 0, values: { 'mail.recipients': ['x@evil.invalid'] } })).rejects.toBeInstanceOf(ForbiddenError);
+    expect(settingsRepo.rows.size).toBe(1);
+    expect(audit.entries).toEqual([]);
+    // Its own plant 2 passes the scope check and is then judged on existence (the fake knows only plant 1).
+    await expect(svc.describe(scopedAdmin, 2)).rejects.toBeInstanceOf(NotFoundError);
   });
 });

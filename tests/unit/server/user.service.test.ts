@@ -46,11 +46,17 @@ function fakeCredentials() {
   return { changed, credentialsChanged: async (c: unknown) => void changed.push(c) };
 }
 
+/** Records whose sessions the service ended. */
+function fakeSessions() {
+  const ended: number[] = [];
+  return { ended, sessionRepo: { revokeAllForUser: async (userId: number) => (ended.push(userId), 1) } };
+}
+
 describe('user service with a fake repository (no HTTP, no database)', () => {
   it('create stores the hash (never the password), answers no hash, audits; a duplicate e-mail is 409', async () => {
     const userRepo = fakeUserRepo([{ id: 1, email: admin.email, role: 'admin' }]);
     const audit = fakeAudit();
-    const svc = createUserService({ userRepo, audit, hashPassword, ...fakeCredentials() });
+    const svc = createUserService({ userRepo, audit, hashPassword, ...fakeCredentials(), ...fakeSessions() });
     const out = await svc.create(admin, { email: 'shift@kestrel.invalid', name: 'Shift', role: 'operator', password: 'a-long-password-1' });
     expect(out).not.toHaveProperty('passwordHash');
     expect(userRepo.rows.get(out.id)?.passwordHash).toBe('hashed:17');
@@ -64,7 +70,8 @@ describe('user service with a fake repository (no HTTP, no database)', () => {
       { id: 2, email: 'boss@kestrel.invalid', role: 'admin', disabled: true },
     ]);
     const creds = fakeCredentials();
-    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword, credentialsChanged: creds.credentialsChanged });
+    const sessions = fakeSessions();
+    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword, credentialsChanged: creds.credentialsChanged, sessionRepo: sessions.sessionRepo });
     const other = { ...admin, userId: 2 };
     await expect(svc.update(other, 1, { role: 'operator' })).rejects.toBeInstanceOf(ConflictError);
     await expect(svc.update(other, 1, { disabled: true })).rejects.toBeInstanceOf(ConflictError);
@@ -73,6 +80,24 @@ describe('user service with a fake repository (no HTTP, no database)', () => {
     expect((await svc.update(other, 1, { role: 'operator' })).role).toBe('operator');
     // A role change or a re-enable must reach cached callers at once; refused changes drop nothing.
     expect(creds.changed).toEqual([{ userId: 2 }, { userId: 1 }]);
+    // The demotion ended user 1's sessions; re-enabling user 2 ended none.
+    expect(sessions.ended).toEqual([1]);
+  });
+
+  it('a password change, a role change and disabling end the sessions; a new name or the same role does not', async () => {
+    const userRepo = fakeUserRepo([
+      { id: 1, email: admin.email, role: 'admin' },
+      { id: 2, email: 'op@kestrel.invalid', role: 'operator' },
+    ]);
+    const sessions = fakeSessions();
+    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword, ...fakeCredentials(), sessionRepo: sessions.sessionRepo });
+    await svc.update(admin, 2, { name: 'Night shift' });
+    await svc.update(admin, 2, { role: 'operator' });
+    expect(sessions.ended).toEqual([]);
+    await svc.update(admin, 2, { password: 'another-long-password' });
+    await svc.update(admin, 2, { role: 'analyst' });
+    await svc.update(admin, 2, { disabled: true });
+    expect(sessions.ended).toEqual([2, 2, 2]);
   });
 
   it('nobody deletes themselves; an unknown user is 404', async () => {
@@ -80,7 +105,7 @@ describe('user service with a fake repository (no HTTP, no database)', () => {
       { id: 1, email: admin.email, role: 'admin' },
       { id: 2, email: 'boss@kestrel.invalid', role: 'admin' },
     ]);
-    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword, ...fakeCredentials() });
+    const svc = createUserService({ userRepo, audit: fakeAudit(), hashPassword, ...fakeCredentials(), ...fakeSessions() });
     await expect(svc.remove(admin, admin.userId)).rejects.toThrow('you cannot delete yourself');
     await expect(svc.remove(admin, 77)).rejects.toBeInstanceOf(NotFoundError);
     expect(await svc.remove(admin, 2)).toEqual({ ok: true });

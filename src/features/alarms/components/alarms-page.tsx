@@ -13,6 +13,7 @@ import { useCurrentPlant } from '../../plant/api/plants.ts';
 import { useAckAlarm } from '../api/ack-alarm.ts';
 import { useAlarms } from '../api/alarms.ts';
 import { useLiveAlarms } from '../hooks/use-live-alarms.ts';
+import { AlarmRateStrip } from './alarm-rate-strip.tsx';
 
 /** Value and limit of each rule in the unit people read them in (fractions as per cent). */
 const RULE_UNIT: Record<string, { unit: string; scale: number } | null> = {
@@ -30,6 +31,9 @@ const RULE_UNIT: Record<string, { unit: string; scale: number } | null> = {
 
 /** ISA-18.2 states in words: unacknowledged active, acknowledged active, returned to normal unacknowledged, cleared. */
 function stateText(a: AlarmOut): { text: string; strong: boolean } {
+  // ISA-18.2 designed suppression and shelving: listed, not annunciated.
+  if (a.state !== 'cleared' && a.suppressedReason) return { text: 'SUPPRESSED', strong: false };
+  if (a.state !== 'cleared' && a.shelvedUntil && Date.parse(a.shelvedUntil) > Date.now()) return { text: `SHELVED · ${formatUtc(a.shelvedUntil)}`, strong: false };
   if (a.state === 'raised') return { text: 'ACTIVE · UNACK', strong: true };
   if (a.state === 'acknowledged') return { text: 'ACTIVE · ACK', strong: false };
   return a.acknowledgedAt ? { text: 'CLEARED', strong: false } : { text: 'CLEARED · UNACK', strong: true };
@@ -86,6 +90,7 @@ export default function AlarmsPage() {
         </span>
         <span className={`ml-auto text-[12px] ${stream === 'down' ? 'text-alarm-2 font-semibold' : 'text-ink-3'}`}>{stream === 'live' ? '● live' : stream === 'down' ? '▲ stream down — polling every 60 s' : '○ connecting…'}</span>
       </header>
+      <AlarmRateStrip plantId={plantId} />
       <p className="text-[11px] text-ink-3 px-0.5">Alarms come from the advisory balance and the signal checks. {OPERATOR_CAUTION}</p>
       <SectionBoundary name="Active alarms">
         <Panel title="Active and unacknowledged">

@@ -2,7 +2,7 @@ import { useEffect, useState } from 'react';
 import { useForm, useWatch } from 'react-hook-form';
 import type { PlantLayoutOut } from '../../../../shared/contracts/plant-api.ts';
 import { SIGNAL_KINDS } from '../../../../shared/contracts/plant-layout.ts';
-import { signalTargetType, tagCreate, type SourceOut, type TagCreate } from '../../../../shared/contracts/wiring.ts';
+import { signalTargetType, TAG_KINDS, tagCreate, type SourceOut, type TagCreate } from '../../../../shared/contracts/wiring.ts';
 import { Button, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
 import { applyServerErrors, contractResolver, fieldError, numberOrText, textOrNothing } from '../../../lib/form.ts';
 import { usePlantLayout } from '../../plant/api/plants.ts';
@@ -10,8 +10,8 @@ import { usePutMapping } from '../api/signal-map.ts';
 import { useCreateTag } from '../api/tags-config.ts';
 import type { TagDraft } from './explore-panel.tsx';
 
-type TagValues = Record<'name' | 'sourceId' | 'address' | 'unit' | 'description' | 'scaleGain' | 'scaleOffset' | 'deadband' | 'expectedPeriod_s' | 'rangeLow' | 'rangeHigh' | 'signal' | 'target', string>;
-const EMPTY: TagValues = { name: '', sourceId: '', address: '', unit: '', description: '', scaleGain: '1', scaleOffset: '0', deadband: '0', expectedPeriod_s: '10', rangeLow: '', rangeHigh: '', signal: '', target: '' };
+type TagValues = Record<'name' | 'sourceId' | 'address' | 'unit' | 'description' | 'scaleGain' | 'scaleOffset' | 'deadband' | 'expectedPeriod_s' | 'rangeLow' | 'rangeHigh' | 'kind' | 'signal' | 'target', string>;
+const EMPTY: TagValues = { name: '', sourceId: '', address: '', unit: '', description: '', scaleGain: '1', scaleOffset: '0', deadband: '0', expectedPeriod_s: '10', rangeLow: '', rangeHigh: '', kind: 'analog', signal: '', target: '' };
 
 /** The tag part of the form as the create request (the process signal is a second request). */
 function tagBody(v: TagValues): Record<string, unknown> {
@@ -27,6 +27,7 @@ function tagBody(v: TagValues): Record<string, unknown> {
     expectedPeriod_s: numberOrText(v.expectedPeriod_s),
     rangeLow: numberOrText(v.rangeLow) ?? null,
     rangeHigh: numberOrText(v.rangeHigh) ?? null,
+    kind: v.kind,
   };
   return Object.fromEntries(Object.entries(body).filter(([, x]) => x !== undefined));
 }
@@ -133,6 +134,13 @@ export function TagForm({ plantId, sources, draft, onDone }: { plantId: number; 
         </Field>
         <Field label="Range high" error={fe('rangeHigh')}>
           <TextInput {...num('rangeHigh')} />
+        </Field>
+        <Field label="Kind" error={fe('kind')} hint="only analog values are checked for a flat line">
+          <Select {...register('kind')}>
+            {TAG_KINDS.map((k) => (
+              <option key={k}>{k}</option>
+            ))}
+          </Select>
         </Field>
         <Field label="Process signal" error={fe('signal')}>
           <Select {...register('signal', { onChange: () => form.setValue('target', '') })}>

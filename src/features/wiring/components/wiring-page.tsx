@@ -9,6 +9,7 @@ import { ExplorePanel, type TagDraft } from './explore-panel.tsx';
 import { SourcesPanel } from './sources-panel.tsx';
 import { TagForm } from './tag-form.tsx';
 import { TagImportPanel } from './tag-import-panel.tsx';
+import { HistoryImportPanel } from './history-import-panel.tsx';
 import { TagsTable } from './tags-table.tsx';
 
 /** Wiring (integrator+): sources and their connections, what they offer, tags and their process signals. */
@@ -55,6 +56,11 @@ function WiringView({ plantId }: { plantId: number }) {
       <div className="2xl:col-span-2">
         <SectionBoundary name="Tag import">
           <TagImportPanel plantId={plantId} />
+        </SectionBoundary>
+      </div>
+      <div className="2xl:col-span-2">
+        <SectionBoundary name="History import">
+          <HistoryImportPanel plantId={plantId} />
         </SectionBoundary>
       </div>
     </div>
