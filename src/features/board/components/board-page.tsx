@@ -4,6 +4,7 @@ import { ErrorNote, Select } from '../../../components/ui/controls.tsx';
 import { formatAge, formatUtc } from '../../../lib/format.ts';
 import type { StreamState } from '../../../lib/stream.ts';
 import { useCurrentPlant, usePlantLayout } from '../../plant/api/plants.ts';
+import { UnitSystemContext } from '../unit-display.ts';
 import { useAlarms } from '../../alarms/api/alarms.ts';
 import { useBalanceLive } from '../api/balance-live.ts';
 import { AlarmIndex, alarmKey } from '../hooks/alarm-index.ts';
@@ -44,6 +45,7 @@ export default function BoardPage() {
   return (
     <BalanceClock.Provider value={computedAt}>
       <AlarmIndex.Provider value={alarmIndex}>
+      <UnitSystemContext.Provider value={plants.find((p) => p.id === plantId)?.unitSystem ?? 'SI'}>
       <div className="flex flex-col gap-2 min-w-[1240px] max-w-[1900px]">
         <header className="flex items-center gap-3 px-0.5 h-8">
           <h1 className="text-[15px] font-semibold">Plant board</h1>
@@ -103,6 +105,7 @@ export default function BoardPage() {
           </>
         ) : null}
       </div>
+      </UnitSystemContext.Provider>
       </AlarmIndex.Provider>
     </BalanceClock.Provider>
   );

@@ -4,17 +4,21 @@ import { FigureValue } from '../../../components/ui/figure.tsx';
 import { PriorityMark } from '../../../components/ui/priority-mark.tsx';
 import { useBalanceAge } from '../hooks/balance-clock.ts';
 import { useActiveAlarm } from '../hooks/alarm-index.ts';
+import { boardFigure, useUnitSystem } from '../unit-display.ts';
 
 /**
  * A balance figure with its unit, quality mark and the age of the balance it comes from.
  * `percent` shows a fraction (unit '-') as per cent; `round` rounds to that many decimals first,
- * so a slope of 1e-17 m/h reads 0, not 0.0000.
+ * so a slope of 1e-17 m/h reads 0, not 0.0000. Every board figure passes here, so this is where
+ * it takes the plant's unit system.
  */
 export function LiveFigure({ f, digits, size = 'md', percent = false, round, label }: { f: FigureOut; digits?: number; size?: 'sm' | 'md' | 'lg'; percent?: boolean; round?: number; label?: string }) {
   const age = useBalanceAge();
-  let value = f.value === null ? null : percent ? f.value * 100 : f.value;
+  const system = useUnitSystem();
+  const shown = percent ? { value: f.value === null ? null : f.value * 100, unit: '%' } : boardFigure(system, f.value, f.unit);
+  let value = shown.value;
   if (value !== null && round !== undefined) value = Math.round(value * 10 ** round) / 10 ** round + 0;
-  return <FigureValue value={value} unit={percent ? '%' : f.unit} quality={f.quality} reasons={f.reasons} age_s={age} digits={digits} size={size} label={label} />;
+  return <FigureValue value={value} unit={shown.unit} quality={f.quality} reasons={f.reasons} age_s={age} digits={digits} size={size} label={label} />;
 }
 
 /** The alarm that watches a figure: rule and target as the alarm engine names them, and the word shown when it is active. */

@@ -1,6 +1,10 @@
 import { useState } from 'react';
 import { Button, ErrorNote, Panel, TextInput } from '../../../components/ui/controls.tsx';
 import { usePlantSettings, usePutSettings } from '../api/setup.ts';
+import { MainSettingsForm } from './main-settings-form.tsx';
+
+// Edited as fields above the table (admin); below admin they stay read-only rows of the table.
+const MAIN_KEYS: string[] = ['mail.recipients', 'srt.target_d', 'srt.window_h', 'storm.peak_flow_factor'];
 
 const td = 'px-1.5 py-1 border-b border-edge/50 align-top';
 const th = 'text-left font-semibold text-ink-2 px-1.5 py-1 border-b border-edge';
@@ -9,6 +13,7 @@ const th = 'text-left font-semibold text-ink-2 px-1.5 py-1 border-b border-edge'
 export function SettingsPanel({ plantId, isAdmin }: { plantId: number; isAdmin: boolean }) {
   const settings = usePlantSettings(plantId);
   const put = usePutSettings(plantId);
+  const valueOf = (k: string) => settings.data?.settings.find((x) => x.key === k)?.value;
   const [draft, setDraft] = useState<Record<string, string>>({});
   const save = (key: string) => {
     let value: unknown;
@@ -23,6 +28,7 @@ export function SettingsPanel({ plantId, isAdmin }: { plantId: number; isAdmin: 
     <Panel title="Settings of this plant">
       {!isAdmin ? <p className="text-[12px] text-ink-3 mb-1">Read only: settings are changed by an admin.</p> : null}
       <ErrorNote error={settings.error ?? put.error} />
+      {isAdmin && settings.data ? <MainSettingsForm key={JSON.stringify(MAIN_KEYS.map((k) => valueOf(k)))} plantId={plantId} values={Object.fromEntries(MAIN_KEYS.map((k) => [k, valueOf(k)]))} /> : null}
       <table className="w-full text-[12px]" aria-label="Settings">
         <thead>
           <tr>
@@ -33,7 +39,7 @@ export function SettingsPanel({ plantId, isAdmin }: { plantId: number; isAdmin: 
           </tr>
         </thead>
         <tbody>
-          {(settings.data?.settings ?? []).map((s) => (
+          {(settings.data?.settings ?? []).filter((s) => !isAdmin || !MAIN_KEYS.includes(s.key)).map((s) => (
             <tr key={s.key} data-key={s.key}>
               <td className={td}>
                 <div className="font-semibold">{s.key}</div>

@@ -15,6 +15,7 @@ import { useTagsConfig } from '../../wiring/api/tags-config.ts';
 import { useCreatePlant, usePlantModel } from '../api/setup.ts';
 import { ConfigPanel } from './config-panel.tsx';
 import { FlowSchematic } from './flow-schematic.tsx';
+import { PlantEditForm } from './plant-edit-form.tsx';
 import { SettingsPanel } from './settings-panel.tsx';
 import { AddUnitForm, EditUnitForm, type UnitKind } from './unit-forms.tsx';
 import { BASIN_FIELDS, CLARIFIER_FIELDS, PUMP_FIELDS, show, unitLabel, type GeomField } from './units.ts';
@@ -118,7 +119,9 @@ function PlantSetup({ plantId, isAdmin }: { plantId: number; isAdmin: boolean })
         <Panel title={`${m.plant.name} (${m.plant.code}) · ${system === 'US' ? 'US customary' : 'SI'} units`}>
           <p className="text-[12px] text-ink-2 mb-1">
             Peak wet-weather flow: <span className="num">{m.plant.peakFlow_m3h === null ? 'not set (storm flow from the peak-flow factor)' : `${show(system, 'flowLarge_m3h', m.plant.peakFlow_m3h)} ${displayUnit(system, 'flowLarge_m3h').unit}`}</span> · time zone {m.plant.timezone}
+            {m.plant.retiredAt ? <span className="font-semibold"> · retired {m.plant.retiredAt} (history kept, not computed)</span> : null}
           </p>
+          <PlantEditForm key={`${m.plant.name}|${m.plant.timezone}|${m.plant.unitSystem}|${m.plant.peakFlow_m3h}|${m.plant.retiredAt}`} plant={m.plant} />
           <AddUnitForm plantId={plantId} kind="train" model={m} system={system} />
         </Panel>
         <UnitTable plantId={plantId} kind="basin" title="Aeration basins" model={m} system={system} fields={BASIN_FIELDS} mappings={mappings} />
