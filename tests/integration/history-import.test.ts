@@ -5,6 +5,7 @@ import { startHistoryJobs, type HistoryJobs } from '../../server/jobs/history-jo
 import { createTestApp, type TestApp } from '../helpers/app.ts';
 import { waitFor } from '../helpers/wait.ts';
 import { seedFixturePlant } from './balance-fixture.ts';
+import { mulberry32 } from '../unit/domain/prng.ts';
 
 /**
  * Historian import end to end on the real private PostgreSQL: upload → job → staging → move →
@@ -14,18 +15,6 @@ import { seedFixturePlant } from './balance-fixture.ts';
  */
 const HOUR = 3_600_000;
 const MIN = 60_000;
-
-/** Mulberry32 (Tommy Ettinger's 32-bit generator, public domain): seeded values for the files. */
-function prng(seed: number) {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
   let h: TestApp;
@@ -61,7 +50,7 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     // Five unmapped tags × 200 000 samples at 1 s (2.3 days), starting on a whole hour 6 days ago.
     const names = extra.slice(0, 5);
     const t0 = Math.floor((Date.now() - 6 * 24 * HOUR) / HOUR) * HOUR;
-    const rnd = prng(14);
+    const rnd = mulberry32(14);
     const perHour = new Map<string, { sum: number; count: number }>();
     const lines: string[] = ['tag,ts,value'];
     let outOfRange = 0;
@@ -121,8 +110,8 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     // minute, ending one hour ago (after the fixture's SVI, entered 2 h ago, so the last hours see it).
     const end = Math.floor((Date.now() - HOUR) / HOUR) * HOUR;
     const start = end - 26 * HOUR;
-    // FIT-311 in US gpm: 600 m³/h ÷ (3.785412e-3 m³ × 60) = 2641.7203 gpm (NIST SP 811, B.9); AIT-231 in g/L: 10 mg/L = 0.010 g/L.
-    const gpm = 600 / (3.785412e-3 * 60);
+    // FIT-311 in US gpm: 600 m³/h ÷ (3.785411784e-3 m³ × 60) = 2641.7205 gpm (US gallon = 231 in³ exactly; NIST SP 811, B.9); AIT-231 in g/L: 10 mg/L = 0.010 g/L.
+    const gpm = 600 / (231 * 0.0254 ** 3 * 60);
     const cols: [string, number][] = [
       ['FIT-111', 800],
       ['AIT-111', 3.0],
