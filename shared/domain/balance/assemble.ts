@@ -220,6 +220,22 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
 
   const trainsOut: BalanceData['trains'] = trains.map((t) => {
     const xrMax = trainRasConcMax(rasConcMaxRule, t.clarifiers.map((c) => c.statePoint));
+    // What the equilibrium projection and the storm in time share: the train's state now and its
+    // share of the plant's storm flow, computed once for both.
+    const stormIn = {
+      trainCode: t.layout.code,
+      influentFlow_m3h: t.influentFlow_m3h,
+      rasFlow_m3h: t.rasFlow_m3h,
+      mlss_gL: t.mlss_gL,
+      svi_mLg: svi,
+      stormFlow_m3h: trainStormFlow_m3h(storm.peak, stormShare(t.influentFlow_m3h, influents, t.volume_m3, totalVolume_m3)),
+      clarifierMass_kg: t.clarifierMass_kg,
+      aerationVolume_m3: t.volume_m3,
+      clarifierArea_m2: t.area_m2,
+      checks: stormChecks,
+      blanketNow_m: maxBlanket(t.clarifiers),
+      clarifierDepth_m: Math.min(...t.layout.clarifiers.map((c) => c.sideWaterDepth_m)),
+    };
     return {
     code: t.layout.code,
     influentFlow_m3h: withUnit(t.influentFlow_m3h, 'm3/h'),
@@ -234,37 +250,8 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
     },
     rasConcMaxBasis: xrMax.used,
     storm: {
-      ...trainStorm({
-      trainCode: t.layout.code,
-      influentFlow_m3h: t.influentFlow_m3h,
-      rasFlow_m3h: t.rasFlow_m3h,
-      mlss_gL: t.mlss_gL,
-      svi_mLg: svi,
-      stormFlow_m3h: trainStormFlow_m3h(storm.peak, stormShare(t.influentFlow_m3h, influents, t.volume_m3, totalVolume_m3)),
-      clarifierMass_kg: t.clarifierMass_kg,
-      aerationVolume_m3: t.volume_m3,
-      clarifierArea_m2: t.area_m2,
-      xrFactor: s['ras.xr_factor'],
-      checks: stormChecks,
-      blanketNow_m: maxBlanket(t.clarifiers),
-      clarifierDepth_m: Math.min(...t.layout.clarifiers.map((c) => c.sideWaterDepth_m)),
-      }),
-      timeline: trainStormTimeline({
-        trainCode: t.layout.code,
-        influentFlow_m3h: t.influentFlow_m3h,
-        rasFlow_m3h: t.rasFlow_m3h,
-        mlss_gL: t.mlss_gL,
-        svi_mLg: svi,
-        stormFlow_m3h: trainStormFlow_m3h(storm.peak, stormShare(t.influentFlow_m3h, influents, t.volume_m3, totalVolume_m3)),
-        hydrograph: s['storm.hydrograph'],
-        rasConcMax_gL: xrMax.value,
-        clarifierMass_kg: t.clarifierMass_kg,
-        blanketNow_m: maxBlanket(t.clarifiers),
-        clarifierDepth_m: Math.min(...t.layout.clarifiers.map((c) => c.sideWaterDepth_m)),
-        aerationVolume_m3: t.volume_m3,
-        clarifierArea_m2: t.area_m2,
-        checks: stormChecks,
-      }),
+      ...trainStorm({ ...stormIn, xrFactor: s['ras.xr_factor'] }),
+      timeline: trainStormTimeline({ ...stormIn, hydrograph: s['storm.hydrograph'], rasConcMax_gL: xrMax.value }),
     },
   };
   });
