@@ -39,20 +39,24 @@ export function stormShare(trainInfluent: Figure<number>, allInfluents: readonly
   return sum && sum > 0 && trainInfluent.value !== null ? trainInfluent.value / sum : volume_m3 / totalVolume_m3;
 }
 
-export interface TrainStormInputs {
+/** What both storm figures of a train start from: its state now and its share of the storm flow. */
+export interface TrainStormBase {
   trainCode: string;
   influentFlow_m3h: Figure<number>;
   rasFlow_m3h: Figure<number>;
   mlss_gL: Figure<number>;
   svi_mLg: Figure<number>;
-  /** The train's storm flow (plant storm flow × share) [m³/h]. */
+  /** The train's storm (peak) flow: plant storm flow × share [m³/h]. */
   stormFlow_m3h: Figure<number>;
   /** Sludge in the train's clarifiers now [kg]; unknown is taken as 0 (estimated, said so). */
   clarifierMass_kg: Figure<number>;
   aerationVolume_m3: number;
   clarifierArea_m2: number;
-  xrFactor: number;
   checks: StormCheckSettings;
+}
+
+export interface TrainStormInputs extends TrainStormBase {
+  xrFactor: number;
   /** Highest blanket level now [m] and the shallowest side-water depth [m]: a rise that would lift the blanket above the surface is never good. */
   blanketNow_m?: Figure<number>;
   clarifierDepth_m?: number;
@@ -105,26 +109,15 @@ export function trainStormFlow_m3h(peak: Figure<number>, share: number): Figure<
   return fromFigures([peak], (p) => p * share);
 }
 
-export interface TrainStormTimelineInputs {
-  trainCode: string;
-  influentFlow_m3h: Figure<number>;
-  rasFlow_m3h: Figure<number>;
-  mlss_gL: Figure<number>;
-  svi_mLg: Figure<number>;
-  /** The train's storm peak flow [m³/h]. */
-  stormFlow_m3h: Figure<number>;
+export interface TrainStormTimelineInputs extends TrainStormBase {
   /** The design storm: flow = present + peakFraction × (peak − present) (setting storm.hydrograph). */
   hydrograph: readonly { t_h: number; peakFraction: number }[];
   /** X_R,max the RAS margins use (the lower of the rule and flux theory) [g/L]. */
   rasConcMax_gL: Figure<number>;
-  clarifierMass_kg: Figure<number>;
   /** Highest blanket level of the train's clarifiers now [m]; unknown is left out (estimated, said so). */
   blanketNow_m: Figure<number>;
   /** Shallowest side-water depth of the train's clarifiers [m]. */
   clarifierDepth_m: number;
-  aerationVolume_m3: number;
-  clarifierArea_m2: number;
-  checks: StormCheckSettings;
 }
 
 /**
