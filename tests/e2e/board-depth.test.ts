@@ -1,10 +1,10 @@
 import type { Browser } from 'playwright-core';
-import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { BalanceData } from '../../shared/contracts/balance.ts';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { startTestServer } from '../helpers/server.ts';
-import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
-import { seedKestrelBend, type Env } from './kestrel-bend-fixture.ts';
+import { launchBrowser, shot } from '../helpers/browser.ts';
+import { operatorOnBoard, seedKestrelBend, type Env } from './kestrel-bend-fixture.ts';
 
 /**
  * Ten SVI tests over the last 20 days, generated from a Vesilind sludge v0 = 4 m/h, k = 0.8 L/g
@@ -42,15 +42,7 @@ describe('board depth in Debian Chromium: state points, the storm in time, the s
   });
 
   it('draws a live state point per clarifier, the design storm in time and the fit beside the correlation', async () => {
-    const op = env.server.credentials.find((c) => c.role === 'operator');
-    expect(op, 'demo operator').toBeDefined();
-    const page = await b.browser.newPage({ viewport: { width: 1920, height: 1080 } });
-    const errors = watchConsole(page);
-    onTestFailed(async () => {
-      await shot(page, 'board-depth-failed');
-      console.error('console errors at failure:', errors);
-    });
-    await signIn(page, `${env.server.url}/`, op!, /\/board$/);
+    const { page, errors } = await operatorOnBoard(env, b.browser, 'board-depth');
     await page.getByTestId('stream-state').filter({ hasText: 'live' }).waitFor();
     await engine.runOnce(plantId);
     const t2 = page.getByTestId('train-t2');

@@ -1,5 +1,7 @@
-import { expect } from 'vitest';
+import type { Browser } from 'playwright-core';
+import { expect, onTestFailed } from 'vitest';
 import { services } from '../../server/app-context.ts';
+import { shot, signIn, watchConsole } from '../helpers/browser.ts';
 import { seedDemoPlant } from '../helpers/plants.ts';
 import type { startTestServer } from '../helpers/server.ts';
 
@@ -59,3 +61,20 @@ export async function seedKestrelBend(env: Env): Promise<number> {
 }
 
 
+
+/**
+ * The demo operator signed in on the board at 1920×1080, the page's console watched, and the
+ * screen and console kept under `<name>-failed` if the test fails: how the board tests begin.
+ */
+export async function operatorOnBoard(env: Env, browser: Browser, name: string) {
+  const op = env.server.credentials.find((c) => c.role === 'operator');
+  expect(op, 'demo operator').toBeDefined();
+  const page = await browser.newPage({ viewport: { width: 1920, height: 1080 } });
+  const errors = watchConsole(page);
+  onTestFailed(async () => {
+    await shot(page, `${name}-failed`);
+    console.error('console errors at failure:', errors);
+  });
+  await signIn(page, `${env.server.url}/`, op!, /\/board$/);
+  return { page, errors, op: op! };
+}

@@ -1,9 +1,9 @@
 import type { Browser } from 'playwright-core';
-import { afterAll, beforeAll, describe, expect, it, onTestFailed } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { startTestServer } from '../helpers/server.ts';
-import { launchBrowser, shot, watchConsole, signIn } from '../helpers/browser.ts';
-import { seedKestrelBend, type Env } from './kestrel-bend-fixture.ts';
+import { launchBrowser, shot } from '../helpers/browser.ts';
+import { operatorOnBoard, seedKestrelBend, type Env } from './kestrel-bend-fixture.ts';
 
 describe('operator on shift in Debian Chromium', () => {
   let env: Env;
@@ -23,16 +23,7 @@ describe('operator on shift in Debian Chromium', () => {
   });
 
   it('watches the board go live, enters an SVI (and a CSV), and acknowledges an alarm', async () => {
-    const op = env.server.credentials.find((c) => c.role === 'operator');
-    expect(op, 'demo operator').toBeDefined();
-    const page = await b.browser.newPage({ viewport: { width: 1920, height: 1080 } });
-    const errors = watchConsole(page);
-    // On failure, keep the screen as it was and what the console said, for the report.
-    onTestFailed(async () => {
-      await shot(page, 'operator-failed');
-      console.error('console errors at failure:', errors);
-    });
-    await signIn(page, `${env.server.url}/`, op!, /\/board$/);
+    const { page, errors, op } = await operatorOnBoard(env, b.browser, 'operator');
 
     // No balance yet: the board says why, in the server's words.
     const none = page.getByTestId('no-balance');
