@@ -36,20 +36,20 @@ export const MassSplitBar = memo(function MassSplitBar({
         <span>Aeration basins</span>
         <span>Clarifier blankets</span>
       </div>
-      <svg viewBox={`0 0 ${W} 14`} preserveAspectRatio="none" className="block w-full h-[18px]" role="img" aria-label={known ? `clarifiers hold ${formatValue(frac! * 100, 3)} % of the train's sludge` : 'split unknown'}>
-        <rect x="0" y="0" width={W} height="14" fill="var(--color-panel-2)" stroke="var(--color-edge)" strokeWidth="0.3" />
-        {known ? (
-          <>
-            <rect x="0" y="0" width={W * (1 - frac!)} height="14" fill="#9aa0a6" data-testid="mass-basin" />
-            <rect x={W * (1 - frac!)} y="0" width={W * frac!} height="14" fill={overColour} data-testid="mass-clarifier" />
-          </>
-        ) : (
-          <text x={W / 2} y="10" textAnchor="middle" fontSize="6" fill="var(--color-ink-3)">
-            split unknown
-          </text>
-        )}
-        {limitFraction !== null ? <line x1={W * (1 - limitFraction)} x2={W * (1 - limitFraction)} y1="-1" y2="15" stroke="var(--color-ink)" strokeWidth="0.6" strokeDasharray="1.2 0.8" vectorEffect="non-scaling-stroke" /> : null}
-      </svg>
+      <div className="relative">
+        <svg viewBox={`0 0 ${W} 14`} preserveAspectRatio="none" className="block w-full h-[18px]" role="img" aria-label={known ? `clarifiers hold ${formatValue(frac! * 100, 3)} % of the train's sludge` : 'split unknown'}>
+          <rect x="0" y="0" width={W} height="14" fill="var(--color-panel-2)" stroke="var(--color-edge)" strokeWidth="0.3" />
+          {known ? (
+            <>
+              <rect x="0" y="0" width={W * (1 - frac!)} height="14" fill="#9aa0a6" data-testid="mass-basin" />
+              <rect x={W * (1 - frac!)} y="0" width={W * frac!} height="14" fill={overColour} data-testid="mass-clarifier" />
+            </>
+          ) : null}
+          {limitFraction !== null ? <line x1={W * (1 - limitFraction)} x2={W * (1 - limitFraction)} y1="-1" y2="15" stroke="var(--color-ink)" strokeWidth="0.6" strokeDasharray="1.2 0.8" vectorEffect="non-scaling-stroke" /> : null}
+        </svg>
+        {/* In HTML, not SVG text: the bar stretches with preserveAspectRatio="none" and would stretch the words too. */}
+        {known ? null : <span className="absolute inset-0 flex items-center justify-center text-[11px] text-ink-3 pointer-events-none">split unknown</span>}
+      </div>
       <div className="flex justify-between text-[11px] h-[15px]">
         <span className="num text-ink-2">{known ? `${formatValue((1 - frac!) * 100, 3)} %` : '—'}</span>
         {limitFraction !== null ? (
