@@ -9,13 +9,11 @@ import { once } from 'node:events';
 import fs from 'node:fs';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { and, eq } from 'drizzle-orm';
 import { INGEST_NODE_ARGS } from '../ingest/config.ts';
 import { repositories, type AppContext } from '../server/app-context.ts';
 import { ensureBrokerCredentials, INGEST_USER, SIMULATOR_USER, simulatorPasswordFile } from '../server/broker/broker-users.ts';
 import { BROKER_NODE_ARGS, BROKER_READY } from '../server/broker/process.ts';
 import type { Config } from '../server/config.ts';
-import { labResults, plants, sources } from '../server/db/schema/index.ts';
 import { demoCredentials, startServer, type RunningServer } from '../server/main.ts';
 import { services } from '../server/app-context.ts';
 import { toAlarmOut } from '../server/services/alarm.service.ts';
@@ -145,7 +143,7 @@ export async function raiseProcessAlarm(ctx: AppContext, e: ChildExit): Promise<
   const repos = repositories(ctx);
   const how = e.signal ? `was killed by ${e.signal}` : `exited with code ${e.code}`;
   const message = `The ${e.name} process ${how} after ${Math.round(e.ran_ms / 1000)} s and is restarted in ${e.restartIn_ms / 1000} s (restart ${e.restarts} since start); data may be delayed meanwhile.`;
-  for (const { id } of await ctx.db.db.select({ id: plants.id }).from(plants)) {
+  for (const { id } of await repos.plants.list(null)) {
     // The repository raises at most one open alarm per rule and target: a crash loop is one alarm.
     const row = await repos.alarms.raise({ plantId: id, rule: 'ingest-down', target: `process:${e.name}`, priority: 1, message, value: null, limit: null, raisedAt: new Date() });
     if (row) await repos.stream.notify(id, 'alarm', { change: 'raised', alarm: toAlarmOut(row) });
@@ -169,16 +167,16 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
     // sources follow this run's ports.
     const ep = { mqttUrl, opcuaUrl: opcuaUrl(config) };
     const { plantConfig } = services(server.ctx);
+    const repos = repositories(server.ctx);
     const seeded = await plantConfig.ensure(null, kestrelBendConfig(ep));
     if (!seeded.created) await plantConfig.setSourceUrls(null, seeded.plantId, { [DEMO_SOURCE_NAMES.mqtt]: ep.mqttUrl, [DEMO_SOURCE_NAMES.opcua]: ep.opcuaUrl });
     if (!config.mqttUrl) {
       // The embedded broker admits only its users: ingest reads its password from the demo
       // plant's MQTT source, as it would an external broker's.
       const creds = ensureBrokerCredentials(config.dataDir, [`${DEMO_PLANT.code}/#`]);
-      await server.ctx.db.db
-        .update(sources)
-        .set({ username: INGEST_USER, secret: creds.ingest.password })
-        .where(and(eq(sources.plantId, seeded.plantId), eq(sources.name, DEMO_SOURCE_NAMES.mqtt)));
+      const source = await repos.wiring.sourceByName(seeded.plantId, DEMO_SOURCE_NAMES.mqtt);
+      if (!source) throw new Error(`the demo plant has no source "${DEMO_SOURCE_NAMES.mqtt}"`);
+      await repos.wiring.updateSource(source.id, { username: INGEST_USER, secret: creds.ingest.password });
     }
     say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
     if (seeded.created) {
@@ -186,7 +184,7 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
       // test (170 mL/L at 1:3, MLSS 3.4 g/L → DSVI 150 mL/g, the demo scenario's sludge), as an
       // operator would have entered it this morning, so the RAS limit has an SVI to work from.
       const entry = labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 170, dilutionFactor: 3, mlss_gL: 3.4, location: 'ab1', sampledAt: new Date(Date.now() - 3 * 3600_000).toISOString(), note: 'demo entry' });
-      await server.ctx.db.db.insert(labResults).values(labRow(seeded.plantId, null, entry));
+      await repos.lab.insertAll([labRow(seeded.plantId, null, entry)]);
     }
     return server;
   } catch (err) {
@@ -233,10 +231,10 @@ export function prepareDemoHistory(config: Config): DemoHistoryFile | null {
  */
 export async function loadDemoHistory(config: Config, server: RunningServer, say: (m: string) => void, prepared: DemoHistoryFile | null): Promise<Date | undefined> {
   if (!config.demo) return undefined;
-  const { pool } = server.ctx.db;
-  const plant = (await pool.query<{ id: number }>('SELECT id FROM plants WHERE code = $1', [DEMO_PLANT.code])).rows[0];
+  const repos = repositories(server.ctx);
+  const plant = await repos.plants.byCode(DEMO_PLANT.code);
   if (!plant) return undefined;
-  const history = repositories(server.ctx).history;
+  const history = repos.history;
   const last = await history.lastSampleTime(plant.id);
   if (last || !prepared) {
     if (last) say(`resuming the simulation after the last stored sample (${last.toISOString()})`);
@@ -245,7 +243,7 @@ export async function loadDemoHistory(config: Config, server: RunningServer, say
   const t0 = Date.now();
   say(`first start: loading ${config.demoHistoryDays} days of simulated history…`);
   await prepared.written;
-  const user = (await pool.query<{ id: number; email: string }>(`SELECT id, email FROM users WHERE role = 'integrator' AND NOT disabled ORDER BY id LIMIT 1`)).rows[0];
+  const user = await repos.users.firstActive('integrator');
   if (!user) throw new Error('demo history: no integrator user to import as');
   const principal = { userId: user.id, email: user.email, role: 'integrator' as const, tokenId: null, plantIds: null, ip: null };
   // Hourly balances over the 35 days (840), not one per engine interval: enough for the trends,

@@ -87,6 +87,10 @@ export function plantRepository(db: Db, pool: pg.Pool) {
       const [p] = await db.select().from(plants).where(eq(plants.id, id));
       return p;
     },
+    async byCode(code: string): Promise<PlantRow | undefined> {
+      const [p] = await db.select().from(plants).where(eq(plants.code, code));
+      return p;
+    },
     /**
      * Every train and unit with the geometry that holds now (effective-dated versions, see
      * plant-model.repository.ts); units out of service now carry inService: false.

@@ -27,6 +27,11 @@ export function userRepository(db: Db) {
       const [u] = await db.select().from(users).where(eq(users.id, id));
       return u;
     },
+    /** The oldest enabled user with this role (the launcher imports the demo's past as one). */
+    async firstActive(role: Role): Promise<UserRow | undefined> {
+      const [u] = await db.select().from(users).where(and(eq(users.role, role), eq(users.disabled, false))).orderBy(asc(users.id)).limit(1);
+      return u;
+    },
     list(): Promise<PublicUser[]> {
       return db.select(publicUser).from(users).orderBy(asc(users.id));
     },
