@@ -7,7 +7,8 @@ import net from 'node:net';
 import mqtt, { type MqttClient } from 'mqtt';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { fallbackProtocol, mqttOptionsOf } from '../../../ingest/mqtt/mqtt-connection.ts';
-import { MqttSession, type Delivery, type SessionOptions } from '../../../ingest/mqtt/mqtt-session.ts';
+import { MqttSession, type Delivery, type SessionOptions, type SubscriberSession } from '../../../ingest/mqtt/mqtt-session.ts';
+import { MqttJsSession } from '../../../ingest/mqtt/mqttjs-session.ts';
 import type { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
 import { waitFor } from '../../helpers/wait.ts';
 import { freePort, startTestBroker, type TestBroker } from './helpers.ts';
@@ -85,13 +86,13 @@ async function startRelay(target: number) {
 describe('MqttSession (ingest/mqtt/mqtt-session.ts) against aedes', () => {
   let broker: TestBroker;
   let pub: MqttClient;
-  const open: MqttSession[] = [];
+  const open: SubscriberSession[] = [];
   /** aedes' connected client by id (its `clients` map is not in its typings). */
   const clientOf = (id: string) => (broker.broker as unknown as { clients: Record<string, { subscriptions: Record<string, unknown>; close(): void } | undefined> }).clients[id];
   const store = () => (broker.broker as unknown as { persistence: IndexedMemoryPersistence }).persistence;
   /** Publishes `n` QoS 1 messages s/<prefix>/<i> with payload i, each acknowledged by the broker. */
   const publish = (prefix: string, n: number, from = 0) => Promise.all(Array.from({ length: n }, (_, i) => pub.publishAsync(`s/${prefix}/${from + i}`, String(from + i), { qos: 1 })));
-  const start = (s: MqttSession) => (open.push(s), s.start());
+  const start = (s: SubscriberSession) => (open.push(s), s.start());
 
   beforeAll(async () => {
     broker = await startTestBroker(await freePort());
@@ -287,5 +288,36 @@ describe('MqttSession (ingest/mqtt/mqtt-session.ts) against aedes', () => {
     } finally {
       await spy.endAsync();
     }
+  });
+
+  it('the mqtt.js session (ws:// and wss://, the --stock reference) holds each PUBACK until released, one message at a time', async () => {
+    // mqtt.js README, Client#handleMessage: one message at a time, the next after the callback.
+    const clientId = 'session-it-mqttjs';
+    const got: Delivery[] = [];
+    const connects: number[] = [];
+    const session = new MqttJsSession(
+      {
+        url: broker.url,
+        protocol: 4,
+        fallback: () => null,
+        filters: () => ['s/mqttjs/#'],
+        clientOptions: (protocolVersion) => ({ protocolVersion, clientId, clean: false, keepalive: 30 }),
+      },
+      { message: (_t, _p, d) => d && got.push(d), connected: ({ protocol }) => connects.push(protocol), disconnected: () => {}, error: () => {}, unsent: () => {} },
+    );
+    open.push(session);
+    session.start();
+    await waitFor(() => clientOf(clientId)?.subscriptions['s/mqttjs/#'], undefined, { what: 'the subscription' });
+    await publish('mqttjs', 3);
+    await waitFor(() => got.length, (n) => n === 1, { what: 'the first message' });
+    // Held: the broker still queues all three, and mqtt.js reads nothing further.
+    expect(store().outgoingCount(clientId)).toBe(3);
+    for (let i = 0; i < 3; i++) {
+      expect(got).toHaveLength(i + 1);
+      session.ack(got[i]!);
+      await waitFor(() => store().outgoingCount(clientId), (n) => n === 2 - i, { what: `PUBACK ${i + 1}` });
+      if (i < 2) await waitFor(() => got.length, (n) => n === i + 2, { what: `message ${i + 2}` });
+    }
+    expect(got.map((d) => d.topic)).toEqual(['s/mqttjs/0', 's/mqttjs/1', 's/mqttjs/2']);
   });
 });
