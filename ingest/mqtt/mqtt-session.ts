@@ -308,7 +308,8 @@ export class MqttSession implements SubscriberSession {
   /** Writes the PUBACKs due (MQTT 3.1.1 §3.4; MQTT 5.0 §3.4, reason Success omitted) as one buffer. */
   private flushAcks = (): void => {
     this.flushQueued = false;
-    if (!this.open) return;
+    // A connection being dropped: what is still due stays in `inflight` and onClose reports it unsent.
+    if (!this.open || !this.socket || this.socket.destroyed) return;
     const q = this.inflight;
     const from = this.head;
     let i = from;
