@@ -10,6 +10,7 @@ import path from 'node:path';
 import tls from 'node:tls';
 import { Aedes } from 'aedes';
 import mqtt, { type MqttClient } from 'mqtt';
+import mqttPacket, { type IConnectPacket, type Packet } from 'mqtt-packet';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { fallbackProtocol, mqttOptionsOf } from '../../../ingest/mqtt/mqtt-connection.ts';
 import { MqttSession, type Delivery, type SessionOptions, type SubscriberSession } from '../../../ingest/mqtt/mqtt-session.ts';
@@ -370,5 +371,59 @@ describe('MqttSession over mqtts://', () => {
     // MQTT 3.1.1 §3.2.2.3: aedes answers a failed authenticate with return code 5, not authorized.
     await waitFor(() => badPassword.log.errors.length, (n) => n >= 1, { what: 'the CONNECT refused' });
     expect(badPassword.log.errors[0]).toEqual({ message: 'broker refused the connection: not authorized', refused: true });
+  });
+});
+
+/**
+ * aedes speaks 3.1.1 only, so the MQTT 5.0 side of the session is checked against a scripted
+ * broker built on the same mqtt-packet parser and generator: each packet the session sends is
+ * read as a 5.0 server reads it.
+ */
+describe('MqttSession speaking MQTT 5.0', () => {
+  it('sends the 5.0 CONNECT properties, honours Server Keep Alive, acknowledges with 5.0 PUBACKs and reconnects after a server DISCONNECT', async () => {
+    const seen: Packet[] = [];
+    const conns: net.Socket[] = [];
+    const server = net.createServer((sock) => {
+      conns.push(sock);
+      const parser = mqttPacket.parser({ protocolVersion: 5 });
+      const send = (p: Packet) => sock.write(mqttPacket.generate(p, { protocolVersion: 5 }));
+      parser.on('packet', (p: Packet) => {
+        seen.push(p);
+        if (p.cmd === 'connect') send({ cmd: 'connack', sessionPresent: conns.length > 1, reasonCode: 0, properties: { serverKeepAlive: 1 } });
+        if (p.cmd === 'subscribe') {
+          send({ cmd: 'suback', messageId: p.messageId!, granted: [1] });
+          send({ cmd: 'publish', topic: 'v5/a', payload: Buffer.from('1'), qos: 1, messageId: 7, dup: false, retain: false, properties: { userProperties: { site: 'kb' } } });
+        }
+        if (p.cmd === 'pingreq') send({ cmd: 'pingresp' });
+      });
+      sock.on('data', (b) => parser.parse(b));
+      sock.on('error', () => {});
+    });
+    await new Promise<void>((r) => server.listen(0, '127.0.0.1', () => r()));
+    const url = `mqtt://127.0.0.1:${(server.address() as net.AddressInfo).port}`;
+    const { session, log } = recorded({ url, clientId: 'v5-session', protocol: 5, keepalive_s: 30, username: 'ingest', password: 'pw', filters: () => ['v5/#'] });
+    session.start();
+    try {
+      await waitFor(() => log.messages.length, (n) => n === 1, { what: 'the 5.0 PUBLISH' });
+      const connect = seen.find((p) => p.cmd === 'connect') as IConnectPacket;
+      // MQTT 5.0 §3.1.2.4 Clean Start 0, §3.1.2.11.2 Session Expiry 0xFFFFFFFF, §3.1.2.11.3 Receive Maximum.
+      expect(connect).toMatchObject({ protocolVersion: 5, clean: false, clientId: 'v5-session', keepalive: 30, username: 'ingest', properties: { sessionExpiryInterval: 0xffffffff, receiveMaximum: 65_535 } });
+      expect(connect.password?.toString()).toBe('pw');
+      expect(seen.find((p) => p.cmd === 'subscribe')).toMatchObject({ subscriptions: [{ topic: 'v5/#', qos: 1 }] });
+      expect(log.messages[0]).toMatchObject({ topic: 'v5/a', payload: '1' });
+      session.ack(log.messages[0]!.d!);
+      await waitFor(() => seen.find((p) => p.cmd === 'puback'), undefined, { what: 'the PUBACK' });
+      expect(seen.find((p) => p.cmd === 'puback')).toMatchObject({ messageId: 7 });
+      // §3.2.2.3.14: Server Keep Alive 1 s replaces the 30 s asked for.
+      await waitFor(() => seen.some((p) => p.cmd === 'pingreq'), undefined, { what: 'a PINGREQ within the server keep alive', timeout_ms: 3_000 });
+      // §3.14: a server DISCONNECT (0x8B Server shutting down) ends the connection; the session reconnects.
+      conns[0]!.write(mqttPacket.generate({ cmd: 'disconnect', reasonCode: 0x8b }, { protocolVersion: 5 }));
+      await waitFor(() => log.connects.length, (n) => n === 2, { what: 'the reconnect' });
+      expect(log.errors.map((e) => e.message)).toContain('broker disconnected: reason code 0x8b');
+    } finally {
+      await session.close();
+      conns.forEach((c) => c.destroy());
+      await new Promise<void>((r) => server.close(() => r()));
+    }
   });
 });
