@@ -248,6 +248,8 @@ export class MqttConnector implements Connector {
         invalidFilters: this.handler.invalidFilters,
         /** Redeliveries of messages already stored, acknowledged without writing them again. */
         redelivered: this.counters.redelivered,
+        /** `pipelined`: ingest's own session; `serial`: mqtt.js, one message per commit (ws://, wss://). */
+        acks: this.session instanceof MqttSession ? 'pipelined' : 'serial',
         /** Intake stopped at the writer's high-water mark: the broker's socket is not read. */
         paused: this.session.paused,
         payload: this.opts.payload,
