@@ -1,6 +1,4 @@
 import { createHash } from 'node:crypto';
-import mqtt, { type IPublishPacket, type MqttClient } from 'mqtt';
-import mqttPacket from 'mqtt-packet';
 import type { Logger } from 'pino';
 import type { MqttSourceOptions } from '../../shared/contracts/wiring.ts';
 import { sourceStatusBase, type Connector, type ConnectorStatus, type ConnectionState, type SourceConfig } from '../connector.ts';
@@ -11,23 +9,16 @@ import type { Discovery } from './discovery.ts';
 import { MqttMessageHandler } from './message-handler.ts';
 import { ncmdTopic, rebirthPayload } from './sparkplug.ts';
 import { connectOptions, fallbackProtocol, firstProtocol, mqttOptionsOf, type ProtocolLevel } from './mqtt-connection.ts';
+import { MqttSession, type Delivery, type SessionEvents, type SubscriberSession } from './mqtt-session.ts';
+import { MqttJsSession } from './mqttjs-session.ts';
 
 /**
- * How a held PUBACK leaves (see the class comment). `pipelined` is the product's;
- * `serial` holds mqtt.js's handleMessage callback until the commit, the stock way, and exists so
- * tests/bench/ingest.bench.ts (`--stock`) can measure what pipelining is worth.
+ * Which session carries an mqtt:// or mqtts:// source. `pipelined` (the product's) is
+ * ./mqtt-session.ts; `serial` is mqtt.js with its handleMessage callback held until the commit
+ * (./mqttjs-session.ts), the stock way, kept so tests/bench/ingest.bench.ts (`--stock`) can
+ * measure what the own session is worth. ws:// and wss:// always use mqtt.js.
  */
 export type AckMode = 'pipelined' | 'serial';
-
-interface HeldAck {
-  messageId: number;
-  generation: number;
-  /** Kept to fingerprint the message if its connection closes before the PUBACK (rare; hashed only then). */
-  topic: string;
-  payload: Buffer;
-  /** serial mode: mqtt.js's handleMessage callback, which sends the PUBACK. */
-  release?: () => void;
-}
 
 function fingerprint(topic: string, payload: Buffer): string {
   return `${topic}\u0000${createHash('sha1').update(payload).digest('base64')}`;
@@ -35,13 +26,6 @@ function fingerprint(topic: string, payload: Buffer): string {
 
 /** How many committed-but-unacknowledged messages are remembered across a reconnect. */
 const MAX_REMEMBERED = 100_000;
-
-/**
- * What handleMessage passes to its callback for a message whose PUBACK ingest sends itself:
- * mqtt.js then sends no PUBACK and goes on to the next packet (mqtt.js 5.16
- * lib/handlers/publish.js, QoS 1: `if (err) return done(err)` before `_sendPacket(puback)`).
- */
-const ACK_HELD = new Error('PUBACK held until the message is committed');
 
 /**
  * One MQTT source: a persistent session and QoS 1 subscriptions, acknowledging each PUBLISH only
@@ -52,30 +36,25 @@ const ACK_HELD = new Error('PUBACK held until the message is committed');
  *   subscriptions and queued QoS 1 messages while ingest is away; on reconnect it resends every
  *   PUBLISH that was not acknowledged (§4.4). Connect options and the 5.0 → 3.1.1 fallback come
  *   from ./mqtt-connection.ts, as for the API's connection test.
- * - Acknowledgement, through mqtt.js's public hook `handleMessage(packet, callback)`: mqtt.js
- *   handles incoming packets strictly one at a time and sends a QoS 1 PUBACK, then reads the next
- *   packet, only when that callback is called (lib/client.js `work`/`nextTickWork`). Holding the
- *   callback until the commit (`serial`) would therefore admit one message per batch commit.
- *   Instead (`pipelined`) the callback is called at once with ACK_HELD, so mqtt.js sends no
- *   PUBACK and moves on, and the PUBACK is written after the commit with mqtt-packet's public
- *   `generate` onto the client's `stream`; all PUBACKs one commit releases leave as one write.
- *   Acks are released in the order messages arrived, as required for QoS 1 (MQTT 3.1.1 §4.6).
+ * - Acknowledgement: mqtt:// and mqtts:// sources run on ./mqtt-session.ts, a subscriber session
+ *   over its own socket that speaks MQTT through mqtt-packet's public parser and generator: it
+ *   reads on while PUBACKs are held, and writes those a commit releases in arrival order
+ *   (MQTT 3.1.1 §4.6) as one write. ws:// and wss:// run on mqtt.js with its documented
+ *   handleMessage callback held until the commit (./mqttjs-session.ts): one message per commit.
  *   PUBACKs held for a connection that has since closed are dropped: the broker will resend
  *   those messages and they are recognised (committedUnacked) or absorbed by the primary key.
  * - Flow control: Receive Maximum (§3.1.2.11.3) is set to the maximum so a batch of held acks
  *   does not stall delivery; the writer's time-based flush bounds how long any ack is held.
- * - Backpressure (BatchWriter.onPressure): while the writer's backlog is high the handleMessage
- *   callback is held, so mqtt.js reads no further; TCP flow control keeps the excess in the broker.
+ * - Backpressure (BatchWriter.onPressure): while the writer's backlog is high the session stops
+ *   reading its socket; TCP flow control keeps the excess in the broker.
  * - Reconnect: exponential back-off from 1 s to 30 s.
  */
 export class MqttConnector implements Connector {
   readonly sourceId: number;
-  private client: MqttClient | null = null;
+  private session: SubscriberSession;
   private tags = new TagSet();
   private handler: MqttMessageHandler;
   private opts: MqttSourceOptions;
-  private generation = 0;
-  private held = new Map<number, HeldAck>();
   /**
    * Messages whose rows were committed after their connection had closed, so their PUBACK could
    * not be sent: the broker will deliver them again (MQTT 3.1.1 §4.4, MQTT 5.0 §4.4; aedes does
@@ -83,19 +62,12 @@ export class MqttConnector implements Connector {
    * samples would be absorbed by the primary key, dead letters would not.
    */
   private committedUnacked = new Map<number, string>();
-  private protocol: ProtocolLevel;
   private state: ConnectionState = 'connecting';
   private lastError: string | null = null;
   private connectedAt: number | null = null;
   private lastMessageAt: number | null = null;
   private counters = { messages: 0, samples: 0, unmapped: 0, deadLetters: 0, suppressed: 0, reconnects: 0, outstanding: 0, redelivered: 0 };
   private closing = false;
-  /** The message the 'message' event just took and whether ingest holds its PUBACK; read by handleMessage. */
-  private current: { packet: IPublishPacket; held: boolean } | null = null;
-  /** mqtt.js's callback for the message being handled while intake is paused (at most one). */
-  private stalled: (() => void) | null = null;
-  /** Messages whose PUBACK is written at the end of this tick (see flushAcks). */
-  private ackQueue: HeldAck[] = [];
   private offPressure: () => void;
 
   constructor(
@@ -108,123 +80,109 @@ export class MqttConnector implements Connector {
     const { options, error } = mqttOptionsOf(source);
     this.opts = options;
     this.lastError = error;
-    this.protocol = firstProtocol(this.opts);
     this.tags.update(tags);
     this.handler = new MqttMessageHandler(source.id, this.tags, ctx.discovery, { payload: this.opts.payload, requestRebirth: this.opts.requestRebirth });
+    this.session = this.createSession();
     this.offPressure = writer.onPressure((high) => {
-      if (high) return;
-      const resume = this.stalled;
-      this.stalled = null;
-      resume?.();
+      if (!high) this.session.resume();
     });
-    this.connect();
+    this.session.start();
   }
 
   get clientId(): string {
     return this.opts.clientId ?? `${this.ctx.clientIdPrefix}-${this.source.id}`;
   }
 
-  private get serial(): boolean {
-    return this.ctx.acks === 'serial';
+  /**
+   * The topic filters this source subscribes to, in one place (a shared subscription would
+   * prefix them here).
+   */
+  private subscriptionFilters(): readonly string[] {
+    return this.opts.topics;
   }
 
-  private connect(): void {
-    const client = mqtt.connect(
-      this.source.url,
-      connectOptions(this.source, this.opts, this.protocol, {
+  private createSession(): SubscriberSession {
+    const o = this.opts;
+    const common = { url: this.source.url, protocol: firstProtocol(o), fallback: (tried: ProtocolLevel, err: { code: number }) => fallbackProtocol(o, tried, err), filters: () => this.subscriptionFilters() };
+    if (this.ctx.acks === 'serial' || /^wss?:/.test(this.source.url)) {
+      return new MqttJsSession(
+        {
+          ...common,
+          clientOptions: (protocol) =>
+            connectOptions(this.source, o, protocol, {
+              clientId: this.clientId,
+              clean: false,
+              // mqtt.js calls its `log` function several times per packet even when tracing is off;
+              // a no-op one (a public option) saves that (DEBUG=mqttjs* turns it back on).
+              ...(this.ctx.trace ? {} : { log: () => {} }),
+              ...(protocol === 5 ? { properties: { sessionExpiryInterval: 0xffffffff, receiveMaximum: 65535 } } : {}),
+            }),
+        },
+        this.events,
+      );
+    }
+    // The same credentials, Keep Alive and CA as the connection test (connectOptions).
+    const c = connectOptions(this.source, o, common.protocol, {});
+    return new MqttSession(
+      {
+        ...common,
         clientId: this.clientId,
-        clean: false,
-        reconnectPeriod: 1_000,
-        connectTimeout: 10_000,
-        resubscribe: false,
-        queueQoSZero: false,
-        // mqtt.js calls its `log` function several times per packet even when tracing is off;
-        // a no-op one (a public option) saves that at 50 000 messages a second (DEBUG=mqttjs* turns it back on).
-        ...(this.ctx.trace ? {} : { log: () => {} }),
-        ...(this.protocol === 5 ? { properties: { sessionExpiryInterval: 0xffffffff, receiveMaximum: 65535 } } : {}),
-      }),
+        keepalive_s: c.keepalive ?? o.keepalive_s,
+        ...(c.username ? { username: c.username } : {}),
+        ...(typeof c.password === 'string' ? { password: c.password } : {}),
+        ...(c.ca ? { ca: c.ca as string } : {}),
+      },
+      this.events,
     );
-    this.client = client;
-    // Called by mqtt.js right after the 'message' event of the same PUBLISH (lib/handlers/publish.js).
-    client.handleMessage = (packet, callback) => {
-      const cur = this.current;
-      this.current = null;
-      const held = cur !== null && cur.packet === packet && cur.held;
-      // serial: the callback (mqtt.js's PUBACK) waits in the HeldAck until the commit.
-      const go = held && this.serial ? () => {} : held ? () => callback(ACK_HELD) : () => callback();
-      if (held && this.serial) this.held.get((packet as IPublishPacket).messageId!)!.release = () => callback();
-      if (!this.writer.underPressure || this.client !== client) return go();
-      // The callback of a connection that has closed is dropped with it (a new connection gets a new parser).
-      this.stalled = () => {
-        if (this.client === client && client.connected) go();
-      };
-    };
-    client.on('connect', (connack) => {
+  }
+
+  private events: SessionEvents = {
+    message: (topic, payload, d) => this.onMessage(topic, payload, d),
+    connected: ({ sessionPresent, protocol }) => {
       if (this.connectedAt !== null) this.counters.reconnects++;
       this.state = 'connected';
       this.lastError = null;
       this.connectedAt = Date.now();
-      client.options.reconnectPeriod = 1_000;
-      this.ctx.log.info({ source: this.source.id, sessionPresent: connack.sessionPresent, protocol: this.protocol }, 'mqtt connected');
-      // Subscribing again on every connect is harmless (MQTT 5.0 §3.8.4: an identical filter replaces the subscription).
-      client.subscribe(
-        this.opts.topics.map((t) => t),
-        { qos: 1 },
-        (err) => {
-          if (err) this.lastError = `subscribe failed: ${err.message}`;
-        },
-      );
-    });
-    client.on('close', () => {
-      // Held PUBACKs belong to the connection that just ended (see the class comment).
-      this.generation++;
-      this.held.clear();
-      this.stalled = null;
-      this.current = null;
-      if (this.closing) return;
-      this.state = 'reconnecting';
-    });
-    client.on('reconnect', () => {
-      client.options.reconnectPeriod = Math.min((client.options.reconnectPeriod ?? 1_000) * 2, 30_000);
-    });
-    client.on('error', (err) => {
-      this.lastError = err.message;
-      const next = fallbackProtocol(this.opts, this.protocol, err);
-      if (next !== null) {
-        this.ctx.log.info({ source: this.source.id }, 'broker refused MQTT 5.0; using MQTT 3.1.1');
-        this.protocol = next;
-        client.end(true);
-        this.connect();
-        return;
+      this.ctx.log.info({ source: this.source.id, sessionPresent, protocol }, 'mqtt connected');
+    },
+    disconnected: () => {
+      if (!this.closing && this.state !== 'error') this.state = 'reconnecting';
+    },
+    error: (message, refused) => {
+      this.lastError = message;
+      if (refused) this.state = 'error';
+      this.ctx.log.info({ source: this.source.id, err: message }, 'mqtt connection problem');
+    },
+    // Committed, but its connection is gone before the PUBACK: remembered for the redelivery.
+    unsent: (d) => {
+      if (this.committedUnacked.size >= MAX_REMEMBERED) this.committedUnacked.delete(this.committedUnacked.keys().next().value!);
+      this.committedUnacked.set(d.messageId, fingerprint(d.topic, d.payload));
+    },
+  };
+
+  private onMessage(topic: string, payload: Buffer, d: Delivery | null): void {
+    if (d === null) {
+      // QoS 0 has no acknowledgement (we subscribe with QoS 1, so the broker downgrades QoS 2 to 1).
+      this.process(topic, payload, null);
+    } else {
+      // Only a packet identifier left over from a closed connection can be a redelivery of a
+      // stored message; the digest is computed just for those.
+      const remembered = this.committedUnacked.size ? this.committedUnacked.get(d.messageId) : undefined;
+      if (remembered !== undefined && remembered === fingerprint(topic, payload)) {
+        // Already stored: acknowledged without writing it again.
+        this.committedUnacked.delete(d.messageId);
+        this.counters.redelivered++;
+        this.session.ack(d);
+      } else if (!this.process(topic, payload, d)) {
+        // Nothing to store (unmapped, deadband): its PUBACK is due at once (after those before it).
+        this.session.ack(d);
       }
-      this.state = 'error';
-    });
-    client.on('message', (topic, payload, packet) => {
-      this.current = { packet, held: false };
-      if (packet.qos === 1 && packet.messageId !== undefined) {
-        // Only a packet identifier left over from a closed connection can be a redelivery of a
-        // stored message; the digest is computed just for those.
-        const remembered = this.committedUnacked.size ? this.committedUnacked.get(packet.messageId) : undefined;
-        if (remembered !== undefined && remembered === fingerprint(topic, payload)) {
-          // Already stored: mqtt.js sends its PUBACK now and nothing is written.
-          this.committedUnacked.delete(packet.messageId);
-          this.counters.redelivered++;
-          return;
-        }
-        const h: HeldAck = { messageId: packet.messageId, generation: this.generation, topic, payload };
-        this.held.set(packet.messageId, h);
-        // Nothing to store (unmapped, deadband): mqtt.js's own PUBACK goes at once.
-        if (this.process(topic, payload, h)) this.current.held = true;
-        else this.held.delete(packet.messageId);
-      } else {
-        // QoS 0 has no acknowledgement (we subscribe with QoS 1, so the broker downgrades QoS 2 to 1).
-        this.process(topic, payload, undefined);
-      }
-    });
+    }
+    if (this.writer.underPressure) this.session.pause();
   }
 
   /** Decodes and enqueues one message; false when there was nothing to write (so nothing to wait for). */
-  private process(topic: string, payload: Buffer, held: HeldAck | undefined): boolean {
+  private process(topic: string, payload: Buffer, held: Delivery | null): boolean {
     const now = Date.now();
     this.lastMessageAt = now;
     this.counters.messages++;
@@ -249,7 +207,7 @@ export class MqttConnector implements Connector {
     this.counters.outstanding++;
     this.writer.enqueue(r.samples, r.deadLetters, () => {
       this.counters.outstanding--;
-      this.release(held);
+      this.session.ack(held);
     });
     return true;
   }
@@ -261,52 +219,12 @@ export class MqttConnector implements Connector {
    * NCMD, QoS 0 and retain false per tck-id-topics-ncmd-mqtt).
    */
   private requestRebirth(group: string, node: string, now: number): void {
-    const client = this.client;
-    if (!this.opts.requestRebirth || !client?.connected) return;
+    if (!this.opts.requestRebirth) return;
     const topic = ncmdTopic(group, node);
-    client.publish(topic, rebirthPayload(now), { qos: 0, retain: false }, (err) => {
-      if (err) this.ctx.log.warn({ source: this.source.id, topic, err: err.message }, 'rebirth request not sent');
-    });
+    if (!this.session.publish(topic, rebirthPayload(now))) return;
     this.handler.sparkplug?.rebirthSent();
     this.ctx.log.info({ source: this.source.id, topic }, 'Sparkplug rebirth requested');
   }
-
-  /** Sends a held PUBACK if its connection is still the current one. */
-  private release(h: HeldAck): void {
-    if (h.generation !== this.generation) {
-      this.remember(h);
-      return;
-    }
-    if (this.held.get(h.messageId) !== h) return;
-    this.held.delete(h.messageId);
-    if (h.release) return h.release();
-    if (this.ackQueue.length === 0) process.nextTick(this.flushAcks);
-    this.ackQueue.push(h);
-  }
-
-  /** Committed, but its connection is gone before the PUBACK: remembered for the redelivery. */
-  private remember(h: HeldAck): void {
-    if (this.committedUnacked.size >= MAX_REMEMBERED) this.committedUnacked.delete(this.committedUnacked.keys().next().value!);
-    this.committedUnacked.set(h.messageId, fingerprint(h.topic, h.payload));
-  }
-
-  /**
-   * Writes the PUBACKs released in this tick, encoded by mqtt-packet for the session's protocol
-   * level (MQTT 3.1.1 §3.4; MQTT 5.0 §3.4, reason code Success), in arrival order (§4.6), as one
-   * buffer: a commit releases thousands at once. All of one tick's PUBACKs belong to one
-   * connection; if it closed before this runs, they are remembered as release() remembers a late commit.
-   */
-  private flushAcks = (): void => {
-    const held = this.ackQueue;
-    this.ackQueue = [];
-    const client = this.client;
-    if (held[0]!.generation !== this.generation || !client?.connected || !client.stream) {
-      for (const h of held) this.remember(h);
-      return;
-    }
-    const opts = { protocolVersion: this.protocol };
-    client.stream.write(Buffer.concat(held.map((h) => mqttPacket.generate({ cmd: 'puback', messageId: h.messageId }, opts))));
-  };
 
   updateTags(tags: readonly TagConfig[]): void {
     if (this.tags.update(tags)) this.handler.rebuild();
@@ -324,14 +242,16 @@ export class MqttConnector implements Connector {
       reconnects: this.counters.reconnects,
       details: {
         clientId: this.clientId,
-        protocolVersion: this.protocol === 5 ? '5.0' : '3.1.1',
+        protocolVersion: this.session.protocol === 5 ? '5.0' : '3.1.1',
         topics: this.opts.topics,
         discoveredTopics: this.handler.discovery.size,
         invalidFilters: this.handler.invalidFilters,
         /** Redeliveries of messages already stored, acknowledged without writing them again. */
         redelivered: this.counters.redelivered,
-        /** Intake stopped at the writer's high-water mark: mqtt.js's callback is held, nothing more is read. */
-        paused: this.stalled !== null,
+        /** `pipelined`: ingest's own session; `serial`: mqtt.js, one message per commit (ws://, wss://). */
+        acks: this.session instanceof MqttSession ? 'pipelined' : 'serial',
+        /** Intake stopped at the writer's high-water mark: the broker's socket is not read. */
+        paused: this.session.paused,
         payload: this.opts.payload,
         ...(this.handler.sparkplug ? { sparkplug: this.handler.sparkplug.status() } : {}),
       },
@@ -342,9 +262,6 @@ export class MqttConnector implements Connector {
     this.closing = true;
     this.state = 'disconnected';
     this.offPressure();
-    this.stalled = null;
-    const c = this.client;
-    this.client = null;
-    if (c) await c.endAsync(false).catch(() => {});
+    await this.session.close();
   }
 }

@@ -141,8 +141,8 @@ describe('MQTT → PostgreSQL', () => {
       await locker.query('LOCK TABLE samples IN ACCESS EXCLUSIVE MODE');
       await publishSeries(pub, N, t0);
       await waitFor('pressure', async () => svc.status().writer.pressureEvents, (n) => n > pressureBefore, 10_000);
-      // Intake paused: mqtt.js's callback for the message in hand is held, and mqtt.js handles
-      // one message at a time, so nothing more is read until the backlog falls.
+      // Intake paused: the session stops reading its socket and hands over nothing more it
+      // had already parsed (ingest/mqtt/mqtt-session.ts) until the backlog falls.
       await waitFor('intake paused', async () => svc.status().sources[0]!.details.paused, (p) => p === true, 10_000);
       // at most the high-water mark plus the message being handled when it was reached
       const held = received() - receivedBefore;
