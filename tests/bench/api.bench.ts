@@ -446,7 +446,7 @@ async function main(): Promise<void> {
         meanFloor_ms >= MIX_P99_MS
           ? `  diagnosis: p99 < ${MIX_P99_MS} ms is out of reach on ${cores} cores: the CPU the three processes need puts the mean alone at ≥ ${meanFloor_ms} ms`
           : p99Idle_ms >= MIX_P99_MS
-            ? `  diagnosis: p99 < ${MIX_P99_MS} ms is out of reach on ${cores} cores: the CPU per request bounds the mean at ≥ ${meanFloor_ms} ms and this mix's tail (p99 ≈ ${round(tail, 1)} × mean) puts the p99 near ${p99Idle_ms} ms even without neighbours`
+            ? `  diagnosis: p99 < ${MIX_P99_MS} ms is out of reach on ${cores} cores: the CPU per request bounds the mean at ≥ ${meanFloor_ms} ms, and with the tail measured here (p99 ≈ ${round(tail, 1)} × mean${others > 0.2 ? `, itself widened by neighbours that took ${Math.round(others * 100)} % of the cores` : ''}) the p99 would stay near ${p99Idle_ms} ms without them`
             : `  diagnosis: the machine was shared (other processes took ${Math.round(others * 100)} % of the cores): with the cores to itself the p99 would be near ${p99Idle_ms} ms; run again on a quiet machine`,
       );
     }
