@@ -15,10 +15,10 @@
  *     three rounds; the median p99 is held to < 250 ms; each round notes the CPU per request of
  *     the API process, of the PostgreSQL cluster and of autocannon, and what other processes
  *     took of the machine's cores (/proc/stat). Then each route alone for 3 s (its size and CPU
- *     per request), and the bound: 50 connections in a closed loop on CPU-bound servers spend at
- *     least 50 × CPU per request ÷ cores on average (Little's law), so the bench prints that floor,
- *     the p99 it implies with the cores to itself, and when the target is missed whether the
- *     code's CPU or the neighbours bound it;
+ *     per request), and the bounds: 50 connections in a closed loop on CPU-bound servers spend at
+ *     least 50 × CPU per request ÷ cores on average (Little's law), and the heaviest answer,
+ *     sharing the cores with 50 requests in flight, about its CPU × 50 ÷ cores; the bench prints
+ *     both and, when the target is missed, whether the code's CPU or the neighbours bound it;
  * (c) balance/live beside the reference: tests/bench/api-baseline.ts, a minimal Express + pg
  *     process on the same database returning the same row as the same JSON (checked), measured
  *     with the same autocannon settings (50 connections, 1 s warm-up, 5 s), three rounds that
@@ -349,7 +349,6 @@ async function main(): Promise<void> {
       requestsPerSec: median(mixRounds.map((m) => m.requestsPerSec!)),
       p99_ms: median(mixRounds.map((m) => m.p99_ms!)),
       mean_ms: median(mixRounds.map((m) => m.mean_ms!)),
-      p99PerMean: median(mixRounds.map((m) => m.p99_ms! / m.mean_ms!)),
       cpuPerRequest_ms: cpuPerRequest,
       meanFloor_ms,
       othersShareOfCores: round(others, 2),
@@ -437,17 +436,19 @@ async function main(): Promise<void> {
         `so 50 connections in a closed loop spend at least 50 × ${cpuPerRequest} ÷ ${cores} = ${meanFloor_ms} ms per request on average (Little's law; measured mean ${median(l.rounds.map((m) => m.mean_ms!))} ms) and the p99 is above that mean; ` +
         `other processes took ${Math.round(others * 100)} % of the cores during the rounds`,
     );
-    // The tail scaled with the mean: in a closed loop every latency shrinks with the throughput.
-    const tail = median(l.rounds.map((m) => m.p99_ms! / m.mean_ms!));
-    const p99Idle_ms = round(meanFloor_ms * tail);
-    console.log(`  with ${cores} cores to itself: mean ≥ ${meanFloor_ms} ms, p99 ≈ ${p99Idle_ms} ms (the mean floor × the measured p99/mean of ${round(tail, 2)})`);
+    // The heaviest answer of the mix, served while 50 requests share the cores (the OS shares
+    // them among PostgreSQL backends, the event loop interleaves requests between I/O waits), takes
+    // about its CPU × 50 ÷ cores; it is one request in six, so the p99 falls among those.
+    const [heavyName, heavy] = Object.entries(byRoute).sort(([, a], [, b]) => b.apiCpuPerRequest_ms + b.pgCpuPerRequest_ms - (a.apiCpuPerRequest_ms + a.pgCpuPerRequest_ms))[0]!;
+    const heavyCpu_ms = round(heavy.apiCpuPerRequest_ms + heavy.pgCpuPerRequest_ms, 2);
+    const p99Shared_ms = round((heavyCpu_ms * 50) / cores);
+    console.log(`  heaviest answer: ${heavyName}, ${heavyCpu_ms} ms CPU (API + PostgreSQL); sharing ${cores} cores with 50 requests in flight it takes ≈ ${heavyCpu_ms} × 50 ÷ ${cores} = ${p99Shared_ms} ms, and at one request in six the p99 falls among those`);
+    (results.load as Record<string, unknown>).p99Shared_ms = p99Shared_ms;
     if (!(l.p99_ms < MIX_P99_MS)) {
       console.log(
-        meanFloor_ms >= MIX_P99_MS
-          ? `  diagnosis: p99 < ${MIX_P99_MS} ms is out of reach on ${cores} cores: the CPU the three processes need puts the mean alone at ≥ ${meanFloor_ms} ms`
-          : p99Idle_ms >= MIX_P99_MS
-            ? `  diagnosis: p99 < ${MIX_P99_MS} ms is out of reach on ${cores} cores: the CPU per request bounds the mean at ≥ ${meanFloor_ms} ms, and with the tail measured here (p99 ≈ ${round(tail, 1)} × mean${others > 0.2 ? `, itself widened by neighbours that took ${Math.round(others * 100)} % of the cores` : ''}) the p99 would stay near ${p99Idle_ms} ms without them`
-            : `  diagnosis: the machine was shared (other processes took ${Math.round(others * 100)} % of the cores): with the cores to itself the p99 would be near ${p99Idle_ms} ms; run again on a quiet machine`,
+        meanFloor_ms >= MIX_P99_MS || p99Shared_ms >= MIX_P99_MS
+          ? `  diagnosis: p99 < ${MIX_P99_MS} ms is out of reach on ${cores} cores with 50 connections: the CPU per request bounds the mean at ≥ ${meanFloor_ms} ms and the ${heavyName} answers at ≈ ${p99Shared_ms} ms even with the cores to themselves`
+          : `  diagnosis: the machine was shared (other processes took ${Math.round(others * 100)} % of the cores): with the cores to itself the p99 would be near ${Math.max(meanFloor_ms, p99Shared_ms)} ms; run again on a quiet machine`,
       );
     }
     console.log(`\nbalance/live, 50 connections, ${LIVE_S} s per side per round (after 1 s warm-up each): product vs minimal Express + pg`);
