@@ -87,7 +87,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       method: 'get',
       path: '/plants/:plantId/tags/:tagId/samples',
       summary:
-        'Tag history over [from, to) (default the last hour): raw samples, or buckets from raw, rollup_1m or rollup_1h chosen so that at most ~2000 points return; agg mean|min|max|last; empty buckets are left out (gaps stay gaps); bad or value-less samples are not aggregated (as in the rollups)',
+        'Tag history over [from, to) (default the last hour): raw samples, or buckets from raw, rollup_1m or rollup_1h chosen so that at most ~2000 points return (without a step, a window of 500 min to 2000 min comes at 1 min and one of 500 h to 2000 h at 1 h, straight from the rollup); agg mean|min|max|last; empty buckets are left out (gaps stay gaps); bad or value-less samples are not aggregated (as in the rollups)',
       params: tagParams,
       query: samplesQuery,
       csv: true,
