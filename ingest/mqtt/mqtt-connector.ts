@@ -102,7 +102,8 @@ export class MqttConnector implements Connector {
     private source: SourceConfig,
     tags: readonly TagConfig[],
     private writer: BatchWriter,
-    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean; discovery?: Discovery; acks?: AckMode },
+    /** `session`: the client identifier and filters of a worker in a shared subscription, or `drain` a dead worker's session (ingest/source-ownership.ts). */
+    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean; discovery?: Discovery; acks?: AckMode; session?: { clientId: string; filters: string[]; drain: boolean } },
   ) {
     this.sourceId = source.id;
     const { options, error } = mqttOptionsOf(source);
@@ -121,7 +122,7 @@ export class MqttConnector implements Connector {
   }
 
   get clientId(): string {
-    return this.opts.clientId ?? `${this.ctx.clientIdPrefix}-${this.source.id}`;
+    return this.ctx.session?.clientId ?? this.opts.clientId ?? `${this.ctx.clientIdPrefix}-${this.source.id}`;
   }
 
   private get serial(): boolean {
@@ -167,8 +168,9 @@ export class MqttConnector implements Connector {
       client.options.reconnectPeriod = 1_000;
       this.ctx.log.info({ source: this.source.id, sessionPresent: connack.sessionPresent, protocol: this.protocol }, 'mqtt connected');
       // Subscribing again on every connect is harmless (MQTT 5.0 §3.8.4: an identical filter replaces the subscription).
+      if (this.ctx.session?.drain) return void client.unsubscribe(this.ctx.session.filters);
       client.subscribe(
-        this.opts.topics.map((t) => t),
+        this.ctx.session?.filters ?? this.opts.topics,
         { qos: 1 },
         (err) => {
           if (err) this.lastError = `subscribe failed: ${err.message}`;
@@ -338,13 +340,19 @@ export class MqttConnector implements Connector {
     };
   }
 
-  async close(): Promise<void> {
+  /** Connected, and every message received is committed and acknowledged. */
+  get idle(): boolean {
+    return this.state === 'connected' && this.held.size === 0 && this.counters.outstanding === 0;
+  }
+
+  /** `endSession`: Session Expiry Interval 0 on DISCONNECT, so the broker ends the session (MQTT 5.0 §3.14.2.2.2). */
+  async close(endSession = false): Promise<void> {
     this.closing = true;
     this.state = 'disconnected';
     this.offPressure();
     this.stalled = null;
     const c = this.client;
     this.client = null;
-    if (c) await c.endAsync(false).catch(() => {});
+    if (c) await c.endAsync(false, endSession && this.protocol === 5 ? { properties: { sessionExpiryInterval: 0 } } : {}).catch(() => {});
   }
 }
