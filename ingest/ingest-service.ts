@@ -130,8 +130,9 @@ export class IngestService {
       log,
     );
     svc.timers.push(setInterval(() => void svc.reload('poll'), cfg.reloadMs));
-    // Leases are renewed (and free ones taken) with every heartbeat.
-    svc.timers.push(setInterval(() => void svc.heartbeat().then(() => svc.reload('lease')), cfg.statusMs));
+    // Leases are renewed (and free ones taken) with every heartbeat, first: the heartbeat's
+    // discovery upsert can be slow under load, and a late renewal hands a live source away.
+    svc.timers.push(setInterval(() => void svc.reload('lease').then(() => svc.heartbeat()), cfg.statusMs));
     svc.timers.push(setInterval(() => void svc.maintain(), HOUR_MS));
     await svc.heartbeat();
     return svc;

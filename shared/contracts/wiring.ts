@@ -476,10 +476,10 @@ export type IngestWorkerStatus = z.infer<typeof ingestWorkerStatus>;
 export const INGEST_HEARTBEAT_PERIODS = 3;
 /**
  * A worker that stopped or went silent stays in `workers` (running false, shown stale) until its
- * last heartbeat is this many periods old (60 s at the default 2 s), then leaves the list; its
+ * last heartbeat is this many periods old (20 s at the default 2 s), then leaves the list; its
  * row is deleted after a day.
  */
-export const INGEST_WORKER_SHOWN_PERIODS = 30;
+export const INGEST_WORKER_SHOWN_PERIODS = 10;
 
 export const ingestWorkerOut = z.object({
   id: z.string(),
