@@ -186,6 +186,9 @@ export class IngestService {
       }
     }
     const snap = this.snap;
+    // Loading node-opcua takes seconds on a busy machine: done before any lease is taken, so a
+    // lease never runs out between its take and the connector's start.
+    if (snap.sources.some((s) => s.kind === 'opcua')) await import('./opcua/opcua-connector.ts');
     const seen = new Set<number>();
     let error: string | null = null;
     for (const s of snap.sources) {
