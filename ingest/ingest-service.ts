@@ -75,6 +75,7 @@ export class IngestService {
   private drains = new Map<string, { sourceId: number; c: MqttConnector; messages: number; quietBeats: number }>();
   /** The protocol level a probe found per MQTT source with protocolVersion auto (by source key). */
   private protocols = new Map<string, 4 | 5>();
+  private probing = new Set<string>();
   private snap: WiringSnapshot | null = null;
   private leaseTimer: NodeJS.Timeout | null = null;
   readonly leases: SourceLeases;
@@ -223,7 +224,7 @@ export class IngestService {
   private async arbitrate(s: SourceConfig, tags: TagConfig[]): Promise<void> {
     const key = sourceKey(s);
     const cur = this.connectors.get(s.id);
-    const mode = await this.modeOf(s, key);
+    const mode = this.modeOf(s, key);
     if (mode === null) return;
     let mine: boolean;
     let sessionId: string | undefined;
@@ -270,25 +271,28 @@ export class IngestService {
   /**
    * An MQTT source runs shared on an MQTT 5 broker when it has a shared group; with
    * protocolVersion auto the broker is asked once (a throwaway connection, as the API's
-   * connection test does). Null while that cannot be told (broker unreachable): tried again
-   * with the next heartbeat.
+   * connection test does). Null while that is not known: the probe runs in the background (an
+   * unreachable broker must not hold up the renewal of other sources' leases) and a re-run
+   * follows its answer; a failed probe is tried again with the next heartbeat.
    */
-  private async modeOf(s: SourceConfig, key: string): Promise<RunMode | null> {
+  private modeOf(s: SourceConfig, key: string): RunMode | null {
     if (s.kind !== 'mqtt') return 'lease';
     const o = mqttOptionsOf(s).options;
     if (o.sharedGroup === null || o.protocolVersion === 4) return 'lease';
     if (o.protocolVersion === 5) return 'shared';
-    let level = this.protocols.get(key);
-    if (level === undefined) {
-      const probe = await testMqttConnection(s, 5_000);
-      if (!probe.ok) {
-        this.log.warn({ source: s.id, err: probe.error }, 'MQTT broker not reachable; its protocol level decides how workers share the source, trying again');
-        return null;
-      }
-      level = probe.details?.protocolVersion === '5.0' ? 5 : 4;
-      this.protocols.set(key, level);
+    const level = this.protocols.get(key);
+    if (level !== undefined) return level === 5 ? 'shared' : 'lease';
+    if (!this.probing.has(key)) {
+      this.probing.add(key);
+      void testMqttConnection(s, 5_000)
+        .then((probe) => {
+          if (!probe.ok) return this.log.warn({ source: s.id, err: probe.error }, 'MQTT broker not reachable; its protocol level decides how workers share the source, trying again');
+          this.protocols.set(key, probe.details?.protocolVersion === '5.0' ? 5 : 4);
+          void this.reload('lease');
+        })
+        .finally(() => this.probing.delete(key));
     }
-    return level === 5 ? 'shared' : 'lease';
+    return null;
   }
 
   /** This worker's client identifier in a shared subscription: one persistent session per worker. */
