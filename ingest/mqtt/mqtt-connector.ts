@@ -102,7 +102,7 @@ export class MqttConnector implements Connector {
     private source: SourceConfig,
     tags: readonly TagConfig[],
     private writer: BatchWriter,
-    /** `session`: the client identifier and filters of a worker in a shared subscription, or `drain` a dead worker's session (ingest/source-ownership.ts). */
+    /** `session`: the client identifier and filters of a worker in a shared subscription, or `drain` a dead worker's session (ingest/ingest-service.ts adoptOrphans). */
     private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean; discovery?: Discovery; acks?: AckMode; session?: { clientId: string; filters: string[]; drain: boolean } },
   ) {
     this.sourceId = source.id;
