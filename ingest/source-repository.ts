@@ -48,3 +48,13 @@ export async function loadWiring(pool: pg.Pool): Promise<WiringSnapshot> {
   }
   return { sources: s.rows.map((r) => ({ ...r, options: r.options ?? {} })), tagsBySource };
 }
+
+/**
+ * The source timestamp of the newest stored sample of each of these tags (`tag_latest`, kept by
+ * the writer in the batch's transaction), for a source taken over from another worker.
+ */
+export async function lastStoredTimes(pool: pg.Pool, tagIds: readonly number[]): Promise<Map<number, Date>> {
+  if (!tagIds.length) return new Map();
+  const r = await pool.query<{ tag_id: number; ts: Date }>(`SELECT tag_id, ts FROM tag_latest WHERE tag_id = ANY($1)`, [tagIds]);
+  return new Map(r.rows.map((x) => [x.tag_id, x.ts]));
+}

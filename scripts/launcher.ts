@@ -277,9 +277,42 @@ export function startSimulator(l: Launcher, config: Config, mqttUrl: string, res
   l.supervised('simulator', 'simulators/cli.ts', args);
 }
 
-/** The ingest process, writing to `databaseUrl`. */
+/**
+ * `config.ingestWorkers` ingest processes writing to `databaseUrl` (INGEST_WORKERS, default 1),
+ * each supervised. The first keeps the data folder itself (spool, log, PKI as before); each
+ * further one gets a folder of its own (claimWorkerDir), because a spool belongs to one worker.
+ */
 export function startIngest(l: Launcher, config: Config, databaseUrl: string): void {
-  l.supervised('ingest', 'ingest/main.ts', [], { DATABASE_URL: databaseUrl, FLOCSTREAM_DATA_DIR: config.dataDir }, INGEST_NODE_ARGS);
+  for (let i = 1; i <= config.ingestWorkers; i++) {
+    const dir = i === 1 ? config.dataDir : claimWorkerDir(config.dataDir);
+    l.supervised(i === 1 ? 'ingest' : `ingest-${i}`, 'ingest/main.ts', [], { DATABASE_URL: databaseUrl, FLOCSTREAM_DATA_DIR: dir }, INGEST_NODE_ARGS);
+  }
+}
+
+/**
+ * A data folder for one more ingest worker on this host: the first `<dataDir>/ingest-workers/<n>`
+ * whose `launcher.pid` names no running process, claimed by writing this process's pid there.
+ * A folder left by a worker that died keeps its spool, which the next worker to claim it replays.
+ */
+export function claimWorkerDir(dataDir: string): string {
+  for (let n = 2; ; n++) {
+    const dir = path.join(dataDir, 'ingest-workers', String(n));
+    fs.mkdirSync(dir, { recursive: true, mode: 0o700 });
+    const pidFile = path.join(dir, 'launcher.pid');
+    const pid = Number(fs.existsSync(pidFile) ? fs.readFileSync(pidFile, 'utf8') : NaN);
+    if (Number.isInteger(pid) && pid > 0 && processAlive(pid)) continue;
+    fs.writeFileSync(pidFile, String(process.pid), { mode: 0o600 });
+    return dir;
+  }
+}
+
+function processAlive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (err) {
+    return (err as NodeJS.ErrnoException).code === 'EPERM';
+  }
 }
 
 /** The first admin's password, shown once when it was just created. */

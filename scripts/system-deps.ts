@@ -6,7 +6,12 @@ import { findPgBinDir } from '../server/db/local-postgres.ts';
 const PRESENT = {
   postgresql: () => findPgBinDir() !== null,
   chromium: () => fs.existsSync(chromiumPath()),
+  // The external MQTT 5 broker of the scale-out test and `bench:ingest -- --broker mosquitto`.
+  mosquitto: () => fs.existsSync(MOSQUITTO_PATH),
 };
+
+/** Debian's mosquitto broker binary. */
+export const MOSQUITTO_PATH = '/usr/sbin/mosquitto';
 export type SystemPackage = keyof typeof PRESENT;
 
 export function chromiumPath(): string {

@@ -3,7 +3,7 @@ import type { SystemPackage } from './system-deps.ts';
 /** What each vitest project (vitest.config.ts) needs before it runs. */
 export const PROJECT_NEEDS: Record<string, { packages: SystemPackage[]; monitor: boolean }> = {
   unit: { packages: [], monitor: false },
-  integration: { packages: ['postgresql'], monitor: false },
+  integration: { packages: ['postgresql', 'mosquitto'], monitor: false },
   e2e: { packages: ['postgresql', 'chromium'], monitor: true },
 };
 

@@ -1,7 +1,8 @@
 /**
  * `npm test`: runs the vitest projects, first installing and building only what the selected
  * projects need: unit nothing; integration Debian's PostgreSQL server (a throwaway private
- * cluster); e2e PostgreSQL, Debian's Chromium and the built monitor. Arguments go to vitest
+ * cluster) and Debian's mosquitto (the external MQTT 5 broker of the scale-out test); e2e PostgreSQL,
+ * Debian's Chromium and the built monitor. Arguments go to vitest
  * (`npm test -- --project unit`); with no project named, every project runs and all is prepared.
  */
 import { spawnSync } from 'node:child_process';

@@ -32,6 +32,8 @@ const envSchema = z.object({
   /** With DATABASE_URL (the owner, for migrations): the API's and ingest's own roles (server/db/roles.ts). */
   FLOCSTREAM_API_DATABASE_URL: z.url().optional(),
   INGEST_DATABASE_URL: z.url().optional(),
+  /** Ingest worker processes `npm start` supervises (they share the sources through leases, ingest/source-leases.ts). */
+  INGEST_WORKERS: z.coerce.number().int().min(1).max(16).default(1),
   FLOCSTREAM_API_STATEMENT_TIMEOUT_MS: z.coerce.number().int().min(100).max(600_000).default(10_000),
   FLOCSTREAM_CALC_WORKERS: z.coerce.number().int().min(1).max(8).default(1),
   FLOCSTREAM_CALC_QUEUE: z.coerce.number().int().min(0).max(1000).default(8),
@@ -65,6 +67,7 @@ export type Config = {
   dataDir: string;
   pgPort: number;
   databaseUrl: string | undefined;
+  ingestWorkers: number;
   adminEmail: string | undefined;
   adminPassword: string | undefined;
   sessionSecret: string | undefined;
@@ -132,6 +135,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     mqttMaxPacketBytes: e.FLOCSTREAM_MQTT_MAX_PACKET_BYTES,
     apiDatabaseUrl: e.FLOCSTREAM_API_DATABASE_URL,
     ingestDatabaseUrl: e.INGEST_DATABASE_URL,
+    ingestWorkers: e.INGEST_WORKERS,
     apiStatementTimeout_ms: e.FLOCSTREAM_API_STATEMENT_TIMEOUT_MS,
     calc: {
       workers: e.FLOCSTREAM_CALC_WORKERS,

@@ -74,7 +74,8 @@ export class MqttConnector implements Connector {
     private source: SourceConfig,
     tags: readonly TagConfig[],
     private writer: BatchWriter,
-    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean; discovery?: Discovery; acks?: AckMode },
+    /** `session`: the client identifier and filters of a worker in a shared subscription, or `drain` a dead worker's session (ingest/ingest-service.ts adoptOrphans). */
+    private ctx: { clientIdPrefix: string; log: Logger; trace?: boolean; discovery?: Discovery; acks?: AckMode; session?: { clientId: string; filters: string[]; drain: boolean } },
   ) {
     this.sourceId = source.id;
     const { options, error } = mqttOptionsOf(source);
@@ -90,7 +91,7 @@ export class MqttConnector implements Connector {
   }
 
   get clientId(): string {
-    return this.opts.clientId ?? `${this.ctx.clientIdPrefix}-${this.source.id}`;
+    return this.ctx.session?.clientId ?? this.opts.clientId ?? `${this.ctx.clientIdPrefix}-${this.source.id}`;
   }
 
   /**
@@ -98,12 +99,18 @@ export class MqttConnector implements Connector {
    * prefix them here).
    */
   private subscriptionFilters(): readonly string[] {
-    return this.opts.topics;
+    return this.ctx.session?.filters ?? this.opts.topics;
   }
 
   private createSession(): SubscriberSession {
     const o = this.opts;
-    const common = { url: this.source.url, protocol: firstProtocol(o), fallback: (tried: ProtocolLevel, err: { code: number }) => fallbackProtocol(o, tried, err), filters: () => this.subscriptionFilters() };
+    const common = {
+      url: this.source.url,
+      protocol: firstProtocol(o),
+      fallback: (tried: ProtocolLevel, err: { code: number }) => fallbackProtocol(o, tried, err),
+      filters: () => this.subscriptionFilters(),
+      drain: this.ctx.session?.drain ?? false,
+    };
     if (this.ctx.acks === 'serial' || /^wss?:/.test(this.source.url)) {
       return new MqttJsSession(
         {
@@ -258,10 +265,16 @@ export class MqttConnector implements Connector {
     };
   }
 
-  async close(): Promise<void> {
+  /** Connected, and every message received is committed and acknowledged. */
+  get idle(): boolean {
+    return this.state === 'connected' && this.counters.outstanding === 0;
+  }
+
+  /** `endSession`: Session Expiry Interval 0 on DISCONNECT, so the broker ends the session (MQTT 5.0 §3.14.2.2.2). */
+  async close(endSession = false): Promise<void> {
     this.closing = true;
     this.state = 'disconnected';
     this.offPressure();
-    await this.session.close();
+    await this.session.close(endSession);
   }
 }

@@ -60,7 +60,8 @@ export interface SubscriberSession {
   publish(topic: string, payload: Buffer): boolean;
   pause(): void;
   resume(): void;
-  close(): Promise<void>;
+  /** `endSession`: on 5.0, DISCONNECT with Session Expiry Interval 0, so the broker ends the session (MQTT 5.0 §3.14.2.2.2). */
+  close(endSession?: boolean): Promise<void>;
 }
 
 export interface SessionOptions {
@@ -77,6 +78,11 @@ export interface SessionOptions {
   ca?: string | string[] | Buffer | Buffer[];
   /** Topic filters subscribed (QoS 1) after every CONNACK. */
   filters(): readonly string[];
+  /**
+   * Unsubscribe the filters after every CONNACK instead: the session of a dead worker of a shared
+   * group is resumed only to take what the broker still holds for it (ingest/ingest-service.ts).
+   */
+  drain?: boolean;
   connectTimeoutMs?: number;
   reconnectMinMs?: number;
   reconnectMaxMs?: number;
@@ -235,6 +241,8 @@ export class MqttSession implements SubscriberSession {
         return this.onConnack(id, p);
       case 'suback':
         return this.onSuback(p);
+      case 'unsuback':
+        return;
       case 'pingresp':
         this.readsAtPing = -1;
         return;
@@ -272,6 +280,7 @@ export class MqttSession implements SubscriberSession {
     const filters = this.opts.filters();
     if (filters.length === 0) return;
     this.subscribeId = (this.subscribeId % 65_535) + 1;
+    if (this.opts.drain) return this.write(id, { cmd: 'unsubscribe', messageId: this.subscribeId, unsubscriptions: [...filters] });
     this.write(id, { cmd: 'subscribe', messageId: this.subscribeId, subscriptions: filters.map((topic) => ({ topic, qos: 1 as const })) });
   }
 
@@ -410,7 +419,7 @@ export class MqttSession implements SubscriberSession {
   }
 
   /** Writes the PUBACKs due, then DISCONNECT (MQTT 3.1.1 §3.14, MQTT 5.0 §3.14 reason Normal), and closes. */
-  async close(): Promise<void> {
+  async close(endSession = false): Promise<void> {
     if (this.closing) return;
     this.closing = true;
     if (this.reconnectTimer) clearTimeout(this.reconnectTimer);
@@ -420,7 +429,7 @@ export class MqttSession implements SubscriberSession {
     const done = new Promise<void>((r) => (this.closed = r));
     if (this.open) {
       this.flushAcks();
-      this.write(this.current, this._protocol === 5 ? { cmd: 'disconnect', reasonCode: 0 } : { cmd: 'disconnect' });
+      this.write(this.current, this._protocol === 5 ? { cmd: 'disconnect', reasonCode: 0, ...(endSession ? { properties: { sessionExpiryInterval: 0 } } : {}) } : { cmd: 'disconnect' });
       socket.end();
     } else socket.destroy();
     const timer = setTimeout(() => socket.destroy(), 2_000);

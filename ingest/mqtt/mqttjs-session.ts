@@ -17,7 +17,7 @@ interface HeldDelivery extends Delivery {
   release: (() => void) | null;
 }
 
-export interface MqttJsSessionOptions extends Pick<SessionOptions, 'url' | 'protocol' | 'fallback' | 'filters'> {
+export interface MqttJsSessionOptions extends Pick<SessionOptions, 'url' | 'protocol' | 'fallback' | 'filters' | 'drain'> {
   /** mqtt.js options for a protocol level (./mqtt-connection.ts connectOptions, with the session's client id and Clean Start 0). */
   clientOptions(protocol: ProtocolLevel): IClientOptions;
 }
@@ -70,6 +70,7 @@ export class MqttJsSession implements SubscriberSession {
       this.live = ++this.count;
       client.options.reconnectPeriod = 1_000;
       this.events.connected({ sessionPresent: connack.sessionPresent, protocol: this._protocol });
+      if (this.opts.drain) return void client.unsubscribe([...this.opts.filters()]);
       client.subscribe([...this.opts.filters()], { qos: 1 }, (err, granted) => {
         if (err) return this.events.error(`subscribe failed: ${err.message}`, false);
         // MQTT 3.1.1 §3.9.3 / 5.0 §3.9.3: a granted QoS of 0x80 or above is a refusal.
@@ -146,11 +147,11 @@ export class MqttJsSession implements SubscriberSession {
     go?.();
   }
 
-  async close(): Promise<void> {
+  async close(endSession = false): Promise<void> {
     this.stalled = null;
     const c = this.client;
     this.client = null;
     this.live = 0;
-    if (c) await c.endAsync(false).catch(() => {});
+    if (c) await c.endAsync(false, endSession && this._protocol === 5 ? { properties: { sessionExpiryInterval: 0 } } : {}).catch(() => {});
   }
 }

@@ -6,6 +6,8 @@ import {
   ClientMonitoredItem,
   ClientSubscription,
   DataType,
+  HistoryData,
+  type HistoryReadResult,
   TimestampsToReturn,
   type ClientSession,
   type DataValue,
@@ -37,6 +39,16 @@ import { gradeOfStatusCode, numericValue } from './status-quality.ts';
  * server's retransmission queue, OPC 10000-4 §5.13.5), so samples between receipt and the next
  * flush (≤ INGEST_FLUSH_MS) are lost if ingest is killed; everything flushed is committed or
  * spooled.
+ *
+ * Read-back: a new subscription starts from the current value (its monitored items' queues are
+ * the new subscription's, OPC 10000-4 §5.12.1.5, empty of what happened while nobody
+ * subscribed), so the queue cannot give back a gap — after a takeover from a dead worker, or a
+ * lost session. After each (re)connect the connector therefore reads the server's history from
+ * the newest stored sample of each tag to now (HistoryRead with ReadRawModifiedDetails, OPC
+ * 10000-11 §6.4.3, source timestamps) for each node whose Historizing attribute is true (OPC
+ * 10000-3 §5.6.2); a node the server keeps no history for is counted in `readBack.notHistorizing`
+ * and its gap stays. The subscription is created first, so history and live values overlap and
+ * the samples primary key absorbs the overlap.
  */
 export class OpcuaConnector implements Connector {
   readonly sourceId: number;
@@ -52,6 +64,8 @@ export class OpcuaConnector implements Connector {
   private lastMessageAt: number | null = null;
   private itemErrors = new Map<number, string>();
   private counters = { messages: 0, samples: 0, deadLetters: 0, suppressed: 0, reconnects: 0 };
+  /** History read-back after (re)connects: values read, nodes without history, the last failure. */
+  private readBackStats = { values: 0, notHistorizing: 0, error: null as string | null };
   private closing = false;
   private retryMs = 1_000;
   private retryTimer: NodeJS.Timeout | null = null;
@@ -64,7 +78,7 @@ export class OpcuaConnector implements Connector {
     tags: readonly TagConfig[],
     private writer: BatchWriter,
     /** `db` holds the one client certificate (opcua-client.ts); `dataDir` this host's PKI folder. */
-    private ctx: { dataDir: string; db: pg.Pool; log: Logger },
+    private ctx: { dataDir: string; db: pg.Pool; log: Logger; lastStored?: (tagIds: number[]) => Promise<Map<number, Date>> },
   ) {
     this.sourceId = source.id;
     const { opts, error } = parseOpcuaOptions(source.options);
@@ -121,6 +135,10 @@ export class OpcuaConnector implements Connector {
       this.connectedAt = Date.now();
       this.retryMs = 1_000;
       this.ctx.log.info({ source: this.source.id, url: this.source.url, securityMode: this.opts.securityMode }, 'opcua connected');
+      void this.readBack(session, run).catch((err: unknown) => {
+        this.readBackStats.error = (err as Error).message;
+        this.ctx.log.warn({ source: this.source.id, err: (err as Error).message }, 'history read-back failed; the gap stays');
+      });
     } catch (err) {
       this.lost((err as Error).message, run);
     }
@@ -144,6 +162,37 @@ export class OpcuaConnector implements Connector {
       void this.start();
     }, this.retryMs);
     this.retryMs = Math.min(this.retryMs * 2, 30_000);
+  }
+
+  /** See the class comment: the gap since the newest stored sample, from the server's history. */
+  private async readBack(session: ClientSession, run: number): Promise<void> {
+    if (!this.ctx.lastStored) return;
+    const tags = [...this.tags.all()].map((p) => p.tag);
+    const last = await this.ctx.lastStored(tags.map((t) => t.id));
+    const wanted = tags.filter((t) => last.has(t.id));
+    if (!wanted.length || run !== this.run) return;
+    const end = new Date();
+    const historizing = await session.read(wanted.map((t) => ({ nodeId: t.address, attributeId: AttributeIds.Historizing })));
+    for (const [i, t] of wanted.entries()) {
+      if (historizing[i]?.value.value !== true) {
+        this.readBackStats.notHistorizing++;
+        continue;
+      }
+      let continuationPoint: Buffer | null = null;
+      do {
+        const r: HistoryReadResult = await session.readHistoryValue({ nodeId: t.address, ...(continuationPoint ? { continuationPoint } : {}) }, last.get(t.id)!, end, {
+          numValuesPerNode: 1000,
+          timestampsToReturn: TimestampsToReturn.Source,
+        });
+        if (run !== this.run) return;
+        if (!r.statusCode.isGood()) throw new Error(`history read of ${t.address}: ${r.statusCode.toString()}`);
+        const values = r.historyData instanceof HistoryData ? (r.historyData.dataValues ?? []) : [];
+        for (const dv of values) this.onValue(t.id, dv);
+        this.readBackStats.values += values.length;
+        continuationPoint = r.continuationPoint?.length ? r.continuationPoint : null;
+      } while (continuationPoint);
+    }
+    if (this.readBackStats.values) this.ctx.log.info({ source: this.source.id, values: this.readBackStats.values }, 'gap read back from the server’s history');
   }
 
   /** Brings the monitored items in line with the tag list (added, removed, changed interval or address). */
@@ -235,6 +284,7 @@ export class OpcuaConnector implements Connector {
         securityPolicy: this.opts.securityPolicy,
         clientCertificateThumbprint: this.thumbprint,
         monitoredItems: this.items.size,
+        readBack: { ...this.readBackStats },
         itemErrors: Object.fromEntries(this.itemErrors),
       },
     };

@@ -41,6 +41,7 @@ export const INGEST_TABLE_GRANTS: Record<string, string> = {
   dead_letters: 'SELECT, INSERT',
   ingest_workers: 'SELECT, INSERT, UPDATE, DELETE',
   mqtt_discovery: 'SELECT, INSERT, UPDATE, DELETE',
+  source_leases: 'SELECT, INSERT, UPDATE, DELETE',
   opcua_client_identity: 'SELECT, INSERT',
   sources: 'SELECT',
   tags: 'SELECT, UPDATE',

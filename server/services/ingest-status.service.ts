@@ -1,4 +1,4 @@
-import { INGEST_HEARTBEAT_PERIODS, ingestWorkerStatus, type IngestStatusOut, type IngestWorkerOut, type IngestWorkerStatus } from '../../shared/contracts/wiring.ts';
+import { INGEST_HEARTBEAT_PERIODS, INGEST_WORKER_SHOWN_PERIODS, ingestWorkerStatus, type IngestStatusOut, type IngestWorkerOut, type IngestWorkerStatus } from '../../shared/contracts/wiring.ts';
 import type { Clock } from '../app-context.ts';
 import type { Principal } from '../auth/principal.ts';
 import type { IngestRepository, IngestWorkerRow } from '../repositories/ingest.repository.ts';
@@ -35,7 +35,9 @@ export function createIngestStatusService(deps: IngestStatusDeps) {
         const plantOf = await deps.wiring.sourcePlants([...new Set(workers.flatMap((w) => w.status?.sources.map((s) => s.sourceId) ?? []))]);
         for (const w of workers) if (w.status) w.status = { ...w.status, sources: w.status.sources.filter((s) => scope.includes(plantOf.get(s.sourceId) ?? -1)) };
       }
-      const out: IngestWorkerOut[] = workers.map(({ row, running, status }) => ({
+      // A stopped or silent worker is shown stale for a while, then left out (its row stays a day).
+      const shownWorkers = workers.filter((w) => w.running || w.row.heartbeatAge_s * 1000 < INGEST_WORKER_SHOWN_PERIODS * w.row.heartbeat_ms);
+      const out: IngestWorkerOut[] = shownWorkers.map(({ row, running, status }) => ({
         id: row.id,
         host: row.host,
         pid: row.pid,
@@ -49,6 +51,9 @@ export function createIngestStatusService(deps: IngestStatusDeps) {
         lagMs: status?.lagMs ?? null,
         spool: status?.spool ?? null,
         sourceIds: status?.sources.map((s) => s.sourceId) ?? [],
+        sources: status?.sources.length ?? 0,
+        messages: status?.sources.reduce((a, s) => a + s.messages, 0) ?? 0,
+        samples: status?.sources.reduce((a, s) => a + s.samples, 0) ?? 0,
         loadError: status?.loadError ?? null,
       }));
       const latest = workers[0];

@@ -63,6 +63,14 @@ const mqttOptionFields = {
     .string()
     .regex(/^[0-9A-Za-z_.-]{1,64}$/, 'letters, digits, _ . - only (MQTT 5.0 §3.1.3.1 guarantees 0-9a-zA-Z; 64 characters at most)')
     .meta({ description: 'client identifier of the ingest session (default flocstream-ingest-<source id>); keep it stable so the broker keeps the session' }),
+  sharedGroup: z
+    .string()
+    .regex(/^[0-9A-Za-z_.-]{1,64}$/, 'letters, digits, _ . - only (a ShareName must not contain /, + or #, MQTT 5.0 §4.8.2)')
+    .nullable()
+    .meta({
+      description:
+        'MQTT 5 brokers: the shared subscription group every ingest worker joins ($share/<group>/<filter>, MQTT 5.0 §4.8.2), so the broker spreads the messages over the workers (default flocstream); null: one worker holds the source and the others stand by, as on MQTT 3.1.1 brokers',
+    }),
   keepalive_s: z.number().int().min(5).max(3600).meta({ description: 'Keep Alive [s] (MQTT 5.0 §3.1.2.10)' }),
   tlsCa_pem: z
     .string()
@@ -88,6 +96,7 @@ export const mqttSourceOptions = z
     topics: mqttOptionFields.topics.default(['#']),
     protocolVersion: mqttOptionFields.protocolVersion.default('auto'),
     clientId: mqttOptionFields.clientId.optional(),
+    sharedGroup: mqttOptionFields.sharedGroup.default('flocstream'),
     keepalive_s: mqttOptionFields.keepalive_s.default(30),
     tlsCa_pem: mqttOptionFields.tlsCa_pem.optional(),
     payload: mqttOptionFields.payload.default('json'),
@@ -465,6 +474,12 @@ export type IngestWorkerStatus = z.infer<typeof ingestWorkerStatus>;
 
 /** A worker runs while its last heartbeat is younger than this many of its heartbeat periods. */
 export const INGEST_HEARTBEAT_PERIODS = 3;
+/**
+ * A worker that stopped or went silent stays in `workers` (running false, shown stale) until its
+ * last heartbeat is this many periods old (20 s at the default 2 s), then leaves the list; its
+ * row is deleted after a day.
+ */
+export const INGEST_WORKER_SHOWN_PERIODS = 10;
 
 export const ingestWorkerOut = z.object({
   id: z.string(),
@@ -480,6 +495,9 @@ export const ingestWorkerOut = z.object({
   lagMs: z.number().nullable(),
   spool: spoolStatus.nullable(),
   sourceIds: z.array(z.number().int()),
+  sources: z.number().int().meta({ description: 'sources this worker runs (held by lease, or its share of an MQTT 5 shared subscription)' }),
+  messages: z.number().meta({ description: 'messages (MQTT) or notifications (OPC UA) received since the worker started, summed over its sources' }),
+  samples: z.number().meta({ description: 'samples decoded since the worker started, summed over its sources' }),
   loadError: z.string().nullable(),
 });
 export type IngestWorkerOut = z.infer<typeof ingestWorkerOut>;
@@ -498,6 +516,6 @@ export const ingestStatusOut = z.object({
   loadError: z.string().nullable(),
   sources: z.array(connectorStatus).meta({ description: 'connection state per source, from every running worker (the last worker when none runs)' }),
   deadLetters: z.object({ lastHour: z.number().int(), total: z.number().int() }).meta({ description: 'rows in dead_letters (undecodable or unmapped messages)' }),
-  workers: z.array(ingestWorkerOut).meta({ description: 'every worker heard from in the last day, latest heartbeat first' }),
+  workers: z.array(ingestWorkerOut).meta({ description: `running workers, and those stopped or silent for less than ${INGEST_WORKER_SHOWN_PERIODS} heartbeat periods (shown stale), latest heartbeat first` }),
 });
 export type IngestStatusOut = z.infer<typeof ingestStatusOut>;

@@ -37,6 +37,9 @@ import type { Sample } from '../../ingest/pipeline/types.ts';
 import { freePort } from '../helpers/net.ts';
 import { waitForLine } from '../../scripts/children.ts';
 
+// `--workers N --broker mosquitto`: the scale-out benchmark instead (it exits when done).
+if (process.argv.includes('--workers')) await import('./ingest-scale.bench.ts');
+
 const ROOT = path.resolve(import.meta.dirname, '../..');
 const DAY = 86_400_000;
 const TAGS = 1_000;

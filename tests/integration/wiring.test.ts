@@ -405,15 +405,19 @@ describe('wiring API', () => {
     expect(fresh).toMatchObject({ running: true, pid: 4242, samplesPerSec: 180, lagMs: 35, spool: { bytes: 2048, files: 1 }, deadLetters: { lastHour: 2, total: 3 } });
     expect(fresh.reason).toBeUndefined();
     expect(fresh.sources[0]).toMatchObject({ sourceId: 7, state: 'connected', reconnects: 1 });
-    expect(fresh.workers).toEqual([expect.objectContaining({ id: 'w1', host: 'ingest-a', running: true, heartbeat_ms: 2000, sourceIds: [7] })]);
+    expect(fresh.workers).toEqual([expect.objectContaining({ id: 'w1', host: 'ingest-a', running: true, heartbeat_ms: 2000, sourceIds: [7], sources: 1, messages: 5, samples: 5 })]);
 
     // Three periods of 2 s: 5 s old still runs, 7 s old does not.
     await worker('w1', 5);
     expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ running: true });
-    await worker('w1', 30);
+    await worker('w1', 15);
     const stale = await analyst.get('/api/v1/ingest/status');
-    expect(stale.body).toMatchObject({ running: false, pid: 4242, samplesPerSec: 180 });
-    expect(stale.body.reason).toMatch(/heartbeat is 30 s old \(more than 3 periods, 6 s\)/);
+    expect(stale.body).toMatchObject({ running: false, pid: 4242, samplesPerSec: 180, workers: [expect.objectContaining({ id: 'w1', running: false })] });
+    expect(stale.body.reason).toMatch(/heartbeat is 15 s old \(more than 3 periods, 6 s\)/);
+    // Shown stale for ten periods (20 s), then left out of the list (the reason still says why).
+    await worker('w1', 25);
+    expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ running: false, workers: [] });
+    await worker('w1', 15);
 
     // A second worker on another host: rates add up, the worst lag counts, both are listed; the stale one's sources are not shown.
     await worker('w2', 0, { ...status, samplesPerSec: 20, lagMs: 90, sources: [{ ...status.sources[0], sourceId: 8 }] }, 'ingest-b');

@@ -30,6 +30,29 @@ export const ingestWorkers = pgTable(
 );
 
 /**
+ * Which ingest worker holds what, so several workers share the sources (ingest/source-leases.ts).
+ * `mqtt_client_id` '' is the source itself: an OPC UA source, or an MQTT source on an MQTT 3.1.1
+ * broker, runs on the one worker that holds it. A non-empty `mqtt_client_id` is one worker's
+ * persistent session in an MQTT 5 shared subscription (MQTT 5.0 §4.8.2): every worker runs the
+ * source, and the lease says who may resume that session when its worker has died, so the
+ * messages the broker queued for it are not lost. `holder` is an `ingest_workers.id`;
+ * `expires_at` is the database's now() plus three heartbeats, renewed with each heartbeat; take
+ * and renew are one atomic statement (`… WHERE expires_at < now() OR holder = me`).
+ */
+export const sourceLeases = pgTable(
+  'source_leases',
+  {
+    sourceId: integer('source_id')
+      .notNull()
+      .references(() => sources.id, { onDelete: 'cascade' }),
+    mqttClientId: text('mqtt_client_id').notNull().default(''),
+    holder: text('holder').notNull(),
+    expiresAt: timestamp('expires_at', { withTimezone: true }).notNull(),
+  },
+  (t) => [primaryKey({ columns: [t.sourceId, t.mqttClientId] }), index('source_leases_holder_idx').on(t.holder)],
+);
+
+/**
  * Topics seen on an MQTT source, for the wiring view: upserted by ingest in batches (counts are
  * added, so several workers on one source sum up). `last_payload` is the first 256 characters
  * of the last payload; `tag_id` the tag that mapped it then (no foreign key: a tag deleted in

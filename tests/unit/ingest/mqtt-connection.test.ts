@@ -9,7 +9,14 @@ describe('MQTT connection options (one definition for the API and ingest)', () =
   it('applies the defaults ingest runs with and drops keys it does not know', () => {
     const { options, error } = mqttOptionsOf(row('mqtt://b', { topics: ['a/#'], legacy: 1 }));
     expect(error).toBeNull();
-    expect(options).toEqual({ topics: ['a/#'], protocolVersion: 'auto', keepalive_s: 30, payload: 'json', requestRebirth: false });
+    expect(options).toEqual({ topics: ['a/#'], protocolVersion: 'auto', sharedGroup: 'flocstream', keepalive_s: 30, payload: 'json', requestRebirth: false });
+  });
+
+  it('takes a shared group that is a valid ShareName, or null for no shared subscription (MQTT 5.0 §4.8.2)', () => {
+    expect(mqttOptionsOf(row('mqtt://b', { sharedGroup: null })).options.sharedGroup).toBeNull();
+    expect(mqttOptionsInput.safeParse({ sharedGroup: 'plant-1.ingest' }).success).toBe(true);
+    // A ShareName must not contain "/", "+" or "#".
+    for (const bad of ['a/b', 'a+', '#', '']) expect(mqttOptionsInput.safeParse({ sharedGroup: bad }).success).toBe(false);
   });
 
   it('falls back to the defaults with the reason when the stored options are invalid', () => {

@@ -1,6 +1,6 @@
 import { useState } from 'react';
 import { useForm, useWatch } from 'react-hook-form';
-import { OPCUA_SECURITY_MODES, OPCUA_SECURITY_POLICIES, sourceCreate, sparkplugStatus, type ConnectionTestOut, type MqttPayloadFormat, type SourceCreate, type SourceKind } from '../../../../shared/contracts/wiring.ts';
+import { OPCUA_SECURITY_MODES, OPCUA_SECURITY_POLICIES, sourceCreate, sparkplugStatus, type ConnectionTestOut, type IngestWorkerOut, type MqttPayloadFormat, type SourceCreate, type SourceKind } from '../../../../shared/contracts/wiring.ts';
 import { Button, ErrorNote, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
 import { applyServerErrors, contractResolver, fieldError } from '../../../lib/form.ts';
 import { formatAge, formatUtc } from '../../../lib/format.ts';
@@ -89,8 +89,53 @@ export function SourcesPanel({ plantId, selected, onSelect }: { plantId: number;
         </tbody>
       </table>
       {status.data?.loadError ? <p className="text-alarm-1 mt-1">Ingest could not load the wiring: {status.data.loadError}</p> : null}
+      <WorkersTable workers={status.data?.workers ?? []} />
       <NewSourceForm plantId={plantId} />
     </Panel>
+  );
+}
+
+/**
+ * The ingest workers (one row each, from their heartbeat rows): a worker that stopped or went
+ * silent is shown stale until the API leaves it out (INGEST_WORKER_SHOWN_PERIODS heartbeats).
+ */
+function WorkersTable({ workers }: { workers: IngestWorkerOut[] }) {
+  if (!workers.length) return null;
+  return (
+    <table className="w-full text-[12px] mt-2" aria-label="Ingest workers">
+      <thead>
+        <tr>
+          <th className={th}>Ingest worker</th>
+          <th className={th}>Host</th>
+          <th className={`${th} text-right`}>PID</th>
+          <th className={th}>Heartbeat</th>
+          <th className={`${th} text-right`}>Sources</th>
+          <th className={`${th} text-right`}>Messages</th>
+          <th className={`${th} text-right`}>Samples</th>
+        </tr>
+      </thead>
+      <tbody>
+        {workers.map((w) => (
+          <tr key={w.id} data-testid="ingest-worker-row" data-worker-id={w.id} className={w.running ? '' : 'text-ink-3'}>
+            <td className={`${td} num`} title={w.id}>
+              {w.id.slice(0, 8)}
+            </td>
+            <td className={td}>{w.host}</td>
+            <td className={`${td} num text-right`}>{w.pid}</td>
+            <td className={td}>
+              {w.running ? (
+                <span className="text-ink-2">{formatAge(w.heartbeatAge_s)} ago</span>
+              ) : (
+                <span className="text-unavailable">{w.stoppedAt ? 'stopped' : 'stale'} · {formatAge(w.heartbeatAge_s)} ago</span>
+              )}
+            </td>
+            <td className={`${td} num text-right`}>{w.sources}</td>
+            <td className={`${td} num text-right`}>{w.messages.toLocaleString('en-US')}</td>
+            <td className={`${td} num text-right`}>{w.samples.toLocaleString('en-US')}</td>
+          </tr>
+        ))}
+      </tbody>
+    </table>
   );
 }
 
@@ -127,7 +172,7 @@ type SourceValues = {
   url: string;
   username: string;
   password: string;
-  options: { topics: string; payload: MqttPayloadFormat; requestRebirth: boolean; securityMode: string; securityPolicy: string };
+  options: { topics: string; payload: MqttPayloadFormat; requestRebirth: boolean; sharedGroup: string; securityMode: string; securityPolicy: string };
 };
 const EMPTY_SOURCE: SourceValues = {
   kind: 'mqtt',
@@ -135,7 +180,7 @@ const EMPTY_SOURCE: SourceValues = {
   url: '',
   username: '',
   password: '',
-  options: { topics: '#', payload: 'json', requestRebirth: false, securityMode: 'None', securityPolicy: 'None' },
+  options: { topics: '#', payload: 'json', requestRebirth: false, sharedGroup: 'flocstream', securityMode: 'None', securityPolicy: 'None' },
 };
 
 /** The request body of the chosen kind: MQTT topic filters from a comma list, OPC UA security settings. */
@@ -148,6 +193,8 @@ function sourceBody(v: SourceValues): Record<string, unknown> {
           topics: v.options.topics.split(',').map((t) => t.trim()).filter(Boolean),
           payload: v.options.payload,
           ...(v.options.requestRebirth ? { requestRebirth: true } : {}),
+          // Empty: no shared subscription (one worker holds the source on any broker).
+          sharedGroup: v.options.sharedGroup.trim() || null,
         },
       }
     : { ...common, options: { securityMode: v.options.securityMode, securityPolicy: v.options.securityPolicy } };
@@ -203,6 +250,9 @@ function NewSourceForm({ plantId }: { plantId: number }) {
               <option value="json">Flocstream JSON</option>
               <option value="sparkplugB">Sparkplug B only</option>
             </Select>
+          </Field>
+          <Field label="Shared group" error={fe('options.sharedGroup')} hint="MQTT 5: workers share $share/<group>/…; empty: one worker">
+            <TextInput {...form.register('options.sharedGroup')} className="num" />
           </Field>
           <div className="col-span-full text-[12px]">
             <label className="inline-flex items-center gap-1">
