@@ -183,9 +183,10 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
     say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
     if (seeded.created) {
       // The settleability test is a lab entry, not a tag: the demo starts with one diluted
-      // test (170 mL/L at 1:3, MLSS 3.4 g/L → DSVI 150 mL/g, the demo scenario's sludge), as an
-      // operator would have entered it this morning, so the RAS limit has an SVI to work from.
-      const entry = labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 170, dilutionFactor: 3, mlss_gL: 3.4, location: 'ab1', sampledAt: new Date(Date.now() - 3 * 3600_000).toISOString(), note: 'demo entry' });
+      // test (207 mL/L at 1:2, MLSS 3.45 g/L → DSVI 120 mL/g, the sludge of the demo's history
+      // and scenario), as an operator would have entered it this morning, so the RAS limit has
+      // an SVI to work from.
+      const entry = labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 207, dilutionFactor: 2, mlss_gL: 3.45, location: 'ab1', sampledAt: new Date(Date.now() - 3 * 3600_000).toISOString(), note: 'demo entry' });
       await server.ctx.db.db.insert(labResults).values(labRow(seeded.plantId, null, entry));
     }
     return server;
