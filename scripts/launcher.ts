@@ -21,8 +21,7 @@ import { services } from '../server/app-context.ts';
 import { toAlarmOut } from '../server/services/alarm.service.ts';
 import { labRow } from '../server/services/lab.service.ts';
 import { historyImportQuery } from '../shared/contracts/history.ts';
-import { DEMO_SOURCE_NAMES, kestrelBendConfig } from '../simulators/plant/kestrel-bend.config.ts';
-import { labResultInput } from '../shared/contracts/lab.ts';
+import { DEMO_SOURCE_NAMES, kestrelBendConfig, kestrelBendLabEntry } from '../simulators/plant/kestrel-bend.config.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
 import { spawnTs, superviseTs, waitForLine, type Child, type ChildExit, type SupervisedChild } from './children.ts';
 
@@ -182,12 +181,8 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
     }
     say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
     if (seeded.created) {
-      // The settleability test is a lab entry, not a tag: the demo starts with one diluted
-      // test (207 mL/L at 1:2, MLSS 3.45 g/L → DSVI 120 mL/g, the sludge of the demo's history
-      // and scenario), as an operator would have entered it this morning, so the RAS limit has
-      // an SVI to work from.
-      const entry = labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 207, dilutionFactor: 2, mlss_gL: 3.45, location: 'ab1', sampledAt: new Date(Date.now() - 3 * 3600_000).toISOString(), note: 'demo entry' });
-      await server.ctx.db.db.insert(labResults).values(labRow(seeded.plantId, null, entry));
+      // The demo's settleability test (DSVI 120 mL/g), so the RAS limit has an SVI to work from.
+      await server.ctx.db.db.insert(labResults).values(labRow(seeded.plantId, null, kestrelBendLabEntry(Date.now())));
     }
     return server;
   } catch (err) {

@@ -1,3 +1,4 @@
+import { labResultInput, type LabResultInput } from '../../shared/contracts/lab.ts';
 import { plantConfig, type PlantConfig } from '../../shared/contracts/plant-config.ts';
 import { DEMO_PLANT } from './demo-plant.ts';
 
@@ -59,4 +60,14 @@ export function kestrelBendConfig(ep: DemoEndpoints): PlantConfig {
       return { signal: t.signal.kind, target: { type, code: type === 'plant' ? null : t.signal.target }, tag: t.name };
     }),
   });
+}
+
+/**
+ * The demo's settleability test, a lab entry rather than a tag: one diluted test as an operator
+ * would have entered it three hours before `now_ms` — 207 mL/L at 1:2 with MLSS 3.45 g/L,
+ * DSVI = 207 × 2 / 3.45 = 120 mL/g, the sludge of the demo's history and scenario — so the RAS
+ * limit has an SVI to work from at the first start.
+ */
+export function kestrelBendLabEntry(now_ms: number): LabResultInput {
+  return labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 207, dilutionFactor: 2, mlss_gL: 3.45, location: DEMO_PLANT.trains[0]!.basins[0]!.code, sampledAt: new Date(now_ms - 3 * 3600_000).toISOString(), note: 'demo entry' });
 }
