@@ -19,8 +19,7 @@ import { services } from '../server/app-context.ts';
 import { toAlarmOut } from '../server/services/alarm.service.ts';
 import { labRow } from '../server/services/lab.service.ts';
 import { historyImportQuery } from '../shared/contracts/history.ts';
-import { DEMO_SOURCE_NAMES, kestrelBendConfig } from '../simulators/plant/kestrel-bend.config.ts';
-import { labResultInput } from '../shared/contracts/lab.ts';
+import { DEMO_SOURCE_NAMES, kestrelBendConfig, kestrelBendLabEntry } from '../simulators/plant/kestrel-bend.config.ts';
 import { DEMO_PLANT } from '../simulators/plant/demo-plant.ts';
 import { spawnTs, superviseTs, waitForLine, type Child, type ChildExit, type SupervisedChild } from './children.ts';
 
@@ -180,11 +179,8 @@ export async function startApi(config: Config, mqttUrl: string, say: (m: string)
     }
     say(`${seeded.created ? 'seeded' : 'found'} the demo plant "${DEMO_PLANT.name}" (invented; plant id ${seeded.plantId})`);
     if (seeded.created) {
-      // The settleability test is a lab entry, not a tag: the demo starts with one diluted
-      // test (170 mL/L at 1:3, MLSS 3.4 g/L → DSVI 150 mL/g, the demo scenario's sludge), as an
-      // operator would have entered it this morning, so the RAS limit has an SVI to work from.
-      const entry = labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 170, dilutionFactor: 3, mlss_gL: 3.4, location: 'ab1', sampledAt: new Date(Date.now() - 3 * 3600_000).toISOString(), note: 'demo entry' });
-      await repos.lab.insertAll([labRow(seeded.plantId, null, entry)]);
+      // The demo's settleability test (DSVI 120 mL/g), so the RAS limit has an SVI to work from.
+      await repos.lab.insertAll([labRow(seeded.plantId, null, kestrelBendLabEntry(Date.now()))]);
     }
     return server;
   } catch (err) {

@@ -1,9 +1,31 @@
 /**
  * The demo plant: Kestrel Bend Water Reclamation Plant (code "kb"), a plant we invented for
- * the simulator. Two identical trains, each one aeration basin feeding one secondary
- * clarifier, with one RAS and one WAS pump per clarifier. The clarifier geometry equals the
- * BSM1 settler (1500 m², 4 m, Alex et al. 2008) on purpose: the simulator's clarifiers can then
- * be checked against the published benchmark profile directly.
+ * the simulator. Two identical trains in the Modified Ludzack-Ettinger (MLE) layout: each one
+ * activated-sludge basin (an unaerated anoxic zone baffled off at its inlet, then the aerated
+ * zone) feeding one secondary clarifier, with one RAS and one WAS pump per clarifier. The
+ * clarifier geometry equals the BSM1 settler (1500 m², 4 m, Alex et al. 2008) on purpose: the
+ * simulator's clarifiers can then be checked against the published benchmark profile directly.
+ *
+ * Design basis per train (average dry-weather flow 770 m³/h, half the plant's 1540 m³/h):
+ * - anoxic zone 1500 m³ (τ ≈ 1.9 h) ahead of the aerated 6000 m³ (τ ≈ 7.8 h): 20 % of the basin
+ *   unaerated, aeratedFraction 0.8. Metcalf & Eddy, Wastewater Engineering, 5th ed. (2014),
+ *   MLE design parameters: anoxic τ 1–3 h, aerobic τ 4–12 h, RAS 50–100 % of Q, internal
+ *   recycle 2–4 Q [M: from memory; check the table]. The nitrate recycle and the RAS pass
+ *   through both zones, so the solids are mixed over the whole basin: the simulator takes it
+ *   as one completely mixed volume for solids, as the product's plant model takes one MLSS per
+ *   basin (at steady state the anoxic zone's MLSS, (Q_R·X_R + Q_IR·X)/(Q + Q_R + Q_IR), equals
+ *   the aerated zone's X exactly when Q_R·X_R = (Q + Q_R)·X).
+ * - RAS pumps 1150 m³/h (≈ 150 % of the average train flow): the design storm of twice the
+ *   average flow (1540 m³/h) needs R_min·Q = X/(X_R,max − X)·Q = 3.45/(8.37 − 3.45)·1540 ≈
+ *   1080 m³/h with the plant's sludge (SVI 120 mL/g; X_R,max by flux theory at u = 0.77 m/h
+ *   with Härtel & Pöpel 1992 settling, below the rule's 10 g/L), inside the installed capacity;
+ *   and ratio control (RAS = Q) holds up to the dry-weather diurnal peak (≈ 1010 m³/h). The
+ *   former 850 m³/h could not return the design storm's minimum (≈ 1110 m³/h at SVI 150). RAS
+ *   capacity of 100–150 % of the average flow is the usual design range (WEF MOP 8 / Metcalf &
+ *   Eddy [M: from memory]).
+ * - Sludge: SVI 120 mL/g, the settling an anoxic zone ahead of the aeration (an anoxic
+ *   selector) commonly gives against filamentous bulking (Jenkins, Richard & Daigger 2004,
+ *   Manual on the Causes and Control of Activated Sludge Bulking [M: common practice]).
  *
  * Pure data, no I/O: the product seeds its database from this object and the simulator builds
  * its model, instruments, MQTT topics and OPC UA address space from it. Names are stable.
@@ -60,7 +82,14 @@ export interface DemoTag {
   instrument: InstrumentSpec;
 }
 
-export interface DemoBasin { code: string; name: string; volume_m3: number }
+export interface DemoBasin {
+  code: string;
+  name: string;
+  /** Whole basin, anoxic and aerated zones together [m³]. */
+  volume_m3: number;
+  /** Aerated share of the volume (the rest is the anoxic zone) [-]. */
+  aeratedFraction: number;
+}
 export interface DemoClarifier { code: string; name: string; area_m2: number; sideWaterDepth_m: number; count: number }
 export interface DemoPump { code: string; name: string; kind: 'ras' | 'was'; capacity_m3h: number; clarifier: string }
 export interface DemoTrain { code: string; name: string; basins: DemoBasin[]; clarifiers: DemoClarifier[]; pumps: DemoPump[] }
@@ -76,12 +105,13 @@ function train(n: 1 | 2): DemoTrain {
   return {
     code: `t${n}`,
     name: `Train ${n}`,
-    basins: [{ code: `ab${n}`, name: `Aeration basin ${n}`, volume_m3: 6000 }],
+    // 1500 m³ anoxic + 6000 m³ aerated (design basis above).
+    basins: [{ code: `ab${n}`, name: `Activated-sludge basin ${n}`, volume_m3: 7500, aeratedFraction: 0.8 }],
     clarifiers: [{ code: `sc${n}`, name: `Secondary clarifier ${n}`, area_m2: 1500, sideWaterDepth_m: 4, count: 1 }],
     pumps: [
-      // RAS capacity about 1.1 × the average train flow: enough for ratio control in dry
-      // weather, the binding limit in a storm (which is what the storm projection is about).
-      { code: `ras${n}`, name: `RAS pump ${n}`, kind: 'ras', capacity_m3h: 850, clarifier: `sc${n}` },
+      // RAS capacity ≈ 1.5 × the average train flow: ratio control up to the diurnal peak, and
+      // the minimum return of the design storm within it (design basis above).
+      { code: `ras${n}`, name: `RAS pump ${n}`, kind: 'ras', capacity_m3h: 1150, clarifier: `sc${n}` },
       { code: `was${n}`, name: `WAS pump ${n}`, kind: 'was', capacity_m3h: 60, clarifier: `sc${n}` },
     ],
   };
@@ -91,12 +121,12 @@ function trainTags(n: 1 | 2): DemoTag[] {
   const t = `kb.train${n}`;
   return [
     {
-      name: `FIT-11${n}`, description: `Aeration basin ${n} influent flow`, unit: 'm3/h', protocol: 'opcua',
+      name: `FIT-11${n}`, description: `Basin ${n} influent flow`, unit: 'm3/h', protocol: 'opcua',
       address: `ns=1;s=${t}.FIT-11${n}`, rangeLow: 0, rangeHigh: 2500, expectedPeriod_s: 10,
       signal: { kind: 'basin.influentFlow', target: `ab${n}` }, instrument: { noiseSd: 4, lag_s: 3, resolution: 0.5 },
     },
     {
-      name: `AIT-11${n}`, description: `Aeration basin ${n} MLSS (optical probe)`, unit: 'g/L', protocol: 'mqtt',
+      name: `AIT-11${n}`, description: `Basin ${n} MLSS (optical probe, aerated zone)`, unit: 'g/L', protocol: 'mqtt',
       address: `kb/ab${n}/AIT-11${n}`, rangeLow: 0, rangeHigh: 10, expectedPeriod_s: 10,
       signal: { kind: 'basin.mlss', target: `ab${n}` }, instrument: { noiseSd: 0.03, lag_s: 30, resolution: 0.01 },
     },
@@ -117,7 +147,7 @@ function trainTags(n: 1 | 2): DemoTag[] {
     },
     {
       name: `FIT-31${n}`, description: `RAS pump ${n} flow`, unit: 'm3/h', protocol: 'mqtt',
-      address: `kb/ras${n}/FIT-31${n}`, rangeLow: 0, rangeHigh: 1200, expectedPeriod_s: 5,
+      address: `kb/ras${n}/FIT-31${n}`, rangeLow: 0, rangeHigh: 1500, expectedPeriod_s: 5,
       signal: { kind: 'pump.flow', target: `ras${n}` }, instrument: { noiseSd: 3, lag_s: 2, resolution: 0.5 },
     },
     {

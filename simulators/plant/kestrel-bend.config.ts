@@ -1,3 +1,4 @@
+import { labResultInput, type LabResultInput } from '../../shared/contracts/lab.ts';
 import { plantConfig, type PlantConfig } from '../../shared/contracts/plant-config.ts';
 import { DEMO_PLANT } from './demo-plant.ts';
 
@@ -26,13 +27,15 @@ export function kestrelBendConfig(ep: DemoEndpoints): PlantConfig {
       trains: DEMO_PLANT.trains.map((t) => ({
         code: t.code,
         name: t.name,
-        // Fully aerated basins: the demo's former `aerobic: true`.
-        aerationBasins: t.basins.map((b) => ({ code: b.code, name: b.name, volume_m3: b.volume_m3, aeratedFraction: 1 })),
+        aerationBasins: t.basins.map((b) => ({ code: b.code, name: b.name, volume_m3: b.volume_m3, aeratedFraction: b.aeratedFraction })),
         secondaryClarifiers: t.clarifiers.map((c) => ({ code: c.code, name: c.name, area_m2: c.area_m2, sideWaterDepth_m: c.sideWaterDepth_m, count: c.count })),
         pumps: t.pumps.map((p) => ({ code: p.code, name: p.name, kind: p.kind, capacity_m3h: p.capacity_m3h, servesClarifier: p.clarifier })),
       })),
     },
-    settings: {},
+    // The plant's own SRT target: wasting 11 m³/h per train holds about 15 d total SRT (basins
+    // and blankets) with about 12 d in the aerated zones, above the 8–10 d a nitrifying MLE plant
+    // is commonly designed for in winter [M: from memory, Metcalf & Eddy 5th ed.].
+    settings: { 'srt.target_d': 15 },
     sources: [
       { kind: 'mqtt', name: DEMO_SOURCE_NAMES.mqtt, url: ep.mqttUrl },
       { kind: 'opcua', name: DEMO_SOURCE_NAMES.opcua, url: ep.opcuaUrl, options: { securityMode: 'None' } },
@@ -57,4 +60,14 @@ export function kestrelBendConfig(ep: DemoEndpoints): PlantConfig {
       return { signal: t.signal.kind, target: { type, code: type === 'plant' ? null : t.signal.target }, tag: t.name };
     }),
   });
+}
+
+/**
+ * The demo's settleability test, a lab entry rather than a tag: one diluted test as an operator
+ * would have entered it three hours before `now_ms` — 207 mL/L at 1:2 with MLSS 3.45 g/L,
+ * DSVI = 207 × 2 / 3.45 = 120 mL/g, the sludge of the demo's history and scenario — so the RAS
+ * limit has an SVI to work from at the first start.
+ */
+export function kestrelBendLabEntry(now_ms: number): LabResultInput {
+  return labResultInput.parse({ kind: 'DSVI', settledVolume_mLL: 207, dilutionFactor: 2, mlss_gL: 3.45, location: DEMO_PLANT.trains[0]!.basins[0]!.code, sampledAt: new Date(now_ms - 3 * 3600_000).toISOString(), note: 'demo entry' });
 }

@@ -33,11 +33,11 @@ describe('plant configuration document', () => {
     const audit = await h.ctx.db.pool.query(`SELECT actor, details FROM audit_log WHERE action = 'plant.create_from_config' AND target = $1`, [`plant:${kb}`]);
     expect(audit.rows).toHaveLength(1);
     expect(audit.rows[0].actor).toBe('system');
-    // The engine sees the demo layout: two trains, one 6000 m³ basin and one 1500 m² clarifier each.
+    // The engine sees the demo layout: two trains, one 7500 m³ MLE basin (20 % anoxic) and one 1500 m² clarifier each.
     const layout = (await balanceRepository(h.ctx.db).layoutAt(kb, new Date()))!;
-    expect(layout.trains.map((t) => [t.code, t.basins[0]!.volume_m3, t.clarifiers[0]!.area_m2, t.pumps.length])).toEqual([
-      ['t1', 6000, 1500, 2],
-      ['t2', 6000, 1500, 2],
+    expect(layout.trains.map((t) => [t.code, t.basins[0]!.volume_m3, t.basins[0]!.aeratedFraction, t.clarifiers[0]!.area_m2, t.pumps.length])).toEqual([
+      ['t1', 7500, 0.8, 1500, 2],
+      ['t2', 7500, 0.8, 1500, 2],
     ]);
   });
 
@@ -48,9 +48,9 @@ describe('plant configuration document', () => {
     expect(original.formatVersion).toBe(1);
     expect(original.plant).toEqual({ code: 'kb', name: 'Kestrel Bend Water Reclamation Plant', timezone: 'UTC', peakFlow_m3h: null, unitSystem: 'SI' });
     const t1 = original.model.trains[0]!;
-    expect(t1.aerationBasins[0]).toMatchObject({ code: 'ab1', volume_m3: 6000, aeratedFraction: 1, inService: true });
+    expect(t1.aerationBasins[0]).toMatchObject({ code: 'ab1', volume_m3: 7500, aeratedFraction: 0.8, inService: true });
     expect(t1.aerationBasins[0]!.history).toHaveLength(1);
-    expect(t1.pumps.find((p) => p.code === 'ras1')).toMatchObject({ kind: 'ras', capacity_m3h: 850, servesClarifier: 'sc1' });
+    expect(t1.pumps.find((p) => p.code === 'ras1')).toMatchObject({ kind: 'ras', capacity_m3h: 1150, servesClarifier: 'sc1' });
     expect(original.tags).toHaveLength(18);
     expect(original.signalMap).toContainEqual({ signal: 'basin.mlss', target: { type: 'basin', code: 'ab1' }, tag: 'AIT-111' });
     expect(original.signalMap).toContainEqual({ signal: 'plant.influentFlow', target: { type: 'plant', code: null }, tag: 'FIT-101' });
@@ -91,7 +91,7 @@ describe('plant configuration document', () => {
     const before = (await integ.get(`/api/v1/plants/${kb}/config`)).body as PlantConfig;
     const doc = structuredClone(before);
     doc.plant.peakFlow_m3h = 4200;
-    doc.model.trains[0]!.aerationBasins[0]!.volume_m3 = 6500;
+    doc.model.trains[0]!.aerationBasins[0]!.volume_m3 = 8000;
     doc.model.trains[1]!.secondaryClarifiers[0]!.inService = false;
     doc.settings = { 'srt.target_d': 12 };
     doc.tags = doc.tags.filter((t) => t.name !== 'FIT-401');
@@ -107,7 +107,7 @@ describe('plant configuration document', () => {
         'update plant.peakFlow_m3h',
         'add model.trains[t1].aerationBasins[ab1].history[t]',
         'add model.trains[t2].secondaryClarifiers[sc2].history[t]',
-        'add settings[srt.target_d]',
+        'update settings[srt.target_d]',
         'update sources[kb-opcua]',
         'remove tags[FIT-401]',
         'remove signalMap[plant.effluentFlow@plant:]',
@@ -123,8 +123,8 @@ describe('plant configuration document', () => {
     expect(applied.body.applied).toBe(true);
     const after = (await integ.get(`/api/v1/plants/${kb}/config`)).body as PlantConfig;
     expect(after.plant.peakFlow_m3h).toBe(4200);
-    expect(after.model.trains[0]!.aerationBasins[0]!.volume_m3).toBe(6500);
-    expect(after.model.trains[0]!.aerationBasins[0]!.history!.map((v) => v.volume_m3)).toEqual([6000, 6500]);
+    expect(after.model.trains[0]!.aerationBasins[0]!.volume_m3).toBe(8000);
+    expect(after.model.trains[0]!.aerationBasins[0]!.history!.map((v) => v.volume_m3)).toEqual([7500, 8000]);
     expect(after.settings).toEqual({ 'srt.target_d': 12 });
     expect(after.tags.map((t) => t.name)).not.toContain('FIT-401');
     // The clarifier out of service now is out of the engine's layout now, and still in it for the past.

@@ -130,8 +130,15 @@ describe('storm', () => {
       ras: { ratio: 1, minFlowPerTrain_m3h: 100 },
       was: { mode: 'flow', flowPerTrain_m3h: 0 },
     };
-    const sc = parseScenario(raw, DEMO_PLANT);
-    const m = new PlantModel(DEMO_PLANT, sc, { seed: 1, splitImbalance: 0 });
+    // RAS pumps of 850 m³/h (u ≈ 0.57 m/h at the storm), the demo's capacity before its pumps
+    // were sized for the design storm: the rule of thumb's margin below the model's thickening
+    // holds at this underflow rate. At the demo's 1150 m³/h (u ≈ 0.77 m/h) the limiting
+    // underflow concentration falls below 1200/SVI (solids-flux theory, Keinath et al. 1977),
+    // which is why the balance takes the lower of the two.
+    const rasCap = 850;
+    const plant = { ...DEMO_PLANT, trains: DEMO_PLANT.trains.map((t) => ({ ...t, pumps: t.pumps.map((p) => (p.kind === 'ras' ? { ...p, capacity_m3h: rasCap } : p)) })) };
+    const sc = parseScenario(raw, plant);
+    const m = new PlantModel(plant, sc, { seed: 1, splitImbalance: 0 });
     m.advanceTo(1.5);
     const dry = m.snapshot().trains[0]!;
     m.advanceTo(26);
@@ -141,7 +148,7 @@ describe('storm', () => {
     // Equilibrium reached: MLSS changes by less than 0.1 % per hour, blanket inside the clarifier.
     expect(Math.abs(eq.mlss_gL - a.mlss_gL) / 2 / eq.mlss_gL).toBeLessThan(1e-3);
     expect(eq.blanketLevel_m).toBeLessThan(3.5);
-    expect(eq.rasFlow_m3h).toBe(850); // capped at the RAS pump capacity
+    expect(eq.rasFlow_m3h).toBe(rasCap); // capped at the RAS pump capacity
     // The model's own clarifier balance at equilibrium (neglecting X_e·Q_e, ~1 %).
     const identity = (eq.underflowTss_gL * eq.rasFlow_m3h) / (eq.influentFlow_m3h + eq.rasFlow_m3h);
     expect(Math.abs(eq.mlss_gL - identity) / identity).toBeLessThan(0.02);
@@ -151,7 +158,7 @@ describe('storm', () => {
     const p = stormProjection({
       influentFlow_m3h: dry.influentFlow_m3h,
       rasFlow_m3h: eq.influentFlow_m3h, // ratio control would ask for R = 1 …
-      rasFlowCap_m3h: 850, // … but the pump is capped
+      rasFlowCap_m3h: rasCap, // … but the pump is capped
       mlss_gL: dry.mlss_gL,
       svi_mLg: 150,
       aerationVolume_m3: basin.volume_m3,

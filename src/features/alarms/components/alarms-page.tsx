@@ -1,17 +1,21 @@
 import type { SortingState } from '@tanstack/react-table';
 import { useMemo, useState, type ReactNode } from 'react';
+import { useForm } from 'react-hook-form';
+import { ALARM_SHELVE_MAX_MIN, alarmShelveRequest } from '../../../../shared/contracts/alarm.ts';
 import { OPERATOR_CAUTION } from '../../../../shared/contracts/balance.ts';
 import type { AlarmOut } from '../../../../shared/contracts/plant-api.ts';
 import { roleAtLeast } from '../../../../shared/contracts/roles.ts';
-import { Button, ErrorNote, Panel } from '../../../components/ui/controls.tsx';
+import { Button, ErrorNote, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
 import { DataTable, useDataTable, type ColumnDef } from '../../../components/ui/data-table.tsx';
 import { PriorityMark } from '../../../components/ui/priority-mark.tsx';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { formatUtc, formatValue } from '../../../lib/format.ts';
+import { applyServerErrors, contractResolver, fieldError, textOrNothing } from '../../../lib/form.ts';
 import { useMe } from '../../auth/api/me.ts';
 import { useCurrentPlant } from '../../plant/api/plants.ts';
 import { useAckAlarm } from '../api/ack-alarm.ts';
 import { useAlarms } from '../api/alarms.ts';
+import { useShelveAlarm, useUnshelveAlarm, type AlarmShelveRequest } from '../api/shelve-alarm.ts';
 import { useLiveAlarms } from '../hooks/use-live-alarms.ts';
 import { AlarmRateStrip } from './alarm-rate-strip.tsx';
 
@@ -33,11 +37,14 @@ const RULE_UNIT: Record<string, { unit: string; scale: number } | null> = {
 function stateText(a: AlarmOut): { text: string; strong: boolean } {
   // ISA-18.2 designed suppression and shelving: listed, not annunciated.
   if (a.state !== 'cleared' && a.suppressedReason) return { text: 'SUPPRESSED', strong: false };
-  if (a.state !== 'cleared' && a.shelvedUntil && Date.parse(a.shelvedUntil) > Date.now()) return { text: `SHELVED · ${formatUtc(a.shelvedUntil)}`, strong: false };
+  if (isShelved(a)) return { text: 'SHELVED', strong: false };
   if (a.state === 'raised') return { text: 'ACTIVE · UNACK', strong: true };
   if (a.state === 'acknowledged') return { text: 'ACTIVE · ACK', strong: false };
   return a.acknowledgedAt ? { text: 'CLEARED', strong: false } : { text: 'CLEARED · UNACK', strong: true };
 }
+
+/** Whether an alarm is on the shelf now (ISA-18.2 shelving: listed, not annunciated until the expiry). */
+const isShelved = (a: AlarmOut) => a.state !== 'cleared' && a.shelvedUntil !== null && Date.parse(a.shelvedUntil) > Date.now();
 
 /** The message without the advisory sentence the server appends to each (shown once above the table). */
 const plainMessage = (m: string) => m.replace(` ${OPERATOR_CAUTION}`, '').replace(OPERATOR_CAUTION, '').trim();
@@ -95,7 +102,7 @@ export default function AlarmsPage() {
       <SectionBoundary name="Active alarms">
         <Panel title="Active and unacknowledged">
           <ErrorNote error={raised.error ?? acked.error} />
-          <AlarmTable alarms={active} plantId={plantId} canAck={canAck} empty="No active alarm." testid="active-alarms" />
+          <AlarmTable alarms={active} plantId={plantId} canAck={canAck} empty="No active alarm." testid="active-alarms" shelving />
         </Panel>
       </SectionBoundary>
       <SectionBoundary name="Alarm history">
@@ -119,7 +126,7 @@ function ValueLimit({ a }: { a: AlarmOut }) {
   );
 }
 
-function alarmColumns(history: boolean, ackCell: (a: AlarmOut) => ReactNode): ColumnDef<AlarmOut>[] {
+function alarmColumns(history: boolean, ackCell: (a: AlarmOut) => ReactNode, shelfCell: ((a: AlarmOut) => ReactNode) | null): ColumnDef<AlarmOut>[] {
   return [
     {
       id: 'priority',
@@ -149,9 +156,29 @@ function alarmColumns(history: boolean, ackCell: (a: AlarmOut) => ReactNode): Co
         </>
       ),
     },
-    { id: 'message', header: 'Message', accessorFn: (a) => plainMessage(a.message), enableSorting: false, meta: { cellClass: 'py-1 pr-2' } },
+    {
+      id: 'message',
+      header: 'Message',
+      accessorFn: (a) => plainMessage(a.message),
+      enableSorting: false,
+      meta: { cellClass: 'py-1 pr-2' },
+      cell: ({ row: { original: a } }) => (
+        <>
+          {plainMessage(a.message)}
+          {isShelved(a) && a.shelveReason ? (
+            <span className="text-ink-3" data-testid="shelve-reason">
+              {' '}
+              Shelved: {a.shelveReason}
+            </span>
+          ) : null}
+        </>
+      ),
+    },
     { id: 'value', header: 'Value / limit', enableSorting: false, meta: { width: '170px', align: 'right', cellClass: 'num whitespace-nowrap' }, cell: ({ row: { original: a } }) => <ValueLimit a={a} /> },
     { id: 'ack', header: 'Acknowledged', accessorFn: (a) => a.acknowledgedAt ?? '', meta: { width: '210px', align: 'right', cellClass: 'whitespace-nowrap pl-4' }, cell: ({ row: { original: a } }) => ackCell(a) },
+    ...(shelfCell
+      ? [{ id: 'shelf', header: 'Shelf', accessorFn: (a: AlarmOut) => (isShelved(a) ? Date.parse(a.shelvedUntil!) : 0), meta: { width: '320px', align: 'right' as const, cellClass: 'whitespace-nowrap pl-4' }, cell: ({ row: { original: a } }: { row: { original: AlarmOut } }) => shelfCell(a) }]
+      : []),
   ];
 }
 
@@ -159,10 +186,48 @@ function alarmColumns(history: boolean, ackCell: (a: AlarmOut) => ReactNode): Co
  * One alarm list (TanStack Table): ordered as given (by priority, then newest) until the operator
  * sorts by a column header.
  */
-function AlarmTable({ alarms, plantId, canAck, empty, testid, history = false }: { alarms: AlarmOut[]; plantId: number; canAck: boolean; empty: string; testid: string; history?: boolean }) {
+function AlarmTable({ alarms, plantId, canAck, empty, testid, history = false, shelving = false }: { alarms: AlarmOut[]; plantId: number; canAck: boolean; empty: string; testid: string; history?: boolean; shelving?: boolean }) {
   const ack = useAckAlarm(plantId);
+  const unshelve = useUnshelveAlarm(plantId);
   const [pendingId, setPendingId] = useState<number | null>(null);
+  const [shelveId, setShelveId] = useState<number | null>(null);
   const ackPending = ack.isPending ? pendingId : null;
+  const unshelvePending = unshelve.isPending ? pendingId : null;
+  const shelfCell = useMemo(
+    () =>
+      shelving
+        ? (a: AlarmOut) => (
+            <span className="inline-flex items-center gap-2">
+              {isShelved(a) ? (
+                <span className="text-ink-2">
+                  until <span className="num">{formatUtc(a.shelvedUntil)}</span>
+                </span>
+              ) : null}
+              {!canAck ? (
+                isShelved(a) ? null : <span className="text-ink-3">—</span>
+              ) : isShelved(a) ? (
+                <Button
+                  aria-label={`Unshelve ${a.rule} ${a.target}`}
+                  disabled={unshelvePending === a.id}
+                  onClick={() => {
+                    setPendingId(a.id);
+                    unshelve.mutate({ alarmId: a.id });
+                  }}
+                >
+                  Unshelve
+                </Button>
+              ) : a.state !== 'cleared' ? (
+                <Button aria-label={`Shelve ${a.rule} ${a.target}`} aria-expanded={shelveId === a.id} onClick={() => setShelveId(shelveId === a.id ? null : a.id)}>
+                  Shelve…
+                </Button>
+              ) : (
+                <span className="text-ink-3">—</span>
+              )}
+            </span>
+          )
+        : null,
+    [shelving, canAck, unshelvePending, shelveId, unshelve.mutate],
+  );
   const columns = useMemo(
     () =>
       alarmColumns(history, (a) =>
@@ -184,16 +249,81 @@ function AlarmTable({ alarms, plantId, canAck, empty, testid, history = false }:
         ) : (
           <span className="text-ink-3">not acknowledged</span>
         ),
-      ),
-    [history, canAck, ackPending, ack.mutate],
+      shelfCell),
+    [history, canAck, ackPending, ack.mutate, shelfCell],
   );
   const [sorting, setSorting] = useState<SortingState>([]);
   const table = useDataTable({ data: alarms, columns, getRowId: (a) => String(a.id), state: { sorting }, onSortingChange: setSorting });
+  const shelveTarget = shelveId === null ? undefined : alarms.find((a) => a.id === shelveId && a.state !== 'cleared' && !isShelved(a));
   if (!alarms.length) return <p className="text-ink-3 text-[12px] py-1" data-testid={testid}>{empty}</p>;
   return (
     <>
-      <ErrorNote error={ack.error} />
+      <ErrorNote error={ack.error ?? unshelve.error} />
+      {shelveTarget && canAck ? <ShelveForm key={shelveTarget.id} plantId={plantId} alarm={shelveTarget} onDone={() => setShelveId(null)} /> : null}
       <DataTable table={table} label={history ? 'Alarm history' : 'Active alarms'} testId={testid} rowProps={(r) => ({ 'data-alarm-id': r.original.id, 'data-rule': r.original.rule, className: 'border-b border-edge/60 h-7 align-middle' })} />
     </>
+  );
+}
+
+/** Shelf lengths offered, in minutes: up to one shift (the contract's maximum). */
+const SHELVE_CHOICES = [15, 30, 60, 120, 240, ALARM_SHELVE_MAX_MIN];
+const shelveLength = (min: number) => (min < 60 ? `${min} min` : `${min / 60} h`);
+
+type ShelveValues = { reason: string; minutes: string };
+const shelveResolver = contractResolver(alarmShelveRequest, (v: ShelveValues) => ({ reason: textOrNothing(v.reason), minutes: Number(v.minutes) }));
+
+/**
+ * Shelving one alarm (ISA-18.2): the operator gives a reason and a length; the alarm stays listed
+ * but is not annunciated or mailed until the shelf expires on the server's clock, and comes back
+ * by itself then if it is still active. Checked with the server's own contract before sending.
+ */
+function ShelveForm({ plantId, alarm, onDone }: { plantId: number; alarm: AlarmOut; onDone: () => void }) {
+  const shelve = useShelveAlarm(plantId);
+  const form = useForm<ShelveValues, unknown, AlarmShelveRequest>({ defaultValues: { reason: '', minutes: '60' }, resolver: shelveResolver });
+  const { errors } = form.formState;
+  const submit = form.handleSubmit((body) => shelve.mutate({ alarmId: alarm.id, body }, { onSuccess: onDone, onError: (e) => applyServerErrors(e, form) }));
+  return (
+    <form
+      onSubmit={(e) => void submit(e)}
+      noValidate
+      aria-label="Shelve alarm"
+      className="mb-2 flex flex-wrap items-end gap-3 border border-edge bg-panel-2 px-2 py-1.5"
+    >
+      <div className="flex flex-col text-[12px] min-w-[260px]">
+        <span className="text-ink-2">Shelve</span>
+        <span className="inline-flex items-center gap-1 h-7">
+          <PriorityMark priority={alarm.priority} muted={!!alarm.acknowledgedAt} />
+          <span className="font-semibold">
+            {alarm.rule} · <span className="num">{alarm.target}</span>
+          </span>
+        </span>
+      </div>
+      <div className="w-[420px]">
+        <Field label="Reason" error={fieldError(errors, 'reason')}>
+          <TextInput {...form.register('reason')} maxLength={500} placeholder="why it need not be annunciated now" aria-invalid={errors.reason ? true : undefined} autoFocus />
+        </Field>
+      </div>
+      <Field label="For" error={fieldError(errors, 'minutes')}>
+        <Select {...form.register('minutes')}>
+          {SHELVE_CHOICES.map((m) => (
+            <option key={m} value={String(m)}>
+              {shelveLength(m)}
+            </option>
+          ))}
+        </Select>
+      </Field>
+      <div className="flex gap-1 pb-px">
+        <Button kind="primary" type="submit" disabled={shelve.isPending}>
+          {shelve.isPending ? 'Shelving…' : 'Shelve'}
+        </Button>
+        <Button kind="quiet" onClick={onDone}>
+          Cancel
+        </Button>
+      </div>
+      <p className="basis-full text-[11px] text-ink-3">
+        Listed but not annunciated or mailed until the shelf runs out; an alarm still active then is annunciated again. Recorded in the audit log with your name and reason.
+      </p>
+      <FormProblem error={shelve.error} root={errors.root?.server?.message} />
+    </form>
   );
 }
