@@ -13,10 +13,10 @@ import { MqttSession, type Delivery, type SessionEvents, type SubscriberSession 
 import { MqttJsSession } from './mqttjs-session.ts';
 
 /**
- * Which session carries an mqtt:// or mqtts:// source. `pipelined` (the product's) is
+ * Which session carries a source. `pipelined` (the product's) is
  * ./mqtt-session.ts; `serial` is mqtt.js with its handleMessage callback held until the commit
  * (./mqttjs-session.ts), the stock way, kept so tests/bench/ingest.bench.ts (`--stock`) can
- * measure what the own session is worth. ws:// and wss:// always use mqtt.js.
+ * measure what the own session is worth.
  */
 export type AckMode = 'pipelined' | 'serial';
 
@@ -36,11 +36,10 @@ const MAX_REMEMBERED = 100_000;
  *   subscriptions and queued QoS 1 messages while ingest is away; on reconnect it resends every
  *   PUBLISH that was not acknowledged (§4.4). Connect options and the 5.0 → 3.1.1 fallback come
  *   from ./mqtt-connection.ts, as for the API's connection test.
- * - Acknowledgement: mqtt:// and mqtts:// sources run on ./mqtt-session.ts, a subscriber session
- *   over its own socket that speaks MQTT through mqtt-packet's public parser and generator: it
- *   reads on while PUBACKs are held, and writes those a commit releases in arrival order
- *   (MQTT 3.1.1 §4.6) as one write. ws:// and wss:// run on mqtt.js with its documented
- *   handleMessage callback held until the commit (./mqttjs-session.ts): one message per commit.
+ * - Acknowledgement: sources run on ./mqtt-session.ts, a subscriber session over its own socket
+ *   (TCP, TLS or WebSocket) that speaks MQTT through mqtt-packet's public parser and generator:
+ *   it reads on while PUBACKs are held, and writes those a commit releases in arrival order
+ *   (MQTT 3.1.1 §4.6) as one write.
  *   PUBACKs held for a connection that has since closed are dropped: the broker will resend
  *   those messages and they are recognised (committedUnacked) or absorbed by the primary key.
  * - Flow control: Receive Maximum (§3.1.2.11.3) is set to the maximum so a batch of held acks
@@ -111,7 +110,7 @@ export class MqttConnector implements Connector {
       filters: () => this.subscriptionFilters(),
       drain: this.ctx.session?.drain ?? false,
     };
-    if (this.ctx.acks === 'serial' || /^wss?:/.test(this.source.url)) {
+    if (this.ctx.acks === 'serial') {
       return new MqttJsSession(
         {
           ...common,
@@ -255,7 +254,7 @@ export class MqttConnector implements Connector {
         invalidFilters: this.handler.invalidFilters,
         /** Redeliveries of messages already stored, acknowledged without writing them again. */
         redelivered: this.counters.redelivered,
-        /** `pipelined`: ingest's own session; `serial`: mqtt.js, one message per commit (ws://, wss://). */
+        /** `pipelined`: ingest's own session; `serial`: mqtt.js, one message per commit (the benchmark's stock reference). */
         acks: this.session instanceof MqttSession ? 'pipelined' : 'serial',
         /** Intake stopped at the writer's high-water mark: the broker's socket is not read. */
         paused: this.session.paused,

@@ -1,6 +1,6 @@
 /**
  * Ingest's MQTT subscriber session over a socket of its own (node:net for mqtt://, node:tls for
- * mqtts://), speaking MQTT through mqtt-packet's public API only: `parser()` with its 'packet'
+ * mqtts://, the `ws` package's WebSocket as a stream for ws:// and wss://), speaking MQTT through mqtt-packet's public API only: `parser()` with its 'packet'
  * and 'error' events, and `generate()`. It exists because ingest acknowledges a QoS 1 PUBLISH
  * only once its rows are committed, and thousands of messages are in flight per commit: mqtt.js
  * handles incoming packets one at a time and reads the next only after the current one's
@@ -20,6 +20,7 @@
 import net from 'node:net';
 import tls from 'node:tls';
 import type { Duplex } from 'node:stream';
+import { createWebSocketStream, WebSocket } from 'ws';
 import mqttPacket, { type IConnackPacket, type IConnectPacket, type IPublishPacket, type ISubackPacket, type Packet } from 'mqtt-packet';
 import type { ProtocolLevel } from './mqtt-connection.ts';
 
@@ -49,7 +50,7 @@ export interface SessionEvents {
 
 /**
  * What MqttConnector needs of a subscriber session: this module's MqttSession, or the mqtt.js
- * one (./mqttjs-session.ts) for ws:// and wss:// and as the benchmark's stock reference.
+ * one (./mqttjs-session.ts), the benchmark's stock reference.
  */
 export interface SubscriberSession {
   readonly protocol: ProtocolLevel;
@@ -65,7 +66,7 @@ export interface SubscriberSession {
 }
 
 export interface SessionOptions {
-  /** mqtt:// or mqtts:// (default ports 1883 and 8883, IANA). */
+  /** mqtt:// or mqtts:// (default ports 1883 and 8883, IANA), ws:// or wss:// (MQTT over WebSocket, the path as given). */
   url: string;
   clientId: string;
   protocol: ProtocolLevel;
@@ -193,8 +194,15 @@ export class MqttSession implements SubscriberSession {
 
   private openSocket(onOpen: () => void): Duplex {
     const u = new URL(this.opts.url);
+    if (u.protocol === 'ws:' || u.protocol === 'wss:') {
+      // MQTT over WebSocket (MQTT 3.1.1 §6, MQTT 5.0 §6): binary frames, subprotocol "mqtt"; the
+      // stream's backpressure pauses the WebSocket, so pause() works as on a TCP socket.
+      const ws = new WebSocket(u, ['mqtt'], { rejectUnauthorized: true, ...(this.opts.ca ? { ca: this.opts.ca } : {}) });
+      ws.once('open', onOpen);
+      return createWebSocketStream(ws);
+    }
     const port = DEFAULT_PORT[u.protocol];
-    if (port === undefined) throw new Error(`MqttSession speaks mqtt:// and mqtts://, not ${u.protocol}//`);
+    if (port === undefined) throw new Error(`MqttSession speaks mqtt://, mqtts://, ws:// and wss://, not ${u.protocol}//`);
     const host = u.hostname.replace(/^\[(.*)\]$/, '$1');
     const options = { host, port: u.port ? Number(u.port) : port };
     if (u.protocol === 'mqtt:') {

@@ -3,9 +3,8 @@
  * held by holding mqtt.js's `handleMessage(packet, callback)` callback until `ack()` (mqtt.js
  * README, "Client#handleMessage": "Handle messages with backpressure support, one at a time …
  * always call callback"). mqtt.js handles packets one at a time and reads the next only after
- * that callback, so this admits one message per batch commit. It serves ws:// and wss:// (MQTT
- * over WebSocket, MQTT 5.0 §6), which ./mqtt-session.ts does not speak, and is the stock
- * reference `npm run bench:ingest -- --stock` measures ./mqtt-session.ts against.
+ * that callback, so this admits one message per batch commit. It is the stock reference
+ * `npm run bench:ingest -- --stock` measures ./mqtt-session.ts against.
  */
 import mqtt, { type IClientOptions, type IPublishPacket, type MqttClient } from 'mqtt';
 import type { ProtocolLevel } from './mqtt-connection.ts';

@@ -5,6 +5,7 @@
  */
 import { spawnSync } from 'node:child_process';
 import fs from 'node:fs';
+import http from 'node:http';
 import net from 'node:net';
 import path from 'node:path';
 import tls from 'node:tls';
@@ -12,6 +13,7 @@ import { Aedes } from 'aedes';
 import mqtt, { type MqttClient } from 'mqtt';
 import mqttPacket, { type IConnectPacket, type Packet } from 'mqtt-packet';
 import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
+import { createWebSocketStream, WebSocketServer } from 'ws';
 import { fallbackProtocol, mqttOptionsOf } from '../../../ingest/mqtt/mqtt-connection.ts';
 import { MqttSession, type Delivery, type SessionOptions, type SubscriberSession } from '../../../ingest/mqtt/mqtt-session.ts';
 import { MqttJsSession } from '../../../ingest/mqtt/mqttjs-session.ts';
@@ -296,7 +298,7 @@ describe('MqttSession (ingest/mqtt/mqtt-session.ts) against aedes', () => {
     }
   });
 
-  it('the mqtt.js session (ws:// and wss://, the --stock reference) holds each PUBACK until released, one message at a time', async () => {
+  it('the mqtt.js session (the --stock reference) holds each PUBACK until released, one message at a time', async () => {
     // mqtt.js README, Client#handleMessage: one message at a time, the next after the callback.
     const clientId = 'session-it-mqttjs';
     const got: Delivery[] = [];
@@ -371,6 +373,55 @@ describe('MqttSession over mqtts://', () => {
     // MQTT 3.1.1 §3.2.2.3: aedes answers a failed authenticate with return code 5, not authorized.
     await waitFor(() => badPassword.log.errors.length, (n) => n >= 1, { what: 'the CONNECT refused' });
     expect(badPassword.log.errors[0]).toEqual({ message: 'broker refused the connection: not authorized', refused: true });
+  });
+});
+
+describe('MqttSession over WebSocket (ws://, MQTT 3.1.1 §6)', () => {
+  let wsBroker: Aedes;
+  let server: http.Server;
+  let wss: WebSocketServer;
+  let pub: MqttClient;
+  let session: MqttSession | null = null;
+  let url = '';
+
+  beforeAll(async () => {
+    wsBroker = await Aedes.createBroker();
+    server = http.createServer();
+    // Binary frames with the "mqtt" subprotocol, each WebSocket handed to aedes as a stream.
+    wss = new WebSocketServer({ server, path: '/mqtt', handleProtocols: (p) => (p.has('mqtt') ? 'mqtt' : false) });
+    wss.on('connection', (ws) => wsBroker.handle(createWebSocketStream(ws)));
+    const port = await new Promise<number>((resolve) => server.listen(0, '127.0.0.1', () => resolve((server.address() as net.AddressInfo).port)));
+    url = `ws://127.0.0.1:${port}/mqtt`;
+    pub = await mqtt.connectAsync(url, { clientId: 'ws-it-pub', protocolVersion: 4, reconnectPeriod: 200 });
+  });
+  afterAll(async () => {
+    await session?.close();
+    await pub?.endAsync().catch(() => {});
+    wss?.close();
+    await new Promise<void>((r) => wsBroker.close(() => r()));
+    await new Promise<void>((r) => server.close(() => r()));
+  });
+
+  it('subscribes, reads on while PUBACKs are held, and the broker holds exactly the unreleased ones', async () => {
+    const clientId = 'ws-it-session';
+    const { session: s, log } = recorded({ url, clientId, filters: () => ['w/#'] });
+    session = s;
+    s.start();
+    await waitFor(() => log.connects.length, (n) => n === 1, { what: 'CONNACK over WebSocket' });
+    const subscribed = () => (wsBroker as unknown as { clients: Record<string, { subscriptions: Record<string, unknown> } | undefined> }).clients[clientId]?.subscriptions['w/#'];
+    await waitFor(subscribed, undefined, { what: 'the subscription' });
+    await Promise.all(Array.from({ length: 200 }, (_, i) => pub.publishAsync(`w/${i}`, String(i), { qos: 1 })));
+    // All 200 arrive with none released: intake does not wait for acknowledgements.
+    await waitFor(() => log.messages.length, (n) => n === 200, { what: '200 messages with every PUBACK held' });
+    expect(log.messages.map((m) => m.payload)).toEqual(Array.from({ length: 200 }, (_, i) => String(i)));
+    const acked: number[] = [];
+    wsBroker.on('ack', (packet, client) => {
+      if (client?.id === clientId && packet && 'messageId' in packet && packet.messageId !== undefined) acked.push(packet.messageId);
+    });
+    for (const m of log.messages.slice(0, 150)) s.ack(m.d!);
+    await waitFor(() => acked.length, (n) => n === 150, { what: '150 PUBACKs at the broker' });
+    expect(acked).toEqual(log.messages.slice(0, 150).map((m) => m.d!.messageId));
+    expect(log.errors).toEqual([]);
   });
 });
 
