@@ -144,6 +144,7 @@ export class BatchWriter {
     // Without new traffic nothing would flush: retry a non-empty spool by itself.
     this.replayTimer = setInterval(() => {
       if (!this.spool.isEmpty && this.now() >= this.retryAt) void this.flush();
+      if (this.spool.status().unreadable.length > 0) void this.forgetRemovedSpoolFiles();
     }, 1_000);
     this.replayTimer.unref();
   }
@@ -156,7 +157,7 @@ export class BatchWriter {
     return this.spool.fileCount;
   }
 
-  /** The spool as ingest's status reports it; unreadable files and a reached cap are `ingest` alarm conditions. */
+  /** The spool as ingest's status reports it; unreadable files and a reached cap raise the API's `ingest-spool` alarms. */
   get spoolStatus(): SpoolStatus {
     return this.spool.status();
   }
@@ -441,6 +442,20 @@ export class BatchWriter {
     if (unreadable.length > unreadableBefore) {
       this.stats.lastError = `spool file unreadable: ${unreadable.at(-1)!.file}: ${unreadable.at(-1)!.error}`;
       this.opts.log.error({ unreadable }, 'spool file could not be read; kept, out of the replay until ingest restarts');
+    }
+  }
+
+  private forgetting = false;
+
+  /** Unreadable spool files an operator moved out of the spool folder leave the status (and their alarm clears). */
+  private async forgetRemovedSpoolFiles(): Promise<void> {
+    if (this.forgetting) return;
+    this.forgetting = true;
+    try {
+      const gone = await this.spool.forgetRemoved();
+      if (gone.length) this.opts.log.warn({ files: gone }, 'unreadable spool file moved away by an operator; no longer reported');
+    } finally {
+      this.forgetting = false;
     }
   }
 
