@@ -289,12 +289,12 @@ export class BatchWriter {
     if (this.pending.samples.length + this.pending.deadLetters.length >= this.opts.batchRows) this.flushSoon(0);
   }
 
-  private async commit(samples: Sample[], deadLetters: DeadLetter[]): Promise<void> {
+  private async commit(samples: Sample[], deadLetters: DeadLetter[], replay = false): Promise<void> {
     let lastErr: unknown;
     for (let attempt = 0; attempt < 2; attempt++) {
       const store = await this.lane();
       try {
-        const r = await store.write(samples, deadLetters);
+        const r = await store.write(samples, deadLetters, replay ? { replay } : {});
         this.stats.committedSamples += r.inserted;
         this.stats.duplicateSamples += r.duplicates;
         this.stats.committedDeadLetters += r.deadLetters;
@@ -334,12 +334,12 @@ export class BatchWriter {
    * for any other reason the rest (this part and those after it) is thrown in a NotCommitted, so
    * what was committed is not spooled again.
    */
-  private async commitSplitting(batch: Part): Promise<void> {
+  private async commitSplitting(batch: Part, replay = false): Promise<void> {
     const todo: Part[] = [{ samples: batch.samples, deadLetters: batch.deadLetters }];
     while (todo.length) {
       const part = todo.pop()!;
       try {
-        await this.commit(part.samples, part.deadLetters);
+        await this.commit(part.samples, part.deadLetters, replay);
       } catch (err) {
         if (!isPermanentRowError(err)) throw new NotCommitted(err, merge([part, ...todo.reverse()]));
         const n = part.samples.length + part.deadLetters.length;
@@ -428,7 +428,8 @@ export class BatchWriter {
     try {
       const before = this.stats.committedSamples;
       const n = await this.spool.replay(async (recs: SpoolRecord[]) => {
-        await this.commitSplitting({ samples: recs.flatMap((r) => r.samples), deadLetters: recs.flatMap((r) => r.deadLetters) });
+        // A replay may repeat what a killed run committed just before it could delete the file.
+        await this.commitSplitting({ samples: recs.flatMap((r) => r.samples), deadLetters: recs.flatMap((r) => r.deadLetters) }, true);
       });
       this.stats.replayedSamples += this.stats.committedSamples - before;
       if (n) this.opts.log.info({ records: n }, 'spool replayed');

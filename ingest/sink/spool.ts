@@ -232,7 +232,8 @@ export class Spool {
    * caller serialises replay and append (BatchWriter does); the file being appended to is closed
    * first so later appends start a new one. Stops at the first failing `apply` and rethrows; the
    * next replay resumes after the last applied chunk (after a restart, from the file's start: a
-   * sample applied twice is a no-op by the primary key, a dead letter may be stored twice).
+   * sample applied twice is a no-op by the primary key, and the writer's replay skips a dead
+   * letter already stored, SampleStore.write `replay`).
    * Returns the number of records applied.
    */
   async replay(apply: (recs: SpoolRecord[]) => Promise<void>, maxSamplesPerApply = 50_000): Promise<number> {
