@@ -57,9 +57,11 @@ describe('ingest-spool alarms: raised from the worker status, cleared when the c
     return {
       plantId,
       spoolDir,
-      async writer() {
+      /** Ingest's writer over the spool; `databaseDown`: its connection points at a closed port, as while PostgreSQL is stopped. */
+      async writer(opts: { databaseDown?: boolean } = {}) {
         const spool = await Spool.open(spoolDir, maxBytes ? { maxBytes } : {});
-        const writer = new BatchWriter(store, spool, { batchRows: 1_000, flushMs: 50, log });
+        const lane = opts.databaseDown ? new SampleStore('postgres://ingest:x@127.0.0.1:1/none', { retentionDays: 400 }) : store;
+        const writer = new BatchWriter(lane, spool, { batchRows: 1_000, flushMs: 60_000, log });
         stops.push(() => writer.close());
         return { spool, writer };
       },
@@ -74,7 +76,8 @@ describe('ingest-spool alarms: raised from the worker status, cleared when the c
         await writeSignals(h.ctx, tagIds, FIXTURE_VALUES, { history_h: 1, at: new Date(now_ms) });
         await engine.runOnce(plantId);
       },
-      alarms: async () => (await h.ctx.db.pool.query(`SELECT * FROM alarms WHERE plant_id = $1 AND rule = 'ingest-spool' ORDER BY id`, [plantId])).rows,
+      /** This plant's ingest-spool alarms about this test's spool (every plant gets every spool's alarms). */
+      alarms: async () => (await h.ctx.db.pool.query(`SELECT * FROM alarms WHERE plant_id = $1 AND rule = 'ingest-spool' AND strpos(target, $2) > 0 ORDER BY id`, [plantId, spoolDir])).rows,
     };
   }
 
@@ -86,24 +89,30 @@ describe('ingest-spool alarms: raised from the worker status, cleared when the c
   it('a spool at its size cap raises one priority-1 alarm naming the folder and the bytes; it clears once the backlog is below the cap', async () => {
     // A 10-sample record is about 230 bytes: two reach a cap of 400 bytes.
     const p = await setup(400);
-    const { spool, writer } = await p.writer();
+    const down = await p.writer({ databaseDown: true });
     const tagId = (await h.ctx.db.pool.query(`SELECT min(id) AS id FROM tags WHERE plant_id = $1`, [p.plantId])).rows[0].id as number;
-    // What the writer does while PostgreSQL is down: batches go to the spool.
-    await spool.append(record(tagId, 1));
-    await spool.append(record(tagId, 2));
-    expect(spool.capReached).toBe(true);
-    await p.beat(writer);
+    // PostgreSQL down: each flushed batch goes to the spool, until the cap.
+    for (const k of [1, 2]) {
+      const r = record(tagId, k);
+      down.writer.enqueue(r.samples, r.deadLetters);
+      await down.writer.flush();
+    }
+    expect(down.spool.capReached).toBe(true);
+    expect(down.writer.stats.spooledSamples).toBe(20);
+    const bytes = down.spool.pendingBytes;
+    await p.beat(down.writer);
     await p.run(0);
     expect(await p.alarms()).toEqual([]); // ISA-18.2 on-delay
     await p.run(ON_DELAY_S);
     const [a, ...more] = await p.alarms();
     expect(more).toEqual([]);
-    const bytes = spool.pendingBytes;
     expect(a).toMatchObject({ state: 'raised', priority: 1, target: `spool:${os.hostname()}:${p.spoolDir}`, value: bytes, limit: 400 });
     expect(a.message).toContain(p.spoolDir);
     expect(a.message).toContain(`holds ${bytes} bytes to replay and reached its cap of 400 bytes`);
 
-    // The database takes the backlog: the writer's replay empties the spool.
+    // PostgreSQL back (ingest restarted on it here): the writer's replay empties the spool.
+    await down.writer.close();
+    const { spool, writer } = await p.writer();
     await writer.flush();
     expect(spool.capReached).toBe(false);
     expect(spool.fileCount).toBe(0);
