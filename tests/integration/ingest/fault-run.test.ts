@@ -119,6 +119,8 @@ describe('fault run: SIGKILLs, a 30 s database outage, a broker restart and pois
     };
     /** Lines of ingest's log file written by process `pid` with this message. */
     const logged = (pid: number | undefined, msg: string) => readLog(logFile).filter((l) => l.pid === pid && l.msg === msg).length;
+    /** When each fault happened, to tell which one a redelivery followed. */
+    const faults: { what: string; at: number }[] = [];
     const kill = async (p: Proc) => {
       p.child.kill('SIGKILL');
       await exited(p);
@@ -180,6 +182,7 @@ describe('fault run: SIGKILLs, a 30 s database outage, a broker restart and pois
       5,
     );
     await kill(ingest);
+    faults.push({ what: 'SIGKILL during a commit', at: Date.now() });
     expect(inCommit).toBeGreaterThan(0);
     ingest = startIngest();
     await waitFor('ingest reconnected after the kill', async () => logged(ingest.child.pid, 'mqtt connected'), (n) => n > 0, 60_000);
@@ -193,6 +196,7 @@ describe('fault run: SIGKILLs, a 30 s database outage, a broker restart and pois
     const spooledPid = ingest.child.pid;
     await waitFor('ingest spooling', async () => spoolFiles().length, (n) => n >= SPOOL_FILES_AT_KILL, 40_000, 20);
     await kill(ingest);
+    faults.push({ what: 'SIGKILL while spooling', at: Date.now() });
     expect(logged(spooledPid, 'database write failed; spooling')).toBe(1);
     const filesAtKill = spoolFiles().length;
     // Restarted during the outage (as the supervisor would): it cannot read its wiring until the database is back.
@@ -203,6 +207,7 @@ describe('fault run: SIGKILLs, a 30 s database outage, a broker restart and pois
     // 3. SIGKILL during the replay: some of the spool files deleted (applied), not all.
     const midReplay = await waitFor('the replay half done', async () => spoolFiles().length, (n) => n > 0 && n < filesAtKill, 60_000, 5);
     await kill(ingest);
+    faults.push({ what: 'SIGKILL during the replay', at: Date.now() });
     expect(midReplay).toBeGreaterThan(0);
     ingest = startIngest();
     await waitFor('spool replayed after the restart', async () => spoolFiles().length, (n) => n === 0, 60_000);
@@ -211,6 +216,7 @@ describe('fault run: SIGKILLs, a 30 s database outage, a broker restart and pois
     // 4. The broker restarted (its queue kept in its data folder); publisher and ingest reconnect.
     const connectedBefore = logged(ingest.child.pid, 'mqtt connected');
     await stopProc(broker, 'SIGTERM');
+    faults.push({ what: 'broker restart', at: Date.now() });
     await startBroker(); // stopped by its cleanup
     await waitFor('ingest reconnected to the restarted broker', async () => logged(ingest.child.pid, 'mqtt connected'), (n) => n > connectedBefore, 60_000);
     await waitFor('the publisher reconnected', async () => pub.connected, (x) => x, 30_000);
@@ -260,8 +266,17 @@ describe('fault run: SIGKILLs, a 30 s database outage, a broker restart and pois
     // with the killed connection) is a second receipt: the samples are absorbed by the primary
     // key, a dead letter is stored again (MQTT QoS 1 is at least once; ingest keeps no record of
     // what it stored across a kill). Counted, not hidden.
-    const redelivered = [...perPoison.values()].filter((at) => at.length > 1).length;
-    console.info(`fault run: ${acked.size} samples acknowledged and stored once; ${poisonSent} poison messages dead-lettered, ${redelivered} of them twice after a redelivery`);
+    // ingest's (re)connections to the broker, from its log: a reconnect without a fault is one too.
+    const events = [...faults, ...readLog(logFile).filter((l) => l.msg === 'mqtt connected').map((l) => ({ what: `MQTT (re)connection of ingest ${l.pid}`, at: l.time ?? 0 }))].sort((x, y) => x.at - y.at);
+    const after = new Map<string, number>();
+    for (const at of perPoison.values()) {
+      if (at.length < 2) continue;
+      const [a, b] = at.map((x) => Date.parse(x)).sort((x, y) => x - y);
+      const fault = events.filter((f) => f.at > a! && f.at <= b!)[0]?.what ?? `nothing between the receipts at ${at.join(' and ')}`;
+      after.set(fault, (after.get(fault) ?? 0) + 1);
+    }
+    const redelivered = [...after].map(([what, n]) => `${n} after the ${what}`).join(', ') || 'none';
+    console.info(`fault run: ${acked.size} samples acknowledged and stored once; ${poisonSent} poison messages dead-lettered; stored twice after a redelivery: ${redelivered}`);
     expect((await admin.query(`SELECT count(*)::int AS n FROM dead_letters WHERE payload NOT LIKE '%"poison"%'`)).rows[0].n).toBe(0);
     expect(fs.existsSync(path.join(spoolDir, 'rejected'))).toBe(false);
 
@@ -291,7 +306,7 @@ async function stopProc(p: Proc, signal: NodeJS.Signals): Promise<void> {
 }
 
 /** Ingest's log: one JSON object a line (pino). */
-function readLog(file: string): { pid?: number; msg?: string }[] {
+function readLog(file: string): { pid?: number; msg?: string; time?: number }[] {
   if (!fs.existsSync(file)) return [];
   return fs
     .readFileSync(file, 'utf8')
@@ -299,7 +314,7 @@ function readLog(file: string): { pid?: number; msg?: string }[] {
     .filter((l) => l.startsWith('{'))
     .map((l) => {
       try {
-        return JSON.parse(l) as { pid?: number; msg?: string };
+        return JSON.parse(l) as { pid?: number; msg?: string; time?: number };
       } catch {
         return {};
       }
