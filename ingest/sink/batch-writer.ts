@@ -144,6 +144,7 @@ export class BatchWriter {
     // Without new traffic nothing would flush: retry a non-empty spool by itself.
     this.replayTimer = setInterval(() => {
       if (!this.spool.isEmpty && this.now() >= this.retryAt) void this.flush();
+      if (this.spool.status().unreadable.length > 0) void this.forgetRemovedSpoolFiles();
     }, 1_000);
     this.replayTimer.unref();
   }
@@ -156,7 +157,7 @@ export class BatchWriter {
     return this.spool.fileCount;
   }
 
-  /** The spool as ingest's status reports it; unreadable files and a reached cap are `ingest` alarm conditions. */
+  /** The spool as ingest's status reports it; unreadable files and a reached cap raise the API's `ingest-spool` alarms. */
   get spoolStatus(): SpoolStatus {
     return this.spool.status();
   }
@@ -288,12 +289,12 @@ export class BatchWriter {
     if (this.pending.samples.length + this.pending.deadLetters.length >= this.opts.batchRows) this.flushSoon(0);
   }
 
-  private async commit(samples: Sample[], deadLetters: DeadLetter[]): Promise<void> {
+  private async commit(samples: Sample[], deadLetters: DeadLetter[], replay = false): Promise<void> {
     let lastErr: unknown;
     for (let attempt = 0; attempt < 2; attempt++) {
       const store = await this.lane();
       try {
-        const r = await store.write(samples, deadLetters);
+        const r = await store.write(samples, deadLetters, replay ? { replay } : {});
         this.stats.committedSamples += r.inserted;
         this.stats.duplicateSamples += r.duplicates;
         this.stats.committedDeadLetters += r.deadLetters;
@@ -333,12 +334,12 @@ export class BatchWriter {
    * for any other reason the rest (this part and those after it) is thrown in a NotCommitted, so
    * what was committed is not spooled again.
    */
-  private async commitSplitting(batch: Part): Promise<void> {
+  private async commitSplitting(batch: Part, replay = false): Promise<void> {
     const todo: Part[] = [{ samples: batch.samples, deadLetters: batch.deadLetters }];
     while (todo.length) {
       const part = todo.pop()!;
       try {
-        await this.commit(part.samples, part.deadLetters);
+        await this.commit(part.samples, part.deadLetters, replay);
       } catch (err) {
         if (!isPermanentRowError(err)) throw new NotCommitted(err, merge([part, ...todo.reverse()]));
         const n = part.samples.length + part.deadLetters.length;
@@ -427,7 +428,8 @@ export class BatchWriter {
     try {
       const before = this.stats.committedSamples;
       const n = await this.spool.replay(async (recs: SpoolRecord[]) => {
-        await this.commitSplitting({ samples: recs.flatMap((r) => r.samples), deadLetters: recs.flatMap((r) => r.deadLetters) });
+        // A replay may repeat what a killed run committed just before it could delete the file.
+        await this.commitSplitting({ samples: recs.flatMap((r) => r.samples), deadLetters: recs.flatMap((r) => r.deadLetters) }, true);
       });
       this.stats.replayedSamples += this.stats.committedSamples - before;
       if (n) this.opts.log.info({ records: n }, 'spool replayed');
@@ -441,6 +443,20 @@ export class BatchWriter {
     if (unreadable.length > unreadableBefore) {
       this.stats.lastError = `spool file unreadable: ${unreadable.at(-1)!.file}: ${unreadable.at(-1)!.error}`;
       this.opts.log.error({ unreadable }, 'spool file could not be read; kept, out of the replay until ingest restarts');
+    }
+  }
+
+  private forgetting = false;
+
+  /** Unreadable spool files an operator moved out of the spool folder leave the status (and their alarm clears). */
+  private async forgetRemovedSpoolFiles(): Promise<void> {
+    if (this.forgetting) return;
+    this.forgetting = true;
+    try {
+      const gone = await this.spool.forgetRemoved();
+      if (gone.length) this.opts.log.warn({ files: gone }, 'unreadable spool file moved away by an operator; no longer reported');
+    } finally {
+      this.forgetting = false;
     }
   }
 

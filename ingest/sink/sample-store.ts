@@ -230,7 +230,13 @@ export class SampleStore {
     return r.rows[0]?.n ?? 0;
   }
 
-  async write(batch: readonly Sample[], deadLetters: readonly DeadLetter[]): Promise<WriteResult> {
+  /**
+   * One batch in one transaction. `replay`: the batch comes from the spool, and may have been
+   * committed already by a run that was killed before it could delete the spool file; its
+   * samples are absorbed by the primary key, and its dead letters are skipped when an identical
+   * row (same receive time to the millisecond, source, address, payload and reason) is stored.
+   */
+  async write(batch: readonly Sample[], deadLetters: readonly DeadLetter[], opts: { replay?: boolean } = {}): Promise<WriteResult> {
     const samples = byKey(batch);
     const c = await this.connect();
     try {
@@ -272,10 +278,18 @@ export class SampleStore {
           values: [latest.map((s) => s.tagId), latest.map((s) => s.ts), latest.map((s) => s.value), latest.map((s) => s.quality)].map(pgNumberArray),
         });
       }
+      let deadLettersInserted = deadLetters.length;
       if (deadLetters.length) {
-        await c.query({
-          name: 'ingest_dead_letters',
-          text: `INSERT INTO dead_letters (ts, source_id, address, payload, payload_bytes, reason)
+        const r = await c.query({
+          name: opts.replay ? 'ingest_dead_letters_replay' : 'ingest_dead_letters',
+          // On replay the NOT EXISTS sees the table as it was before this statement, so identical
+          // dead letters within the batch itself (two equal bad items of one message) all go in.
+          text: opts.replay
+            ? `INSERT INTO dead_letters (ts, source_id, address, payload, payload_bytes, reason)
+            SELECT * FROM unnest($1::timestamptz[], $2::int[], $3::text[], $4::text[], $5::int[], $6::text[]) AS u(ts, source_id, address, payload, payload_bytes, reason)
+            WHERE NOT EXISTS (SELECT 1 FROM dead_letters d WHERE d.ts = u.ts AND d.source_id IS NOT DISTINCT FROM u.source_id AND d.address IS NOT DISTINCT FROM u.address
+              AND d.payload IS NOT DISTINCT FROM u.payload AND d.reason = u.reason)`
+            : `INSERT INTO dead_letters (ts, source_id, address, payload, payload_bytes, reason)
             SELECT * FROM unnest($1::timestamptz[], $2::int[], $3::text[], $4::text[], $5::int[], $6::text[])`,
           // deadLetter() already cleans its text; this is the last line before PostgreSQL, for
           // dead letters made anywhere else (a spool written by an older version, the writer's own).
@@ -288,9 +302,10 @@ export class SampleStore {
             deadLetters.map((d) => pgText(d.reason, DEAD_LETTER_REASON_MAX)),
           ],
         });
+        deadLettersInserted = r.rowCount ?? deadLetters.length;
       }
       await c.query('COMMIT');
-      return { inserted: inserted.length, duplicates: samples.length - inserted.length, deadLetters: deadLetters.length, staged };
+      return { inserted: inserted.length, duplicates: samples.length - inserted.length, deadLetters: deadLettersInserted, staged };
     } catch (err) {
       // Whatever failed, the transaction is not committed; a fresh connection avoids half states.
       this.reset();

@@ -29,10 +29,15 @@ export interface UnreadableSpoolFile {
   error: string;
 }
 
-/** What ingest's status shows of the spool (the `ingest` alarm condition reads it). */
+/** What ingest's status shows of the spool (the API's `ingest-spool` alarms read it). */
 export interface SpoolStatus {
+  /** The spool folder (names the spool in the cap alarm). */
+  dir: string;
   files: number;
   bytes: number;
+  /** Bytes still to replay (what the cap counts) and the cap. */
+  pendingBytes: number;
+  maxBytes: number;
   unreadable: UnreadableSpoolFile[];
   capReached: boolean;
 }
@@ -139,7 +144,41 @@ export class Spool {
   }
 
   status(): SpoolStatus {
-    return { files: this.files.length, bytes: this.sizeBytes, unreadable: [...this.unreadable.values()], capReached: this.capReached };
+    return {
+      dir: this.dir,
+      files: this.files.length,
+      bytes: this.sizeBytes,
+      pendingBytes: this.pendingBytes,
+      maxBytes: this.maxBytes,
+      unreadable: [...this.unreadable.values()],
+      capReached: this.capReached,
+    };
+  }
+
+  /**
+   * Forgets the unreadable files an operator has moved away (or deleted): what to do with a
+   * damaged file is the operator's call, and once it is out of the spool folder it is no longer
+   * this spool's, so it leaves `status().unreadable` and its alarm clears. A file still in place
+   * stays listed (and is tried again at the next start). Returns the files forgotten.
+   */
+  async forgetRemoved(): Promise<string[]> {
+    const gone: string[] = [];
+    for (const [seq, u] of [...this.unreadable]) {
+      try {
+        await fsp.lstat(u.file);
+        continue;
+      } catch (err) {
+        if ((err as NodeJS.ErrnoException).code !== 'ENOENT') continue;
+      }
+      this.unreadable.delete(seq);
+      this.unreadableBytes -= this.sizes.get(seq) ?? 0;
+      this.setSize(seq, 0);
+      this.sizes.delete(seq);
+      this.applied.delete(seq);
+      this.files = this.files.filter((s) => s !== seq);
+      gone.push(u.file);
+    }
+    return gone;
   }
 
   /**
@@ -193,7 +232,8 @@ export class Spool {
    * caller serialises replay and append (BatchWriter does); the file being appended to is closed
    * first so later appends start a new one. Stops at the first failing `apply` and rethrows; the
    * next replay resumes after the last applied chunk (after a restart, from the file's start: a
-   * sample applied twice is a no-op by the primary key, a dead letter may be stored twice).
+   * sample applied twice is a no-op by the primary key, and the writer's replay skips a dead
+   * letter already stored, SampleStore.write `replay`).
    * Returns the number of records applied.
    */
   async replay(apply: (recs: SpoolRecord[]) => Promise<void>, maxSamplesPerApply = 50_000): Promise<number> {

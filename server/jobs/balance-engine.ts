@@ -7,6 +7,7 @@ import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
 import { createAlarmService, type AlarmChange } from '../services/alarm.service.ts';
 import { readBalanceInputs } from '../services/balance-inputs.service.ts';
 import { computeBalance } from '../../shared/domain/balance/assemble.ts';
+import { workerSpools } from '../services/ingest-status.service.ts';
 import { createMailService, smtpTransport } from '../services/mail.service.ts';
 
 export const BALANCE_QUEUE = 'flocstream-balance';
@@ -121,7 +122,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
     // Mail only what is annunciated: a new alarm, or one whose shelf expired (ISA-18.2); suppressed and shelved ones are listed only.
     if ((change === 'raised' || change === 'unshelved') && mail) await mail.alarm(a);
   };
-  const alarms = createAlarmService({ alarmRepo: repos.alarms, audit, clock: now, changed: onAlarm });
+  const alarms = createAlarmService({ alarmRepo: repos.alarms, audit, clock: now, changed: onAlarm, spoolWorkers: async () => workerSpools(await repos.ingest.workers()) });
 
   async function runOnce(plantId: number): Promise<Balance> {
     const s = await settings.effective(plantId);

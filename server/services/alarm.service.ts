@@ -23,6 +23,7 @@
 import { ALARM_PRIORITY, ALARM_SUMMARY_BUCKET_MIN, type AlarmOut, type AlarmRule, type AlarmSummaryOut } from '../../shared/contracts/alarm.ts';
 import { OPERATOR_CAUTION, type Balance, type FigureOut } from '../../shared/contracts/balance.ts';
 import type { EffectiveSettings } from '../../shared/contracts/settings.ts';
+import type { SpoolStatusOut } from '../../shared/contracts/wiring.ts';
 import type { Clock } from '../app-context.ts';
 import { ConflictError, NotFoundError } from '../http/errors.ts';
 import type { AlarmRepository, AlarmRow } from '../repositories/alarm.repository.ts';
@@ -140,6 +141,98 @@ export function suppressAfterStart(conds: AlarmCondition[], b: Balance, s: Effec
   });
 }
 
+/** One ingest worker's spool as the alarm engine sees it (from its `ingest_workers` row). */
+export interface SpoolWorkerView {
+  host: string;
+  /** Heartbeat fresh and not stopped (ingest-status.service.ts workerRunning). */
+  running: boolean;
+  /** null: the row's status could not be read. */
+  spool: SpoolStatusOut | null;
+}
+
+/** Bytes as people read them: `2147483648 bytes (2.00 GiB)`. */
+export function bytesText(n: number): string {
+  const units = ['KiB', 'MiB', 'GiB', 'TiB'];
+  let v = n;
+  let u = -1;
+  while (v >= 1024 && u < units.length - 1) {
+    v /= 1024;
+    u++;
+  }
+  return u < 0 ? `${n} bytes` : `${n} bytes (${v.toFixed(2)} ${units[u]})`;
+}
+
+export const spoolCapTarget = (host: string, dir: string) => `spool:${host}:${dir}`;
+export const spoolFileTarget = (host: string, file: string) => `spool-file:${host}:${file}`;
+
+/**
+ * The `ingest-spool` alarm conditions (pure) from the ingest workers' status rows (latest
+ * heartbeat first) and the targets of this plant's open `ingest-spool` alarms. Ingest only
+ * reports its spool (ingest/sink/spool.ts); the alarms are the API's, as every other alarm.
+ * - cap (`spool:<host>:<dir>`, priority 1): the files still to replay reached the spool's size
+ *   cap, so ingest holds new values unacknowledged (backpressure; the broker keeps them) — the
+ *   monitor is going blind. Clears once the backlog is below the cap.
+ * - unreadable file (`spool-file:<host>:<file>`, priority 2): acknowledged samples sit in a file
+ *   ingest cannot read. Clears once the file has left the spool folder (an operator moved it
+ *   away for inspection or repair: README, Cautions), which ingest notices within a second.
+ * A spool whose workers have all stopped or gone silent is unknown (neither raises nor clears:
+ * the `ingest-down` alarms say why); one no row mentions any more (rows are kept a day) is no
+ * longer evaluated and its alarms clear. The spool serves every plant, so every plant gets them,
+ * as the supervisor's process alarms.
+ */
+export function spoolAlarmConditions(workers: readonly SpoolWorkerView[], openTargets: readonly string[]): AlarmCondition[] {
+  const groups = new Map<string, { host: string; dir: string; rows: { running: boolean; spool: SpoolStatusOut }[] }>();
+  for (const w of workers) {
+    if (!w.spool?.dir) continue;
+    const k = spoolCapTarget(w.host, w.spool.dir);
+    let g = groups.get(k);
+    if (!g) groups.set(k, (g = { host: w.host, dir: w.spool.dir, rows: [] }));
+    g.rows.push({ running: w.running, spool: w.spool });
+  }
+  const out: AlarmCondition[] = [];
+  const prio = ALARM_PRIORITY['ingest-spool'];
+  for (const [capTarget, g] of groups) {
+    const live = g.rows.filter((r) => r.running);
+    // Unknown when no worker of this spool runs: its last status may be hours old.
+    const known = live.length > 0;
+    const shown = known ? live : [g.rows[0]!];
+    const full = shown.find((r) => r.spool.capReached)?.spool ?? null;
+    const st = full ?? shown[0]!.spool;
+    const pending = st.pendingBytes ?? st.bytes;
+    const cap = st.maxBytes ?? null;
+    out.push({
+      rule: 'ingest-spool',
+      target: capTarget,
+      priority: prio,
+      active: known ? full !== null : null,
+      value: pending,
+      limit: cap,
+      message: full
+        ? `Ingest spool ${g.dir} on ${g.host} holds ${bytesText(pending)} to replay and reached its cap${cap === null ? '' : ` of ${bytesText(cap)}`}: ingest holds new values unacknowledged (the broker keeps them) until PostgreSQL takes the backlog. Check the database and its disk.`
+        : `Ingest spool ${g.dir} on ${g.host} holds ${bytesText(pending)} to replay, below its cap${cap === null ? '' : ` of ${bytesText(cap)}`}.`,
+    });
+    const listed = new Map(shown.flatMap((r) => r.spool.unreadable).map((u) => [spoolFileTarget(g.host, u.file), u]));
+    for (const [target, u] of listed) {
+      out.push({
+        rule: 'ingest-spool',
+        target,
+        priority: 2,
+        active: known ? true : null,
+        value: u.bytes,
+        limit: null,
+        message: `Spool file ${u.file} (${bytesText(u.bytes)}) on ${g.host} cannot be read from byte ${u.atByte} (${u.error}): the acknowledged samples after that byte are not in the database. Move the file out of the spool folder (e.g. into ${g.dir}/damaged/) to keep it for inspection or repair; the alarm clears once it is gone.`,
+      });
+    }
+    const hostPrefix = spoolFileTarget(g.host, '');
+    for (const target of openTargets) {
+      if (!target.startsWith(spoolFileTarget(g.host, `${g.dir}/`)) || listed.has(target)) continue;
+      const file = target.slice(hostPrefix.length);
+      out.push({ rule: 'ingest-spool', target, priority: 2, active: known ? false : null, value: null, limit: null, message: `Spool file ${file} is no longer in the spool folder on ${g.host}.` });
+    }
+  }
+  return out;
+}
+
 export type AlarmAction =
   | { kind: 'raise'; condition: AlarmCondition }
   | { kind: 'annunciate'; alarmId: number; condition: AlarmCondition }
@@ -216,10 +309,12 @@ export interface AlarmServiceDeps {
   clock: Clock;
   /** Called for every change after it is stored (stream notice; mail on 'raised' and 'unshelved'). */
   changed?: (a: AlarmOut, change: AlarmChange) => Promise<void> | void;
+  /** The ingest workers' spools (latest heartbeat first), for the `ingest-spool` alarms; absent: not evaluated. */
+  spoolWorkers?: () => Promise<SpoolWorkerView[]>;
 }
 
 /** Evaluates and stores alarms for balances; acknowledges on request. Holds the on-delay timers of this process. */
-export function createAlarmService({ alarmRepo: repo, audit, clock, changed }: AlarmServiceDeps) {
+export function createAlarmService({ alarmRepo: repo, audit, clock, changed, spoolWorkers }: AlarmServiceDeps) {
   const pending = new Map<number, Map<string, number>>();
   return {
     /** Applies one balance: raises and clears alarms; returns the changes. */
@@ -234,6 +329,7 @@ export function createAlarmService({ alarmRepo: repo, audit, clock, changed }: A
         starts,
         now_ms,
       );
+      if (spoolWorkers) conds.push(...(await spoolConditions(spoolWorkers, openRows)));
       let p = pending.get(b.plantId);
       if (!p) pending.set(b.plantId, (p = new Map()));
       const actions = stepAlarms(conds, open, p, now_ms, s['alarm.on_delay_s']);
@@ -330,3 +426,13 @@ export function createAlarmService({ alarmRepo: repo, audit, clock, changed }: A
   };
 }
 export type AlarmService = ReturnType<typeof createAlarmService>;
+
+/** The spool conditions; when the worker rows cannot be read, this plant's open spool alarms are unknown (kept as they are). */
+async function spoolConditions(spoolWorkers: () => Promise<SpoolWorkerView[]>, openRows: readonly Pick<AlarmRow, 'rule' | 'target'>[]): Promise<AlarmCondition[]> {
+  const openTargets = openRows.filter((r) => r.rule === 'ingest-spool').map((r) => r.target);
+  try {
+    return spoolAlarmConditions(await spoolWorkers(), openTargets);
+  } catch {
+    return openTargets.map((target) => ({ rule: 'ingest-spool' as const, target, priority: ALARM_PRIORITY['ingest-spool'], active: null, value: null, limit: null, message: '' }));
+  }
+}

@@ -3,6 +3,7 @@ import type { Clock } from '../app-context.ts';
 import type { Principal } from '../auth/principal.ts';
 import type { IngestRepository, IngestWorkerRow } from '../repositories/ingest.repository.ts';
 import type { WiringRepository } from '../repositories/wiring.repository.ts';
+import type { SpoolWorkerView } from './alarm.service.ts';
 
 const HOUR_MS = 3_600_000;
 
@@ -98,6 +99,11 @@ export function createIngestStatusService(deps: IngestStatusDeps) {
       };
     },
   };
+}
+
+/** Each worker's spool for the `ingest-spool` alarms (alarm.service.ts spoolAlarmConditions), in the rows' order. */
+export function workerSpools(rows: readonly IngestWorkerRow[]): SpoolWorkerView[] {
+  return rows.map((w) => ({ host: w.host, running: workerRunning(w), spool: readStatus(w.status)?.spool ?? null }));
 }
 
 function readStatus(json: unknown): IngestWorkerStatus | null {

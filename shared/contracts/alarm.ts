@@ -9,6 +9,7 @@ import { z } from 'zod';
  */
 export const ALARM_RULES = [
   'ingest-down',
+  'ingest-spool',
   'mlss-low',
   'stored-fraction-high',
   'blanket-high',
@@ -25,6 +26,7 @@ export type AlarmRule = z.infer<typeof alarmRule>;
 /** Priority of each rule: 1 the monitor is blind; 2 the process is at or near a limit; 3 trend or off target; 4 one instrument. */
 export const ALARM_PRIORITY: Record<AlarmRule, 1 | 2 | 3 | 4> = {
   'ingest-down': 1,
+  'ingest-spool': 1,
   'mlss-low': 2,
   'blanket-high': 2,
   'ras-concentration-margin-low': 2,

@@ -447,10 +447,14 @@ export const connectorStatus = z
 /**
  * A worker's spool (ingest/sink/spool.ts): batches fsync'd while PostgreSQL could not take them.
  * Unreadable files are kept and listed; a reached size cap holds acknowledgements (backpressure).
- * Both are `ingest` alarm conditions.
+ * Both raise an `ingest-spool` alarm (server/services/alarm.service.ts spoolAlarmConditions).
+ * `dir`, `pendingBytes` and `maxBytes` are per worker (absent in the API's sum over workers).
  */
 export const spoolStatus = z.object({
+  dir: z.string().optional(),
   bytes: z.number(),
+  pendingBytes: z.number().optional(),
+  maxBytes: z.number().optional(),
   files: z.number(),
   unreadable: z.array(z.object({ file: z.string(), bytes: z.number(), atByte: z.number(), error: z.string() })).default([]),
   capReached: z.boolean().default(false),

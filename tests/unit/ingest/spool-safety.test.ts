@@ -54,7 +54,7 @@ describe('spool rotation and streamed replay', () => {
     expect(await replayAll(again)).toEqual(Array.from({ length: 20 }, (_, i) => i + 1));
     expect(readFile).not.toHaveBeenCalled();
     expect(spoolFiles(dir)).toEqual([]);
-    expect(again.status()).toEqual({ files: 0, bytes: 0, unreadable: [], capReached: false });
+    expect(again.status()).toEqual({ dir, files: 0, bytes: 0, pendingBytes: 0, maxBytes: 2 * 1024 ** 3, unreadable: [], capReached: false });
   });
 
   it('keeps a file whose apply failed and resumes after the last applied record', async () => {
@@ -117,6 +117,27 @@ describe('spool files that cannot be read', () => {
     expect(fs.existsSync(file)).toBe(true);
     const st = again.status();
     expect(st.unreadable).toEqual([{ file, bytes: buf.length, atByte: second, error: `bad checksum in the record at byte ${second}` }]);
+  });
+});
+
+describe('an unreadable file dealt with by an operator', () => {
+  it('is forgotten once moved out of the spool folder (its alarm clears), and kept while it is still there', async () => {
+    const dir = tmp();
+    const s = await Spool.open(dir, { fileBytes: 1 }); // one record per file
+    for (let k = 1; k <= 2; k++) await s.append(record(k));
+    await s.close();
+    const [f1, f2] = spoolFiles(dir);
+    fs.rmSync(path.join(dir, f1!));
+    fs.mkdirSync(path.join(dir, f1!)); // EISDIR on read: unreadable
+    const again = await Spool.open(dir, { maxBytes: 10_000 });
+    expect(await replayAll(again)).toEqual([2]);
+    expect(again.status()).toMatchObject({ files: 1, unreadable: [{ file: path.join(dir, f1!) }] });
+    expect(await again.forgetRemoved()).toEqual([]);
+    expect(again.status().unreadable).toHaveLength(1);
+    fs.renameSync(path.join(dir, f1!), path.join(dir, 'moved-away'));
+    expect(await again.forgetRemoved()).toEqual([path.join(dir, f1!)]);
+    expect(again.status()).toMatchObject({ files: 0, bytes: 0, pendingBytes: 0, unreadable: [], capReached: false });
+    expect(f2).toBeDefined();
   });
 });
 
