@@ -51,7 +51,6 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
   const job = await repo.job(jobId);
   if (!job) return;
   const o = job.options as unknown as ImportOptions;
-  await repo.started(jobId);
   const began = performance.now();
   const checker = new RowChecker(await repo.importTags(job.plantId), o);
   const stage = o.dryRun ? null : await repo.openStage(jobId);
@@ -212,7 +211,6 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
   const job = await repo.job(jobId);
   if (!job) return;
   const o = job.options as unknown as RecomputeOptions;
-  await repo.started(jobId);
   try {
     const s = await services(ctx).settings.effective(job.plantId);
     const balanceRepo = repositories(ctx).balance;
@@ -282,7 +280,9 @@ export interface HistoryJobs {
 
 /**
  * The worker of history jobs (imports and recomputes, one at a time, BullMQ on the same backend
- * as the balance engine) for this context, and the queue the import service enqueues to.
+ * as the balance engine) for this context, and the queue the import service enqueues to. Every
+ * API process runs one; a job runs in whichever takes it (the upload folder, `<dataDir>/imports`,
+ * must then be one folder shared by the API processes that take imports).
  */
 export async function startHistoryJobs(ctx: AppContext, opts: { databaseUrl?: string } = {}): Promise<HistoryJobs> {
   const url = opts.databaseUrl ?? ctx.config.databaseUrl;
@@ -294,6 +294,10 @@ export async function startHistoryJobs(ctx: AppContext, opts: { databaseUrl?: st
   const worker: ClosableWorker = backend.worker(async (job: Job) => {
     const id = Number((job.data as { id?: number }).id);
     const report = (p: number) => void job.updateProgress(Math.round(p * 1000) / 1000).catch(() => {});
+    // One run per row, whichever API process's worker gets the job: the row is claimed for this
+    // BullMQ job first (a redelivery of the same job after its worker died may take it again; a
+    // second job for the same row, queued by another process at its start, is skipped).
+    if (!(await repo.claim(id, String(job.id)))) return { skipped: 'claimed' };
     if (job.name === 'import') return runImport(ctx, repo, id, report, stopping.signal);
     if (job.name === 'recompute') return runRecompute(ctx, repo, id, report, stopping.signal);
     throw new Error(`unknown history job ${job.name}`);

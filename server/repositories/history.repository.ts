@@ -90,8 +90,17 @@ export function historyRepository(database: Database) {
     async setOptions(id: number, options: Record<string, unknown>): Promise<void> {
       await pool.query(`UPDATE history_jobs SET options = options || $2::jsonb WHERE id = $1`, [id, JSON.stringify(options)]);
     },
-    async started(id: number): Promise<void> {
-      await pool.query(`UPDATE history_jobs SET state = 'running', started_at = now() WHERE id = $1`, [id]);
+    /**
+     * Marks a queued row running for the BullMQ job `token`; false when another job holds or
+     * finished it. The same token may take a running row again (BullMQ redelivers a job whose
+     * worker died to another worker under its own id).
+     */
+    async claim(id: number, token: string): Promise<boolean> {
+      const r = await pool.query(
+        `UPDATE history_jobs SET state = 'running', started_at = now(), run_token = $2 WHERE id = $1 AND (state = 'queued' OR (state = 'running' AND run_token = $2))`,
+        [id, token],
+      );
+      return r.rowCount === 1;
     },
     async progress(id: number, p: { progress: number; rows: number; rejected: number }): Promise<void> {
       await pool.query(`UPDATE history_jobs SET progress = $2, rows = $3, rejected = $4 WHERE id = $1`, [id, p.progress, p.rows, p.rejected]);
