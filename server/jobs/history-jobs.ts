@@ -142,6 +142,8 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
     await repo.progress(jobId, { progress: 0.9, rows: checker.rows, rejected: 0 });
     const moved = performance.now();
     const inserted = await repo.move(jobId, [...checker.days], windows);
+    // Before the job shows done: the uploader's reads go to the primary until a replica shows these rows.
+    await services(ctx).reads.routing.fenceUser(job.createdBy);
     await repo.dropStage(jobId);
     const timing = { checkSec: Math.round(checkSec * 10) / 10, moveSec: Math.round(((performance.now() - moved) / 1000) * 10) / 10 };
     let recomputeJobId: number | null = null;
@@ -267,6 +269,8 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
       }
     }
     await repo.insertRecomputed(pending);
+    // The recomputed balances are the uploader's fresh write too (the recompute follows an import).
+    await services(ctx).reads.routing.fenceUser(job.parentId === null ? null : ((await repo.job(job.parentId))?.createdBy ?? null));
     await repo.finish(jobId, { state: 'done', rows: done, rejected: 0, errors: [], result: { from: new Date(t0).toISOString(), to: o.to } });
   } catch (err) {
     await repo.finish(jobId, { state: 'failed', rows: 0, rejected: 0, errors: [], result: { message: `recompute failed: ${(err as Error).message}` } }).catch(() => {});

@@ -20,6 +20,8 @@ export interface HistoryJobRow {
   options: Record<string, unknown>;
   result: Record<string, unknown>;
   parentId: number | null;
+  /** The user who uploaded the file (null for a recompute, which follows its parent import). */
+  createdBy: number | null;
   startedAt: Date | null;
   finishedAt: Date | null;
 }
@@ -53,6 +55,7 @@ function jobRow(x: Record<string, unknown>): HistoryJobRow {
     options: x.options as Record<string, unknown>,
     result: x.result as Record<string, unknown>,
     parentId: (x.parent_id as number | null) ?? null,
+    createdBy: (x.created_by as number | null) ?? null,
     startedAt: (x.started_at as Date | null) ?? null,
     finishedAt: (x.finished_at as Date | null) ?? null,
   };
