@@ -4,29 +4,31 @@ import fs from 'node:fs';
 import path from 'node:path';
 import pg from 'pg';
 import { asPostgres, findPgBinDir } from '../../server/db/local-postgres.ts';
-import { testDataDir } from './db.ts';
 import { freePort } from './net.ts';
 
 export interface StreamingReplica {
   port: number;
+  /** The standby's data folder. */
+  pgData: string;
   /** `url` (a URL of the primary cluster) with the replica's port: same roles, same passwords, same databases. */
   urlOf(url: string): string;
   stop(): void;
 }
 
 /**
- * A hot standby of the test cluster (tests/setup/global-db.ts), as an operator would make one:
+ * A hot standby of a private cluster (the tests' of tests/setup/global-db.ts, or a benchmark's),
+ * as an operator would make one:
  * `pg_basebackup -R -X stream` from the primary (its `-R` writes `standby.signal` and
  * `primary_conninfo`), then the copy started on a port of its own as the postgres user
  * (PostgreSQL manual, "Log-Shipping Standby Servers" and pg_basebackup). The primary needs no
  * change: initdb's defaults already have `wal_level = replica`, `max_wal_senders = 10` and
  * `host replication all 127.0.0.1/32` in pg_hba.conf, and the cluster's owner has REPLICATION.
  */
-export async function startStreamingReplica(adminUrl: string): Promise<StreamingReplica> {
+export async function startStreamingReplica(adminUrl: string, parentDir: string): Promise<StreamingReplica> {
   const bin = findPgBinDir();
   if (!bin) throw new Error('PostgreSQL binaries not found');
-  // Inside the test cluster's folder, which the postgres user can already reach.
-  const dir = path.join(testDataDir(), `replica-${randomBytes(4).toString('hex')}`);
+  // `parentDir`: the primary's data folder (testDataDir() in tests), which the postgres user can already reach.
+  const dir = path.join(parentDir, `replica-${randomBytes(4).toString('hex')}`);
   const pgData = path.join(dir, 'pg');
   const sock = path.join(dir, 'sock');
   fs.mkdirSync(sock, { recursive: true, mode: 0o700 });
@@ -56,6 +58,7 @@ export async function startStreamingReplica(adminUrl: string): Promise<Streaming
   let stopped = false;
   return {
     port,
+    pgData,
     urlOf,
     stop() {
       if (stopped) return;

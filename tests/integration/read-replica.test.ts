@@ -10,7 +10,7 @@ import { loadConfig } from '../../server/config.ts';
 import { startServer, type RunningServer } from '../../server/main.ts';
 import { userRepository } from '../../server/repositories/user.repository.ts';
 import { lsnValue } from '../../server/services/read-routing.service.ts';
-import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
+import { createTestDatabase, testDataDir, type TestDatabase } from '../helpers/db.ts';
 import { startStreamingReplica, type StreamingReplica } from '../helpers/replica.ts';
 import { waitFor } from '../helpers/wait.ts';
 import { seedFixturePlant, writeSignals } from './balance-fixture.ts';
@@ -63,7 +63,7 @@ describe('read routes on a streaming replica', () => {
 
   beforeAll(async () => {
     t = await createTestDatabase();
-    replica = await startStreamingReplica(t.adminUrl);
+    replica = await startStreamingReplica(t.adminUrl, testDataDir());
     dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-replica-'));
     const password = `pw-${randomBytes(8).toString('hex')}`;
     const config = loadConfig({
