@@ -34,6 +34,7 @@ export interface BalanceEngineOptions {
 
 export interface BalanceEngine {
   stop(): Promise<void>;
+  /** Computes and stores a balance now, without claiming its interval (tests, tools); the scheduled jobs claim. */
   runOnce(plantId: number): Promise<Balance>;
   /** Sends the shift summary of the 24 h before now for one plant (what the daily job does). */
   shiftSummary(plantId: number): Promise<boolean>;

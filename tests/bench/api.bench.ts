@@ -25,7 +25,8 @@
  * (d) with `--replica` (issue 18): a streaming replica of the bench cluster (pg_basebackup -R,
  *     tests/helpers/replica.ts) and a second API process with it as DATABASE_READ_URL; the
  *     30-day samples query at 50 connections on the API reading the primary and on the one
- *     reading the replica, three alternating rounds of 5 s, medians compared (`replicaRatio`).
+ *     reading the replica, three alternating rounds of 5 s (after 3 s of warm-up each), medians
+ *     compared (`replicaRatio`).
  *     Both clusters share this machine's cores, so the figure is the cost of the routing on one
  *     host, not the gain of a second one.
  *
@@ -470,7 +471,9 @@ async function replicaPhase(o: {
   const run = async (name: keyof typeof sides) => {
     const side = sides[name];
     const opts = { url: side.base + o.path, headers: { Cookie: side.cookie }, connections: 50 };
-    await o.autocannon({ ...opts, duration: 1 }); // warm-up, not counted
+    // Warm-up, not counted: 3 s, so the replica API (started just now, unlike the primary's,
+    // which served the phases before) has its pool's 20 connections open and its statements prepared.
+    await o.autocannon({ ...opts, duration: 3 });
     const c0 = cpuSeconds(side.pid);
     const pg0 = clusterCpuSeconds(side.pgData);
     const r = await o.autocannon({ ...opts, duration: LIVE_S });
