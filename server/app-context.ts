@@ -41,10 +41,16 @@ import { createTokenService } from './services/token.service.ts';
 import { createUserService } from './services/user.service.ts';
 import { createOpcuaBrowseService } from './services/opcua-browse.service.ts';
 import { createWiringService } from './services/wiring.service.ts';
+import { replicationRepository } from './repositories/replication.repository.ts';
+import { createReadRouting, READ_FENCE_CHANNEL, readFence, type ReadSource } from './services/read-routing.service.ts';
+import type { Principal } from './auth/principal.ts';
+import type { AuditLog } from './services/audit.service.ts';
 
 /** What every route module gets: passed in, never imported as a global. */
 export interface AppContext {
   db: Database;
+  /** The streaming replica of DATABASE_READ_URL, for the read routes (absent: they read `db`). */
+  readDb?: Database;
   config: Config;
   log: Logger;
   /** Secret that signs session JWTs (HS256). */
@@ -57,6 +63,22 @@ const HISTORY_MAX_BYTES = 4 * 1024 ** 3;
 /** Wall clock in epoch ms; services take it as a dependency so a test can set the time. */
 export type Clock = () => number;
 export const systemClock: Clock = () => Date.now();
+
+/**
+ * The services behind the read routes (samples, balance history, lab results, CSV exports),
+ * built on one database handle: the primary's, or the replica's. Only the handle differs.
+ */
+function readServices(database: Database, clock: Clock, audit: AuditLog) {
+  const plantRepo = plantRepository(database.db, database.pool);
+  const plantAccess = createPlantAccess({ plantRepo });
+  return {
+    plantAccess,
+    plants: createPlantService({ plantRepo, plantAccess, clock }),
+    series: createSeriesService({ seriesRepo: seriesRepository(database.pool), plantRepo, plantAccess, clock }),
+    lab: createLabService({ labRepo: labRepository(database.db), plantAccess, audit }),
+  };
+}
+export type ReadServices = ReturnType<typeof readServices>;
 
 /**
  * The composition root: every repository built once on the context's database, every service
@@ -140,7 +162,41 @@ function compose(ctx: AppContext) {
     }),
     wiring: createWiringService({ wiringRepo: repos.wiring, plantAccess, audit, log: ctx.log, ingestRepo: repos.ingest, opcua: createOpcuaBrowseService({ pool: ctx.db.pool, dataDir: ctx.config.dataDir }) }),
   };
-  return { repos, services, clock };
+  // Read routes: the replica's services when DATABASE_READ_URL is set, chosen per request by
+  // the read routing (read-your-writes), else the primary's.
+  const replication = replicationRepository(pool, ctx.readDb?.pool ?? null);
+  const listener = ctx.readDb ? ctx.db.listener(ctx.log) : null;
+  const routing = createReadRouting({
+    hasReplica: Boolean(ctx.readDb),
+    primaryLsn: replication.primaryLsn,
+    replayedLsn: replication.replayedLsn,
+    announce: replication.announce,
+    listening: () => listener?.up ?? false,
+    clock,
+  });
+  listener?.on(READ_FENCE_CHANNEL, (payload) => {
+    let r;
+    try {
+      r = readFence.safeParse(JSON.parse(payload));
+    } catch {
+      r = null;
+    }
+    if (r?.success) routing.remember(r.data);
+    else ctx.log.warn({ payload: payload.slice(0, 200) }, `${READ_FENCE_CHANNEL}: unreadable payload ignored`);
+  });
+  const onPrimary: ReadServices & { source: ReadSource } = { plantAccess, plants: services.plants, series: services.series, lab: services.lab, source: 'primary' };
+  const onReplica: typeof onPrimary | null = ctx.readDb ? { ...readServices(ctx.readDb, clock, audit), source: 'replica' } : null;
+  const reads = {
+    routing,
+    /** The primary's read services (what every route reads without a replica). */
+    primary: onPrimary,
+    /** The services a read route of this caller uses now, and which database they read (`source`). */
+    async pick(principal: Pick<Principal, 'userId'>): Promise<ReadServices & { source: ReadSource }> {
+      if (!onReplica) return onPrimary;
+      return (await routing.source(principal)) === 'replica' ? onReplica : onPrimary;
+    },
+  };
+  return { repos, services: { ...services, reads }, clock };
 }
 export type Composition = ReturnType<typeof compose>;
 

@@ -93,6 +93,24 @@ function requestLogger(ctx: AppContext): RequestHandler {
   };
 }
 
+/**
+ * Read-your-writes over the replica (server/services/read-routing.service.ts): a write request
+ * of a signed-in caller holds that user's reads on the primary from its start until, after its
+ * answer, the primary's WAL position is recorded as the user's fence. Nothing to do without a
+ * replica.
+ */
+function writeFences(ctx: AppContext): RequestHandler {
+  const { routing } = services(ctx).reads;
+  return (req, res, next) => {
+    if (!routing.hasReplica || req.method === 'GET' || req.method === 'HEAD' || !req.principal) return next();
+    const end = routing.beginWrite(req.principal.userId);
+    const done = () => void end().catch((err) => ctx.log.warn({ err }, 'read fence not recorded; this user reads the replica at once'));
+    res.once('finish', done);
+    res.once('close', done);
+    next();
+  };
+}
+
 export function createApp(ctx: AppContext, opts: { serveMonitor?: boolean } = {}): Express {
   const app = express();
   app.disable('x-powered-by');
@@ -132,6 +150,7 @@ export function createApp(ctx: AppContext, opts: { serveMonitor?: boolean } = {}
   const api = Router();
   api.use(csrfGuard({ allowedOrigins: ctx.config.allowedOrigins }));
   api.use(authenticate(ctx));
+  api.use(writeFences(ctx));
   api.use(rateLimit());
   mount(api, apiRoutes(ctx));
   api.use((_req, _res, next) => next(new NotFoundError('no such API route')));

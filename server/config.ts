@@ -12,6 +12,8 @@ const envSchema = z.object({
   FLOCSTREAM_DATA_DIR: z.string().default('.data'),
   FLOCSTREAM_PG_PORT: port.default(54329),
   DATABASE_URL: z.url().optional(),
+  /** A streaming replica of the database for the read routes (samples, balance history, lab results, CSV exports). */
+  DATABASE_READ_URL: z.url().optional(),
   FLOCSTREAM_ADMIN_EMAIL: z.email().optional(),
   FLOCSTREAM_ADMIN_PASSWORD: z.string().min(12, 'must be at least 12 characters').optional(),
   FLOCSTREAM_SESSION_SECRET: z.string().min(32, 'must be at least 32 characters').optional(),
@@ -68,6 +70,12 @@ export type Config = {
   pgPort: number;
   databaseUrl: string | undefined;
   ingestWorkers: number;
+  /**
+   * A hot standby fed by PostgreSQL streaming replication (e.g. made with `pg_basebackup -R`):
+   * the read routes answer from it, everything else from the primary (server/services/read-routing.service.ts).
+   * It connects as the API does on the primary (the same roles exist on a physical replica).
+   */
+  databaseReadUrl: string | undefined;
   adminEmail: string | undefined;
   adminPassword: string | undefined;
   sessionSecret: string | undefined;
@@ -116,6 +124,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     dataDir: path.resolve(e.FLOCSTREAM_DATA_DIR),
     pgPort: e.FLOCSTREAM_PG_PORT,
     databaseUrl: e.DATABASE_URL,
+    databaseReadUrl: e.DATABASE_READ_URL,
     adminEmail: e.FLOCSTREAM_ADMIN_EMAIL,
     adminPassword: e.FLOCSTREAM_ADMIN_PASSWORD,
     sessionSecret: e.FLOCSTREAM_SESSION_SECRET,

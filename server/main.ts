@@ -6,7 +6,7 @@ import { createApp } from './app.ts';
 import type { AppContext } from './app-context.ts';
 import { loadSessionKey } from './auth/session.ts';
 import type { Config } from './config.ts';
-import { databaseUrls, openDatabase } from './db/client.ts';
+import { databaseUrls, openDatabase, type Database } from './db/client.ts';
 import { startLocalPostgres, type LocalPostgres } from './db/local-postgres.ts';
 import { grantRuntimeRoles, runMigrations } from './db/migrate.ts';
 import { startBalanceEngine, type BalanceEngine } from './jobs/balance-engine.ts';
@@ -35,6 +35,7 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
   if (!config.databaseUrl) pgLocal = await startLocalPostgres({ dataDir: config.dataDir, port: config.pgPort, log: say });
   let engine: BalanceEngine | undefined;
   let history: HistoryJobs | undefined;
+  let readDb: Database | undefined;
   try {
     // Migrations as the owner; the API and ingest as roles with only what they need.
     const urls = databaseUrls(config, pgLocal);
@@ -42,7 +43,9 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
     await runMigrations(urls.owner);
     if (urls.roles) await grantRuntimeRoles(urls.owner, urls.roles);
     const db = openDatabase(databaseUrl, { statementTimeout_ms: config.apiStatementTimeout_ms });
-    const ctx: AppContext = { db, config, log, sessionKey: loadSessionKey(config.dataDir, config.sessionSecret) };
+    // The read routes' streaming replica, when one is configured (server/services/read-routing.service.ts).
+    readDb = config.databaseReadUrl ? openDatabase(config.databaseReadUrl, { statementTimeout_ms: config.apiStatementTimeout_ms }) : undefined;
+    const ctx: AppContext = { db, config, log, sessionKey: loadSessionKey(config.dataDir, config.sessionSecret), ...(readDb ? { readDb } : {}) };
     const credentials = await bootstrapUsers(ctx, config.demo);
     if (config.demo) rememberDemoCredentials(config.dataDir, credentials);
     // The balance engine (repeatable jobs, alarms, mail catcher) unless told not to (jobs: false).
@@ -72,6 +75,7 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
         await new Promise<void>((r) => server.close(() => r()));
         await history?.stop();
         await engine?.stop();
+        await readDb?.close();
         await db.close();
         pgLocal?.stop();
       },
@@ -79,6 +83,7 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
   } catch (err) {
     await history?.stop().catch(() => {});
     await engine?.stop().catch(() => {});
+    await readDb?.close().catch(() => {});
     pgLocal?.stop();
     throw err;
   }

@@ -73,8 +73,8 @@ function ensureBinaries(log: (m: string) => void): string {
   return after;
 }
 
-/** Run a PostgreSQL binary as the postgres user (initdb and postgres refuse root). */
-function asPostgres(bin: string, args: string[], opts: { input?: string } = {}): string {
+/** Run a PostgreSQL binary as the postgres user (initdb and postgres refuse root); also the tests' streaming replica (tests/helpers/replica.ts). */
+export function asPostgres(bin: string, args: string[], opts: { input?: string } = {}): string {
   const [cmd, argv] = isRoot() ? ['runuser', ['-u', PG_USER, '--', bin, ...args]] : [bin, args];
   const r = spawnSync(cmd, argv, { encoding: 'utf8', input: opts.input });
   if (r.status !== 0) {

@@ -1,3 +1,5 @@
+import { randomBytes } from 'node:crypto';
+import os from 'node:os';
 import { Queue, Worker, createPostgresBackend, type Job } from 'bullmq';
 import type { AlarmOut } from '../../shared/contracts/alarm.ts';
 import type { Balance } from '../../shared/contracts/balance.ts';
@@ -13,6 +15,8 @@ import { createMailService, smtpTransport } from '../services/mail.service.ts';
 export const BALANCE_QUEUE = 'flocstream-balance';
 /** How often the plant list and the intervals/cron settings are re-read into job schedulers [ms]. */
 const SYNC_EVERY_MS = 15_000;
+/** Interval claims older than this are pruned by the sync job [ms]. */
+const CLAIM_KEEP_MS = 2 * 86_400_000;
 
 export interface BalanceEngineOptions {
   /** Database URL for the PostgreSQL queue backend (default ctx.config.databaseUrl). */
@@ -25,15 +29,26 @@ export interface BalanceEngineOptions {
   catcherPort?: number;
   /** Wall clock (tests); default Date.now. */
   now?: () => number;
+  /** This engine's name in `balance_claims.claimed_by` (default host:pid:random). */
+  name?: string;
 }
 
 export interface BalanceEngine {
   stop(): Promise<void>;
+  /** Computes and stores a balance now, without claiming its interval (tests, tools); the scheduled jobs claim. */
   runOnce(plantId: number): Promise<Balance>;
   /** Sends the shift summary of the 24 h before now for one plant (what the daily job does). */
   shiftSummary(plantId: number): Promise<boolean>;
   /** The catcher's SMTP URL when it runs. */
   catcherUrl: string | null;
+  /** This engine's name, as written in the interval claims it wins. */
+  name: string;
+}
+
+/** The interval a computation at `t_ms` belongs to: `t` floored to the interval on the Unix epoch [ms]. */
+export function intervalStart(t_ms: number, interval_s: number): number {
+  const every = interval_s * 1000;
+  return Math.floor(t_ms / every) * every;
 }
 
 type JobData = { plantId?: number };
@@ -99,9 +114,15 @@ function balanceHeadline(id: number, b: Balance) {
  * plant mails the shift summary (`mail.summary_cron`, plant time zone). Plants added later and
  * changed intervals are picked up every 15 s. Mail goes to SMTP_URL, else to the built-in
  * catcher (stored in mail_outbox).
+ *
+ * Any number of API processes may run it against one database: the schedulers and their jobs
+ * live in the queue's backend (the `bullmq` schema, or Redis), so each tick is one job that one
+ * worker takes, and each interval is claimed in `balance_claims` before it is computed
+ * (`scheduled` below), so a plant's interval is computed and stored once whichever process wins.
  */
 export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOptions = {}): Promise<BalanceEngine> {
   const now = opts.now ?? Date.now;
+  const name = opts.name ?? `${os.hostname()}:${process.pid}:${randomBytes(3).toString('hex')}`;
   const { settings, audit } = services(ctx);
   const repos = repositories(ctx);
   const repo = repos.balance;
@@ -124,9 +145,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
   };
   const alarms = createAlarmService({ alarmRepo: repos.alarms, audit, clock: now, changed: onAlarm, spoolWorkers: async () => workerSpools(await repos.ingest.workers()) });
 
-  async function runOnce(plantId: number): Promise<Balance> {
-    const s = await settings.effective(plantId);
-    const t = now();
+  async function compute(plantId: number, s: Awaited<ReturnType<typeof settings.effective>>, t: number): Promise<Balance> {
     const inputs = await readBalanceInputs(repo, plantId, s, t, lab);
     if (!inputs) throw new NotFoundError(`no plant ${plantId}`);
     const b = computeBalance(inputs, s);
@@ -134,6 +153,27 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
     await repos.stream.notify(plantId, 'balance', balanceHeadline(id, b)).catch((err) => ctx.log.warn({ err }, 'balance notify failed'));
     await alarms.evaluate(b, s, t);
     return { ...b, id };
+  }
+  async function runOnce(plantId: number): Promise<Balance> {
+    return compute(plantId, await settings.effective(plantId), now());
+  }
+  /**
+   * The scheduled computation: whichever API process's worker takes the tick claims the plant's
+   * interval first, and only the claim's winner computes and stores it. BullMQ hands each job to
+   * one worker, but it may deliver an interval twice (a scheduler re-created by another process
+   * starting, a stalled job retried elsewhere); the claim row makes that a no-op.
+   */
+  async function scheduled(plantId: number) {
+    const s = await settings.effective(plantId);
+    const t = now();
+    const start = intervalStart(t, s['balance.interval_s']);
+    const claim = await repo.claimInterval(plantId, new Date(start), name);
+    if (!claim.won) {
+      ctx.log.debug({ plantId, intervalStart: new Date(start).toISOString(), by: claim.by }, 'balance interval already claimed');
+      return { skipped: 'claimed', intervalStart: new Date(start).toISOString(), by: claim.by };
+    }
+    const b = await compute(plantId, s, t);
+    return { id: b.id, quality: b.quality, intervalStart: new Date(start).toISOString(), by: name };
   }
   const shiftSummary = async (plantId: number) => (mail ? mail.shiftSummary(plantId, new Date(now())) : false);
 
@@ -168,6 +208,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
           applied.set(sid, sKey);
         }
       }
+      await repo.pruneClaims(new Date(now() - CLAIM_KEEP_MS));
       for (const js of await q.getJobSchedulers()) {
         if (js.key.startsWith('balance:') || js.key.startsWith('summary:')) {
           if (!want.has(js.key)) {
@@ -185,8 +226,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
         // demo while its history loads): no row of only 'unavailable' figures is stored.
         if ((await repo.lastReceived(plantId)) === null) return { skipped: 'no data yet' };
         try {
-          const b = await runOnce(plantId);
-          return { id: b.id, quality: b.quality };
+          return await scheduled(plantId);
         } catch (err) {
           if (err instanceof NotFoundError) return { skipped: 'plant gone' };
           throw err;
@@ -205,6 +245,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
     runOnce,
     shiftSummary,
     catcherUrl: catcher?.url ?? null,
+    name,
     async stop() {
       await worker?.close();
       await queue?.close();

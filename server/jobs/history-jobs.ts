@@ -51,7 +51,6 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
   const job = await repo.job(jobId);
   if (!job) return;
   const o = job.options as unknown as ImportOptions;
-  await repo.started(jobId);
   const began = performance.now();
   const checker = new RowChecker(await repo.importTags(job.plantId), o);
   const stage = o.dryRun ? null : await repo.openStage(jobId);
@@ -143,6 +142,8 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
     await repo.progress(jobId, { progress: 0.9, rows: checker.rows, rejected: 0 });
     const moved = performance.now();
     const inserted = await repo.move(jobId, [...checker.days], windows);
+    // Before the job shows done: the uploader's reads go to the primary until a replica shows these rows.
+    await services(ctx).reads.routing.fenceUser(job.createdBy);
     await repo.dropStage(jobId);
     const timing = { checkSec: Math.round(checkSec * 10) / 10, moveSec: Math.round(((performance.now() - moved) / 1000) * 10) / 10 };
     let recomputeJobId: number | null = null;
@@ -212,7 +213,6 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
   const job = await repo.job(jobId);
   if (!job) return;
   const o = job.options as unknown as RecomputeOptions;
-  await repo.started(jobId);
   try {
     const s = await services(ctx).settings.effective(job.plantId);
     const balanceRepo = repositories(ctx).balance;
@@ -269,6 +269,8 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
       }
     }
     await repo.insertRecomputed(pending);
+    // The recomputed balances are the uploader's fresh write too (the recompute follows an import).
+    await services(ctx).reads.routing.fenceUser(job.parentId === null ? null : ((await repo.job(job.parentId))?.createdBy ?? null));
     await repo.finish(jobId, { state: 'done', rows: done, rejected: 0, errors: [], result: { from: new Date(t0).toISOString(), to: o.to } });
   } catch (err) {
     await repo.finish(jobId, { state: 'failed', rows: 0, rejected: 0, errors: [], result: { message: `recompute failed: ${(err as Error).message}` } }).catch(() => {});
@@ -282,7 +284,9 @@ export interface HistoryJobs {
 
 /**
  * The worker of history jobs (imports and recomputes, one at a time, BullMQ on the same backend
- * as the balance engine) for this context, and the queue the import service enqueues to.
+ * as the balance engine) for this context, and the queue the import service enqueues to. Every
+ * API process runs one; a job runs in whichever takes it (the upload folder, `<dataDir>/imports`,
+ * must then be one folder shared by the API processes that take imports).
  */
 export async function startHistoryJobs(ctx: AppContext, opts: { databaseUrl?: string } = {}): Promise<HistoryJobs> {
   const url = opts.databaseUrl ?? ctx.config.databaseUrl;
@@ -294,6 +298,10 @@ export async function startHistoryJobs(ctx: AppContext, opts: { databaseUrl?: st
   const worker: ClosableWorker = backend.worker(async (job: Job) => {
     const id = Number((job.data as { id?: number }).id);
     const report = (p: number) => void job.updateProgress(Math.round(p * 1000) / 1000).catch(() => {});
+    // One run per row, whichever API process's worker gets the job: the row is claimed for this
+    // BullMQ job first (a redelivery of the same job after its worker died may take it again; a
+    // second job for the same row, queued by another process at its start, is skipped).
+    if (!(await repo.claim(id, String(job.id)))) return { skipped: 'claimed' };
     if (job.name === 'import') return runImport(ctx, repo, id, report, stopping.signal);
     if (job.name === 'recompute') return runRecompute(ctx, repo, id, report, stopping.signal);
     throw new Error(`unknown history job ${job.name}`);

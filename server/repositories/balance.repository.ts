@@ -96,6 +96,22 @@ export function balanceRepository(database: Database) {
       const [row] = await db.insert(balances).values({ plantId: b.plantId, ts: new Date(b.ts), quality: b.quality, data: b.data, inputs: b.inputs }).returning({ id: balances.id });
       return row!.id;
     },
+    /**
+     * Claims one plant's interval for this engine: true when this call inserted the claim, else
+     * the engine that holds it. The insert is one statement, so two processes racing for the
+     * same interval cannot both win (the primary key decides).
+     */
+    async claimInterval(plantId: number, intervalStart: Date, by: string): Promise<{ won: true } | { won: false; by: string | null }> {
+      const ins = await pool.query(`INSERT INTO balance_claims (plant_id, interval_start, claimed_by) VALUES ($1, $2, $3) ON CONFLICT DO NOTHING RETURNING 1`, [plantId, intervalStart, by]);
+      if (ins.rowCount === 1) return { won: true };
+      // A statement of its own: the winner's row committed before ON CONFLICT returned, so it is visible here.
+      const held = await pool.query(`SELECT claimed_by FROM balance_claims WHERE plant_id = $1 AND interval_start = $2`, [plantId, intervalStart]);
+      return { won: false, by: (held.rows[0]?.claimed_by as string | undefined) ?? null };
+    },
+    /** Drops claims of intervals that started before `before` (their balances stay). */
+    async pruneClaims(before: Date): Promise<void> {
+      await pool.query(`DELETE FROM balance_claims WHERE interval_start < $1`, [before]);
+    },
     async latest(plantId: number) {
       const [row] = await db.select().from(balances).where(and(eq(balances.plantId, plantId))).orderBy(desc(balances.ts)).limit(1);
       return row ?? null;

@@ -20,6 +20,8 @@ export interface HistoryJobRow {
   options: Record<string, unknown>;
   result: Record<string, unknown>;
   parentId: number | null;
+  /** The user who uploaded the file (null for a recompute, which follows its parent import). */
+  createdBy: number | null;
   startedAt: Date | null;
   finishedAt: Date | null;
 }
@@ -53,6 +55,7 @@ function jobRow(x: Record<string, unknown>): HistoryJobRow {
     options: x.options as Record<string, unknown>,
     result: x.result as Record<string, unknown>,
     parentId: (x.parent_id as number | null) ?? null,
+    createdBy: (x.created_by as number | null) ?? null,
     startedAt: (x.started_at as Date | null) ?? null,
     finishedAt: (x.finished_at as Date | null) ?? null,
   };
@@ -90,8 +93,17 @@ export function historyRepository(database: Database) {
     async setOptions(id: number, options: Record<string, unknown>): Promise<void> {
       await pool.query(`UPDATE history_jobs SET options = options || $2::jsonb WHERE id = $1`, [id, JSON.stringify(options)]);
     },
-    async started(id: number): Promise<void> {
-      await pool.query(`UPDATE history_jobs SET state = 'running', started_at = now() WHERE id = $1`, [id]);
+    /**
+     * Marks a queued row running for the BullMQ job `token`; false when another job holds or
+     * finished it. The same token may take a running row again (BullMQ redelivers a job whose
+     * worker died to another worker under its own id).
+     */
+    async claim(id: number, token: string): Promise<boolean> {
+      const r = await pool.query(
+        `UPDATE history_jobs SET state = 'running', started_at = now(), run_token = $2 WHERE id = $1 AND (state = 'queued' OR (state = 'running' AND run_token = $2))`,
+        [id, token],
+      );
+      return r.rowCount === 1;
     },
     async progress(id: number, p: { progress: number; rows: number; rejected: number }): Promise<void> {
       await pool.query(`UPDATE history_jobs SET progress = $2, rows = $3, rejected = $4 WHERE id = $1`, [id, p.progress, p.rows, p.rejected]);

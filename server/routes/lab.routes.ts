@@ -5,6 +5,7 @@ import { services, type AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
 import { defineRoute, type RouteDef } from '../http/route.ts';
 import { LAB_CSV_EXPORT_COLUMNS, labCsvRows } from '../services/lab.service.ts';
+import { READ_SOURCE_HEADER } from '../services/read-routing.service.ts';
 
 /** Largest CSV upload [bytes]; 1 MiB holds far more than the row limit of a day's lab sheet. */
 export const LAB_CSV_MAX_BYTES = 1 << 20;
@@ -18,7 +19,7 @@ const csvBody = express.text({ type: ['text/csv', 'text/plain', 'application/csv
  * audited. Import policy: all or nothing (see the import summary).
  */
 export function labRoutes(ctx: AppContext): RouteDef[] {
-  const { lab } = services(ctx);
+  const { lab, reads } = services(ctx);
   return [
     defineRoute({
       method: 'get',
@@ -31,7 +32,10 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: labResultsResponse,
       handler: async ({ params, query, principal, req, res }) => {
-        const out = await lab.list(principal, params.plantId, query, query.limit ?? DEFAULT_LIMIT);
+        // The replica when DATABASE_READ_URL is set, unless this caller's own entry may not be there yet.
+        const r = await reads.pick(principal);
+        res.setHeader(READ_SOURCE_HEADER, r.source);
+        const out = await r.lab.list(principal, params.plantId, query, query.limit ?? DEFAULT_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-lab-results.csv`, LAB_CSV_EXPORT_COLUMNS, labCsvRows(out.results));

@@ -1,3 +1,4 @@
+import type { Response } from 'express';
 import { z } from 'zod';
 import {
   alarmsQuery,
@@ -16,10 +17,11 @@ import {
 } from '../../shared/contracts/plant-api.ts';
 import { services, type AppContext } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
-import { defineRoute, type RouteDef } from '../http/route.ts';
+import { defineRoute, type RouteDef, type RoutePrincipal } from '../http/route.ts';
 import { displayColumns, flattenRows, sampleCsv } from '../services/csv.service.ts';
 import { ALARM_CSV_COLUMNS, assertPlantScope } from '../services/plant.service.ts';
 import { liveBalanceCache } from '../services/live-balance-cache.ts';
+import { READ_SOURCE_HEADER } from '../services/read-routing.service.ts';
 
 const DEFAULT_LIST_LIMIT = 500;
 const DEFAULT_HISTORY_LIMIT = 5000;
@@ -29,11 +31,23 @@ const DEFAULT_HISTORY_LIMIT = 5000;
  * token (analyst and up); a plant-scoped token gets 403 for other plants, an unknown plant is 404.
  * Table routes answer CSV too (`?format=csv` or `Accept: text/csv`); list routes page with
  * `cursor` + `limit` (nextCursor in the JSON body, `Link: rel="next"` and `X-Next-Cursor` headers).
+ * Tag history, balance history and every CSV export read the replica when DATABASE_READ_URL is
+ * set (`services(ctx).reads.pick`, read-your-writes), the rest the primary; those routes say
+ * which in the `x-flocstream-read` header.
  */
 export function plantsRoutes(ctx: AppContext): RouteDef[] {
-  const { plants, series, plantAccess } = services(ctx);
+  const { plants, reads } = services(ctx);
   const live = liveBalanceCache(ctx);
   const common = { role: 'analyst' as const, tag: 'plants' };
+  /**
+   * The read services of one answer and the header saying which database they read: the read
+   * routing's pick (replica or primary) when `routed`, else the primary.
+   */
+  const readVia = async (principal: RoutePrincipal, res: Response, routed: boolean) => {
+    const r = routed ? await reads.pick(principal) : reads.primary;
+    res.setHeader(READ_SOURCE_HEADER, r.source);
+    return r;
+  };
   return [
     defineRoute({
       ...common,
@@ -44,7 +58,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: z.array(plantSummary),
       handler: async ({ principal, req, res }) => {
-        const list = await plants.list(principal);
+        const list = await (await readVia(principal, res, wantsCsv(req))).plants.list(principal);
         if (!wantsCsv(req)) return list;
         sendCsv(res, 'plants.csv', ['id', 'code', 'name', 'timezone', 'peakFlow_m3h', 'createdAt'], list.map((p) => [p.id, p.code, p.name, p.timezone, p.peakFlow_m3h, p.createdAt]));
       },
@@ -68,7 +82,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: tagsResponse,
       handler: async ({ params, principal, req, res }) => {
-        const out = await plants.tags(principal, params.plantId);
+        const out = await (await readVia(principal, res, wantsCsv(req))).plants.tags(principal, params.plantId);
         if (!wantsCsv(req)) return out;
         const cols = ['id', 'name', 'unit', 'value', 'ts', 'age_s', 'stale', 'quality', 'qualityCode', 'qualityFlags', 'sourceKind', 'sourceName', 'signals', 'expectedPeriod_s', 'enabled', 'description'];
         sendCsv(
@@ -93,12 +107,13 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: samplesResponse,
       handler: async ({ params: { plantId, tagId }, query, principal, req, res }) => {
-        const out = await series.samples(principal, plantId, tagId, query);
+        const r = await readVia(principal, res, true);
+        const out = await r.series.samples(principal, plantId, tagId, query);
         setNextPage(req, res, out.nextCursor);
         res.setHeader('X-Resolution', out.resolution);
         if (!wantsCsv(req)) return out;
         // CSV is for people: in the plant's unit system, the unit in the header (JSON stays SI).
-        const plant = await plantAccess.requirePlant(principal, plantId);
+        const plant = await r.plantAccess.requirePlant(principal, plantId);
         const csv = sampleCsv(out.points, out.unit, plant.unitSystem);
         sendCsv(res, `tag-${tagId}-samples.csv`, csv.columns, csv.cells);
       },
@@ -131,10 +146,11 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: balanceHistoryResponse,
       handler: async ({ params, query: q, principal, req, res }) => {
-        const out = await plants.balanceHistory(principal, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT);
+        const r = await readVia(principal, res, true);
+        const out = await r.plants.balanceHistory(principal, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
-        const plant = await plantAccess.requirePlant(principal, params.plantId);
+        const plant = await r.plantAccess.requirePlant(principal, params.plantId);
         const flat = displayColumns(flattenRows(out.rows), plant.unitSystem);
         sendCsv(res, `plant-${out.plantId}-balances.csv`, flat.columns, flat.cells);
       },
@@ -149,7 +165,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: alarmsResponse,
       handler: async ({ params, query: q, principal, req, res }) => {
-        const out = await plants.alarms(principal, params.plantId, q, q.limit ?? DEFAULT_LIST_LIMIT);
+        const out = await (await readVia(principal, res, wantsCsv(req))).plants.alarms(principal, params.plantId, q, q.limit ?? DEFAULT_LIST_LIMIT);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-alarms.csv`, ALARM_CSV_COLUMNS, out.alarms.map((a) => ALARM_CSV_COLUMNS.map((c) => a[c])));

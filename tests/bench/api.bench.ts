@@ -27,6 +27,14 @@
  *     autocannon (this process) used, and the load average is printed: on a shared machine that
  *     says whether a figure measured the code or the neighbours.
  *
+ * (d) with `--replica` (issue 18): a streaming replica of the bench cluster (pg_basebackup -R,
+ *     tests/helpers/replica.ts) and a second API process with it as DATABASE_READ_URL; the
+ *     30-day samples query at 50 connections on the API reading the primary and on the one
+ *     reading the replica, three alternating rounds of 5 s (after 3 s of warm-up each), medians
+ *     compared (`replicaRatio`).
+ *     Both clusters share this machine's cores, so the figure is the cost of the routing on one
+ *     host, not the gain of a second one.
+ *
  * The API runs as `npm start` runs it (logger at info into <data>/logs/api.log). `--cpu-prof`
  * writes a CPU profile of the API process to .data/bench/prof/ (where per-request time goes).
  * The monitor's session cookie is used: the per-token rate limit applies to Bearer callers only.
@@ -50,6 +58,7 @@ import { startLocalPostgres } from '../../server/db/local-postgres.ts';
 import { runMigrations } from '../../server/db/migrate.ts';
 import { createLogger } from '../../server/logger.ts';
 import { freePort } from '../helpers/net.ts';
+import { startStreamingReplica } from '../helpers/replica.ts';
 
 const ROOT = path.resolve(import.meta.dirname, '../..');
 const SELF = fileURLToPath(import.meta.url);
@@ -408,6 +417,9 @@ async function main(): Promise<void> {
       baseline: 'tests/bench/api-baseline.ts: Express + pg (pool of 20), one query per request, same row and JSON, no credentials or logging',
       rounds: liveRounds,
     };
+    if (process.argv.includes('--replica')) {
+      results.replica = await replicaPhase({ tmp, clusterUrl: cluster.url, pgData, primaryApi: { pid: child.pid, base, cookie }, password, path: paths.samples30d, autocannon, failures, cleanup });
+    }
     results.data = { rawSamples: rawRows, generate_s };
 
     const targets: Array<[string, number, number]> = [
@@ -482,20 +494,117 @@ async function main(): Promise<void> {
   process.exit(failures.length ? 1 : 0);
 }
 
+/**
+ * (d): the same read on the API that reads the primary and on a second API process whose read
+ * routes read a streaming replica of the bench cluster, alternating, medians compared.
+ */
+async function replicaPhase(o: {
+  tmp: string;
+  clusterUrl: string;
+  pgData: string;
+  primaryApi: { pid: number | undefined; base: string; cookie: string };
+  password: string;
+  path: string;
+  autocannon: Autocannon;
+  failures: string[];
+  cleanup: Array<() => void | Promise<void>>;
+}) {
+  const replica = await startStreamingReplica(o.clusterUrl, o.tmp);
+  o.cleanup.push(() => replica.stop());
+  // Caught up: the generated data replayed before anything is measured.
+  const pool = new pg.Pool({ connectionString: o.clusterUrl, max: 1 });
+  const standby = new pg.Pool({ connectionString: replica.urlOf(o.clusterUrl), max: 1 });
+  try {
+    const target = (await pool.query<{ l: string }>('SELECT pg_current_wal_lsn()::text AS l')).rows[0]!.l;
+    for (const deadline = Date.now() + 120_000; ; ) {
+      const r = await standby.query<{ ok: boolean }>('SELECT pg_last_wal_replay_lsn() >= $1::pg_lsn AS ok', [target]);
+      if (r.rows[0]!.ok) break;
+      if (Date.now() > deadline) throw new Error('the replica did not catch up within 120 s');
+      await new Promise((r) => setTimeout(r, 100));
+    }
+  } finally {
+    await pool.end();
+    await standby.end();
+  }
+  const dataDir = fs.mkdtempSync(path.join(o.tmp, 'api-replica-'));
+  const api = await startServer(SELF, ['--serve', o.clusterUrl, dataDir, replica.urlOf(o.clusterUrl)]);
+  o.cleanup.push(() => stopChild(api.child));
+  const login = await fetch(`${api.base}/api/v1/auth/login`, { method: 'POST', headers: { 'Content-Type': 'application/json' }, body: JSON.stringify({ email: 'bench@bench.invalid', password: o.password }) });
+  if (login.status !== 200) throw new Error(`login on the replica API failed: ${login.status}`);
+  const sides = {
+    primary: { ...o.primaryApi, pgData: o.pgData },
+    replica: { pid: api.child.pid, base: api.base, cookie: (login.headers.get('set-cookie') ?? '').split(';')[0]!, pgData: replica.pgData },
+  };
+  for (const [name, side] of Object.entries(sides)) {
+    // The replica API reads the primary until its LISTEN connection is up (read-routing.service.ts): give it 10 s.
+    let read: string | null = null;
+    for (const deadline = Date.now() + 10_000; read !== name && Date.now() < deadline; ) {
+      const r = await fetch(side.base + o.path, { headers: { Cookie: side.cookie } });
+      await r.arrayBuffer();
+      read = r.headers.get('x-flocstream-read');
+      if (read !== name) await new Promise((w) => setTimeout(w, 100));
+    }
+    if (read !== name) o.failures.push(`the ${name} API answered x-flocstream-read: ${read}`);
+  }
+  const run = async (name: keyof typeof sides) => {
+    const side = sides[name];
+    const opts = { url: side.base + o.path, headers: { Cookie: side.cookie }, connections: 50 };
+    // Warm-up, not counted: 3 s, so the replica API (started just now, unlike the primary's,
+    // which served the phases before) has its pool's 20 connections open and its statements prepared.
+    await o.autocannon({ ...opts, duration: 3 });
+    const c0 = cpuSeconds(side.pid);
+    const pg0 = clusterCpuSeconds(side.pgData);
+    const r = await o.autocannon({ ...opts, duration: LIVE_S });
+    if (r.errors || r.timeouts || r.non2xx) o.failures.push(`samples from the ${name}: ${r.errors} errors, ${r.timeouts} timeouts, ${r.non2xx} non-2xx`);
+    const n = Math.max(1, r.requests.total);
+    return {
+      requestsPerSec: round(r.requests.average),
+      p50_ms: r.latency.p50,
+      p99_ms: r.latency.p99,
+      apiCpuPerRequest_ms: round(((cpuSeconds(side.pid) - c0) * 1000) / n, 3),
+      pgCpuPerRequest_ms: round(((clusterCpuSeconds(side.pgData) - pg0) * 1000) / n, 3),
+    };
+  };
+  const rounds: Array<{ order: string; primary: Awaited<ReturnType<typeof run>>; replica: Awaited<ReturnType<typeof run>> }> = [];
+  for (let i = 0; i < ROUNDS; i++) {
+    const first = i % 2 === 0 ? 'primary' : 'replica';
+    const a = await run(first);
+    const b = await run(first === 'primary' ? 'replica' : 'primary');
+    rounds.push({ order: `${first} first`, primary: first === 'primary' ? a : b, replica: first === 'primary' ? b : a });
+  }
+  // autocannon leaves its last requests in the servers' queues: let both drain before anything
+  // is stopped (a pool serves its waiting queries in order, so two small reads through the same
+  // pool — a lab-results page is a read route too — answered behind them mean they are done).
+  const probe = o.path.replace(/\/tags\/.*$/, '/lab-results?limit=1');
+  for (const side of Object.values(sides)) for (let i = 0; i < 2; i++) await (await fetch(side.base + probe, { headers: { Cookie: side.cookie } })).arrayBuffer();
+  const primaryRps = median(rounds.map((x) => x.primary.requestsPerSec));
+  const replicaRps = median(rounds.map((x) => x.replica.requestsPerSec));
+  const out = { path: '30-day samples (rollup_1m)', connections: 50, duration_s: LIVE_S, primaryRequestsPerSec: primaryRps, replicaRequestsPerSec: replicaRps, replicaRatio: round(replicaRps / primaryRps, 3), rounds };
+  console.log(`\n30-day samples, 50 connections, ${LIVE_S} s per side per round: the API reading the primary vs a second API reading a streaming replica (same host)`);
+  for (const [i, x] of rounds.entries()) {
+    const side = (s: typeof x.primary) => `${s.requestsPerSec} req/s (p50 ${s.p50_ms}, p99 ${s.p99_ms} ms; API ${s.apiCpuPerRequest_ms} ms CPU/request, its cluster ${s.pgCpuPerRequest_ms} ms CPU/request)`;
+    console.log(`  round ${i + 1} (${x.order}): primary ${side(x.primary)} | replica ${side(x.replica)}`);
+  }
+  console.log(`  median: primary ${primaryRps} req/s, replica ${replicaRps} req/s, replicaRatio ${out.replicaRatio}`);
+  return out;
+}
+
 // ---- child mode: the API server alone in its own process ----------------------------------
 if (process.argv[2] === '--serve') {
   const url = process.argv[3]!;
   const dataDir = process.argv[4]!;
   const db = openDatabase(url, { max: 20 });
+  // (d): a streaming replica for the read routes, as DATABASE_READ_URL gives one.
+  const readDb = process.argv[5] ? openDatabase(process.argv[5], { max: 20 }) : undefined;
   const config = { ...loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: url, FLOCSTREAM_DEMO: '0' }), databaseUrl: url };
   // The logger as `npm start` makes it (info to <data>/logs/api.log), so its cost is measured too.
-  const ctx: AppContext = { db, config, log: createLogger('api', config.logLevel, dataDir), sessionKey: randomBytes(32) };
+  const ctx: AppContext = { db, ...(readDb ? { readDb } : {}), config, log: createLogger('api', config.logLevel, dataDir), sessionKey: randomBytes(32) };
   const server = createApp(ctx, { serveMonitor: false }).listen(0, '127.0.0.1', () => {
     process.stdout.write(JSON.stringify({ port: (server.address() as net.AddressInfo).port }) + '\n');
   });
   process.on('SIGTERM', () => {
     server.closeAllConnections();
-    server.close(() => void db.close().then(() => process.exit(0)));
+    server.close(() => void Promise.all([db.close(), readDb?.close()]).then(() => process.exit(0)));
   });
 } else {
   await main();

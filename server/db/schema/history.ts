@@ -31,6 +31,8 @@ export const historyJobs = pgTable(
     /** The import a recompute follows. */
     parentId: integer('parent_id'),
     createdBy: integer('created_by'),
+    /** The BullMQ job that runs this row (server/jobs/history-jobs.ts claims it): another delivery of the same row is skipped. */
+    runToken: text('run_token'),
     createdAt: timestamp('created_at', { withTimezone: true }).notNull().defaultNow(),
     startedAt: timestamp('started_at', { withTimezone: true }),
     finishedAt: timestamp('finished_at', { withTimezone: true }),

@@ -48,6 +48,28 @@ export const balances = pgTable(
   (t) => [index('balances_plant_ts_idx').on(t.plantId, t.ts)],
 );
 
+/**
+ * One row per plant and live balance interval, taken by the API process that computes it
+ * (server/jobs/balance-engine.ts): the primary key makes the claim, so however many API
+ * processes run the engine's BullMQ worker, and whatever BullMQ delivers twice (a scheduler
+ * re-created by a restarting process, a stalled job handed to another worker), one interval is
+ * computed and stored once. Rows older than two days are pruned by the engine's sync job.
+ */
+export const balanceClaims = pgTable(
+  'balance_claims',
+  {
+    plantId: integer('plant_id')
+      .notNull()
+      .references(() => plants.id, { onDelete: 'cascade' }),
+    /** Start of the interval: the computation time floored to `balance.interval_s` on the Unix epoch. */
+    intervalStart: timestamp('interval_start', { withTimezone: true }).notNull(),
+    /** The engine that won the claim (host:pid:instance). */
+    claimedBy: text('claimed_by').notNull(),
+    claimedAt: timestamp('claimed_at', { withTimezone: true }).notNull().defaultNow(),
+  },
+  (t) => [primaryKey({ columns: [t.plantId, t.intervalStart] })],
+);
+
 export const labResults = pgTable(
   'lab_results',
   {
