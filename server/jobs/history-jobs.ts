@@ -79,7 +79,7 @@ async function runSqlImport(ctx: AppContext, repo: HistoryRepository, jobId: num
   const localIsUtc = o.timezone === 'UTC' || o.timezone === 'Etc/UTC';
   if (!localIsUtc && !OFFSET_AT_END.test(head[1]![1] ?? '')) return 'local times in a time zone other than UTC';
   const began = performance.now();
-  const scanner = new LineScanner(o.delimiter.charCodeAt(0));
+  const scanner = new LineScanner(o.delimiter.charCodeAt(0), head[0]!.length === 4 ? 4 : 3, localIsUtc);
   let bytesRead = 0;
   let lastReport = 0;
   const source = fs.createReadStream(o.file, { highWaterMark: 1 << 16 }).pipe(
@@ -108,7 +108,6 @@ async function runSqlImport(ctx: AppContext, repo: HistoryRepository, jobId: num
       source,
       delimiter: o.delimiter as ',' | ';' | '\t',
       withQuality: head[0]!.length === 4,
-      localIsUtc,
       dryRun: o.dryRun,
       plan: async (copied) => {
         if (copied === 0) throw new SqlPathRefused('no data lines');

@@ -1,27 +1,85 @@
 /**
  * A byte-level look at a long-layout historian file on its way into PostgreSQL's COPY (the SQL
- * path of server/jobs/history-jobs.ts): which tag names the file uses and which UTC dates its
- * timestamps start with, read from each line's first field and the first ten bytes of its second
- * without parsing the line. The tags decide the name → tag map before the move, the dates the
- * day partitions of `samples` to create first. Pure (no I/O); it never decides what is stored:
- * PostgreSQL parses the CSV, and a line this scan cannot read plainly (a quoted first or second
- * field, an empty line, a second field that does not start with YYYY-MM-DD) marks the file
- * `irregular`, which sends it down the csv-parse path.
+ * path of server/jobs/history-jobs.ts), on this thread while PostgreSQL parses on its own:
+ * - which tag names the file uses and which dates its timestamps name (the name → tag map and
+ *   the day partitions of `samples` to create before the insert);
+ * - whether every line is in the strict form the SQL path reads. PostgreSQL's input functions
+ *   are more lenient than the line checks (history-rows.ts): timestamptz input reads
+ *   `2026-03-14T~5:09:26Z` or `2026-03--4T15:09:26Z` as times, float8 input reads `0x10`,
+ *   `Infinity` and `NaN`. So a line goes to PostgreSQL's casts only in these forms, checked here
+ *   byte by byte (a regular expression or a character-set test per field in SQL cost more than
+ *   the insert itself: 0.7–1.8 s per million lines against 3–5 s for COPY into `samples`,
+ *   measured on this machine): no quote anywhere (PostgreSQL's CSV fields are then exactly the
+ *   bytes between delimiters) and as many fields as the header; timestamp YYYY-MM-DDTHH:MM:SS
+ *   with no or three decimals and `Z` or ±HH:MM (ECMAScript's Date Time String Format, which
+ *   Date.parse reads as timestamptz input does), or without an offset (also with a space for
+ *   the T) when the import's zone is UTC; years 19xx and 20xx (Date.UTC maps years 0–99 to
+ *   1900–1999); no second 60 (timestamptz input rolls 23:59:60 over, Date.parse refuses it);
+ *   value digits, point, sign and exponent letters only, or empty. Field ranges (month 13,
+ *   31 February, hour 25) are left to PostgreSQL, which refuses them.
+ * Pure (no I/O). The first line outside these forms marks the file `irregular`, which sends it
+ * down the csv-parse path: this scan never widens what is accepted, it only picks the path.
+ * tests/integration/history-sql-path.test.ts checks every one-character change of the forms
+ * against the line checks.
  */
 
 const NL = 0x0a;
 const CR = 0x0d;
 const QUOTE = 0x22;
 const DASH = 0x2d;
+const PLUS = 0x2b;
+const COLON = 0x3a;
+const DOT = 0x2e;
+const T = 0x54;
+const Z = 0x5a;
+const SPACE = 0x20;
+const E_LOWER = 0x65;
+const E_UPPER = 0x45;
 
-function isDigit(b: number): boolean {
-  return b >= 0x30 && b <= 0x39;
+function isDigit(b: number | undefined): boolean {
+  return b !== undefined && b >= 0x30 && b <= 0x39;
+}
+
+/** Digits at each of these offsets from `at`. */
+function digitsAt(b: Buffer, at: number, offsets: readonly number[]): boolean {
+  for (const o of offsets) if (!isDigit(b[at + o])) return false;
+  return true;
+}
+
+const DATE_TIME_DIGITS = [0, 1, 2, 3, 5, 6, 8, 9, 11, 12, 14, 15, 17, 18];
+
+/** The timestamp field b[s, e) in one of the strict forms: 'offset' (±HH:MM), 'plain' (Z or local), or null. */
+function strictTimestamp(b: Buffer, s: number, e: number, localOk: boolean): 'offset' | 'plain' | null {
+  if (e - s < 19) return null;
+  if (!(b[s] === 0x32 && b[s + 1] === 0x30) && !(b[s] === 0x31 && b[s + 1] === 0x39)) return null;
+  if (b[s + 4] !== DASH || b[s + 7] !== DASH || b[s + 13] !== COLON || b[s + 16] !== COLON || !digitsAt(b, s, DATE_TIME_DIGITS)) return null;
+  if (b[s + 17]! >= 0x36) return null;
+  const sep = b[s + 10];
+  let i = s + 19;
+  if (i < e && b[i] === DOT) {
+    if (!digitsAt(b, i, [1, 2, 3])) return null;
+    i += 4;
+  }
+  if (i === e) return localOk && (sep === T || sep === SPACE) ? 'plain' : null;
+  if (sep !== T) return null;
+  if (b[i] === Z) return i + 1 === e ? 'plain' : null;
+  if ((b[i] === PLUS || b[i] === DASH) && i + 6 === e && b[i + 3] === COLON && digitsAt(b, i, [1, 2, 4, 5])) return 'offset';
+  return null;
+}
+
+/** The value field b[s, e): digits, point, sign and exponent letters only (or empty). */
+function strictValue(b: Buffer, s: number, e: number): boolean {
+  for (let i = s; i < e; i++) {
+    const c = b[i]!;
+    if (!(isDigit(c) || c === DOT || c === DASH || c === PLUS || c === E_LOWER || c === E_UPPER)) return false;
+  }
+  return true;
 }
 
 export class LineScanner {
-  /** Tag field text → the dates (YYYY-MM-DD) its lines start with. */
+  /** Tag field text → the dates (YYYY-MM-DD) its lines name. */
   readonly tags = new Map<string, Set<string>>();
-  /** Why the file is not plain, or null. */
+  /** Why the file is not in the strict forms, or null. */
   irregular: string | null = null;
   /** Some timestamp ends in a ±HH:MM offset, so its UTC date may differ from the one it names. */
   offsets = false;
@@ -33,7 +91,16 @@ export class LineScanner {
   private lastDate: Buffer = Buffer.alloc(0);
   private lastDates: Set<string> | null = null;
 
-  constructor(private readonly delimiter: number) {}
+  /**
+   * @param delimiter the field delimiter's byte
+   * @param fields 3 or 4 (the header has the quality column)
+   * @param localOk timestamps without an offset are allowed (the import's zone is UTC)
+   */
+  constructor(
+    private readonly delimiter: number,
+    private readonly fields: 3 | 4,
+    private readonly localOk: boolean,
+  ) {}
 
   /** Feeds the next bytes of the file. */
   push(chunk: Buffer): void {
@@ -65,21 +132,26 @@ export class LineScanner {
       return;
     }
     this.lines++;
-    if (end === start) return void (this.irregular = `line ${this.lines + 1} is empty`);
-    if (b[start] === QUOTE) return void (this.irregular = `line ${this.lines + 1} quotes its tag`);
+    const at = `line ${this.lines + 1}`;
+    if (end === start) return void (this.irregular = `${at} is empty`);
+    const q = b.indexOf(QUOTE, start);
+    if (q >= 0 && q < end) return void (this.irregular = `${at} has a quote`);
     const d = b.indexOf(this.delimiter, start);
-    if (d < 0 || d >= end) return void (this.irregular = `line ${this.lines + 1} has one field`);
+    if (d < 0 || d >= end) return void (this.irregular = `${at} has one field`);
     const t = d + 1;
-    // YYYY-MM-DD at the start of the second field.
-    if (t + 10 > end || b[t + 4] !== DASH || b[t + 7] !== DASH || !isDigit(b[t]!) || !isDigit(b[t + 3]!) || !isDigit(b[t + 6]!) || !isDigit(b[t + 9]!)) {
-      return void (this.irregular = `line ${this.lines + 1} does not start its timestamp with YYYY-MM-DD`);
+    const d2 = b.indexOf(this.delimiter, t);
+    if (d2 < 0 || d2 >= end) return void (this.irregular = `${at} has two fields`);
+    let d3 = b.indexOf(this.delimiter, d2 + 1);
+    if (d3 >= end) d3 = -1;
+    if ((this.fields === 3) !== (d3 < 0)) return void (this.irregular = `${at} does not have ${this.fields} fields`);
+    if (d3 >= 0) {
+      const d4 = b.indexOf(this.delimiter, d3 + 1);
+      if (d4 >= 0 && d4 < end) return void (this.irregular = `${at} has more than 4 fields`);
     }
-    if (!this.offsets) {
-      const e = b.indexOf(this.delimiter, t);
-      const tsEnd = e < 0 || e > end ? end : e;
-      const sign = b[tsEnd - 6];
-      if (tsEnd - t > 19 && (sign === 0x2b || sign === DASH)) this.offsets = true;
-    }
+    const form = strictTimestamp(b, t, d2, this.localOk);
+    if (form === null) return void (this.irregular = `${at}: the timestamp is not in a form the SQL path reads`);
+    if (form === 'offset') this.offsets = true;
+    if (!strictValue(b, d2 + 1, d3 < 0 ? end : d3)) return void (this.irregular = `${at}: the value is not in a form the SQL path reads`);
     // Historian exports run tag by tag in time order: the tag and the date change rarely, so
     // the comparison with the previous line is the common case and allocates nothing.
     if (this.lastDates === null || b.compare(this.lastTag, 0, this.lastTag.length, start, d) !== 0) {

@@ -99,8 +99,6 @@ export interface SqlImportInput {
   delimiter: ',' | ';' | '\t';
   /** The header has the quality column. */
   withQuality: boolean;
-  /** Timestamps without an offset are UTC (the import's time zone is UTC); otherwise they are refused here. */
-  localIsUtc: boolean;
   dryRun: boolean;
   /**
    * Called once COPY has the whole file, with the rows it took: the tag map and the days, or a
@@ -131,31 +129,18 @@ function isDataError(err: unknown): boolean {
 }
 
 /*
- * The strict forms the SQL path reads, and why each guard is there. Anything outside them raises
- * a cast error on purpose (a text PostgreSQL cannot read), which refuses the file for this path:
- * - timestamp: ISO 8601 as historians export it, YYYY-MM-DDTHH:MM:SS with no or three decimals
- *   and `Z` or ±HH:MM (ECMAScript's Date Time String Format, which Date.parse reads exactly as
- *   PostgreSQL's timestamptz input does), or without an offset when the zone is UTC (also with a
- *   space for the T); years 1900–2099 (Date.UTC maps years 0–99 to 1900–1999), hour below 24,
- *   second below 60 (PostgreSQL rolls 23:59:60 over, Date.parse refuses it). A field out of its
- *   range (month 13, 31 February) fails PostgreSQL's own input check. Digits only between the
- *   separators: the shape test is LIKE, the character test btrim against the allowed set, both
- *   a fraction of a regular expression's cost (measured: 0.3 s against 1.9 s for a million).
- * - value: digits, sign, point and exponent only, then float8 input (strtod, correctly rounded,
- *   as JavaScript's Number()): no NaN, Infinity or hex, which float8 input takes and the line
- *   checks refuse; out of range fails float8 input. An empty value only with quality bad.
+ * The SQL path's conversion. Its text forms are checked before (server/jobs/history-scan.ts,
+ * LineScanner): PostgreSQL's input functions are more lenient than the line checks, and a
+ * regular expression or character-set test per field here cost more than the insert itself.
+ * What is left here: the quality words and codes, the empty value, a finite value, and a field
+ * out of range, which the input functions refuse (a data error, which refuses the file for this
+ * path). tests/integration/history-sql-path.test.ts checks scan and conversion together against
+ * the line checks (RowChecker).
  * - quality: good/uncertain/bad in lower, Title or UPPER case, or a code of up to five digits
- *   that fits int2 (int2 input refuses more).
+ *   that fits int2 (int2 input refuses more);
+ * - value: float8 input (strtod, correctly rounded, as JavaScript's Number()), finite (float8
+ *   input takes NaN and Infinity, the line checks refuse them); empty only with quality bad.
  */
-const TS_SHAPES_OFFSET = ['____-__-__T__:__:__Z', '____-__-__T__:__:__.___Z', '____-__-__T__:__:__+__:__', '____-__-__T__:__:__-__:__', '____-__-__T__:__:__.___+__:__', '____-__-__T__:__:__.___-__:__'];
-const TS_SHAPES_LOCAL = ['____-__-__T__:__:__', '____-__-__T__:__:__.___', '____-__-__ __:__:__', '____-__-__ __:__:__.___'];
-
-function tsExpr(localIsUtc: boolean): string {
-  const shapes = [...TS_SHAPES_OFFSET, ...(localIsUtc ? TS_SHAPES_LOCAL : [])].map((x) => `r.ts LIKE '${x}'`).join(' OR ');
-  return `CASE WHEN (${shapes}) AND btrim(r.ts, '0123456789-:TZ.+ ') = '' AND left(r.ts, 2) IN ('19', '20') AND substr(r.ts, 12, 2) < '24' AND substr(r.ts, 18, 2) < '60'
-               THEN r.ts::timestamptz ELSE ('timestamp ' || coalesce(r.ts, ''))::timestamptz END`;
-}
-
 function qualityExpr(withQuality: boolean): string {
   if (!withQuality) return `${QUALITY_GRADE.good}`;
   const uncertain = QUALITY_GRADE.uncertain | QUALITY_FLAG.sourceStatus;
@@ -163,19 +148,25 @@ function qualityExpr(withQuality: boolean): string {
   return `CASE WHEN r.quality IS NULL OR r.quality IN ('', 'good', 'Good', 'GOOD') THEN ${QUALITY_GRADE.good}
                WHEN r.quality IN ('bad', 'Bad', 'BAD') THEN ${bad}
                WHEN r.quality IN ('uncertain', 'Uncertain', 'UNCERTAIN') THEN ${uncertain}
-               WHEN btrim(r.quality, '0123456789') = '' AND length(r.quality) <= 5 THEN r.quality::int2
+               WHEN r.quality NOT LIKE '%-%' AND r.quality NOT LIKE '%+%' AND r.quality NOT LIKE '% %' AND length(r.quality) <= 5 THEN r.quality::int2
                ELSE ('quality ' || r.quality)::int2 END`;
 }
 
-const VALUE_EXPR = `CASE WHEN btrim(r.value, '0123456789.+-eE') = '' AND r.value <> '' THEN r.value::float8 * m.factor
+const VALUE_EXPR = `CASE WHEN r.value <> '' THEN r.value::float8 * m.factor
                WHEN coalesce(r.value, '') = '' AND (q.q & 3) = ${QUALITY_GRADE.bad} THEN NULL
                ELSE ('value ' || coalesce(r.value, ''))::float8 END`;
 
-/** The file's rows as samples: tag id, time, value in the tag's unit, quality with the range flag (as RowChecker does). */
-function samplesSelect(a: Pick<SqlImportInput, 'localIsUtc' | 'withQuality'>): string {
-  return `SELECT x.tag_id, x.ts, x.v,
+/**
+ * The rows of `history_raw` as samples: tag id (null for a tag field outside the map $1…$5),
+ * time, value in the tag's unit, quality with the range flag (as RowChecker does); a line
+ * PostgreSQL or these guards refuse raises a data error. Timestamps without an offset are read
+ * in the session's zone, which sqlImport sets to UTC. Exported for the equivalence test.
+ */
+export function sqlSamplesSelect(a: { withQuality: boolean }): string {
+  return `SELECT x.tag_id, x.ts,
+                 CASE WHEN x.v IS NULL OR (x.v > '-Infinity'::float8 AND x.v < 'Infinity'::float8) THEN x.v ELSE ('value ' || x.v::text)::float8 END,
                  CASE WHEN x.v < x.lo OR x.v > x.hi THEN ((x.q & ~3) | ${QUALITY_FLAG.outOfRange} | greatest(x.q & 3, ${QUALITY_GRADE.uncertain}))::int2 ELSE x.q::int2 END
-            FROM (SELECT m.tag_id, ${tsExpr(a.localIsUtc)} AS ts, ${VALUE_EXPR} AS v, q.q, m.lo, m.hi
+            FROM (SELECT m.tag_id, r.ts::timestamptz AS ts, ${VALUE_EXPR} AS v, q.q, m.lo, m.hi
                     FROM history_raw r
                     LEFT JOIN unnest($1::text[], $2::int[], $3::float8[], $4::float8[], $5::float8[]) AS m(text, tag_id, factor, lo, hi) ON m.text = r.tag
                     CROSS JOIN LATERAL (SELECT ${qualityExpr(a.withQuality)} AS q) q) x`;
@@ -413,7 +404,7 @@ export function historyRepository(database: Database) {
         if (a.dryRun) {
           t = performance.now();
           try {
-            const r = await c.query(`SELECT tag_id, (extract(epoch FROM min(ts)) * 1000)::float8 AS lo, (extract(epoch FROM max(ts)) * 1000)::float8 AS hi, count(v) FILTER (WHERE v IS NULL) FROM (${samplesSelect(a)}) s (tag_id, ts, v, q) GROUP BY tag_id`, m);
+            const r = await c.query(`SELECT tag_id, (extract(epoch FROM min(ts)) * 1000)::float8 AS lo, (extract(epoch FROM max(ts)) * 1000)::float8 AS hi, count(v) FILTER (WHERE v IS NULL) FROM (${sqlSamplesSelect(a)}) s (tag_id, ts, v, q) GROUP BY tag_id`, m);
             if (r.rows.some((x) => x.tag_id === null)) throw new SqlPathRefused('a tag field outside the map');
             return { rows, inserted: null, windows: r.rows.map((x) => ({ tagId: x.tag_id, from_ms: x.lo, to_ms: x.hi })), timing: { copySec, insertSec: sec(t), rollupSec: 0 } };
           } catch (err) {
@@ -429,12 +420,12 @@ export function historyRepository(database: Database) {
           // Plain first: a file new to `samples` (the common case) skips ON CONFLICT's speculative
           // insertion; a key already there (a file stored before, or ingest's) takes the second form.
           await c.query('SAVEPOINT plain');
-          inserted = (await c.query(`INSERT INTO samples (tag_id, ts, value, quality) ${samplesSelect(a)}`, m)).rowCount ?? 0;
+          inserted = (await c.query(`INSERT INTO samples (tag_id, ts, value, quality) ${sqlSamplesSelect(a)}`, m)).rowCount ?? 0;
           if (inserted !== rows) throw new SqlPathRefused(`${inserted} of ${rows} rows inserted`);
         } catch (err) {
           if ((err as { code?: string }).code !== '23505') throw err;
           await c.query('ROLLBACK TO SAVEPOINT plain');
-          inserted = (await c.query(`INSERT INTO samples (tag_id, ts, value, quality) ${samplesSelect(a)} ON CONFLICT (tag_id, ts) DO NOTHING`, m)).rowCount ?? 0;
+          inserted = (await c.query(`INSERT INTO samples (tag_id, ts, value, quality) ${sqlSamplesSelect(a)} ON CONFLICT (tag_id, ts) DO NOTHING`, m)).rowCount ?? 0;
         }
         const insertSec = sec(t);
         t = performance.now();
