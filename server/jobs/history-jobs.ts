@@ -224,7 +224,11 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
             continue;
           }
           if (!headerOk) continue;
-          checker.row(chunk.record, chunk.info.lines, batch);
+          // info.lines is the line the record ends on; a line break inside quotes moves its start up
+          // (as csv.service.ts reports it): an error names the line the record starts on.
+          let inside = 0;
+          for (const f of chunk.record) for (let i = f.indexOf('\n'); i !== -1; i = f.indexOf('\n', i + 1)) inside++;
+          checker.row(chunk.record, chunk.info.lines - inside, batch);
           if (checker.rejected > 0 && storing) {
             // The file will not be stored: stop staging, keep checking for the error list.
             storing = false;

@@ -188,6 +188,19 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     expect(await count(['XT-910'])).toBe(before);
   }, 60_000);
 
+  it('a line break inside quotes: an error names the line its record starts on, and the lines after keep their numbers', async () => {
+    const t0 = Date.UTC(2026, 8, 1);
+    const ts = (i: number) => new Date(t0 + i * 60_000).toISOString();
+    // Line 2 is a record over lines 2–3 (a quoted value with a line break: not a number); line 5 has an unknown tag.
+    const file = ['tag,ts,value', `XT-910,${ts(0)},"1`, `2"`, `XT-910,${ts(1)},3`, `XT-999,${ts(2)},4`, `XT-910,${ts(3)},5`].join('\n');
+    const j = await finished((await upload(file).expect(202)).body.jobId);
+    expect(j.state).toBe('failed');
+    expect(j.errors.map((e) => [e.line, e.field])).toEqual([
+      [2, 'value'],
+      [5, 'tag'],
+    ]);
+  }, 60_000);
+
   it('the SQL path: the same ISO file twice stores each row once; a file it cannot read plainly is read by csv-parse with the same result', async () => {
     const t0 = Date.UTC(2026, 7, 1);
     const rows = ['tag,ts,value,quality', ...Array.from({ length: 40 }, (_, i) => `XT-912,${new Date(t0 + i * 60_000).toISOString()},${i / 4},good`)];
