@@ -1,5 +1,5 @@
 import fs from 'node:fs';
-import { Transform, Writable } from 'node:stream';
+import { Readable, Writable } from 'node:stream';
 import { pipeline } from 'node:stream/promises';
 import { parse } from 'csv-parse';
 import { parse as parseSync } from 'csv-parse/sync';
@@ -82,9 +82,12 @@ async function runSqlImport(ctx: AppContext, repo: HistoryRepository, jobId: num
   const scanner = new LineScanner(o.delimiter.charCodeAt(0), head[0]!.length === 4 ? 4 : 3, localIsUtc);
   let bytesRead = 0;
   let lastReport = 0;
-  const source = fs.createReadStream(o.file, { highWaterMark: 1 << 16 }).pipe(
-    new Transform({
-      transform(chunk: Buffer, _enc, cb) {
+  // The last progress write, awaited before the next phase so none lands after the job's end.
+  let written: Promise<unknown> = Promise.resolve();
+  // An async generator (not .pipe) so a read error reaches COPY's pipeline and ends the job.
+  const source = Readable.from(
+    (async function* () {
+      for await (const chunk of fs.createReadStream(o.file, { highWaterMark: 1 << 16 }) as AsyncIterable<Buffer>) {
         scanner.push(chunk);
         bytesRead += chunk.length;
         const now = Date.now();
@@ -93,15 +96,13 @@ async function runSqlImport(ctx: AppContext, repo: HistoryRepository, jobId: num
           // Copying is about a third of the SQL path's time; the insert with its rollups the rest.
           const p = 0.3 * (o.bytes > 0 ? Math.min(1, bytesRead / o.bytes) : 0);
           report(p);
-          void repo.progress(jobId, { progress: p, rows: scanner.lines, rejected: 0 }).catch(() => {});
+          written = repo.progress(jobId, { progress: p, rows: scanner.lines, rejected: 0 }).catch(() => {});
         }
-        cb(null, chunk);
-      },
-      flush(cb) {
-        scanner.end();
-        cb();
-      },
-    }),
+        yield chunk;
+      }
+      scanner.end();
+    })(),
+    { objectMode: false },
   );
   try {
     const r = await repo.sqlImport({
@@ -130,6 +131,7 @@ async function runSqlImport(ctx: AppContext, repo: HistoryRepository, jobId: num
           }
         }
         report(0.3);
+        await written;
         await repo.progress(jobId, { progress: 0.3, rows: copied, rejected: 0 });
         return { tags, days: [...days], dayRange, offsets: scanner.offsets };
       },

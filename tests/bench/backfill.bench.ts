@@ -45,6 +45,14 @@ const results: Record<string, number | string> = {};
 const notes: string[] = [];
 const say = (m: string) => console.log(`[bench:backfill] ${m}`);
 
+/** The job's timing entries as text: seconds as `name N s`, the path taken as `path name`. */
+function phaseText(timing: Record<string, unknown>): string {
+  return Object.entries(timing)
+    .filter(([, v]) => v !== null && v !== undefined)
+    .map(([k, v]) => (typeof v === 'number' ? `${k} ${v} s` : `${k} ${String(v)}`))
+    .join(', ');
+}
+
 function rssPeak_MB(pid: number): number {
   const s = fs.readFileSync(`/proc/${pid}/status`, 'utf8');
   return Number(/VmHWM:\s+(\d+) kB/.exec(s)![1]) / 1024;
@@ -135,7 +143,7 @@ try {
     return j;
   };
 
-  const rounds: { psqlSec: number; importSec: number; uploadSec: number; phases: Record<string, number>; recomputeSec: number | null; load1: number }[] = [];
+  const rounds: { psqlSec: number; importSec: number; uploadSec: number; phases: Record<string, unknown>; recomputeSec: number | null; load1: number }[] = [];
   for (let round = 1; round <= ROUNDS; round++) {
     // ---- reference: psql \copy into samples ------------------------------------------------
     await reset();
@@ -161,7 +169,7 @@ try {
     if (j.state !== 'done' || j.inserted !== ROWS) throw new Error(`import ended ${j.state} with ${j.inserted} rows inserted: ${j.message}`);
     const stored = Number((await pool.query('SELECT count(*) AS n FROM samples')).rows[0].n);
     if (stored !== ROWS) throw new Error(`samples holds ${stored} rows, expected ${ROWS}`);
-    const result = (await pool.query(`SELECT result FROM history_jobs WHERE id = $1`, [jobId])).rows[0].result as { timing?: Record<string, number> };
+    const result = (await pool.query(`SELECT result FROM history_jobs WHERE id = $1`, [jobId])).rows[0].result as { timing?: Record<string, unknown> };
     let recomputeSec: number | null = null;
     if (j.recomputeJobId) {
       const t1 = performance.now();
@@ -170,7 +178,7 @@ try {
     }
     const load1 = os.loadavg()[0]!;
     rounds.push({ psqlSec, importSec, uploadSec, phases: result.timing ?? {}, recomputeSec, load1 });
-    const phases = Object.entries(result.timing ?? {}).map(([k, v]) => `${k} ${v} s`).join(', ');
+    const phases = phaseText(result.timing ?? {});
     say(`round ${round}: psql \\copy ${psqlSec.toFixed(1)} s, product ${importSec.toFixed(1)} s (upload ${uploadSec.toFixed(1)} s; job: ${phases}), ratio ${(psqlSec / importSec).toFixed(2)}, load ${load1.toFixed(1)}`);
   }
   const median = (xs: number[]) => [...xs].sort((x, y) => x - y)[Math.floor(xs.length / 2)]!;
@@ -190,7 +198,7 @@ try {
   results.csvMB = Math.round(bytes / 1e6);
   results.rounds = ROUNDS;
   notes.push(`medians of ${ROUNDS} round(s): psql \\copy ${psqlSec.toFixed(1)} s; product ${importSec.toFixed(1)} s; API RSS ${rssBefore.toFixed(0)} MB before, peak ${results.apiPeakRssMB} MB`);
-  for (const [i, x] of rounds.entries()) notes.push(`round ${i + 1}: psql ${x.psqlSec.toFixed(1)} s, product ${x.importSec.toFixed(1)} s (upload ${x.uploadSec.toFixed(1)} s; ${Object.entries(x.phases).map(([k, v]) => `${k} ${v} s`).join(', ')}), ratio ${(x.psqlSec / x.importSec).toFixed(2)}, load ${x.load1.toFixed(1)}`);
+  for (const [i, x] of rounds.entries()) notes.push(`round ${i + 1}: psql ${x.psqlSec.toFixed(1)} s, product ${x.importSec.toFixed(1)} s (upload ${x.uploadSec.toFixed(1)} s; ${phaseText(x.phases)}), ratio ${(x.psqlSec / x.importSec).toFixed(2)}, load ${x.load1.toFixed(1)}`);
   notes.push(`load average ${os.loadavg().map((x) => x.toFixed(1)).join(' ')} (2 cores shared: read the ratio, not the absolute figures)`);
   api.kill('SIGTERM');
   await once(api, 'exit');

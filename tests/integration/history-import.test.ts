@@ -218,7 +218,7 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     expect(third).toMatchObject({ state: 'done', inserted: 40 });
     expect(await path(third.id)).toBe('csv-parse');
     expect((await count(['XT-912'])) - before).toBe(80);
-    const sum = await h.ctx.db.pool.query(`SELECT sum(sum) AS s, sum(count) AS n FROM rollup_1m WHERE tag_id = $1`, [tagIds['XT-912']]);
+    const sum = await h.ctx.db.pool.query(`SELECT sum(sum) AS s, sum(count) AS n FROM rollup_1m WHERE tag_id = $1 AND bucket >= $2 AND bucket < $3`, [tagIds['XT-912'], new Date(t0), new Date(t0 + 80 * 60_000)]);
     // Each file's values 0, 0.25, …, 9.75: 40 × 39 / 8 = 195 per file.
     expect(Number(sum.rows[0].n)).toBe(80);
     expect(Number(sum.rows[0].s)).toBe(390);
