@@ -90,6 +90,8 @@ export class LineScanner {
   private lastTag: Buffer = Buffer.alloc(0);
   private lastDate: Buffer = Buffer.alloc(0);
   private lastDates: Set<string> | null = null;
+  /** Position of the first quote in the buffer being scanned, or -1. */
+  private quote = -1;
 
   /**
    * @param delimiter the field delimiter's byte
@@ -106,6 +108,9 @@ export class LineScanner {
   push(chunk: Buffer): void {
     if (this.irregular) return;
     const b = this.carry ? Buffer.concat([this.carry, chunk]) : chunk;
+    // One search per buffer: the first quote ends the SQL path wherever it is (a search per line
+    // would run on to the buffer's end each time: quadratic in the lines of a buffer).
+    this.quote = b.indexOf(QUOTE);
     let start = 0;
     for (;;) {
       const nl = b.indexOf(NL, start);
@@ -122,8 +127,33 @@ export class LineScanner {
     if (this.carry && !this.irregular) {
       const b = this.carry;
       this.carry = null;
+      this.quote = b.indexOf(QUOTE);
       this.line(b, 0, b.length > 0 && b[b.length - 1] === CR ? b.length - 1 : b.length);
     }
+  }
+
+  /** Why the line b[start, end) is not in the strict form, or null (no text built for a good line). */
+  private lineProblem(b: Buffer, start: number, end: number): string | null {
+    if (end === start) return 'empty';
+    // The buffer's next quote at or after this line (a quoted header is allowed, CSV lines after it not).
+    if (this.quote >= 0 && this.quote < start) this.quote = b.indexOf(QUOTE, start);
+    if (this.quote >= start && this.quote < end) return 'a quote';
+    const d = b.indexOf(this.delimiter, start);
+    if (d < 0 || d >= end) return 'one field';
+    const d2 = b.indexOf(this.delimiter, d + 1);
+    if (d2 < 0 || d2 >= end) return 'two fields';
+    let d3 = b.indexOf(this.delimiter, d2 + 1);
+    if (d3 >= end) d3 = -1;
+    if ((this.fields === 3) !== (d3 < 0)) return `not ${this.fields} fields`;
+    if (d3 >= 0) {
+      const d4 = b.indexOf(this.delimiter, d3 + 1);
+      if (d4 >= 0 && d4 < end) return 'more than 4 fields';
+    }
+    const form = strictTimestamp(b, d + 1, d2, this.localOk);
+    if (form === null) return 'a timestamp in a form the SQL path does not read';
+    if (form === 'offset') this.offsets = true;
+    if (!strictValue(b, d2 + 1, d3 < 0 ? end : d3)) return 'a value in a form the SQL path does not read';
+    return null;
   }
 
   private line(b: Buffer, start: number, end: number): void {
@@ -132,26 +162,10 @@ export class LineScanner {
       return;
     }
     this.lines++;
-    const at = `line ${this.lines + 1}`;
-    if (end === start) return void (this.irregular = `${at} is empty`);
-    const q = b.indexOf(QUOTE, start);
-    if (q >= 0 && q < end) return void (this.irregular = `${at} has a quote`);
+    const why = this.lineProblem(b, start, end);
+    if (why !== null) return void (this.irregular = `line ${this.lines + 1}: ${why}`);
     const d = b.indexOf(this.delimiter, start);
-    if (d < 0 || d >= end) return void (this.irregular = `${at} has one field`);
     const t = d + 1;
-    const d2 = b.indexOf(this.delimiter, t);
-    if (d2 < 0 || d2 >= end) return void (this.irregular = `${at} has two fields`);
-    let d3 = b.indexOf(this.delimiter, d2 + 1);
-    if (d3 >= end) d3 = -1;
-    if ((this.fields === 3) !== (d3 < 0)) return void (this.irregular = `${at} does not have ${this.fields} fields`);
-    if (d3 >= 0) {
-      const d4 = b.indexOf(this.delimiter, d3 + 1);
-      if (d4 >= 0 && d4 < end) return void (this.irregular = `${at} has more than 4 fields`);
-    }
-    const form = strictTimestamp(b, t, d2, this.localOk);
-    if (form === null) return void (this.irregular = `${at}: the timestamp is not in a form the SQL path reads`);
-    if (form === 'offset') this.offsets = true;
-    if (!strictValue(b, d2 + 1, d3 < 0 ? end : d3)) return void (this.irregular = `${at}: the value is not in a form the SQL path reads`);
     // Historian exports run tag by tag in time order: the tag and the date change rarely, so
     // the comparison with the previous line is the common case and allocates nothing.
     if (this.lastDates === null || b.compare(this.lastTag, 0, this.lastTag.length, start, d) !== 0) {
