@@ -185,7 +185,11 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
     throw err;
   }
   ctx.log.info({ jobId, reason: sqlRefused }, 'history import: the csv-parse path reads this file');
-  if (signal?.aborted) throw new Error('the API stopped before the import ended; nothing stored, upload the file again');
+  if (signal?.aborted) {
+    await repo.finish(jobId, { state: 'failed', rows: 0, rejected: 0, errors: [], result: { message: 'the API stopped before the import ended; nothing stored, upload the file again' } });
+    fs.rm(o.file, { force: true }, () => {});
+    return;
+  }
   const began = performance.now();
   const checker = new RowChecker(tags, o);
   const stage = o.dryRun ? null : await repo.openStage(jobId);
