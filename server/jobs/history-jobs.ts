@@ -1,7 +1,8 @@
 import fs from 'node:fs';
-import { Writable } from 'node:stream';
+import { Readable, Writable } from 'node:stream';
 import { pipeline } from 'node:stream/promises';
 import { parse } from 'csv-parse';
+import { parse as parseSync } from 'csv-parse/sync';
 import type { Job } from 'bullmq';
 import type { Balance } from '../../shared/contracts/balance.ts';
 import type { EffectiveSettings } from '../../shared/contracts/settings.ts';
@@ -9,10 +10,11 @@ import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import type { BalanceEngineInputs, LayoutIn, SeriesPoint, SignalReading, SviReading } from '../../shared/domain/balance/inputs.ts';
 import type { Sample } from '../../ingest/pipeline/types.ts';
 import { repositories, services, type AppContext } from '../app-context.ts';
-import type { HistoryRepository, MinuteRow } from '../repositories/history.repository.ts';
+import { SqlPathRefused, type HistoryRepository, type MinuteRow, type SqlTagEntry, type TagWindow } from '../repositories/history.repository.ts';
 import { queueBackend, type ClosableWorker, type SchedulingQueue } from './balance-engine.ts';
 import { enqueueHistoryJob, registerHistoryQueue, type HistoryQueue } from './history-queue.ts';
 import { RowChecker } from './history-rows.ts';
+import { LineScanner } from './history-scan.ts';
 
 export const HISTORY_QUEUE = 'flocstream-history';
 /** Samples per COPY chunk into the staging partition. */
@@ -40,19 +42,157 @@ export interface RecomputeOptions {
   balanceStep_s?: number;
 }
 
+/** The first two records of the file (header and first data line), or null when the second line is beyond the first 64 KiB. */
+function firstRecords(file: string, delimiter: string): string[][] | null {
+  const fd = fs.openSync(file, 'r');
+  try {
+    const buf = Buffer.alloc(1 << 16);
+    const n = fs.readSync(fd, buf, 0, buf.length, 0);
+    const first = buf.indexOf(0x0a);
+    const second = first < 0 ? -1 : buf.indexOf(0x0a, first + 1);
+    const end = second >= 0 ? second : n < buf.length ? n : -1;
+    if (end < 0) return null;
+    return parseSync(buf.subarray(0, end), { delimiter, relax_column_count: true, skip_empty_lines: true, bom: true }) as string[][];
+  } catch {
+    return null;
+  } finally {
+    fs.closeSync(fd);
+  }
+}
+
+const OFFSET_AT_END = /(?:Z|[+-]\d\d:\d\d)$/;
+
 /**
- * Reads the file through csv-parse (streaming, so a 1 GB file never sits in memory), checks
- * every record (server/jobs/history-rows.ts) and COPYs the accepted samples into the job's
- * staging partition while no line has failed; then, for a file without errors, the move into
- * `samples` with its rollups (HistoryRepository.move) and the recompute job for the window.
- * A dry run only checks. A failed file stores nothing and lists its lines.
+ * The SQL path (long layout, ISO 8601 timestamps): the file's bytes go to PostgreSQL's COPY as
+ * they are, which parses the CSV in C, and one INSERT … SELECT checks and converts every line
+ * (HistoryRepository.sqlImport), where the csv-parse path spends about half its time parsing in
+ * this one thread. Only strict forms pass it (see the repository); a file with anything else, an
+ * error included, is refused with nothing stored, and the caller runs the csv-parse path over it,
+ * so the line checks of history-rows.ts stay the one reference for what is accepted and which
+ * lines are reported. Returns true when stored (or checked), else the reason it was refused.
+ */
+async function runSqlImport(ctx: AppContext, repo: HistoryRepository, jobId: number, plantId: number, o: ImportOptions, checker: RowChecker, report: (p: number) => void): Promise<true | string> {
+  if (o.tsFormat !== 'iso' || o.layout === 'wide') return 'not the long layout with ISO 8601 timestamps';
+  const head = firstRecords(o.file, o.delimiter);
+  if (!head || head.length < 2) return 'no data line in the first 64 KiB';
+  if (!checker.header(head[0]!) || checker.layout !== 'long') return 'not the long layout';
+  const localIsUtc = o.timezone === 'UTC' || o.timezone === 'Etc/UTC';
+  if (!localIsUtc && !OFFSET_AT_END.test(head[1]![1] ?? '')) return 'local times in a time zone other than UTC';
+  const began = performance.now();
+  const scanner = new LineScanner(o.delimiter.charCodeAt(0), head[0]!.length === 4 ? 4 : 3, localIsUtc);
+  let bytesRead = 0;
+  let lastReport = 0;
+  // The last progress write, awaited before the next phase so none lands after the job's end.
+  let written: Promise<unknown> = Promise.resolve();
+  // An async generator (not .pipe) so a read error reaches COPY's pipeline and ends the job.
+  const source = Readable.from(
+    (async function* () {
+      for await (const chunk of fs.createReadStream(o.file, { highWaterMark: 1 << 16 }) as AsyncIterable<Buffer>) {
+        scanner.push(chunk);
+        bytesRead += chunk.length;
+        const now = Date.now();
+        if (now - lastReport >= PROGRESS_EVERY_MS) {
+          lastReport = now;
+          // Copying is about a third of the SQL path's time; the insert with its rollups the rest.
+          const p = 0.3 * (o.bytes > 0 ? Math.min(1, bytesRead / o.bytes) : 0);
+          report(p);
+          written = repo.progress(jobId, { progress: p, rows: scanner.lines, rejected: 0 }).catch(() => {});
+        }
+        yield chunk;
+      }
+      scanner.end();
+    })(),
+    { objectMode: false },
+  );
+  try {
+    const r = await repo.sqlImport({
+      source,
+      delimiter: o.delimiter as ',' | ';' | '\t',
+      withQuality: head[0]!.length === 4,
+      dryRun: o.dryRun,
+      plan: async (copied) => {
+        if (copied === 0) throw new SqlPathRefused('no data lines');
+        if (scanner.irregular) throw new SqlPathRefused(scanner.irregular);
+        if (scanner.lines !== copied) throw new SqlPathRefused(`${scanner.lines} lines scanned, ${copied} records copied (a line break inside quotes)`);
+        const tags: SqlTagEntry[] = [];
+        const days = new Set<number>();
+        const dayRange = new Map<number, [number, number]>();
+        for (const [text, dates] of scanner.tags) {
+          const c = checker.column(text);
+          if (typeof c === 'string') throw new SqlPathRefused(c);
+          tags.push({ text, tagId: c.tag.id, factor: c.factor, rangeLow: c.tag.rangeLow, rangeHigh: c.tag.rangeHigh });
+          for (const d of dates) {
+            const day = Date.parse(`${d}T00:00:00Z`) / DAY_MS;
+            if (!Number.isInteger(day)) throw new SqlPathRefused(`"${d}" is not a date`);
+            days.add(day);
+            const w = dayRange.get(c.tag.id);
+            if (!w) dayRange.set(c.tag.id, [day, day]);
+            else dayRange.set(c.tag.id, [Math.min(w[0], day), Math.max(w[1], day)]);
+          }
+        }
+        report(0.3);
+        await written;
+        await repo.progress(jobId, { progress: 0.3, rows: copied, rejected: 0 });
+        return { tags, days: [...days], dayRange, offsets: scanner.offsets };
+      },
+    });
+    const windows = r.windows;
+    const timing = { path: 'sql', ...r.timing, totalSec: Math.round((performance.now() - began) / 100) / 10 };
+    await finishImport(ctx, repo, jobId, plantId, o, r.rows, r.inserted, windows, timing);
+    return true;
+  } catch (err) {
+    if (err instanceof SqlPathRefused) return err.message;
+    throw err;
+  }
+}
+
+/** The job's end after a file without errors: its window, and the recompute job when rows were stored. */
+async function finishImport(ctx: AppContext, repo: HistoryRepository, jobId: number, plantId: number, o: ImportOptions, rows: number, inserted: number | null, windows: readonly TagWindow[], timing: Record<string, unknown>): Promise<void> {
+  const from_ms = Math.min(...windows.map((w) => w.from_ms));
+  const to_ms = Math.max(...windows.map((w) => w.to_ms));
+  const window = windows.length ? { from: new Date(from_ms).toISOString(), to: new Date(to_ms).toISOString() } : {};
+  let recomputeJobId: number | null = null;
+  // Before the job shows done (either path): the uploader's reads go to the primary until a replica shows these rows.
+  if (inserted !== null && inserted > 0) await services(ctx).reads.routing.fenceUser((await repo.job(jobId))?.createdBy ?? null);
+  if (inserted !== null && inserted > 0 && windows.length) {
+    recomputeJobId = await repo.createJob({ plantId, kind: 'recompute', parentId: jobId, createdBy: null, options: { ...(window as { from: string; to: string }), ...(o.balanceStep_s ? { balanceStep_s: o.balanceStep_s } : {}) } satisfies RecomputeOptions });
+    await enqueueHistoryJob(ctx, 'recompute', recomputeJobId);
+  }
+  await repo.finish(jobId, { state: 'done', rows, rejected: 0, errors: [], result: { inserted, ...window, recomputeJobId, timing } });
+}
+
+/**
+ * An import job. A long-layout file with ISO 8601 timestamps first goes the SQL path
+ * (runSqlImport); any other file, or one that path refuses, is read through csv-parse
+ * (streaming, so a 1 GB file never sits in memory), every record checked
+ * (server/jobs/history-rows.ts) and the accepted samples COPYed into the job's staging partition
+ * while no line has failed; then, for a file without errors, the move into `samples` with its
+ * rollups (HistoryRepository.move) and the recompute job for the window. A dry run only checks.
+ * A failed file stores nothing and lists its lines.
  */
 export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId: number, report: (p: number) => void = () => {}, signal?: AbortSignal): Promise<void> {
   const job = await repo.job(jobId);
   if (!job) return;
   const o = job.options as unknown as ImportOptions;
+  const tags = await repo.importTags(job.plantId);
+  let sqlRefused: string;
+  try {
+    const sql = await runSqlImport(ctx, repo, jobId, job.plantId, o, new RowChecker(tags, o), report);
+    if (sql === true) return void fs.rm(o.file, { force: true }, () => {});
+    sqlRefused = sql;
+  } catch (err) {
+    await repo.finish(jobId, { state: 'failed', rows: 0, rejected: 0, errors: [], result: { message: `import failed: ${(err as Error).message}` } }).catch(() => {});
+    fs.rm(o.file, { force: true }, () => {});
+    throw err;
+  }
+  ctx.log.info({ jobId, reason: sqlRefused }, 'history import: the csv-parse path reads this file');
+  if (signal?.aborted) {
+    await repo.finish(jobId, { state: 'failed', rows: 0, rejected: 0, errors: [], result: { message: 'the API stopped before the import ended; nothing stored, upload the file again' } });
+    fs.rm(o.file, { force: true }, () => {});
+    return;
+  }
   const began = performance.now();
-  const checker = new RowChecker(await repo.importTags(job.plantId), o);
+  const checker = new RowChecker(tags, o);
   const stage = o.dryRun ? null : await repo.openStage(jobId);
   let storing = stage !== null;
   let headerOk = true;
@@ -91,7 +231,11 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
             continue;
           }
           if (!headerOk) continue;
-          checker.row(chunk.record, chunk.info.lines, batch);
+          // info.lines is the line the record ends on; a line break inside quotes moves its start up
+          // (as csv.service.ts reports it): an error names the line the record starts on.
+          let inside = 0;
+          for (const f of chunk.record) for (let i = f.indexOf('\n'); i !== -1; i = f.indexOf('\n', i + 1)) inside++;
+          checker.row(chunk.record, chunk.info.lines - inside, batch);
           if (checker.rejected > 0 && storing) {
             // The file will not be stored: stop staging, keep checking for the error list.
             storing = false;
@@ -128,30 +272,17 @@ export async function runImport(ctx: AppContext, repo: HistoryRepository, jobId:
     if (checker.rejected > 0) return await fail(`${checker.rejected} line(s) refused; nothing stored`);
     if (checker.rows === 0) return await fail('the file has a header and no data lines');
     const windows = [...checker.window].map(([tagId, [from_ms, to_ms]]) => ({ tagId, from_ms, to_ms }));
-    const from_ms = Math.min(...windows.map((w) => w.from_ms));
-    const to_ms = Math.max(...windows.map((w) => w.to_ms));
-    const window = { from: new Date(from_ms).toISOString(), to: new Date(to_ms).toISOString() };
-    if (!stage) {
-      await repo.finish(jobId, { state: 'done', rows: checker.rows, rejected: 0, errors: [], result: { inserted: null, ...window } });
-      return;
-    }
+    if (!stage) return await finishImport(ctx, repo, jobId, job.plantId, o, checker.rows, null, windows, { path: 'csv-parse', sqlRefused });
     await flush();
     await stage.end();
     const checkSec = (performance.now() - began) / 1000;
     report(0.9);
     await repo.progress(jobId, { progress: 0.9, rows: checker.rows, rejected: 0 });
     const moved = performance.now();
-    const inserted = await repo.move(jobId, [...checker.days], windows);
-    // Before the job shows done: the uploader's reads go to the primary until a replica shows these rows.
-    await services(ctx).reads.routing.fenceUser(job.createdBy);
+    const { inserted, insertSec, rollupSec } = await repo.move(jobId, [...checker.days], windows);
     await repo.dropStage(jobId);
-    const timing = { checkSec: Math.round(checkSec * 10) / 10, moveSec: Math.round(((performance.now() - moved) / 1000) * 10) / 10 };
-    let recomputeJobId: number | null = null;
-    if (inserted > 0) {
-      recomputeJobId = await repo.createJob({ plantId: job.plantId, kind: 'recompute', parentId: jobId, createdBy: null, options: { ...window, ...(o.balanceStep_s ? { balanceStep_s: o.balanceStep_s } : {}) } satisfies RecomputeOptions });
-      await enqueueHistoryJob(ctx, 'recompute', recomputeJobId);
-    }
-    await repo.finish(jobId, { state: 'done', rows: checker.rows, rejected: 0, errors: [], result: { inserted, ...window, recomputeJobId, ...timing } });
+    const timing = { path: 'csv-parse', sqlRefused, checkAndStageSec: Math.round(checkSec * 10) / 10, insertSec, rollupSec, moveSec: Math.round(((performance.now() - moved) / 1000) * 10) / 10 };
+    await finishImport(ctx, repo, jobId, job.plantId, o, checker.rows, inserted, windows, timing);
   } catch (err) {
     await fail(`import failed: ${(err as Error).message}`).catch(() => {});
     throw err;

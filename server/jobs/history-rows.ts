@@ -175,8 +175,8 @@ export class RowChecker {
     if (this.errors.length < HISTORY_MAX_ERRORS) this.errors.push({ line, field, message });
   }
 
-  /** The column of a tag header (with an optional `[unit]`), or the reason it cannot be used. */
-  private column(text: string): Column | string {
+  /** The column of a tag header or long-layout tag field (with an optional `[unit]`), or the reason it cannot be used. */
+  column(text: string): Column | string {
     const { name, unit } = splitUnit(text);
     const tag = this.byName.get(name);
     if (!tag) return `unknown tag "${name}" (not a tag of this plant)`;

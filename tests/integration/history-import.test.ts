@@ -27,6 +27,7 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
   const upload = (csv: string | Buffer, query = '') => integrator.post(`/api/v1/plants/${plantId}/history${query}`).set('Content-Type', 'text/csv').send(Buffer.from(csv));
   const job = async (id: number): Promise<HistoryJobOut> => historyJobOut.parse((await integrator.get(`/api/v1/jobs/${id}`).expect(200)).body);
   const finished = (id: number, timeout_ms = 120_000) => waitFor(() => job(id), (j) => j.state === 'done' || j.state === 'failed', { timeout_ms, every_ms: 100, what: `job ${id} to finish` });
+  const path = async (id: number) => (await h.ctx.db.pool.query(`SELECT result->'timing'->>'path' AS p FROM history_jobs WHERE id = $1`, [id])).rows[0].p as string;
   const count = async (names: string[]) => Number((await h.ctx.db.pool.query(`SELECT count(*) AS n FROM samples WHERE tag_id = ANY($1::int[])`, [names.map((n) => tagIds[n])])).rows[0].n);
 
   beforeAll(async () => {
@@ -80,6 +81,8 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
       j = await job(jobId);
     }
     expect(j).toMatchObject({ state: 'done', rows: 1_000_000, rejected: 0, inserted: 1_000_000, errors: [] });
+    // A long file of ISO times goes the SQL path (PostgreSQL parses it; server/jobs/history-jobs.ts).
+    expect(await path(jobId)).toBe('sql');
     expect(health.length).toBeGreaterThan(3);
     // Each turn of the job's event loop is a 16 KiB read (server/jobs/history-jobs.ts), so a probe
     // waits a few ms for it; on a shared 2-core host at load 20 the OS may still hold any runnable
@@ -183,6 +186,42 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     const dry = await finished((await upload(good, '?dryRun=1').expect(202)).body.jobId);
     expect(dry).toMatchObject({ state: 'done', dryRun: true, rows: 20, rejected: 0, inserted: null });
     expect(await count(['XT-910'])).toBe(before);
+  }, 60_000);
+
+  it('a line break inside quotes: an error names the line its record starts on, and the lines after keep their numbers', async () => {
+    const t0 = Date.UTC(2026, 8, 1);
+    const ts = (i: number) => new Date(t0 + i * 60_000).toISOString();
+    // Line 2 is a record over lines 2–3 (a quoted value with a line break: not a number); line 5 has an unknown tag.
+    const file = ['tag,ts,value', `XT-910,${ts(0)},"1`, `2"`, `XT-910,${ts(1)},3`, `XT-999,${ts(2)},4`, `XT-910,${ts(3)},5`].join('\n');
+    const j = await finished((await upload(file).expect(202)).body.jobId);
+    expect(j.state).toBe('failed');
+    expect(j.errors.map((e) => [e.line, e.field])).toEqual([
+      [2, 'value'],
+      [5, 'tag'],
+    ]);
+  }, 60_000);
+
+  it('the SQL path: the same ISO file twice stores each row once; a file it cannot read plainly is read by csv-parse with the same result', async () => {
+    const t0 = Date.UTC(2026, 7, 1);
+    const rows = ['tag,ts,value,quality', ...Array.from({ length: 40 }, (_, i) => `XT-912,${new Date(t0 + i * 60_000).toISOString()},${i / 4},good`)];
+    const before = await count(['XT-912']);
+    const first = await finished((await upload(rows.join('\n')).expect(202)).body.jobId);
+    expect(first).toMatchObject({ state: 'done', rows: 40, inserted: 40, from: new Date(t0).toISOString(), to: new Date(t0 + 39 * 60_000).toISOString() });
+    expect(await path(first.id)).toBe('sql');
+    // Every key is there already: the plain insert fails on the primary key and the file goes again with ON CONFLICT DO NOTHING.
+    const again = await finished((await upload(rows.join('\n')).expect(202)).body.jobId);
+    expect(again).toMatchObject({ state: 'done', inserted: 0, recomputeJobId: null });
+    expect(await path(again.id)).toBe('sql');
+    // A quoted tag field: the SQL path leaves the file to csv-parse, which stores the new rows.
+    const quoted = ['tag,ts,value,quality', ...Array.from({ length: 40 }, (_, i) => `"XT-912",${new Date(t0 + (40 + i) * 60_000).toISOString()},${i / 4},good`)];
+    const third = await finished((await upload(quoted.join('\n')).expect(202)).body.jobId);
+    expect(third).toMatchObject({ state: 'done', inserted: 40 });
+    expect(await path(third.id)).toBe('csv-parse');
+    expect((await count(['XT-912'])) - before).toBe(80);
+    const sum = await h.ctx.db.pool.query(`SELECT sum(sum) AS s, sum(count) AS n FROM rollup_1m WHERE tag_id = $1 AND bucket >= $2 AND bucket < $3`, [tagIds['XT-912'], new Date(t0), new Date(t0 + 80 * 60_000)]);
+    // Each file's values 0, 0.25, …, 9.75: 40 × 39 / 8 = 195 per file.
+    expect(Number(sum.rows[0].n)).toBe(80);
+    expect(Number(sum.rows[0].s)).toBe(390);
   }, 60_000);
 
   it('the same file twice stores each row once; a stated format and time zone are applied', async () => {

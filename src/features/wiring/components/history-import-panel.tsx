@@ -1,7 +1,8 @@
 import { useRef, useState } from 'react';
 import type { HistoryJobOut, HistoryRowError } from '../../../../shared/contracts/history.ts';
-import { Button, ErrorNote, Panel, TextInput } from '../../../components/ui/controls.tsx';
+import { Button, ErrorNote, Field, Panel, TextInput } from '../../../components/ui/controls.tsx';
 import { DataTable, useDataTable, type ColumnDef } from '../../../components/ui/data-table.tsx';
+import { formatUtc } from '../../../lib/format.ts';
 import { uploadHistory, useHistoryJob } from '../api/history-import.ts';
 
 const errorColumns: ColumnDef<HistoryRowError>[] = [
@@ -28,12 +29,30 @@ function ErrorList({ errors }: { errors: HistoryRowError[] }) {
   return <DataTable table={table} label="Lines to fix" testId="history-errors" virtual={{ rowHeight: 24, maxHeight: '300px', scrollerLabel: 'Lines to fix' }} />;
 }
 
+function span(j: HistoryJobOut): string {
+  return j.from && j.to ? `${formatUtc(j.from)} to ${formatUtc(j.to)}` : '';
+}
+
+/** One sentence for where the job stands, in the plant user's terms: lines of the file, samples stored. */
 function summary(j: HistoryJobOut): string {
-  if (j.state === 'queued') return 'waiting for the job worker…';
-  if (j.state === 'running') return `${j.rows.toLocaleString()} lines read${j.rejected ? `, ${j.rejected.toLocaleString()} refused` : ''}…`;
-  if (j.state === 'failed') return `${j.rejected.toLocaleString()} of ${j.rows.toLocaleString()} lines refused — nothing stored. ${j.message ?? ''}`;
-  if (j.dryRun) return `${j.rows.toLocaleString()} lines checked, all valid (${j.from ?? '?'} – ${j.to ?? '?'}) — nothing stored yet`;
-  return `${(j.inserted ?? 0).toLocaleString()} samples stored (${j.rows.toLocaleString()} lines; rows already stored are kept once)`;
+  const n = (x: number) => x.toLocaleString('en-US');
+  if (j.state === 'queued') return 'Waiting for the job worker…';
+  if (j.state === 'running') return `${n(j.rows)} lines read${j.rejected ? `, ${n(j.rejected)} refused` : ''}…`;
+  if (j.state === 'failed') {
+    // With a list of lines the server's message only repeats the count; without one it is the reason.
+    if (j.errors.length) return `${n(j.rejected)} of ${n(j.rows)} lines refused. Nothing was stored: fix the lines below and check the file again.`;
+    return `Nothing was stored: ${j.message ?? 'the job failed'}.`;
+  }
+  if (j.dryRun) return `${n(j.rows)} lines checked, all valid (${span(j)}). Nothing is stored until you press Import.`;
+  const inserted = j.inserted ?? 0;
+  const kept = j.rows > 0 && inserted < j.rows ? ` ${n(j.rows - inserted)} were already stored and were left as they were.` : '';
+  return `${n(inserted)} samples stored, ${span(j)}.${kept}`;
+}
+
+function recomputeSummary(r: HistoryJobOut): string {
+  if (r.state === 'done') return `Balances recomputed for the window (${r.rows.toLocaleString('en-US')} balances); trends and the balance history now cover it.`;
+  if (r.state === 'failed') return `Recomputing the balances failed: ${r.message ?? 'unknown reason'}. The samples are stored.`;
+  return 'Recomputing the balances for the window…';
 }
 
 /**
@@ -75,7 +94,7 @@ export function HistoryImportPanel({ plantId }: { plantId: number }) {
         <span className="num">FIT-101 [gpm]</span>) is converted to the tag&apos;s unit. Timestamps ISO 8601, or give a format (
         <span className="num">DD.MM.YYYY HH:mm:ss</span>) and time zone. A file with any bad line stores nothing.
       </p>
-      <div className="flex flex-wrap items-center gap-2">
+      <div className="flex flex-wrap items-end gap-2">
         <input
           type="file"
           accept=".csv,text/csv"
@@ -88,8 +107,12 @@ export function HistoryImportPanel({ plantId }: { plantId: number }) {
             setError(null);
           }}
         />
-        <TextInput aria-label="Timestamp format" placeholder="ISO 8601" value={tsFormat} onChange={(e) => setTsFormat(e.target.value)} className="w-[170px]" />
-        <TextInput aria-label="Time zone" placeholder="UTC" value={timezone} onChange={(e) => setTimezone(e.target.value)} className="w-[140px]" />
+        <Field label="Timestamp format">
+          <TextInput placeholder="ISO 8601" value={tsFormat} onChange={(e) => setTsFormat(e.target.value)} className="w-[170px]" />
+        </Field>
+        <Field label="Time zone">
+          <TextInput placeholder="UTC" value={timezone} onChange={(e) => setTimezone(e.target.value)} className="w-[140px]" />
+        </Field>
         <Button onClick={() => send(true)} disabled={!file || busy}>
           Check
         </Button>
@@ -102,16 +125,27 @@ export function HistoryImportPanel({ plantId }: { plantId: number }) {
           </Button>
         ) : null}
       </div>
+      {file && !busy && !checkedOk && !(j && !j.dryRun) ? (
+        <p className="mt-1 text-[12px] text-ink-3" data-testid="history-next-step">
+          Check the file first: Import is enabled once the check finds no bad line.
+        </p>
+      ) : null}
       {sent !== null ? (
         <div className="mt-2 grid gap-1">
           <Bar label="Upload" value={sent} testId="history-upload-progress" />
-          {j ? <Bar label={j.dryRun ? 'Check' : 'Import'} value={j.progress} testId="history-job-progress" /> : null}
+          {/* A failed job read the file to its end too (it lists every bad line): its bar ends full, the summary says the outcome. */}
+          {j ? <Bar label={j.dryRun ? 'Check' : 'Import'} value={j.state === 'done' || j.state === 'failed' ? 1 : j.progress} testId="history-job-progress" /> : null}
           {recompute.data ? <Bar label="Balances recomputed" value={recompute.data.progress} testId="history-recompute-progress" /> : null}
         </div>
       ) : null}
       {j ? (
         <p role="status" data-testid="history-summary" className={`mt-1 text-[12px] ${j.state === 'failed' ? 'text-alarm-1' : 'text-ink'}`}>
           {summary(j)}
+        </p>
+      ) : null}
+      {recompute.data ? (
+        <p role="status" data-testid="history-recompute-summary" className={`text-[12px] ${recompute.data.state === 'failed' ? 'text-alarm-1' : 'text-ink'}`}>
+          {recomputeSummary(recompute.data)}
         </p>
       ) : null}
       {error ? <ErrorNote error={error} /> : null}
