@@ -1,9 +1,7 @@
-import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
+import { spawn, type ChildProcess } from 'node:child_process';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
-import tls from 'node:tls';
-import { Aedes } from 'aedes';
 import mqtt, { type MqttClient } from 'mqtt';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { testMqttConnection } from '../../ingest/mqtt/mqtt-connection.ts';
@@ -12,6 +10,7 @@ import { startEmbeddedBroker, type EmbeddedBroker } from '../../server/broker/em
 import { BROKER_READY } from '../../server/broker/process.ts';
 import { freePort } from '../helpers/net.ts';
 import { nextEvent, waitFor } from '../helpers/wait.ts';
+import { haveOpenssl, startTlsTestBroker, TLS_BROKER_USER, type TlsTestBroker } from '../helpers/tls-broker.ts';
 
 /**
  * The embedded broker as `npm start` runs it (issue 15 item 9): users and an ACL, a maximum
@@ -189,32 +188,14 @@ describe('embedded broker process: the QoS 1 queue survives SIGKILL', () => {
 });
 
 describe('external broker over TLS with credentials (mqtts://, source CA)', () => {
-  const certDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-tls-'));
-  let server: tls.Server;
-  let tlsBroker: Aedes;
-  let port = 0;
-  let ca = '';
-  const haveOpenssl = spawnSync('openssl', ['version']).status === 0;
-
+  let broker: TlsTestBroker | null = null;
   beforeAll(async () => {
-    if (!haveOpenssl) return;
-    // A self-signed certificate for 127.0.0.1 (its own CA), made with Debian's openssl.
-    const r = spawnSync('openssl', ['req', '-x509', '-newkey', 'rsa:2048', '-nodes', '-days', '1', '-subj', '/CN=127.0.0.1', '-addext', 'subjectAltName=IP:127.0.0.1', '-keyout', path.join(certDir, 'key.pem'), '-out', path.join(certDir, 'cert.pem')], { encoding: 'utf8' });
-    if (r.status !== 0) throw new Error(`openssl failed: ${r.stderr}`);
-    ca = fs.readFileSync(path.join(certDir, 'cert.pem'), 'utf8');
-    tlsBroker = await Aedes.createBroker({ authenticate: (_c, u, p, done) => done(null, u === 'plant' && p?.toString() === 'tls-secret-123') });
-    server = tls.createServer({ key: fs.readFileSync(path.join(certDir, 'key.pem')), cert: ca }, (s) => tlsBroker.handle(s));
-    port = await new Promise<number>((resolve) => server.listen(0, '127.0.0.1', () => resolve((server.address() as { port: number }).port)));
+    if (haveOpenssl) broker = await startTlsTestBroker();
   });
-  afterAll(async () => {
-    if (!haveOpenssl) return;
-    await new Promise<void>((r) => tlsBroker.close(() => r()));
-    await new Promise<void>((r) => server.close(() => r()));
-    fs.rmSync(certDir, { recursive: true, force: true });
-  });
+  afterAll(async () => broker?.close());
 
   it.skipIf(!haveOpenssl)('connects with the source’s CA and credentials, and fails without the CA or with a wrong password', async () => {
-    const source = { id: 1, url: `mqtts://127.0.0.1:${port}`, username: 'plant', secret: 'tls-secret-123', options: { protocolVersion: 4, tlsCa_pem: ca } };
+    const source = { id: 1, url: broker!.url, username: TLS_BROKER_USER.username, secret: TLS_BROKER_USER.password, options: { protocolVersion: 4, tlsCa_pem: broker!.ca } };
     expect(await testMqttConnection(source, 5000)).toMatchObject({ ok: true });
     const noCa = await testMqttConnection({ ...source, options: { protocolVersion: 4 } }, 5000);
     expect(noCa.ok).toBe(false);

@@ -3,12 +3,8 @@
  * across restarts by startTestBroker), no database: what the session promises the connector.
  * Clauses: MQTT 3.1.1 (OASIS Standard, 2014) and MQTT 5.0 (OASIS Standard, 2019).
  */
-import { spawnSync } from 'node:child_process';
-import fs from 'node:fs';
 import http from 'node:http';
 import net from 'node:net';
-import path from 'node:path';
-import tls from 'node:tls';
 import { Aedes } from 'aedes';
 import mqtt, { type MqttClient } from 'mqtt';
 import mqttPacket, { type IConnectPacket, type Packet } from 'mqtt-packet';
@@ -18,8 +14,9 @@ import { fallbackProtocol, mqttOptionsOf } from '../../../ingest/mqtt/mqtt-conne
 import { MqttSession, type Delivery, type SessionOptions, type SubscriberSession } from '../../../ingest/mqtt/mqtt-session.ts';
 import { MqttJsSession } from '../../../ingest/mqtt/mqttjs-session.ts';
 import type { IndexedMemoryPersistence } from '../../../server/broker/indexed-persistence.ts';
+import { haveOpenssl, startTlsTestBroker, TLS_BROKER_USER, type TlsTestBroker } from '../../helpers/tls-broker.ts';
 import { waitFor } from '../../helpers/wait.ts';
-import { freePort, startTestBroker, tempDir, type TestBroker } from './helpers.ts';
+import { freePort, startTestBroker, type TestBroker } from './helpers.ts';
 
 interface Received {
   topic: string;
@@ -331,37 +328,25 @@ describe('MqttSession (ingest/mqtt/mqtt-session.ts) against aedes', () => {
 });
 
 describe('MqttSession over mqtts://', () => {
-  const haveOpenssl = spawnSync('openssl', ['version']).status === 0;
-  const certDir = tempDir('session-tls');
-  let tlsBroker: Aedes;
-  let server: tls.Server;
+  let broker: TlsTestBroker | null = null;
   let url = '';
   let ca = '';
   const sessions: MqttSession[] = [];
 
   beforeAll(async () => {
     if (!haveOpenssl) return;
-    // A self-signed certificate for 127.0.0.1 (its own CA), made with Debian's openssl, as in broker-security.test.ts.
-    const r = spawnSync('openssl', ['req', '-x509', '-newkey', 'rsa:2048', '-nodes', '-days', '1', '-subj', '/CN=127.0.0.1', '-addext', 'subjectAltName=IP:127.0.0.1', '-keyout', path.join(certDir, 'key.pem'), '-out', path.join(certDir, 'cert.pem')], { encoding: 'utf8' });
-    if (r.status !== 0) throw new Error(`openssl failed: ${r.stderr}`);
-    ca = fs.readFileSync(path.join(certDir, 'cert.pem'), 'utf8');
-    tlsBroker = await Aedes.createBroker({ authenticate: (_c, u, p, done) => done(null, u === 'plant' && p?.toString() === 'tls-secret-123') });
-    server = tls.createServer({ key: fs.readFileSync(path.join(certDir, 'key.pem')), cert: ca }, (s) => tlsBroker.handle(s));
-    const port = await new Promise<number>((resolve) => server.listen(0, '127.0.0.1', () => resolve((server.address() as net.AddressInfo).port)));
-    url = `mqtts://127.0.0.1:${port}`;
+    broker = await startTlsTestBroker();
+    ({ url, ca } = broker);
   });
   afterAll(async () => {
     await Promise.all(sessions.map((s) => s.close()));
-    if (!haveOpenssl) return;
-    await new Promise<void>((r) => tlsBroker.close(() => r()));
-    await new Promise<void>((r) => server.close(() => r()));
-    fs.rmSync(certDir, { recursive: true, force: true });
+    await broker?.close();
   });
 
   it.skipIf(!haveOpenssl)('connects with the source’s CA and credentials; refuses an unknown CA and a wrong password', async () => {
-    const good = recorded({ url, clientId: 'tls-good', username: 'plant', password: 'tls-secret-123', ca });
-    const noCa = recorded({ url, clientId: 'tls-no-ca', username: 'plant', password: 'tls-secret-123' });
-    const badPassword = recorded({ url, clientId: 'tls-bad-pw', username: 'plant', password: 'wrong', ca });
+    const good = recorded({ url, clientId: 'tls-good', ...TLS_BROKER_USER, ca });
+    const noCa = recorded({ url, clientId: 'tls-no-ca', ...TLS_BROKER_USER });
+    const badPassword = recorded({ url, clientId: 'tls-bad-pw', username: TLS_BROKER_USER.username, password: 'wrong', ca });
     for (const x of [good, noCa, badPassword]) {
       sessions.push(x.session);
       x.session.start();
