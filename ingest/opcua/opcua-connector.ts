@@ -7,6 +7,7 @@ import {
   ClientSubscription,
   DataType,
   HistoryData,
+  StatusCodes,
   type HistoryReadResult,
   TimestampsToReturn,
   type ClientSession,
@@ -240,6 +241,14 @@ export class OpcuaConnector implements Connector {
     this.counters.messages++;
     const proc = this.tags.get(tagId);
     if (!proc) return;
+    if (dv.statusCode.value === StatusCodes.BadWaitingForInitialData.value) {
+      // A server just started, with no reading from its data source yet (BadWaitingForInitialData,
+      // OPC 10000-4's common StatusCodes): a state of the server, not a reading of the process. Stored,
+      // it would stand as the tag's latest "no value" and blank the figures that read it until
+      // the first reading arrives, although the reading before the restart is still the newest.
+      this.counters.suppressed++;
+      return;
+    }
     const grade = gradeOfStatusCode(dv.statusCode.value);
     const ts = (dv.sourceTimestamp ?? dv.serverTimestamp)?.getTime() ?? now;
     let raw: number | null = null;

@@ -78,6 +78,14 @@ describe('OPC UA → PostgreSQL', () => {
       level.setValueFromSource({ dataType: DataType.Double, value: v }, sc, new Date(ts));
       // Each change stored before the next is made, so the subscription's sampling never merges two.
       await waitFor(`sample at ${new Date(ts).toISOString()}`, () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = $1 AND ts = $2`, [tagIds[0], new Date(ts)]), (n) => n === 1, 15_000);
+      if (ts === base + 3_000) {
+        // A restarted server's "no reading yet" (BadWaitingForInitialData) is received, counted
+        // as suppressed and not stored: it says nothing of the process (the check below finds
+        // only the four samples of `steps`).
+        const before = svc.status().sources[0]!.suppressed;
+        level.setValueFromSource({ dataType: DataType.Double, value: 0 }, StatusCodes.BadWaitingForInitialData, new Date(base + 3_500));
+        await waitFor('the waiting-for-data status received', async () => svc.status().sources[0]!.suppressed, (n) => n === before + 1, 15_000);
+      }
     }
     const q = `SELECT (extract(epoch FROM ts) * 1000)::float8 ms, value, quality FROM samples WHERE tag_id = $1 AND ts >= $2 ORDER BY ts`;
     const rows = await waitFor('four samples', async () => (await pool.query(q, [tagIds[0], new Date(base)])).rows, (r) => r.length === 4, 15_000);
