@@ -6,7 +6,7 @@
  */
 import { rasConcMaxRuleOfThumb_gL } from './flux.js';
 import { estimated, good, unavailable, type Figure } from './quality.js';
-import { DEFAULT_STORM_CHECKS, type StormCheckSettings } from './storm.js';
+import { DEFAULT_STORM_CHECKS, type StormCheckSettings, type StormInputs } from './storm.js';
 import { sviMLg_to_m3kg } from './units.js';
 
 export interface HydrographPoint {
@@ -14,28 +14,20 @@ export interface HydrographPoint {
   flow_m3h: number;
 }
 
-export interface StormTimelineInputs {
-  /** Influent flow before the storm [m³/h]; the basin and clarifier are taken as steady at it. */
-  influentFlow_m3h: number;
-  /** Return flow, held through the storm [m³/h]. */
-  rasFlow_m3h: number;
-  mlss_gL: number;
-  svi_mLg: number;
-  aerationVolume_m3: number;
-  clarifierArea_m2: number;
+/**
+ * The equilibrium projection's inputs (./storm.ts) with the storm as a hydrograph instead of one
+ * flow; the return flow is held through the storm (no cap), and the basin and clarifier are taken
+ * as steady at the influent flow before it.
+ */
+export interface StormTimelineInputs extends Omit<StormInputs, 'stormFlow_m3h' | 'rasFlowCap_m3h'> {
   /** Influent flow in time, linear between points; two points at the same time make a step. */
   hydrograph: readonly HydrographPoint[];
   /** Side-water depth of the clarifiers [m]: a blanket there is at the surface. */
   clarifierDepth_m: number;
   /** Blanket level before the storm [m above the floor]; 0 when not given (said so). */
   blanketNow_m?: number;
-  /** Sludge in the clarifiers before the storm [kg]; default 0. */
-  clarifierMass_kg?: number;
-  /** Rule-of-thumb factor for X_R,max = factor/SVI; default 1200 (common practice [CP]). */
-  xrFactor?: number;
   /** X_R,max to use instead of the rule, e.g. the lower of the rule and flux theory [g/L]. */
   rasConcMax_gL?: number;
-  checks?: Partial<StormCheckSettings>;
 }
 
 export type StormTimelineRule = 'min-mlss' | 'max-stored-fraction' | 'max-blanket-rise' | 'blanket-below-surface';
