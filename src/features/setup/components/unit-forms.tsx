@@ -47,6 +47,17 @@ export function AddUnitForm({ plantId, kind, model, system }: { plantId: number;
   const { register, handleSubmit, formState, reset } = form;
   const onSubmit = handleSubmit((body) => create.mutate(body, { onSuccess: () => reset(defaults), onError: (e) => applyServerErrors(e, form) }));
   const err = (n: string) => fieldError(formState.errors, n);
+  const trainField = (
+    <Field label="Train" error={err('trainId')}>
+      <Select {...register('trainId')}>
+        {trains.map((t) => (
+          <option key={t.id} value={t.id}>
+            {t.code}
+          </option>
+        ))}
+      </Select>
+    </Field>
+  );
   return (
     <form onSubmit={onSubmit} className="flex flex-wrap items-end gap-2" aria-label={`New ${kind}`} noValidate>
       {kind !== 'train' ? (
@@ -68,26 +79,10 @@ export function AddUnitForm({ plantId, kind, model, system }: { plantId: number;
                 ))}
               </Select>
             </Field>
-            <Field label="Train" error={err('trainId')}>
-              <Select {...register('trainId')}>
-                {trains.map((t) => (
-                  <option key={t.id} value={t.id}>
-                    {t.code}
-                  </option>
-                ))}
-              </Select>
-            </Field>
+            {trainField}
           </>
         ) : (
-          <Field label="Train" error={err('trainId')}>
-            <Select {...register('trainId')}>
-              {trains.map((t) => (
-                <option key={t.id} value={t.id}>
-                  {t.code}
-                </option>
-              ))}
-            </Select>
-          </Field>
+          trainField
         )
       ) : null}
       <Field label="Code" error={err('code')}>
