@@ -10,7 +10,7 @@
  *
  * (a) sequential latency, 200 requests each after a warm-up: balance/live, the 30-day samples
  *     query and the one-year query (both must be answered from rollup_1h: 720 hourly points and
- *     1752 five-hour buckets, see chooseResolution in server/services/series.service.ts);
+ *     1460 six-hour buckets, see chooseResolution in server/services/series.service.ts);
  * (b) mixed load: autocannon, 50 connections for 10 s over a mix of those and the live tag list,
  *     three rounds; the median p99 is held to < 250 ms; each round notes the CPU per request of
  *     the API process, of the PostgreSQL cluster and of autocannon, and what other processes
@@ -593,10 +593,11 @@ async function replicaPhase(o: {
 if (process.argv[2] === '--serve') {
   const url = process.argv[3]!;
   const dataDir = process.argv[4]!;
-  const db = openDatabase(url, { max: 20 });
-  // (d): a streaming replica for the read routes, as DATABASE_READ_URL gives one.
-  const readDb = process.argv[5] ? openDatabase(process.argv[5], { max: 20 }) : undefined;
   const config = { ...loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: url, FLOCSTREAM_DEMO: '0' }), databaseUrl: url };
+  // The pools as server/main.ts opens them (default size, the API's statement_timeout).
+  const db = openDatabase(url, { statementTimeout_ms: config.apiStatementTimeout_ms });
+  // (d): a streaming replica for the read routes, as DATABASE_READ_URL gives one.
+  const readDb = process.argv[5] ? openDatabase(process.argv[5], { statementTimeout_ms: config.apiStatementTimeout_ms }) : undefined;
   // The logger as `npm start` makes it (info to <data>/logs/api.log), so its cost is measured too.
   const ctx: AppContext = { db, ...(readDb ? { readDb } : {}), config, log: createLogger('api', config.logLevel, dataDir), sessionKey: randomBytes(32) };
   const server = createApp(ctx, { serveMonitor: false }).listen(0, '127.0.0.1', () => {

@@ -144,17 +144,18 @@ describe('read API', () => {
     expect(days.points.length).toBeLessThanOrEqual(2000);
     expect(days.points.length).toBeGreaterThan(1400);
     const yr = samplesResponse.parse((await samples({ from: iso(T0 - 365 * D), to: iso(T0) })).body);
-    expect(yr).toMatchObject({ resolution: '1h', step_s: 18000 });
+    expect(yr).toMatchObject({ resolution: '1h', step_s: 21_600 });
     expect(yr.points.length).toBeLessThanOrEqual(2000);
-    expect(yr.points.length).toBeGreaterThan(1700);
-    // A 5 h bucket of the year: mean of the five hourly means (all counts equal), min/max over them.
+    expect(yr.points.length).toBeGreaterThan(1400);
+    // A 6 h bucket of the year: mean of the six hourly means (all counts equal), min/max over them.
     const p = yr.points[10]!;
-    const hours = [0, 1, 2, 3, 4].map((k) => 3 + (((Date.parse(p.ts) / H + k) % 24) / 8));
-    expect(p.value).toBeCloseTo(hours.reduce((s, v) => s + v, 0) / 5, 12);
+    expect(new Date(p.ts).getUTCHours() % 6).toBe(0); // the buckets tile the UTC day
+    const hours = [0, 1, 2, 3, 4, 5].map((k) => 3 + (((Date.parse(p.ts) / H + k) % 24) / 8));
+    expect(p.value).toBeCloseTo(hours.reduce((s, v) => s + v, 0) / 6, 12);
     expect(p.min).toBeCloseTo(Math.min(...hours) - 2, 12);
     expect(p.max).toBeCloseTo(Math.max(...hours) + 2, 12);
-    expect(p.count).toBe(5 * 3600);
-    expect(yr.from).toBe(iso(Math.floor((T0 - 365 * D) / 18_000_000) * 18_000_000));
+    expect(p.count).toBe(6 * 3600);
+    expect(yr.from).toBe(iso(Math.floor((T0 - 365 * D) / 21_600_000) * 21_600_000));
   });
 
   it('step rounds up to what the resolution allows; agg picks min, max or last; rollup_1m means equal the raw means', async () => {

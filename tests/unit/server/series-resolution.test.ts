@@ -35,8 +35,11 @@ describe('chooseResolution', () => {
     expect(chooseResolution(500 * H, 1, undefined, MANY)).toEqual({ resolution: '1h', step_s: 3600 });
     expect(chooseResolution(30 * D, 1, undefined, MANY)).toEqual({ resolution: '1h', step_s: 3600 }); // 720 points
     expect(chooseResolution(2000 * H, 1, undefined, MANY)).toEqual({ resolution: '1h', step_s: 3600 });
-    // A year: needed ceil(31 536 000 / 2000) = 15 768 s → multiples of 3600 s: 18 000 s (1752 points).
-    expect(chooseResolution(365 * D, 1, undefined, MANY)).toEqual({ resolution: '1h', step_s: 18_000 });
+    // A year: needed ceil(31 536 000 / 2000) = 15 768 s (4.38 h); the first width that divides a
+    // day and is wide enough is 6 h = 21 600 s (1460 points; 5 h would drift across the days).
+    expect(chooseResolution(365 * D, 1, undefined, MANY)).toEqual({ resolution: '1h', step_s: 21_600 });
+    // Past 2000 days: whole days (ceil(6 000 d × 86 400 / 2000) = 259 200 s = 3 d).
+    expect(chooseResolution(6000 * D, 1, undefined, MANY)).toEqual({ resolution: '1h', step_s: 3 * 86_400 });
   });
 
   it('never more than MAX_POINTS and, from a stored table at its own step, never fewer than MIN_POINTS', () => {
@@ -45,6 +48,14 @@ describe('chooseResolution', () => {
       const points = span / 1000 / c.step_s!;
       expect(points, `${span} ms`).toBeLessThanOrEqual(MAX_POINTS);
       if (c.resolution !== 'raw' && (c.step_s === 60 || c.step_s === 3600)) expect(points, `${span} ms`).toBeGreaterThanOrEqual(MIN_POINTS);
+    }
+  });
+
+  it('a step the service picks divides the day, so buckets start at the same times every day', () => {
+    for (let span = 10 * MIN; span <= 3000 * D; span = Math.round(span * 1.07)) {
+      const { step_s } = chooseResolution(span, 1, undefined, MANY);
+      const s = step_s!;
+      expect(s <= 86_400 ? 86_400 % s : s % 86_400, `${span} ms → ${s} s`).toBe(0);
     }
   });
 
