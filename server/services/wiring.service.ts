@@ -71,7 +71,7 @@ async function unique<T>(what: { name?: string; address?: string }, fn: () => Pr
   }
 }
 
-/** A CSV cell as a number when it reads as one in plain decimal notation (else the text, so zod names the field). */
+/** A CSV cell as a number when it reads as one in plain decimal notation (else the text, refused with the column's name). */
 function csvNumber(t: string): unknown {
   return /^[+-]?(\d+\.?\d*|\.\d+)$/.test(t) ? Number(t) : t;
 }
@@ -370,7 +370,10 @@ export function createWiringService({ wiringRepo: repo, plantAccess, audit, log,
           if (field === 'sourceId') continue;
           const v = cell(col);
           if (v === '') continue;
-          obj[field] = ['name', 'address', 'unit', 'description'].includes(field) ? v : csvNumber(v);
+          if (['name', 'address', 'unit', 'description'].includes(field)) obj[field] = v;
+          else if (typeof csvNumber(v) === 'number') obj[field] = Number(v);
+          // Said here in the column's words (zod's own text would name a JSON type).
+          else add(line, col, `${col} must be a number in plain decimal notation, like 0.5 or -12 (got "${v}")`);
         }
         const r = tagCreate.safeParse(obj);
         if (!r.success) for (const [f, msgs] of Object.entries(zodFields(r.error))) for (const msg of msgs) add(line, CSV_COLUMN_OF[f] ?? f, msg);

@@ -336,8 +336,11 @@ describe('wiring API', () => {
       const preview = tagImportOut.parse(dry.body);
       expect(preview).toMatchObject({ dryRun: true, ok: false, imported: 0 });
       expect(preview.rows[0]).toMatchObject({ line: 2, name: 'FC1 blanket', source: 'tags-mqtt', sourceId: mqttId, description: 'sludge blanket, sonar', deadband: 0.05, expectedPeriod_s: 30, signal: 'clarifier.blanketLevel', target: 'fc1' });
-      expect(Object.keys(preview.errors).sort()).toEqual(['line.3.range_high', 'line.3.source', 'line.4.scale_gain', 'line.4.target', 'line.5.address', 'line.5.name']);
+      expect(Object.keys(preview.errors).sort()).toEqual(['line.3.range_high', 'line.3.source', 'line.4.range_high', 'line.4.scale_gain', 'line.4.target', 'line.5.address', 'line.5.name']);
       expect(preview.errors['line.5.name']![0]).toMatch(/line 2/);
+      // A text in a number column is named in the column's words, and the row's other errors
+      // (range 5 … 1) are still found beside it.
+      expect(preview.errors['line.4.scale_gain']).toEqual(['scale_gain must be a number in plain decimal notation, like 0.5 or -12 (got "abc")']);
       expect(await count()).toBe(before);
 
       const real = await upload(bad);
