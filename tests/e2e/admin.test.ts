@@ -83,6 +83,19 @@ describe('admin in Debian Chromium', () => {
     await page.getByRole('button', { name: 'Show raw' }).click();
     expect(await reader.innerText()).toMatch(/Subject: \[Flocstream\]/);
     await page.getByRole('button', { name: 'Show text' }).click();
+
+    // Setup: the design storm is edited as JSON in a box that wraps, and a change is saved.
+    await nav.getByRole('link', { name: 'Setup' }).click();
+    const settingsTable = page.getByRole('table', { name: 'Settings' });
+    const hydrograph = settingsTable.getByLabel('storm.hydrograph');
+    await hydrograph.waitFor();
+    expect(await settingsTable.evaluate((t) => t.scrollWidth <= t.parentElement!.clientWidth + 1)).toBe(true);
+    const storm = [{ t_h: 0, peakFraction: 1 }, { t_h: 4, peakFraction: 1 }, { t_h: 4, peakFraction: 0 }, { t_h: 8, peakFraction: 0 }];
+    await hydrograph.fill(JSON.stringify(storm));
+    await settingsTable.locator('tr[data-key="storm.hydrograph"]').getByRole('button', { name: 'Save' }).click();
+    await expect.poll(async () => (await services(env.server.ctx).settings.describe(null, plantId)).settings.find((x) => x.key === 'storm.hydrograph')?.value).toEqual(storm);
+    await hydrograph.scrollIntoViewIfNeeded();
+    await shot(page, 'admin-settings');
     expect(errors.filter((e) => !/401/.test(e))).toEqual([]);
 
     // The new operator signs in with the initial password; Outbox is not in the navigation and the server refuses it.

@@ -1,4 +1,4 @@
-import { useState } from 'react';
+import { useState, type ReactNode } from 'react';
 import { Button, ErrorNote, Panel, TextInput } from '../../../components/ui/controls.tsx';
 import { usePlantSettings, usePutSettings } from '../api/setup.ts';
 import { MainSettingsForm } from './main-settings-form.tsx';
@@ -7,6 +7,27 @@ import { MainSettingsForm } from './main-settings-form.tsx';
 const MAIN_KEYS: string[] = ['mail.recipients', 'srt.target_d', 'srt.window_h', 'storm.peak_flow_factor'];
 
 const td = 'px-1.5 py-1 border-b border-edge/50 align-top';
+/**
+ * A value wraps inside its column instead of widening the table past the panel (a table cell's
+ * own max-width is ignored by table layout, so a block inside it carries the width): the storm
+ * hydrograph's points, an e-mail address.
+ */
+function Wrapped({ children }: { children: ReactNode }) {
+  return <div className="max-w-[8rem] ml-auto whitespace-normal break-words">{children}</div>;
+}
+const isStructured = (v: unknown) => typeof v === 'object' && v !== null;
+/** A text as itself, a list of records as its points ("0 h 1 · 6 h 1 · 6 h 0", units from the setting's "h, -"), anything else as JSON. */
+function shown(v: unknown, unit: string): string {
+  if (typeof v === 'string') return v;
+  const units = unit.split(',').map((u) => u.trim());
+  if (Array.isArray(v) && v.every((p) => isStructured(p) && !Array.isArray(p))) {
+    // No-break spaces inside a point: a narrow column breaks the list between points only.
+    return v.map((p: Record<string, unknown>) => Object.values(p).map((x, i) => (units[i] && units[i] !== '-' ? `${String(x)}\u00a0${units[i]}` : String(x))).join('\u00a0')).join(' · ');
+  }
+  return JSON.stringify(v);
+}
+/** The unit after a scalar value (a list's units are inside its points). */
+const unitOf = (v: unknown, unit: string) => (isStructured(v) || unit === '-' ? '' : unit);
 const th = 'text-left font-semibold text-ink-2 px-1.5 py-1 border-b border-edge';
 
 /** The plant's settings with their defaults and where each default comes from; changing one needs the admin role (the server checks it too). */
@@ -45,18 +66,32 @@ export function SettingsPanel({ plantId, isAdmin }: { plantId: number; isAdmin: 
                 <div className="font-semibold">{s.key}</div>
                 <div className="text-ink-3">{s.doc}</div>
               </td>
-              <td className={`${td} text-right num whitespace-nowrap`}>
+              <td className={`${td} text-right num`}>
                 {isAdmin ? (
-                  <span className="inline-flex gap-1">
-                    <TextInput aria-label={s.key} className="w-28 num text-right" value={draft[s.key] ?? JSON.stringify(s.value)} onChange={(e) => setDraft((d) => ({ ...d, [s.key]: e.target.value }))} />
+                  <span className={`inline-flex gap-1 ${isStructured(s.value) ? 'flex-col items-end' : 'whitespace-nowrap'}`}>
+                    {isStructured(s.value) ? (
+                      <textarea
+                        aria-label={s.key}
+                        rows={3}
+                        className="w-56 px-2 py-1 border border-edge rounded-sm bg-white text-ink num text-left"
+                        value={draft[s.key] ?? JSON.stringify(s.value)}
+                        onChange={(e) => setDraft((d) => ({ ...d, [s.key]: e.target.value }))}
+                      />
+                    ) : (
+                      <TextInput aria-label={s.key} className="w-28 num text-right" value={draft[s.key] ?? JSON.stringify(s.value)} onChange={(e) => setDraft((d) => ({ ...d, [s.key]: e.target.value }))} />
+                    )}
                     {draft[s.key] !== undefined ? <Button onClick={() => save(s.key)}>Save</Button> : null}
+                    <span className="text-ink-3">{unitOf(s.value, s.unit)}</span>
                   </span>
                 ) : (
-                  JSON.stringify(s.value)
-                )}{' '}
-                <span className="text-ink-3">{s.unit === '-' ? '' : s.unit}</span>
+                  <Wrapped>
+                    {shown(s.value, s.unit)} <span className="text-ink-3">{unitOf(s.value, s.unit)}</span>
+                  </Wrapped>
+                )}
               </td>
-              <td className={`${td} text-right num`}>{JSON.stringify(s.default)}</td>
+              <td className={`${td} text-right num`}>
+                <Wrapped>{shown(s.default, s.unit)}</Wrapped>
+              </td>
               <td className={td}>{s.source}</td>
             </tr>
           ))}
