@@ -42,7 +42,7 @@ import { createUserService } from './services/user.service.ts';
 import { createOpcuaBrowseService } from './services/opcua-browse.service.ts';
 import { createWiringService } from './services/wiring.service.ts';
 import { replicationRepository } from './repositories/replication.repository.ts';
-import { createReadRouting, READ_FENCE_CHANNEL, readFence, type ReadSource } from './services/read-routing.service.ts';
+import { createReadRouting, databaseUnreachable, READ_FENCE_CHANNEL, readFence, REPLICA_RETRY_MS, type ReadSource } from './services/read-routing.service.ts';
 import type { Principal } from './auth/principal.ts';
 import type { AuditLog } from './services/audit.service.ts';
 
@@ -194,6 +194,21 @@ function compose(ctx: AppContext) {
     async pick(principal: Pick<Principal, 'userId'>): Promise<ReadServices & { source: ReadSource }> {
       if (!onReplica) return onPrimary;
       return (await routing.source(principal)) === 'replica' ? onReplica : onPrimary;
+    },
+    /**
+     * Runs one read on the services `pick` gives; a replica that cannot be reached is no failed
+     * answer: the read runs again on the primary (reads are side-effect free) and the routing
+     * keeps reads there for a while. Says which database answered.
+     */
+    async run<T>(principal: Pick<Principal, 'userId'>, read: (r: ReadServices) => Promise<T>): Promise<{ out: T; source: ReadSource }> {
+      const r = await reads.pick(principal);
+      try {
+        return { out: await read(r), source: r.source };
+      } catch (err) {
+        if (r.source !== 'replica' || !databaseUnreachable(err)) throw err;
+        if (routing.replicaFailed()) ctx.log.warn({ err: (err as Error).message }, `the read replica cannot be reached; reads go to the primary, the replica is tried again in ${REPLICA_RETRY_MS / 1000} s`);
+        return { out: await read(onPrimary), source: 'primary' };
+      }
     },
   };
   return { repos, services: { ...services, reads }, clock };

@@ -14,6 +14,9 @@ import { startHistoryJobs, type HistoryJobs } from './jobs/history-jobs.ts';
 import { createLogger } from './logger.ts';
 import { bootstrapUsers, type Credential } from './services/bootstrap.service.ts';
 
+/** Getting a read-replica connection longer than this fails, and the read goes to the primary [ms]. */
+const READ_REPLICA_CONNECT_TIMEOUT_MS = 5000;
+
 export interface RunningServer {
   url: string;
   ctx: AppContext;
@@ -44,7 +47,7 @@ export async function startServer(config: Config, opts: { log?: Logger; say?: (m
     if (urls.roles) await grantRuntimeRoles(urls.owner, urls.roles);
     const db = openDatabase(databaseUrl, { statementTimeout_ms: config.apiStatementTimeout_ms });
     // The read routes' streaming replica, when one is configured (server/services/read-routing.service.ts).
-    readDb = config.databaseReadUrl ? openDatabase(config.databaseReadUrl, { statementTimeout_ms: config.apiStatementTimeout_ms }) : undefined;
+    readDb = config.databaseReadUrl ? openDatabase(config.databaseReadUrl, { statementTimeout_ms: config.apiStatementTimeout_ms, connectTimeout_ms: READ_REPLICA_CONNECT_TIMEOUT_MS }) : undefined;
     const ctx: AppContext = { db, config, log, sessionKey: loadSessionKey(config.dataDir, config.sessionSecret), ...(readDb ? { readDb } : {}) };
     const credentials = await bootstrapUsers(ctx, config.demo);
     if (config.demo) rememberDemoCredentials(config.dataDir, credentials);

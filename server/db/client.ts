@@ -25,14 +25,17 @@ pg.types.setTypeParser(20, (v) => Number(v));
  * startup parameter, so it holds per connection from the first query): the API's pool gets
  * `config.apiStatementTimeout_ms`, so no request can hold a connection and the database for
  * longer; a cancelled statement fails with SQLSTATE 57014. Ingest and migrations open their own
- * connections and are not bounded by it.
+ * connections and are not bounded by it. `connectTimeout_ms` bounds getting a connection (the
+ * read replica's pool: an unreachable host fails fast and the read goes to the primary).
  */
-export function openDatabase(url: string, opts: { max?: number; statementTimeout_ms?: number } = {}): Database {
+export function openDatabase(url: string, opts: { max?: number; statementTimeout_ms?: number; connectTimeout_ms?: number } = {}): Database {
   const pool = new pg.Pool({
     connectionString: url,
     max: opts.max ?? 10,
     idleTimeoutMillis: 30_000,
     ...(opts.statementTimeout_ms ? { statement_timeout: opts.statementTimeout_ms } : {}),
+    // node-postgres counts the wait for a free pooled connection in this too.
+    ...(opts.connectTimeout_ms ? { connectionTimeoutMillis: opts.connectTimeout_ms } : {}),
   });
   // An idle client losing its connection (database restart) must not crash the process.
   pool.on('error', () => {});

@@ -32,10 +32,10 @@ export function labRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: labResultsResponse,
       handler: async ({ params, query, principal, req, res }) => {
-        // The replica when DATABASE_READ_URL is set, unless this caller's own entry may not be there yet.
-        const r = await reads.pick(principal);
-        res.setHeader(READ_SOURCE_HEADER, r.source);
-        const out = await r.lab.list(principal, params.plantId, query, query.limit ?? DEFAULT_LIMIT);
+        // The replica when DATABASE_READ_URL is set, unless this caller's own entry may not be there
+        // yet or the replica cannot be reached.
+        const { out, source } = await reads.run(principal, (r) => r.lab.list(principal, params.plantId, query, query.limit ?? DEFAULT_LIMIT));
+        res.setHeader(READ_SOURCE_HEADER, source);
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-lab-results.csv`, LAB_CSV_EXPORT_COLUMNS, labCsvRows(out.results));

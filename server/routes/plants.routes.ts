@@ -15,7 +15,7 @@ import {
   tagParams,
   tagsResponse,
 } from '../../shared/contracts/plant-api.ts';
-import { services, type AppContext } from '../app-context.ts';
+import { services, type AppContext, type ReadServices } from '../app-context.ts';
 import { sendCsv, setNextPage, wantsCsv } from '../http/csv.ts';
 import { defineRoute, type RouteDef, type RoutePrincipal } from '../http/route.ts';
 import { displayColumns, flattenRows, sampleCsv } from '../services/csv.service.ts';
@@ -40,13 +40,14 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
   const live = liveBalanceCache(ctx);
   const common = { role: 'analyst' as const, tag: 'plants' };
   /**
-   * The read services of one answer and the header saying which database they read: the read
-   * routing's pick (replica or primary) when `routed`, else the primary.
+   * One answer's read and the header saying which database gave it: the read routing's choice
+   * (replica or primary, the primary again when the replica cannot be reached) when `routed`,
+   * else the primary.
    */
-  const readVia = async (principal: RoutePrincipal, res: Response, routed: boolean) => {
-    const r = routed ? await reads.pick(principal) : reads.primary;
-    res.setHeader(READ_SOURCE_HEADER, r.source);
-    return r;
+  const readVia = async <T>(principal: RoutePrincipal, res: Response, routed: boolean, read: (r: ReadServices) => Promise<T>): Promise<T> => {
+    const { out, source } = routed ? await reads.run(principal, read) : { out: await read(reads.primary), source: reads.primary.source };
+    res.setHeader(READ_SOURCE_HEADER, source);
+    return out;
   };
   return [
     defineRoute({
@@ -58,7 +59,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: z.array(plantSummary),
       handler: async ({ principal, req, res }) => {
-        const list = await (await readVia(principal, res, wantsCsv(req))).plants.list(principal);
+        const list = await readVia(principal, res, wantsCsv(req), (r) => r.plants.list(principal));
         if (!wantsCsv(req)) return list;
         sendCsv(res, 'plants.csv', ['id', 'code', 'name', 'timezone', 'peakFlow_m3h', 'createdAt'], list.map((p) => [p.id, p.code, p.name, p.timezone, p.peakFlow_m3h, p.createdAt]));
       },
@@ -82,7 +83,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: tagsResponse,
       handler: async ({ params, principal, req, res }) => {
-        const out = await (await readVia(principal, res, wantsCsv(req))).plants.tags(principal, params.plantId);
+        const out = await readVia(principal, res, wantsCsv(req), (r) => r.plants.tags(principal, params.plantId));
         if (!wantsCsv(req)) return out;
         const cols = ['id', 'name', 'unit', 'value', 'ts', 'age_s', 'stale', 'quality', 'qualityCode', 'qualityFlags', 'sourceKind', 'sourceName', 'signals', 'expectedPeriod_s', 'enabled', 'description'];
         sendCsv(
@@ -107,13 +108,12 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: samplesResponse,
       handler: async ({ params: { plantId, tagId }, query, principal, req, res }) => {
-        const r = await readVia(principal, res, true);
-        const out = await r.series.samples(principal, plantId, tagId, query);
+        // The plant (its unit system, for CSV) comes from the same database as the samples.
+        const [out, plant] = await readVia(principal, res, true, async (r) => [await r.series.samples(principal, plantId, tagId, query), wantsCsv(req) ? await r.plantAccess.requirePlant(principal, plantId) : null] as const);
         setNextPage(req, res, out.nextCursor);
         res.setHeader('X-Resolution', out.resolution);
-        if (!wantsCsv(req)) return out;
+        if (!plant) return out;
         // CSV is for people: in the plant's unit system, the unit in the header (JSON stays SI).
-        const plant = await r.plantAccess.requirePlant(principal, plantId);
         const csv = sampleCsv(out.points, out.unit, plant.unitSystem);
         sendCsv(res, `tag-${tagId}-samples.csv`, csv.columns, csv.cells);
       },
@@ -146,11 +146,9 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: balanceHistoryResponse,
       handler: async ({ params, query: q, principal, req, res }) => {
-        const r = await readVia(principal, res, true);
-        const out = await r.plants.balanceHistory(principal, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT);
+        const [out, plant] = await readVia(principal, res, true, async (r) => [await r.plants.balanceHistory(principal, params.plantId, q, q.limit ?? DEFAULT_HISTORY_LIMIT), wantsCsv(req) ? await r.plantAccess.requirePlant(principal, params.plantId) : null] as const);
         setNextPage(req, res, out.nextCursor);
-        if (!wantsCsv(req)) return out;
-        const plant = await r.plantAccess.requirePlant(principal, params.plantId);
+        if (!plant) return out;
         const flat = displayColumns(flattenRows(out.rows), plant.unitSystem);
         sendCsv(res, `plant-${out.plantId}-balances.csv`, flat.columns, flat.cells);
       },
@@ -165,7 +163,7 @@ export function plantsRoutes(ctx: AppContext): RouteDef[] {
       csv: true,
       response: alarmsResponse,
       handler: async ({ params, query: q, principal, req, res }) => {
-        const out = await (await readVia(principal, res, wantsCsv(req))).plants.alarms(principal, params.plantId, q, q.limit ?? DEFAULT_LIST_LIMIT);
+        const out = await readVia(principal, res, wantsCsv(req), (r) => r.plants.alarms(principal, params.plantId, q, q.limit ?? DEFAULT_LIST_LIMIT));
         setNextPage(req, res, out.nextCursor);
         if (!wantsCsv(req)) return out;
         sendCsv(res, `plant-${out.plantId}-alarms.csv`, ALARM_CSV_COLUMNS, out.alarms.map((a) => ALARM_CSV_COLUMNS.map((c) => a[c])));

@@ -21,6 +21,26 @@ export function lsnValue(lsn: string): bigint {
 
 /** A fence is forgotten after this long even if the replica never showed it replayed [ms]. */
 export const FENCE_MAX_AGE_MS = 5 * 60_000;
+/** After the replica could not be reached, reads go to the primary for this long before it is tried again [ms]. */
+export const REPLICA_RETRY_MS = 15_000;
+
+/** Node's socket errors when a server cannot be reached or drops the connection. */
+const SOCKET_CODES = new Set(['ECONNREFUSED', 'ECONNRESET', 'ETIMEDOUT', 'EHOSTUNREACH', 'ENETUNREACH', 'EPIPE', 'ENOTFOUND', 'EAI_AGAIN']);
+/**
+ * True when an error says the database could not be reached or went away, not that the query
+ * was wrong: a socket error, SQLSTATE class 08 (connection exception), 57P01–57P03 (shut down,
+ * crashed, not accepting connections yet; PostgreSQL manual, Appendix A "Error Codes"), or
+ * node-postgres's own texts for a lost connection and a connect that timed out.
+ */
+export function databaseUnreachable(err: unknown): boolean {
+  // The driver's error may come wrapped (drizzle's query error keeps it as `cause`).
+  for (let e: unknown = err, depth = 0; e instanceof Error && depth < 5; e = e.cause, depth++) {
+    const code = (e as { code?: unknown }).code;
+    if (typeof code === 'string' && (SOCKET_CODES.has(code) || code.startsWith('08') || ['57P01', '57P02', '57P03'].includes(code))) return true;
+    if (/Connection terminated|timeout exceeded when trying to connect/i.test(e.message)) return true;
+  }
+  return false;
+}
 
 export interface ReadRoutingDeps {
   /** False when no DATABASE_READ_URL is set: everything reads the primary. */
@@ -49,11 +69,16 @@ export interface ReadRoutingDeps {
  *   (PostgreSQL manual, "Hot Standby" and the WAL position functions), then the user reads the
  *   replica again; fences are per user (sessions and tokens of one user share them) and are
  *   announced on NOTIFY to the other API processes. While this process does not hear those
- *   announcements every read goes to the primary, as the in-memory caches do.
+ *   announcements every read goes to the primary, as the in-memory caches do;
+ * - a replica that cannot be reached (down, restarting, network) costs no answer: the read is
+ *   run again on the primary and reads stay there for REPLICA_RETRY_MS before the replica is
+ *   tried again (`replicaFailed`, used by the composition's `reads.run`).
  */
 export function createReadRouting(deps: ReadRoutingDeps) {
   const fences = new Map<number, { lsn: bigint; text: string; at: number }>();
   const inFlight = new Map<number, number>();
+  /** Until when reads stay on the primary because the replica could not be reached (clock ms). */
+  let replicaDownUntil = 0;
 
   function remember(f: ReadFence): void {
     const v = lsnValue(f.lsn);
@@ -72,7 +97,7 @@ export function createReadRouting(deps: ReadRoutingDeps) {
 
     /** Which database this caller's read goes to now. */
     async source(principal: Pick<Principal, 'userId'>): Promise<ReadSource> {
-      if (!deps.hasReplica || !deps.listening()) return 'primary';
+      if (!deps.hasReplica || !deps.listening() || deps.clock() < replicaDownUntil) return 'primary';
       if ((inFlight.get(principal.userId) ?? 0) > 0) return 'primary';
       const f = fences.get(principal.userId);
       if (!f) return 'replica';
@@ -112,6 +137,13 @@ export function createReadRouting(deps: ReadRoutingDeps) {
 
     /** Another API process's announcement. */
     remember,
+
+    /** A read on the replica failed because it could not be reached: reads go to the primary for REPLICA_RETRY_MS. True when it was up until now. */
+    replicaFailed(): boolean {
+      const wasUp = deps.clock() >= replicaDownUntil;
+      replicaDownUntil = deps.clock() + REPLICA_RETRY_MS;
+      return wasUp;
+    },
   };
 }
 export type ReadRouting = ReturnType<typeof createReadRouting>;

@@ -219,4 +219,16 @@ describe('read routes on a streaming replica', () => {
     }
     expect(adminId).toBeGreaterThan(0);
   });
+
+  // Last: it stops the replica.
+  it('a replica that goes down costs no answer: the read routes answer from the primary and say so', async () => {
+    const tag = tagIds['AIT-111']!;
+    expect((await get('analyst', `/plants/${plantId}/lab-results`)).read).toBe('replica');
+    await standby.end();
+    replica.stop();
+    for (const url of [`/plants/${plantId}/tags/${tag}/samples`, `/plants/${plantId}/balance/history?format=csv`, `/plants/${plantId}/lab-results`, `/plants/${plantId}/tags?format=csv`]) {
+      const r = await get('analyst', url);
+      expect({ url, status: r.status, read: r.read }).toEqual({ url, status: 200, read: 'primary' });
+    }
+  });
 });

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { createReadRouting, FENCE_MAX_AGE_MS, lsnValue, type ReadFence, type ReadRoutingDeps } from '../../../server/services/read-routing.service.ts';
+import { createReadRouting, databaseUnreachable, FENCE_MAX_AGE_MS, lsnValue, REPLICA_RETRY_MS, type ReadFence, type ReadRoutingDeps } from '../../../server/services/read-routing.service.ts';
 
 /** A primary whose WAL position the test moves, a replica whose replay position it moves, an injected clock. */
 function fakes(over: Partial<ReadRoutingDeps> = {}) {
@@ -72,5 +72,25 @@ describe('read routing over a streaming replica', () => {
     expect(await routing.source({ userId: 5 })).toBe('primary');
     state.now += FENCE_MAX_AGE_MS + 1;
     expect(await routing.source({ userId: 5 })).toBe('replica');
+  });
+
+  it('a replica that could not be reached sends every read to the primary for REPLICA_RETRY_MS, then is tried again', async () => {
+    const { state, routing } = fakes();
+    expect(routing.replicaFailed()).toBe(true); // it was up: the caller logs once
+    expect(routing.replicaFailed()).toBe(false); // still down: no second log line
+    expect(await routing.source({ userId: 3 })).toBe('primary');
+    state.now += REPLICA_RETRY_MS - 1;
+    expect(await routing.source({ userId: 3 })).toBe('primary');
+    state.now += 1;
+    expect(await routing.source({ userId: 3 })).toBe('replica');
+  });
+
+  it('tells an unreachable database from a failed query (SQLSTATE classes, PostgreSQL manual Appendix A)', () => {
+    const withCode = (code: string, message = 'x') => Object.assign(new Error(message), { code });
+    for (const e of [withCode('ECONNREFUSED'), withCode('ECONNRESET'), withCode('08006'), withCode('08001'), withCode('57P01'), withCode('57P03'), new Error('Connection terminated unexpectedly'), new Error('timeout exceeded when trying to connect'), new Error('Failed query: select …', { cause: withCode('57P01') })]) {
+      expect(databaseUnreachable(e), e.message + ' ' + String((e as { code?: string }).code)).toBe(true);
+    }
+    // A query the replica refuses (a cancelled statement, a syntax error, a missing table) is the caller's answer, not a reason to switch.
+    for (const e of [withCode('57014'), withCode('42601'), withCode('42P01'), new Error('no plant 9'), 'text']) expect(databaseUnreachable(e)).toBe(false);
   });
 });
