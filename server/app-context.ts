@@ -41,6 +41,7 @@ import { createTokenService } from './services/token.service.ts';
 import { createUserService } from './services/user.service.ts';
 import { createOpcuaBrowseService } from './services/opcua-browse.service.ts';
 import { createWiringService } from './services/wiring.service.ts';
+import { createCursorCodec, type CursorCodec } from './http/csv.ts';
 import { replicationRepository } from './repositories/replication.repository.ts';
 import { createReadRouting, databaseUnreachable, READ_FENCE_CHANNEL, readFence, REPLICA_RETRY_MS, type ReadSource } from './services/read-routing.service.ts';
 import type { Principal } from './auth/principal.ts';
@@ -68,14 +69,14 @@ export const systemClock: Clock = () => Date.now();
  * The services behind the read routes (samples, balance history, lab results, CSV exports),
  * built on one database handle: the primary's, or the replica's. Only the handle differs.
  */
-function readServices(database: Database, clock: Clock, audit: AuditLog) {
+function readServices(database: Database, clock: Clock, audit: AuditLog, cursors: CursorCodec) {
   const plantRepo = plantRepository(database.db, database.pool);
   const plantAccess = createPlantAccess({ plantRepo });
   return {
     plantAccess,
-    plants: createPlantService({ plantRepo, plantAccess, clock }),
-    series: createSeriesService({ seriesRepo: seriesRepository(database.pool), plantRepo, plantAccess, clock }),
-    lab: createLabService({ labRepo: labRepository(database.db), plantAccess, audit }),
+    plants: createPlantService({ plantRepo, plantAccess, clock, cursors }),
+    series: createSeriesService({ seriesRepo: seriesRepository(database.pool), plantRepo, plantAccess, clock, cursors }),
+    lab: createLabService({ labRepo: labRepository(database.db), plantAccess, audit, cursors }),
   };
 }
 export type ReadServices = ReturnType<typeof readServices>;
@@ -109,6 +110,8 @@ function compose(ctx: AppContext) {
     history: historyRepository(ctx.db),
   };
   const audit = createAuditLog({ auditRepo: repos.audit });
+  // Paging cursors under a key derived from the session secret every API process shares.
+  const cursors = createCursorCodec(ctx.sessionKey);
   const plantAccess = createPlantAccess({ plantRepo: repos.plants });
   const credentialsChanged = (c: AuthChange) => credentialChanged(ctx, c);
   const services = {
@@ -138,9 +141,9 @@ function compose(ctx: AppContext) {
     plantConfig: createPlantConfigService({ modelRepo: repos.plantModel, clock }),
     ingestStatus: createIngestStatusService({ ingest: repos.ingest, wiring: repos.wiring, clock }),
     outbox: createOutboxService({ outbox: repos.outbox }),
-    plants: createPlantService({ plantRepo: repos.plants, plantAccess, clock }),
-    series: createSeriesService({ seriesRepo: repos.series, plantRepo: repos.plants, plantAccess, clock }),
-    lab: createLabService({ labRepo: repos.lab, plantAccess, audit }),
+    plants: createPlantService({ plantRepo: repos.plants, plantAccess, clock, cursors }),
+    series: createSeriesService({ seriesRepo: repos.series, plantRepo: repos.plants, plantAccess, clock, cursors }),
+    lab: createLabService({ labRepo: repos.lab, plantAccess, audit, cursors }),
     stream: createStreamService({ hub: streamHub(ctx), plantAccess }),
     alarms: createAlarmService({
       alarmRepo: repos.alarms,
@@ -185,7 +188,7 @@ function compose(ctx: AppContext) {
     else ctx.log.warn({ payload: payload.slice(0, 200) }, `${READ_FENCE_CHANNEL}: unreadable payload ignored`);
   });
   const onPrimary: ReadServices & { source: ReadSource } = { plantAccess, plants: services.plants, series: services.series, lab: services.lab, source: 'primary' };
-  const onReplica: typeof onPrimary | null = ctx.readDb ? { ...readServices(ctx.readDb, clock, audit), source: 'replica' } : null;
+  const onReplica: typeof onPrimary | null = ctx.readDb ? { ...readServices(ctx.readDb, clock, audit, cursors), source: 'replica' } : null;
   const reads = {
     routing,
     /** The primary's read services (what every route reads without a replica). */

@@ -16,10 +16,10 @@ import { toCsv, type CsvCell } from '../services/csv.service.ts';
  *   `X-Next-Cursor` for CSV callers that do not read Link headers. No header on the last page.
  * - A cursor is opaque to clients: base64url of a small JSON object that the route itself wrote
  *   (position plus whatever keeps the pages of one query consistent — the window, the step, the
- *   resolution), then `.` and an HMAC-SHA-256 tag of it (RFC 2104) under a key this process draws
- *   at start. The cursor's fields choose how much a page reads, so a client must not be able to
- *   write them: one that was not written by this process (altered, forged, or from before a
- *   restart), longer than 1 KiB, that does not decode, or belongs to another route is a 400.
+ *   resolution), then `.` and an HMAC-SHA-256 tag of it (RFC 2104) under the deployment's cursor
+ *   key (createCursorCodec). The cursor's fields choose how much a page reads, so a client must
+ *   not be able to write them: one that was not written under that key (altered, forged),
+ *   longer than 1 KiB, that does not decode, or belongs to another route is a 400.
  */
 
 export function wantsCsv(req: Request): boolean {
@@ -37,35 +37,45 @@ export function sendCsv(res: Response, filename: string, columns: readonly strin
   res.send(toCsv(columns, rows));
 }
 
-const CURSOR_KEY = randomBytes(32);
 const MAX_CURSOR_CHARS = 1024;
-const tagOf = (body: string): Buffer => createHmac('sha256', CURSOR_KEY).update(body).digest().subarray(0, 16);
 
-export function encodeCursor(kind: string, payload: Record<string, string | number | null>): string {
-  const body = Buffer.from(JSON.stringify({ k: kind, ...payload }), 'utf8').toString('base64url');
-  return `${body}.${tagOf(body).toString('base64url')}`;
+/**
+ * The paging cursors of one deployment: signed under a key derived from the session secret
+ * (HMAC-SHA-256 of a fixed label, RFC 2104), which every API process of the deployment shares
+ * (FLOCSTREAM_SESSION_SECRET, or the data folder's session-secret file), so a page written by
+ * one process, or before a restart, is read by any other. Without a secret (tests): a random key.
+ */
+export function createCursorCodec(secret: Uint8Array = randomBytes(32)) {
+  const key = createHmac('sha256', secret).update('flocstream paging cursor v1').digest();
+  const tagOf = (body: string): Buffer => createHmac('sha256', key).update(body).digest().subarray(0, 16);
+  return {
+    encode(kind: string, payload: Record<string, string | number | null>): string {
+      const body = Buffer.from(JSON.stringify({ k: kind, ...payload }), 'utf8').toString('base64url');
+      return `${body}.${tagOf(body).toString('base64url')}`;
+    },
+    /** Decodes a cursor written by `encode(kind, …)` under the same secret; 400 for anything else. */
+    decode<T extends Record<string, unknown>>(kind: string, cursor: string, check: (o: Record<string, unknown>) => o is T): T {
+      const notOurs = () => new BadRequestError('the cursor is not one this API wrote (or its session secret changed since); pass nextCursor unchanged or start the query again');
+      if (cursor.length > MAX_CURSOR_CHARS) throw notOurs();
+      const [body, tag, ...rest] = cursor.split('.');
+      if (!body || !tag || rest.length) throw notOurs();
+      const given = Buffer.from(tag, 'base64url');
+      const expected = tagOf(body);
+      if (given.length !== expected.length || !timingSafeEqual(given, expected)) throw notOurs();
+      let o: unknown;
+      try {
+        o = JSON.parse(Buffer.from(body, 'base64url').toString('utf8'));
+      } catch {
+        throw notOurs();
+      }
+      if (!o || typeof o !== 'object' || (o as { k?: unknown }).k !== kind || !check(o as Record<string, unknown>)) {
+        throw new BadRequestError('the cursor does not belong to this route; pass nextCursor unchanged');
+      }
+      return o as T;
+    },
+  };
 }
-
-/** Decodes a cursor written by `encodeCursor(kind, …)` in this process; 400 for anything else. */
-export function decodeCursor<T extends Record<string, unknown>>(kind: string, cursor: string, check: (o: Record<string, unknown>) => o is T): T {
-  const notOurs = () => new BadRequestError('the cursor is not one this API wrote (or the server restarted since); pass nextCursor unchanged or start the query again');
-  if (cursor.length > MAX_CURSOR_CHARS) throw notOurs();
-  const [body, tag, ...rest] = cursor.split('.');
-  if (!body || !tag || rest.length) throw notOurs();
-  const given = Buffer.from(tag, 'base64url');
-  const expected = tagOf(body);
-  if (given.length !== expected.length || !timingSafeEqual(given, expected)) throw notOurs();
-  let o: unknown;
-  try {
-    o = JSON.parse(Buffer.from(body, 'base64url').toString('utf8'));
-  } catch {
-    throw notOurs();
-  }
-  if (!o || typeof o !== 'object' || (o as { k?: unknown }).k !== kind || !check(o as Record<string, unknown>)) {
-    throw new BadRequestError('the cursor does not belong to this route; pass nextCursor unchanged');
-  }
-  return o as T;
-}
+export type CursorCodec = ReturnType<typeof createCursorCodec>;
 
 /** `Link: <same path and query, cursor=next>; rel="next"` (and X-Next-Cursor) when there is a next page. */
 export function setNextPage(req: Request, res: Response, next: string | null): void {

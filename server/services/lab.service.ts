@@ -10,7 +10,7 @@ import {
 } from '../../shared/contracts/lab.ts';
 import { settleabilityIndex } from '../../shared/domain/settleability.ts';
 import type { Principal } from '../auth/principal.ts';
-import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
+import { isNum, isStr, type CursorCodec } from '../http/csv.ts';
 import { BadRequestError, UnsupportedMediaTypeError, ValidationError } from '../http/errors.ts';
 import { zodFields } from '../http/validate.ts';
 import type { LabRepository, LabRow, NewLabRow } from '../repositories/lab.repository.ts';
@@ -68,9 +68,11 @@ export interface LabServiceDeps {
   labRepo: Pick<LabRepository, 'locationCodes' | 'insertAll' | 'list'>;
   plantAccess: PlantAccess;
   audit: AuditLog;
+  /** The deployment's paging cursors (server/http/csv.ts). */
+  cursors: CursorCodec;
 }
 
-export function createLabService({ labRepo: repo, plantAccess, audit }: LabServiceDeps) {
+export function createLabService({ labRepo: repo, plantAccess, audit, cursors }: LabServiceDeps) {
 
   function checkLocations(inputs: Array<{ key: string; input: LabResultInput }>, codes: Set<string>, fields: Record<string, string[]>) {
     for (const { key, input } of inputs) {
@@ -135,13 +137,13 @@ export function createLabService({ labRepo: repo, plantAccess, audit }: LabServi
 
     async list(principal: Principal, plantId: number, q: LabResultsQuery, limit: number) {
       await plantAccess.requirePlant(principal, plantId);
-      const before = q.cursor ? decodeCursor('lab', q.cursor, isLabCursor) : undefined;
+      const before = q.cursor ? cursors.decode('lab', q.cursor, isLabCursor) : undefined;
       if (before && before.p !== plantId) throw new BadRequestError('the cursor belongs to another plant');
       const rows = await repo.list(plantId, { kind: q.kind, location: q.location, from: q.from ? new Date(q.from) : undefined, to: q.to ? new Date(q.to) : undefined, before }, limit + 1);
       const more = rows.length > limit;
       const page = more ? rows.slice(0, limit) : rows;
       const last = page[page.length - 1];
-      return { plantId, results: page.map(labOut), nextCursor: more && last ? encodeCursor('lab', { p: plantId, ts: last.cursorTs, id: last.id }) : null };
+      return { plantId, results: page.map(labOut), nextCursor: more && last ? cursors.encode('lab', { p: plantId, ts: last.cursorTs, id: last.id }) : null };
     },
   };
 }

@@ -12,7 +12,7 @@ import { MAX_POINTS } from '../../shared/contracts/plant-api.ts';
 import { qualityFlags, qualityGrade } from '../../shared/contracts/sample-quality.ts';
 import type { Clock } from '../app-context.ts';
 import type { Principal } from '../auth/principal.ts';
-import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
+import { isNum, isStr, type CursorCodec } from '../http/csv.ts';
 import { BadRequestError, ForbiddenError, NotFoundError } from '../http/errors.ts';
 import type { AlarmRow, BalanceRow, PlantRepository, PlantRow } from '../repositories/plant.repository.ts';
 
@@ -79,10 +79,12 @@ export interface PlantServiceDeps {
   plantRepo: Pick<PlantRepository, 'list' | 'layout' | 'liveTags' | 'latestBalance' | 'balanceBuckets' | 'alarms'>;
   plantAccess: PlantAccess;
   clock: Clock;
+  /** The deployment's paging cursors (server/http/csv.ts). */
+  cursors: CursorCodec;
 }
 
 /** Plants, layout, live tags, balances, alarms. Every plant read goes through `requirePlant`. */
-export function createPlantService({ plantRepo: repo, plantAccess, clock }: PlantServiceDeps) {
+export function createPlantService({ plantRepo: repo, plantAccess, clock, cursors }: PlantServiceDeps) {
   const requirePlant = plantAccess.requirePlant;
   return {
     async list(principal: Principal): Promise<PlantSummary[]> {
@@ -157,7 +159,7 @@ export function createPlantService({ plantRepo: repo, plantAccess, clock }: Plan
       await requirePlant(principal, plantId);
       let from: number, to: number, step_s: number, after: number | null;
       if (q.cursor) {
-        const c = decodeCursor('balance-history', q.cursor, isBalanceCursor);
+        const c = cursors.decode('balance-history', q.cursor, isBalanceCursor);
         if (c.p !== plantId) throw new BadRequestError('the cursor belongs to another plant');
         if ((q.from && Date.parse(q.from) !== c.f) || (q.to && Date.parse(q.to) !== c.t)) throw new BadRequestError('from and to must be those of the query the cursor came from (or be left out)');
         ({ f: from, t: to, s: step_s, a: after } = c);
@@ -183,19 +185,19 @@ export function createPlantService({ plantRepo: repo, plantAccess, clock }: Plan
         data: r.data,
       }));
       const last = page[page.length - 1];
-      const nextCursor = more && last ? encodeCursor('balance-history', { p: plantId, f: from, t: to, s: step_s, a: last.bucket.getTime() + stepMs }) : null;
+      const nextCursor = more && last ? cursors.encode('balance-history', { p: plantId, f: from, t: to, s: step_s, a: last.bucket.getTime() + stepMs }) : null;
       return { plantId, from: new Date(lo).toISOString(), to: new Date(hi).toISOString(), step_s, rows: out, nextCursor };
     },
 
     async alarms(principal: Principal, plantId: number, q: AlarmsQuery, limit: number) {
       await requirePlant(principal, plantId);
-      const before = q.cursor ? decodeCursor('alarms', q.cursor, isTsIdCursor) : undefined;
+      const before = q.cursor ? cursors.decode('alarms', q.cursor, isTsIdCursor) : undefined;
       if (before && before.p !== plantId) throw new BadRequestError('the cursor belongs to another plant');
       const rows = await repo.alarms(plantId, { state: q.state, from: q.from ? new Date(q.from) : undefined, to: q.to ? new Date(q.to) : undefined, before }, limit + 1);
       const more = rows.length > limit;
       const page = more ? rows.slice(0, limit) : rows;
       const last = page[page.length - 1];
-      return { plantId, alarms: page.map(alarmOut), nextCursor: more && last ? encodeCursor('alarms', { p: plantId, ts: last.cursorTs, id: last.id }) : null };
+      return { plantId, alarms: page.map(alarmOut), nextCursor: more && last ? cursors.encode('alarms', { p: plantId, ts: last.cursorTs, id: last.id }) : null };
     },
   };
 }

@@ -3,7 +3,7 @@ import { qualityFlags, qualityGrade } from '../../shared/contracts/sample-qualit
 import type { Clock } from '../app-context.ts';
 import type { Principal } from '../auth/principal.ts';
 import { BadRequestError, NotFoundError } from '../http/errors.ts';
-import { decodeCursor, encodeCursor, isNum, isStr } from '../http/csv.ts';
+import { isNum, isStr, type CursorCodec } from '../http/csv.ts';
 import type { PlantRepository } from '../repositories/plant.repository.ts';
 import type { RawRow, SeriesRepository } from '../repositories/series.repository.ts';
 import type { PlantAccess } from './plant.service.ts';
@@ -106,6 +106,8 @@ export interface SeriesServiceDeps {
   plantRepo: Pick<PlantRepository, 'tag'>;
   plantAccess: PlantAccess;
   clock: Clock;
+  /** The deployment's paging cursors (server/http/csv.ts). */
+  cursors: CursorCodec;
 }
 
 /**
@@ -113,7 +115,7 @@ export interface SeriesServiceDeps {
  * A cursor carries the window, resolution and step of the first page, so every page of one
  * query is cut the same way; query parameters given beside a cursor must agree with it.
  */
-export function createSeriesService({ seriesRepo: series, plantRepo: plants, plantAccess, clock }: SeriesServiceDeps) {
+export function createSeriesService({ seriesRepo: series, plantRepo: plants, plantAccess, clock, cursors }: SeriesServiceDeps) {
   return {
     async samples(principal: Principal, plantId: number, tagId: number, q: SamplesQuery): Promise<SamplesResponse> {
       await plantAccess.requirePlant(principal, plantId);
@@ -124,7 +126,7 @@ export function createSeriesService({ seriesRepo: series, plantRepo: plants, pla
 
       let from: number, to: number, choice: ResolutionChoice, requestedStep: number | null, after: number | null;
       if (q.cursor) {
-        const c = decodeCursor('samples', q.cursor, isSamplesCursor);
+        const c = cursors.decode('samples', q.cursor, isSamplesCursor);
         if (c.tag !== tagId) throw new BadRequestError('the cursor belongs to another tag');
         if ((q.from && Date.parse(q.from) !== c.f) || (q.to && Date.parse(q.to) !== c.t) || (q.step !== undefined && q.step !== c.rs) || (q.agg && q.agg !== c.a)) {
           throw new BadRequestError('from, to, step and agg must be those of the query the cursor came from (or be left out)');
@@ -145,7 +147,7 @@ export function createSeriesService({ seriesRepo: series, plantRepo: plants, pla
   /** One page of a query whose window and resolution are settled; `after` = position after the previous page (ms). */
   async function readPage(tagId: number, unit: string, from: number, to: number, choice: ResolutionChoice, requestedStep: number | null, agg: Agg, limit: number, after: number | null): Promise<SamplesResponse> {
     const base = { tagId, unit, resolution: choice.resolution, step_s: choice.step_s, agg };
-    const cursorOf = (p: number) => encodeCursor('samples', { tag: tagId, f: from, t: to, r: choice.resolution, s: choice.step_s, rs: requestedStep, a: agg, p });
+    const cursorOf = (p: number) => cursors.encode('samples', { tag: tagId, f: from, t: to, r: choice.resolution, s: choice.step_s, rs: requestedStep, a: agg, p });
     if (choice.step_s === null) {
       // Raw samples: [from, to), a next page strictly after the last timestamp sent.
       const rows: RawRow[] = await series.raw(tagId, new Date(after ?? from), new Date(to), limit + 1, after !== null);

@@ -4,6 +4,7 @@ import express from 'express';
 import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { alarmsResponse, balanceHistoryResponse, balanceLiveResponse, plantLayoutOut, samplesResponse, tagsResponse, type SamplePoint } from '../../shared/contracts/plant-api.ts';
+import { createApp } from '../../server/app.ts';
 import { errorMiddleware } from '../../server/http/error-middleware.ts';
 import { rateLimit } from '../../server/http/rate-limit.ts';
 import { parseCsv } from '../../server/services/csv.service.ts';
@@ -350,6 +351,13 @@ describe('read API', () => {
     const p2 = await agent.get(`/api/v1/plants/${f.a}/alarms`).query({ limit: 2, cursor: p1.body.nextCursor });
     expect(p2.body.alarms.map((a: { rule: string }) => a.rule)).toEqual(['mlss-low']);
     expect(p2.body.nextCursor).toBeNull();
+    // Another API process of the same deployment (same session secret, a composition of its own)
+    // reads the first one's cursor: a load balancer may send the next page anywhere.
+    const other = request.agent(createApp({ ...h.ctx }, { serveMonitor: false })).set('Sec-Fetch-Site', 'same-origin');
+    await other.post('/api/v1/auth/login').send({ email: h.users.analyst.email, password: h.users.analyst.password }).expect(200);
+    const p2b = await other.get(`/api/v1/plants/${f.a}/alarms`).query({ limit: 2, cursor: p1.body.nextCursor });
+    expect(p2b.status).toBe(200);
+    expect(p2b.body.alarms.map((a: { rule: string }) => a.rule)).toEqual(['mlss-low']);
     const csv = await agent.get(`/api/v1/plants/${f.a}/alarms`).set('Accept', 'text/csv');
     expect(csv.text).toContain('"Blanket 1.8 m, ""high"", rising"');
     const { header, rows } = csvRows(csv.text);

@@ -2,6 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { ForbiddenError, NotFoundError, UnsupportedMediaTypeError, ValidationError } from '../../../server/http/errors.ts';
 import type { LabRow, NewLabRow } from '../../../server/repositories/lab.repository.ts';
 import { createLabService } from '../../../server/services/lab.service.ts';
+import { createCursorCodec } from '../../../server/http/csv.ts';
 import { fakeAudit, fakePlantAccess, operator, scopedToken } from './service-fakes.ts';
 
 /** A lab repository in memory: the basin and clarifier codes of plant 1, rows appended on insert. */
@@ -43,7 +44,7 @@ function fakeLabRepo(codes: string[]) {
 function setup() {
   const labRepo = fakeLabRepo(['ab1', 'fc1']);
   const audit = fakeAudit();
-  const svc = createLabService({ labRepo, plantAccess: fakePlantAccess([1]), audit });
+  const svc = createLabService({ labRepo, plantAccess: fakePlantAccess([1]), audit, cursors: createCursorCodec() });
   return { labRepo, audit, svc };
 }
 
