@@ -1,15 +1,11 @@
-import { spawn, type ChildProcess } from 'node:child_process';
 import { randomBytes } from 'node:crypto';
-import fs from 'node:fs';
-import os from 'node:os';
-import path from 'node:path';
 import pino from 'pino';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { AppContext } from '../../server/app-context.ts';
 import { loadConfig } from '../../server/config.ts';
 import { openDatabase } from '../../server/db/client.ts';
+import { startApiProcess, stopApiProcess, type ApiProcess } from '../helpers/api-process.ts';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
-import { root } from '../helpers/launcher.ts';
 import { seedFixturePlant } from './balance-fixture.ts';
 
 /**
@@ -25,52 +21,32 @@ import { seedFixturePlant } from './balance-fixture.ts';
 describe('bounded work: the API stays responsive while the worst inputs run', () => {
   let t: TestDatabase;
   let ctx: AppContext;
-  let child: ChildProcess;
+  let api: ApiProcess;
   let base: string;
   let cookie: string;
-  let dataDir: string;
   beforeAll(async () => {
     t = await createTestDatabase();
-    dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-bounded-'));
     const password = `pw-${randomBytes(8).toString('hex')}`;
-    const env = {
-      ...process.env,
-      FLOCSTREAM_DATA_DIR: dataDir,
+    api = await startApiProcess({
       DATABASE_URL: t.url,
-      FLOCSTREAM_DEMO: '0',
       FLOCSTREAM_ADMIN_EMAIL: 'chief@test.invalid',
       FLOCSTREAM_ADMIN_PASSWORD: password,
-      LOG_LEVEL: 'silent',
       // One worker, a queue of 8, a 1 s solver budget: four settler requests take about 4 s in turn.
       FLOCSTREAM_CALC_WORKERS: '1',
       FLOCSTREAM_CALC_QUEUE: '8',
       FLOCSTREAM_CALC_BUDGET_MS: '1000',
-    };
-    child = spawn(process.execPath, ['--import', 'tsx', 'tests/helpers/api-child.ts'], { cwd: root, env, stdio: ['ignore', 'pipe', 'inherit'] });
-    base = await new Promise<string>((resolve, reject) => {
-      let out = '';
-      child.stdout!.on('data', (d: Buffer) => {
-        out += d.toString();
-        const m = /listening (\S+)/.exec(out);
-        if (m) resolve(m[1]!);
-      });
-      child.once('exit', (code) => reject(new Error(`the API process exited with ${code} before listening`)));
     });
-    const config = loadConfig({ FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '0' });
+    base = api.url;
+    const config = loadConfig({ FLOCSTREAM_DATA_DIR: api.dataDir, DATABASE_URL: t.url, FLOCSTREAM_DEMO: '0' });
     ctx = { db: openDatabase(t.url), config, log: pino({ level: 'silent' }), sessionKey: randomBytes(32) };
     const login = await fetch(`${base}/api/v1/auth/login`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email: 'chief@test.invalid', password }) });
     expect(login.status).toBe(200);
     cookie = login.headers.getSetCookie()[0]!.split(';')[0]!;
   }, 60_000);
   afterAll(async () => {
-    if (child && child.exitCode === null) {
-      const exited = new Promise((r) => child.once('exit', r));
-      child.kill('SIGTERM');
-      await exited;
-    }
     await ctx?.db.close();
+    await stopApiProcess(api);
     await t?.drop();
-    fs.rmSync(dataDir, { recursive: true, force: true });
   });
 
   it('/api/health answers every probe within 200 ms while settlers, a 25-year history and a 40 000-column CSV run', async () => {

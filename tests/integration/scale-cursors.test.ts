@@ -1,53 +1,15 @@
-import { spawn, type ChildProcess } from 'node:child_process';
 import { randomBytes } from 'node:crypto';
-import fs from 'node:fs';
-import os from 'node:os';
-import path from 'node:path';
-import { fileURLToPath } from 'node:url';
 import pino from 'pino';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { AppContext } from '../../server/app-context.ts';
 import { loadConfig } from '../../server/config.ts';
 import { openDatabase } from '../../server/db/client.ts';
+import { startApiProcess, stopApiProcess, type ApiProcess } from '../helpers/api-process.ts';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 import { seedFixturePlant } from './balance-fixture.ts';
 
-const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../..');
 const SECRET = randomBytes(32).toString('base64url');
 const ADMIN = { email: 'chief@scale.invalid', password: `pw-${randomBytes(8).toString('hex')}` };
-
-interface ApiProcess {
-  child: ChildProcess;
-  url: string;
-  dataDir: string;
-}
-
-/** One API process as `npm start` runs it (no jobs), with the deployment's shared session secret and a data folder of its own. */
-async function startApi(dbUrl: string): Promise<ApiProcess> {
-  const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-cursor-'));
-  const env = { ...process.env, FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: dbUrl, FLOCSTREAM_DEMO: '0', LOG_LEVEL: 'silent', FLOCSTREAM_SESSION_SECRET: SECRET, FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password };
-  const child = spawn(process.execPath, ['--import', 'tsx', 'tests/helpers/api-child.ts'], { cwd: root, env, stdio: ['ignore', 'pipe', 'inherit'] });
-  const url = await new Promise<string>((resolve, reject) => {
-    let out = '';
-    child.stdout!.on('data', (d: Buffer) => {
-      out += d.toString();
-      const m = /listening (\S+)/.exec(out);
-      if (m) resolve(m[1]!);
-    });
-    child.once('exit', (code) => reject(new Error(`an API process exited with ${code} before listening`)));
-  });
-  return { child, url, dataDir };
-}
-
-async function stopApi(p: ApiProcess | undefined): Promise<void> {
-  if (!p) return;
-  if (p.child.exitCode === null && p.child.signalCode === null) {
-    const exited = new Promise((r) => p.child.once('exit', r));
-    p.child.kill('SIGTERM');
-    await exited;
-  }
-  fs.rmSync(p.dataDir, { recursive: true, force: true });
-}
 
 /**
  * Several API processes behind one load balancer (the README's scale-out guide): a session
@@ -69,11 +31,12 @@ describe('paging across two API processes', () => {
       [plantId],
     );
     // One after the other: the first start creates the admin, the second finds it.
-    a = await startApi(t.url);
-    b = await startApi(t.url);
+    const env = { DATABASE_URL: t.url, FLOCSTREAM_SESSION_SECRET: SECRET, FLOCSTREAM_ADMIN_EMAIL: ADMIN.email, FLOCSTREAM_ADMIN_PASSWORD: ADMIN.password };
+    a = await startApiProcess(env);
+    b = await startApiProcess(env);
   }, 120_000);
   afterAll(async () => {
-    await Promise.all([stopApi(a), stopApi(b)]);
+    await Promise.all([stopApiProcess(a), stopApiProcess(b)]);
     await ctx?.db.close();
     await t?.drop();
   });

@@ -1,9 +1,4 @@
-import { spawn, type ChildProcess } from 'node:child_process';
 import { randomBytes } from 'node:crypto';
-import fs from 'node:fs';
-import os from 'node:os';
-import path from 'node:path';
-import { fileURLToPath } from 'node:url';
 import { Queue, createPostgresBackend } from 'bullmq';
 import pino from 'pino';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -12,44 +7,13 @@ import { loadConfig } from '../../server/config.ts';
 import { openDatabase } from '../../server/db/client.ts';
 import { BALANCE_QUEUE } from '../../server/jobs/balance-engine.ts';
 import { HISTORY_QUEUE } from '../../server/jobs/history-jobs.ts';
+import { startApiProcess, stopApiProcess, type ApiProcess } from '../helpers/api-process.ts';
 import { createTestDatabase, type TestDatabase } from '../helpers/db.ts';
 import { waitFor } from '../helpers/wait.ts';
 import { seedFixturePlant, writeSignals } from './balance-fixture.ts';
 
-const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../..');
 /** The plants' balance interval for this test [s] (a per-plant setting; the default is 10 s). */
 const INTERVAL_S = 2;
-
-interface ApiProcess {
-  child: ChildProcess;
-  dataDir: string;
-}
-
-/** One API process as `npm start` runs it (balance engine and history worker included), on the test's database. */
-async function startApi(url: string): Promise<ApiProcess> {
-  const dataDir = fs.mkdtempSync(path.join(os.tmpdir(), 'flocstream-scale-'));
-  const env = { ...process.env, FLOCSTREAM_DATA_DIR: dataDir, DATABASE_URL: url, FLOCSTREAM_DEMO: '0', LOG_LEVEL: 'silent' };
-  const child = spawn(process.execPath, ['--import', 'tsx', 'tests/helpers/api-child.ts', '--jobs'], { cwd: root, env, stdio: ['ignore', 'pipe', 'inherit'] });
-  await new Promise<void>((resolve, reject) => {
-    let out = '';
-    child.stdout!.on('data', (d: Buffer) => {
-      out += d.toString();
-      if (/listening \S+/.test(out)) resolve();
-    });
-    child.once('exit', (code) => reject(new Error(`an API process exited with ${code} before listening`)));
-  });
-  return { child, dataDir };
-}
-
-async function stopApi(p: ApiProcess | undefined): Promise<void> {
-  if (!p) return;
-  if (p.child.exitCode === null && p.child.signalCode === null) {
-    const exited = new Promise((r) => p.child.once('exit', r));
-    p.child.kill('SIGTERM');
-    await exited;
-  }
-  fs.rmSync(p.dataDir, { recursive: true, force: true });
-}
 
 /**
  * Issue 18 item 4: the balance engine and the history jobs on two real API processes against
@@ -75,10 +39,10 @@ describe('jobs on two API processes', () => {
       await ctx.db.pool.query(`INSERT INTO settings (plant_id, key, value) VALUES ($1, 'balance.interval_s', $2)`, [plantId, JSON.stringify(INTERVAL_S)]);
       plants.push(plantId);
     }
-    [a, b] = await Promise.all([startApi(t.url), startApi(t.url)]);
+    [a, b] = await Promise.all([startApiProcess({ DATABASE_URL: t.url }, { jobs: true }), startApiProcess({ DATABASE_URL: t.url }, { jobs: true })]);
   }, 120_000);
   afterAll(async () => {
-    await Promise.all([stopApi(a), stopApi(b)]);
+    await Promise.all([stopApiProcess(a), stopApiProcess(b)]);
     await ctx?.db.close();
     await t?.drop();
   });
@@ -113,7 +77,7 @@ describe('jobs on two API processes', () => {
     } finally {
       await queue.close();
     }
-    await Promise.all([stopApi(a), stopApi(b)]);
+    await Promise.all([stopApiProcess(a), stopApiProcess(b)]);
     a = b = undefined;
 
     // Exactly one live balance per plant and interval (intervals on the Unix epoch, as claimed).
@@ -136,8 +100,8 @@ describe('jobs on two API processes', () => {
   }, 240_000);
 
   it('a history job delivered twice runs once', async () => {
-    a = await startApi(t.url);
-    b = await startApi(t.url);
+    a = await startApiProcess({ DATABASE_URL: t.url }, { jobs: true });
+    b = await startApiProcess({ DATABASE_URL: t.url }, { jobs: true });
     const plantId = plants[0]!;
     const now = Date.now();
     const row = await ctx.db.pool.query<{ id: number }>(`INSERT INTO history_jobs (plant_id, kind, options) VALUES ($1, 'recompute', $2) RETURNING id`, [
