@@ -12,8 +12,8 @@ const TRUTH = { v0_mh: 6, k_Lg: 0.5 };
  * v0 = 6 m/h, k = 0.5 L/g at the limiting flux, Keinath et al. 1977; operating-series.ts) from
  * `from_ms` on, and counts what the service asks of it.
  */
-function fakeRepo(from_ms: number, to_ms: number) {
-  const mins = operatingMinutes(TRUTH, from_ms, (to_ms - from_ms) / H);
+function fakeRepo(from_ms: number, to_ms: number, noise?: { sd: number; seed: number }) {
+  const mins = operatingMinutes(TRUTH, from_ms, (to_ms - from_ms) / H, noise);
   const calls: Array<{ tagIds: number[]; from: number; to: number }> = [];
   return {
     calls,
@@ -68,6 +68,17 @@ describe('operating settling service: reads each hour once, the window back one 
     expect(calls.slice(3).map((c) => [c.from, c.to])).toEqual([[end, end + H - 1]]);
     expect(next.n).toBe(120);
     expect([next.from_ms, next.to_ms]).toEqual([end - 118 * H, end + H]);
+  });
+
+  it('seed 16, 3 % log-normal noise on the underflow TSS over 5 days (120 hours): v0 and k within two of their stated standard errors, and these not vacuous', async () => {
+    const { repo } = fakeRepo(end - 6 * 24 * H, end, { sd: 0.03, seed: 16 });
+    const svc = createOperatingSettlingService({ balanceRepo: repo, chunk_h: 5 * 24 });
+    const f = (await svc.fit(inp, clock, 5)).fit.value!;
+    expect(Math.abs(f.k_Lg - TRUTH.k_Lg)).toBeLessThanOrEqual(2 * f.kStdErr_Lg!);
+    expect(Math.abs(Math.log(f.v0_mh / TRUTH.v0_mh))).toBeLessThanOrEqual(2 * f.lnV0StdErr!);
+    expect(f.kStdErr_Lg!).toBeGreaterThan(0);
+    expect(f.kStdErr_Lg!).toBeLessThan(0.05);
+    expect(f.lnV0StdErr!).toBeLessThan(0.3);
   });
 
   it('a changed tag mapping or a plant clock that went back starts afresh', async () => {
