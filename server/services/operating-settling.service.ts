@@ -5,6 +5,8 @@ import type { BlanketReading, OperatingSettlingFit } from '../../shared/domain/s
 
 const H = 3_600_000;
 const D = 86_400_000;
+/** A fit tag further behind the plant clock than this is not waited for [ms]. */
+const LAG_MAX_MS = 2 * H;
 
 /** The signals the operating fit reads (shared/domain/balance/operating-settling.ts). */
 const FIT_SIGNALS = new Set(['clarifier.blanketLevel', 'clarifier.underflowTss', 'pump.flow']);
@@ -34,14 +36,13 @@ export type OperatingSettlingService = ReturnType<typeof createOperatingSettling
  * The Vesilind fit to each plant's stable-blanket hours for the balance engine, kept between
  * balances so that a balance every few seconds costs no query and no fit: it reads the minute
  * rollups of the fit's tags only for hours it has not read yet — each new complete hour before
- * the plant clock as it arrives, and the history of the window (setting
+ * the plant clock once every fit tag has passed it, and the history of the window (setting
  * settling.operating_window_d) back one chunk per call until it is covered — turns them into
  * stable-blanket periods and fits again only when those changed (plantBlanketReadings,
  * plantOperatingFit in shared/domain). A changed layout or tag mapping, a plant clock that went
  * back, or a jump forward by more than a chunk (a catch-up after a pause) starts afresh. One
  * cache per engine process; an hour read before all its data had arrived is not read again
- * until it starts afresh (data reach the rollups in time order, so the plant clock, the newest
- * sample, passes an hour only after it).
+ * until it starts afresh (each tag's data reach the rollups in time order).
  */
 export function createOperatingSettlingService({ balanceRepo, chunk_h = 48 }: OperatingSettlingServiceDeps) {
   const cache = new Map<number, PlantCache>();
@@ -49,9 +50,14 @@ export function createOperatingSettlingService({ balanceRepo, chunk_h = 48 }: Op
   return {
     async fit(inp: Pick<BalanceEngineInputs, 'layout' | 'readings'>, clock_ms: number, window_d: number): Promise<OperatingSettlingFit> {
       const plantId = inp.layout.plantId;
-      const end = Math.floor(clock_ms / H) * H;
-      const windowFrom = Math.floor((clock_ms - window_d * D) / H) * H;
       const tags = inp.readings.filter((r) => FIT_SIGNALS.has(r.signal));
+      // An hour is read once every fit tag has a sample after it: sources arrive at their own
+      // pace (an OPC UA poll behind an MQTT stream), and an hour read before its last minutes
+      // arrived would be left out for good. A tag more than LAG_MAX behind the plant clock is
+      // taken as dead, not waited for (its hours have gaps anyway).
+      const recent = tags.flatMap((r) => (r.ts_ms !== null && clock_ms - r.ts_ms <= LAG_MAX_MS ? [r.ts_ms] : []));
+      const end = Math.floor(Math.min(clock_ms, ...recent) / H) * H;
+      const windowFrom = Math.floor((clock_ms - window_d * D) / H) * H;
       const key = JSON.stringify([
         inp.layout.trains.map((t) => [t.id, t.clarifiers.map((c) => [c.id, c.area_m2, c.count, c.sideWaterDepth_m]), t.pumps.map((p) => [p.id, p.kind])]),
         tags.map((r) => [r.tagId, r.signal, r.targetType, r.targetId, r.unit]).sort(),

@@ -37,7 +37,12 @@ function fakeRepo(from_ms: number, to_ms: number, noise?: { sd: number; seed: nu
 describe('operating settling service: reads each hour once, the window back one chunk per balance, fits only on change', () => {
   const clock = Math.floor(NOW / H) * H + 20 * 60_000; // 20 min into the hour
   const end = Math.floor(NOW / H) * H;
-  const inp = fixtureInputs();
+  /** The fixture's signals with their latest samples at `t` (the plant clock). */
+  const at = (t: number) => {
+    const i = fixtureInputs();
+    return { ...i, readings: i.readings.map((r) => ({ ...r, ts_ms: t })) };
+  };
+  const inp = at(clock);
 
   it('a 5-day window with 48 h chunks is covered in three calls, then no query until a new hour; the fit recovers v0 and k and says how far back it read', async () => {
     const { repo, calls } = fakeRepo(end - 6 * 24 * H, end + 2 * H);
@@ -61,10 +66,10 @@ describe('operating settling service: reads each hour once, the window back one 
     expect(third.fit.value!.k_Lg).toBeCloseTo(0.5, 6);
     expect([third.from_ms, third.to_ms]).toEqual([end - 119 * H, end]);
     // Same hour: no query, the same fit.
-    expect(await svc.fit(inp, clock + 30 * 60_000, 5)).toBe(third);
+    expect(await svc.fit(at(clock + 30 * 60_000), clock + 30 * 60_000, 5)).toBe(third);
     expect(calls).toHaveLength(3);
     // The next hour: one query for that hour only; the oldest hour leaves the window.
-    const next = await svc.fit(inp, clock + H, 5);
+    const next = await svc.fit(at(clock + H), clock + H, 5);
     expect(calls.slice(3).map((c) => [c.from, c.to])).toEqual([[end, end + H - 1]]);
     expect(next.n).toBe(120);
     expect([next.from_ms, next.to_ms]).toEqual([end - 118 * H, end + H]);
@@ -79,6 +84,22 @@ describe('operating settling service: reads each hour once, the window back one 
     expect(f.kStdErr_Lg!).toBeGreaterThan(0);
     expect(f.kStdErr_Lg!).toBeLessThan(0.05);
     expect(f.lnV0StdErr!).toBeLessThan(0.3);
+  });
+
+  it('an hour is read only once every fit tag has passed it; a tag more than 2 h behind is not waited for', async () => {
+    const { repo, calls } = fakeRepo(end - 48 * H, end + 2 * H);
+    const svc = createOperatingSettlingService({ balanceRepo: repo, chunk_h: 48 });
+    await svc.fit(inp, clock, 1);
+    // the underflow TSS (polled, say) is still 30 min behind: the hour [end, end + 1 h) waits for it
+    const lagging = { ...at(clock + H), readings: at(clock + H).readings.map((r) => (r.tagId === SIG.xr.tagId ? { ...r, ts_ms: clock + H - 30 * 60_000 } : r)) };
+    await svc.fit(lagging, clock + H, 1);
+    expect(calls.slice(1).some((c) => c.to >= end)).toBe(false);
+    await svc.fit(at(clock + H), clock + H, 1);
+    expect(calls.at(-1)).toMatchObject({ from: end, to: end + H - 1 });
+    // a tag 3 h behind (dead) holds nothing up
+    const dead = { ...at(clock + 2 * H), readings: at(clock + 2 * H).readings.map((r) => (r.tagId === SIG.xr.tagId ? { ...r, ts_ms: clock - H } : r)) };
+    await svc.fit(dead, clock + 2 * H, 1);
+    expect(calls.at(-1)).toMatchObject({ from: end + H, to: end + 2 * H - 1 });
   });
 
   it('a changed tag mapping or a plant clock that went back starts afresh', async () => {
