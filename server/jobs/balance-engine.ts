@@ -8,6 +8,7 @@ import { NotFoundError } from '../http/errors.ts';
 import { startMailCatcher, type MailCatcher } from '../mail/catcher.ts';
 import { createAlarmService, type AlarmChange } from '../services/alarm.service.ts';
 import { readBalanceInputs } from '../services/balance-inputs.service.ts';
+import { createOperatingSettlingService } from '../services/operating-settling.service.ts';
 import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import { workerSpools } from '../services/ingest-status.service.ts';
 import { createMailService, smtpTransport } from '../services/mail.service.ts';
@@ -127,6 +128,8 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
   const repos = repositories(ctx);
   const repo = repos.balance;
   const lab = repos.lab;
+  // Kept for the engine's life: the operating settling fit reads each hour of history once.
+  const operating = createOperatingSettlingService({ balanceRepo: repo });
   let catcher: MailCatcher | null = null;
   if (!ctx.config.smtpUrl && opts.mailCatcher !== false) {
     const port = opts.catcherPort ?? (await settings.effective(0))['mail.catcher_port'];
@@ -146,7 +149,7 @@ export async function startBalanceEngine(ctx: AppContext, opts: BalanceEngineOpt
   const alarms = createAlarmService({ alarmRepo: repos.alarms, audit, clock: now, changed: onAlarm, spoolWorkers: async () => workerSpools(await repos.ingest.workers()) });
 
   async function compute(plantId: number, s: Awaited<ReturnType<typeof settings.effective>>, t: number): Promise<Balance> {
-    const inputs = await readBalanceInputs(repo, plantId, s, t, lab);
+    const inputs = await readBalanceInputs(repo, plantId, s, t, { lab, operating });
     if (!inputs) throw new NotFoundError(`no plant ${plantId}`);
     const b = computeBalance(inputs, s);
     const id = await repo.insert(b);

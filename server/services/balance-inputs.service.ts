@@ -3,6 +3,7 @@ import type { labRepository } from '../repositories/lab.repository.ts';
 import type { LabSettlingTest } from '../../shared/domain/settling-fit.ts';
 import type { EffectiveSettings } from '../../shared/contracts/settings.ts';
 import type { BalanceEngineInputs } from '../../shared/domain/balance/inputs.ts';
+import type { OperatingSettlingService } from './operating-settling.service.ts';
 
 type LabList = Pick<ReturnType<typeof labRepository>, 'list'>;
 
@@ -10,10 +11,19 @@ type LabList = Pick<ReturnType<typeof labRepository>, 'list'>;
  * Gathers what computeBalance needs for one plant: the layout valid at the plant clock, latest value of every mapped signal,
  * rollup_1m series over the longest window any figure uses (ending at the plant clock, the
  * newest sample time — see shared/domain/balance/signals.ts on the two clocks), the latest SVI/DSVI and the
- * newest receive time, and (given the lab repository) the settleability tests of the Vesilind fit
- * window. Returns null for an unknown plant.
+ * newest receive time, (given the lab repository) the settleability tests of the Vesilind fit
+ * window and (given the operating-settling service) the fit to the stable-blanket hours of
+ * settling.operating_window_d before the plant clock, which that service keeps between calls.
+ * Returns null for an unknown plant.
  */
-export async function readBalanceInputs(repo: BalanceRepository, plantId: number, s: EffectiveSettings, now_ms: number, lab?: LabList): Promise<BalanceEngineInputs | null> {
+export async function readBalanceInputs(
+  repo: BalanceRepository,
+  plantId: number,
+  s: EffectiveSettings,
+  now_ms: number,
+  deps: { lab?: LabList; operating?: Pick<OperatingSettlingService, 'fit'> } = {},
+): Promise<BalanceEngineInputs | null> {
+  const { lab, operating } = deps;
   const [readings, svi, lastReceived_ms] = await Promise.all([repo.readings(plantId), repo.latestSvi(plantId), repo.lastReceived(plantId)]);
   const seen = readings.flatMap((r) => (r.ts_ms === null ? [] : [r.ts_ms]));
   const clock = seen.length ? Math.max(...seen) : now_ms;
@@ -26,7 +36,8 @@ export async function readBalanceInputs(repo: BalanceRepository, plantId: number
   // Lab SVI units: mL/g is the only one the engine takes; anything else is left out with the engine's 'no SVI' reason.
   const sviOk = svi && /^m[lL]\/g$/.test(svi.unit.trim()) ? { kind: svi.kind, value_mLg: svi.value_mLg, sampledAt_ms: svi.sampledAt_ms, flags: svi.flags } : null;
   const settlingTests = lab ? await readSettlingTests(lab, plantId, new Date(now_ms - s['settling.fit_window_d'] * 86_400_000)) : [];
-  return { now_ms, layout, readings, series, svi: sviOk, lastReceived_ms, settlingTests };
+  const operatingFit = operating ? await operating.fit({ layout, readings }, clock, s['settling.operating_window_d']) : undefined;
+  return { now_ms, layout, readings, series, svi: sviOk, lastReceived_ms, settlingTests, ...(operatingFit ? { operatingFit } : {}) };
 }
 
 /** The plant's SVI, DSVI and SSVI tests since `from` with their readings as entered (lab_results.details). */

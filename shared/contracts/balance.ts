@@ -21,9 +21,18 @@ export const stormCheckOut = z.object({ rule: z.enum(['min-mlss', 'max-stored-fr
 export const settlingUsedOut = z.object({
   v0_mh: z.number().nullable(),
   k_Lg: z.number().nullable(),
-  /** 'fit': fitted to the plant's own lab data; 'correlation': from the latest SVI by `correlation`. */
-  source: z.enum(['fit', 'correlation']),
+  /**
+   * 'fit': fitted to the plant's own lab tests; 'operating-fit': fitted to its stable-blanket
+   * hours at the limiting flux (Keinath et al. 1977); 'correlation': from the latest SVI by `correlation`.
+   */
+  source: z.enum(['fit', 'operating-fit', 'correlation']),
   correlation: z.string(),
+  /** The used fit's number of points, their date range and standard errors (null for the correlation; absent in balances stored before they were added). */
+  n: z.number().int().nullable().optional(),
+  from: z.iso.datetime().nullable().optional(),
+  to: z.iso.datetime().nullable().optional(),
+  kStdErr_Lg: z.number().nullable().optional(),
+  lnV0StdErr: z.number().nullable().optional(),
   quality: figureQuality,
   reasons: z.array(z.string()),
 });
@@ -67,24 +76,32 @@ export const stormTimelineOut = z.object({
   reasons: z.array(z.string()),
 });
 
-/** Settling parameters of the plant: the one used, the fit to its own tests and the correlation beside it. */
+/** One Vesilind fit to the plant's own data with its standard errors, number of points and their date range. */
+export const settlingFitOut = z.object({
+  v0_mh: z.number().nullable(),
+  k_Lg: z.number().nullable(),
+  /** Standard errors (least squares): k ± 2·se, v0·e^(±2·se) at about 95 %. */
+  kStdErr_Lg: z.number().nullable(),
+  lnV0StdErr: z.number().nullable(),
+  r2: z.number().nullable(),
+  /** Number of points fitted (lab tests, or stable-blanket hours), and their date range. */
+  n: z.number().int(),
+  from: z.iso.datetime().nullable(),
+  to: z.iso.datetime().nullable(),
+  minPoints: z.number().int(),
+  quality: figureQuality,
+  reasons: z.array(z.string()),
+});
+
+/**
+ * Settling parameters of the plant: the one used, the fit to its own lab tests, the fit to its
+ * stable-blanket hours (`operatingFit`: points are hours; absent in balances stored before it
+ * existed) and the correlation beside them.
+ */
 export const settlingOut = z.object({
   used: settlingUsedOut,
-  fit: z.object({
-    v0_mh: z.number().nullable(),
-    k_Lg: z.number().nullable(),
-    /** Standard errors (ordinary least squares): k ± 2·se, v0·e^(±2·se) at about 95 %. */
-    kStdErr_Lg: z.number().nullable(),
-    lnV0StdErr: z.number().nullable(),
-    r2: z.number().nullable(),
-    /** Number of tests fitted, and their date range. */
-    n: z.number().int(),
-    from: z.iso.datetime().nullable(),
-    to: z.iso.datetime().nullable(),
-    minPoints: z.number().int(),
-    quality: figureQuality,
-    reasons: z.array(z.string()),
-  }),
+  fit: settlingFitOut,
+  operatingFit: settlingFitOut.optional(),
   correlation: z.object({ correlation: z.string(), v0_mh: z.number().nullable(), k_Lg: z.number().nullable(), quality: figureQuality, reasons: z.array(z.string()) }),
 });
 

@@ -1,10 +1,12 @@
+import path from 'node:path';
 import type { Browser } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { BalanceData } from '../../shared/contracts/balance.ts';
 import { startBalanceEngine, type BalanceEngine } from '../../server/jobs/balance-engine.ts';
 import { startTestServer } from '../helpers/server.ts';
-import { launchBrowser, shot } from '../helpers/browser.ts';
+import { launchBrowser, SCREENSHOT_DIR, shot } from '../helpers/browser.ts';
 import { operatorOnBoard, seedKestrelBend, type Env } from './kestrel-bend-fixture.ts';
+import { operatingMinutes } from '../unit/domain/operating-series.ts';
 
 /**
  * Ten SVI tests over the last 20 days, generated from a Vesilind sludge v0 = 4 m/h, k = 0.8 L/g
@@ -105,6 +107,68 @@ describe('board depth in Debian Chromium: state points, the storm in time, the s
     await shot(page, 'board-depth-1366');
     expect(await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth)).toBeLessThanOrEqual(0);
     // the one 401 is the session probe before sign-in
+    expect(errors.filter((e) => !e.includes('status of 401'))).toEqual([]);
+  });
+
+  it('without enough lab tests, the state points use the fit to the plant\'s stable-blanket hours, shown with n in hours and dates beside the lab fit and the correlation', async () => {
+    const pool = env.server.ctx.db.pool;
+    // The lab tests lose their readings (the latest SVI stays for the rule), so the lab fit has none.
+    await pool.query(`UPDATE lab_results SET details = '{}' WHERE plant_id = $1`, [plantId]);
+    // 48 hours of clarifier 2 (1500 m², 4 m, as in the demo layout) generated from a sludge with
+    // v0 = 6 m/h, k = 0.5 L/g: a blanket steady at 1.5 m while the RAS flow steps through 12
+    // underflow rates, the underflow at the limiting flux X_R = G_L/u (Keinath et al. 1977;
+    // tests/unit/domain/operating-series.ts). Clarifier 1's blanket (0.85 m) is under a quarter
+    // of its depth, so it gives no period.
+    const clock = (await pool.query<{ ts: Date }>('SELECT max(l.ts) AS ts FROM tag_latest l JOIN tags t ON t.id = l.tag_id WHERE t.plant_id = $1', [plantId])).rows[0]!.ts.getTime();
+    const end = Math.floor(clock / 3_600_000) * 3_600_000;
+    const mins = operatingMinutes({ v0_mh: 6, k_Lg: 0.5 }, end - 48 * 3_600_000, 48);
+    const series: Array<[string, (m: (typeof mins)[number]) => number]> = [
+      ['LIT-212', (m) => m.level_m],
+      ['AIT-222', (m) => m.underflowTss_gL],
+      ['FIT-312', (m) => m.rasFlow_m3h],
+      ['FIT-322', (m) => m.wasFlow_m3h],
+    ];
+    for (const [tag, value] of series) {
+      await pool.query(
+        `INSERT INTO rollup_1m (tag_id, bucket, min, max, sum, count, last, last_ts, quality)
+         SELECT (SELECT id FROM tags WHERE plant_id = $1 AND name = $2), b, v, v, v * 6, 6, v, b, 0 FROM unnest($3::timestamptz[], $4::float8[]) AS x(b, v)
+         ON CONFLICT (tag_id, bucket) DO UPDATE SET min = excluded.min, max = excluded.max, sum = excluded.sum, count = excluded.count, last = excluded.last`,
+        [plantId, tag, mins.map((m) => new Date(m.t_ms)), mins.map(value)],
+      );
+    }
+    // A fresh engine: the first one has already read these hours (each hour is read once).
+    await engine.stop();
+    engine = await startBalanceEngine(env.server.ctx, { schedule: false, mailCatcher: false });
+    const { page, errors } = await operatorOnBoard(env, b.browser, 'board-settling-operating');
+    await page.getByTestId('stream-state').filter({ hasText: 'live' }).waitFor();
+    const bal = await engine.runOnce(plantId);
+    const s = bal.data.settling;
+    expect(s.fit.n).toBe(0);
+    expect(s.operatingFit).toMatchObject({ n: 48, from: new Date(end - 47 * 3_600_000).toISOString(), to: new Date(end).toISOString() });
+    expect(s.operatingFit!.v0_mh!).toBeCloseTo(6, 4);
+    expect(s.operatingFit!.k_Lg!).toBeCloseTo(0.5, 5);
+    expect(s.used.source).toBe('operating-fit');
+
+    const cmp = page.getByTestId('settling-comparison');
+    const opRow = cmp.getByTestId('settling-operating-fit');
+    await opRow.filter({ hasText: '▸' }).waitFor({ timeout: 10_000 });
+    const text = await opRow.innerText();
+    expect(text).toContain('n = 48 h');
+    expect(text).toContain(s.operatingFit!.from!.slice(0, 10));
+    expect(text).toContain(s.operatingFit!.to!.slice(0, 10));
+    expect(text).toMatch(/±/);
+    expect(await cmp.getByTestId('settling-fit').innerText()).toContain('(needs 10)');
+    expect(await cmp.getByTestId('settling-correlation').innerText()).toContain('Härtel & Pöpel (1992)');
+    expect(await cmp.getByTestId('settling-used').innerText()).toContain('state points use the operating fit');
+    for (const c of bal.data.clarifiers) {
+      const src = page.getByTestId(`state-point-${c.code}`).getByTestId('settling-source');
+      expect(await src.getAttribute('data-source')).toBe('operating-fit');
+      expect(await src.innerText()).toContain('stable-blanket hours (n = 48 h');
+      // with the fit's standard errors (v0 ×/÷ e^SE, k ± SE)
+      expect(await src.innerText()).toMatch(/v0 = [\d.]+ ×\/÷ [\d.]+ m\/h, k = [\d.]+ ± [\d.]+ L\/g/);
+    }
+    await shot(page, 'board-settling-operating');
+    await cmp.screenshot({ path: path.join(SCREENSHOT_DIR, 'board-settling-operating-basis.png') });
     expect(errors.filter((e) => !e.includes('status of 401'))).toEqual([]);
   });
 });

@@ -200,7 +200,12 @@ export function computeBalance(inp: BalanceEngineInputs, s: EffectiveSettings): 
   const svi = settleability(inp.svi, now_ms, s['svi.max_age_d']);
   const rasConcMaxRule = rasConcMaxFromSvi_gL(svi, s['ras.xr_factor']);
   const fit = plantSettlingFit(inp.settlingTests ?? [], s['settling.cylinder_height_m']);
-  const { used: settling, out: settlingOut } = chooseSettling(svi, s['settling.correlation'], fit, s['settling.fit_min_points']);
+  const { used: settling, out: settlingOut } = chooseSettling(
+    svi,
+    s['settling.correlation'],
+    { fit, minPoints: s['settling.fit_min_points'] },
+    inp.operatingFit ? { fit: inp.operatingFit, minPoints: s['settling.operating_fit_min_points'] } : null,
+  );
   const totalVolume_m3 = layout.trains.reduce((a, t) => a + t.basins.reduce((b, x) => b + x.volume_m3, 0), 0);
   const plantInfluent = signals.figure('plant.influentFlow', 'plant', layout.plantId, layout.code);
   const trains = layout.trains.map((t) => trainFigures(t, { signals, settings: s, plantInfluent, totalVolume_m3, settling, rasConcMaxRule_gL: rasConcMaxRule }));

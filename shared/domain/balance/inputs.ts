@@ -5,7 +5,7 @@
  * passed to computeBalance (./assemble.ts).
  */
 import type { SignalKindName } from '../../contracts/plant-layout.js';
-import type { LabSettlingTest } from '../settling-fit.js';
+import type { LabSettlingTest, OperatingSettlingFit } from '../settling-fit.js';
 
 export type TargetType = 'plant' | 'train' | 'basin' | 'clarifier' | 'pump';
 
@@ -97,4 +97,10 @@ export interface BalanceEngineInputs {
   lastReceived_ms: number | null;
   /** The plant's settleability tests over the fit window (setting settling.fit_window_d), for the Vesilind fit; none when omitted. */
   settlingTests?: LabSettlingTest[];
+  /**
+   * The Vesilind fit to the plant's stable-blanket hours over settling.operating_window_d
+   * (plantOperatingFit, ./operating-settling.ts), fitted by the server at most once per new hour
+   * of data and passed in; none when omitted (the choice then skips it).
+   */
+  operatingFit?: OperatingSettlingFit;
 }

@@ -16,9 +16,14 @@ export type StatePointOut = BalanceData['clarifiers'][number]['statePoint'];
 /** Vesilind parameters the balance uses and where they came from. */
 export interface SettlingUsed {
   params: Figure<VesilindParams>;
-  /** 'fit': fitted to the plant's own lab data; 'correlation': from the latest SVI by the named correlation. */
-  source: 'fit' | 'correlation';
+  /**
+   * 'fit': fitted to the plant's own lab tests; 'operating-fit': fitted to its stable-blanket
+   * hours at the limiting flux; 'correlation': from the latest SVI by the named correlation.
+   */
+  source: 'fit' | 'operating-fit' | 'correlation';
   correlation: SettlingCorrelationId;
+  /** The fit's points, their date range (ISO) and standard errors; null for the correlation. */
+  basis: { n: number; from: string | null; to: string | null; kStdErr_Lg: number | null; lnV0StdErr: number | null } | null;
 }
 
 /**
@@ -34,34 +39,101 @@ export function settlingFromCorrelation(svi: Figure<number>, correlation: Settli
           const v = vesilindFromIndex(svi.value, correlation);
           return propagate(v.value === null ? unavailable<VesilindParams>(...v.reasons) : { ...v, value: { v0_mh: v.value.v0_mh, k_Lg: v.value.k_Lg } }, svi);
         })();
-  return { params, source: 'correlation', correlation };
+  return { params, source: 'correlation', correlation, basis: null };
 }
 
 export type SettlingOut = BalanceData['settling'];
 
+/** One candidate fit of chooseSettling with the minimum number of points it needs (a setting). */
+export interface SettlingCandidate {
+  fit: PlantSettlingFit;
+  minPoints: number;
+}
+
+const iso = (ms: number | null) => (ms === null ? null : new Date(ms).toISOString());
+
+function fitOut(c: SettlingCandidate) {
+  const f = c.fit.fit.value;
+  return {
+    v0_mh: f?.v0_mh ?? null,
+    k_Lg: f?.k_Lg ?? null,
+    kStdErr_Lg: f?.kStdErr_Lg ?? null,
+    lnV0StdErr: f?.lnV0StdErr ?? null,
+    r2: f?.r2 ?? null,
+    n: c.fit.n,
+    from: iso(c.fit.from_ms),
+    to: iso(c.fit.to_ms),
+    minPoints: c.minPoints,
+    quality: c.fit.fit.quality,
+    reasons: [...c.fit.fit.reasons],
+  };
+}
+
+const enough = (c: SettlingCandidate) => c.fit.n >= c.minPoints && c.fit.fit.value !== null;
+const shortOf = (c: SettlingCandidate, what: string, points: string, setting: string) =>
+  `the ${what} has ${c.fit.n} ${points}${c.fit.fit.value === null && c.fit.n > 0 ? ` and no result (${c.fit.fit.reasons.join('; ')})` : ''}, fewer than ${c.minPoints} or none usable (setting ${setting})`;
+
 /**
- * Which settling parameters the live state point uses: the fit to the plant's own tests
- * (plantSettlingFit) when it has at least `minPoints` tests and a fit, otherwise the correlation
- * of the latest SVI (settlingFromCorrelation) — saying which and why — and both shown side by side.
+ * Which settling parameters the live state point uses, in this order, each only with at least
+ * its minimum number of points (settings settling.fit_min_points, settling.operating_fit_min_points):
+ *
+ * 1. the fit to the plant's own settleability tests (plantSettlingFit): velocity against
+ *    concentration of this sludge, the very quantities of Vesilind's law (Vesilind 1968), read
+ *    in the lab (as a 30-min mean, a lower bound: the safe side);
+ * 2. the fit to its stable-blanket hours (operatingSettlingFit): this sludge in the full-scale
+ *    clarifier, but read through flux theory on the assumption that a stable deep blanket means
+ *    critical loading (Keinath et al. 1977). The assumption cannot be checked from the data; where
+ *    it fails (an underloaded clarifier whose blanket stands for other reasons) X_R lies below
+ *    G_L/u and the fit reads the limiting flux low — safe, but less direct than the tests, hence second;
+ * 3. the correlation of the latest SVI (settlingFromCorrelation): other plants' sludges related to
+ *    this one by the SVI alone (e.g. Daigger & Roper 1985; Härtel & Pöpel 1992), the fallback.
+ *
+ * Says which and why, and returns all three side by side with their points, date ranges and
+ * standard errors. Without an operating fit (a plant without the tags) it is left out.
  */
-export function chooseSettling(svi: Figure<number>, correlation: SettlingCorrelationId, fit: PlantSettlingFit, minPoints: number): { used: SettlingUsed; out: SettlingOut } {
+export function chooseSettling(svi: Figure<number>, correlation: SettlingCorrelationId, lab: SettlingCandidate, operating: SettlingCandidate | null): { used: SettlingUsed; out: SettlingOut } {
   const corr = settlingFromCorrelation(svi, correlation);
-  const useFit = fit.n >= minPoints && fit.fit.value !== null;
-  const why = useFit
-    ? `Vesilind fit to the plant's own ${fit.n} settleability tests (≥ ${minPoints}, setting settling.fit_min_points)`
-    : `correlation ${correlation} of the latest SVI: the fit has ${fit.n} test(s)${fit.fit.value === null && fit.n > 0 ? ` and no result (${fit.fit.reasons.join('; ')})` : ''}, fewer than ${minPoints} or none usable (setting settling.fit_min_points)`;
-  const used: SettlingUsed = useFit
-    ? { params: { value: { v0_mh: fit.fit.value!.v0_mh, k_Lg: fit.fit.value!.k_Lg }, quality: fit.fit.quality, reasons: [...fit.fit.reasons, why] }, source: 'fit', correlation }
-    : { ...corr, params: { ...corr.params, reasons: [...corr.params.reasons, why] } };
-  const iso = (ms: number | null) => (ms === null ? null : new Date(ms).toISOString());
-  const f = fit.fit.value;
+  const basis = (c: SettlingCandidate): SettlingUsed['basis'] => ({ n: c.fit.n, from: iso(c.fit.from_ms), to: iso(c.fit.to_ms), kStdErr_Lg: c.fit.fit.value?.kStdErr_Lg ?? null, lnV0StdErr: c.fit.fit.value?.lnV0StdErr ?? null });
+  const fromFit = (c: SettlingCandidate, source: 'fit' | 'operating-fit', why: string): SettlingUsed => {
+    const v = c.fit.fit.value!;
+    return { params: { value: { v0_mh: v.v0_mh, k_Lg: v.k_Lg }, quality: c.fit.fit.quality, reasons: [...c.fit.fit.reasons, why] }, source, correlation, basis: basis(c) };
+  };
+  const labShort = shortOf(lab, 'lab fit', 'test(s)', 'settling.fit_min_points');
+  let used: SettlingUsed;
+  if (enough(lab)) {
+    used = fromFit(lab, 'fit', `Vesilind fit to the plant's own ${lab.fit.n} settleability tests (≥ ${lab.minPoints}, setting settling.fit_min_points)`);
+  } else if (operating && enough(operating)) {
+    used = fromFit(operating, 'operating-fit', `Vesilind fit to the plant's own ${operating.fit.n} stable-blanket hours (≥ ${operating.minPoints}, setting settling.operating_fit_min_points): ${labShort}`);
+  } else {
+    const opShort = operating ? `; ${shortOf(operating, 'operating fit', 'stable-blanket hour(s)', 'settling.operating_fit_min_points')}` : '';
+    const why = `correlation ${correlation} of the latest SVI: ${labShort}${opShort}`;
+    used = { ...corr, params: { ...corr.params, reasons: [...corr.params.reasons, why] } };
+  }
   return {
     used,
     out: {
-      used: { v0_mh: used.params.value?.v0_mh ?? null, k_Lg: used.params.value?.k_Lg ?? null, source: used.source, correlation, quality: used.params.quality, reasons: [...used.params.reasons] },
-      fit: { v0_mh: f?.v0_mh ?? null, k_Lg: f?.k_Lg ?? null, kStdErr_Lg: f?.kStdErr_Lg ?? null, lnV0StdErr: f?.lnV0StdErr ?? null, r2: f?.r2 ?? null, n: fit.n, from: iso(fit.from_ms), to: iso(fit.to_ms), minPoints, quality: fit.fit.quality, reasons: [...fit.fit.reasons] },
+      used: settlingUsedOut(used),
+      fit: fitOut(lab),
+      ...(operating ? { operatingFit: fitOut(operating) } : {}),
       correlation: { correlation, v0_mh: corr.params.value?.v0_mh ?? null, k_Lg: corr.params.value?.k_Lg ?? null, quality: corr.params.quality, reasons: [...corr.params.reasons] },
     },
+  };
+}
+
+/** The contract's view of the parameters used (balance.settling.used and every state point's settling). */
+export function settlingUsedOut(u: SettlingUsed): SettlingOut['used'] {
+  return {
+    v0_mh: u.params.value?.v0_mh ?? null,
+    k_Lg: u.params.value?.k_Lg ?? null,
+    source: u.source,
+    correlation: u.correlation,
+    n: u.basis?.n ?? null,
+    from: u.basis?.from ?? null,
+    to: u.basis?.to ?? null,
+    kStdErr_Lg: u.basis?.kStdErr_Lg ?? null,
+    lnV0StdErr: u.basis?.lnV0StdErr ?? null,
+    quality: u.params.quality,
+    reasons: [...u.params.reasons],
   };
 }
 
@@ -101,14 +173,7 @@ export function clarifierStatePoint(inp: ClarifierStatePointInputs): StatePointO
   const x = inp.mlss_gL;
   const ves = inp.settling.params;
   const ins = [q, qr, qw, x];
-  const settling = {
-    v0_mh: ves.value?.v0_mh ?? null,
-    k_Lg: ves.value?.k_Lg ?? null,
-    source: inp.settling.source,
-    correlation: inp.settling.correlation,
-    quality: ves.quality,
-    reasons: [...ves.reasons],
-  };
+  const settling = settlingUsedOut(inp.settling);
   const feed = { influentFlow_m3h: withUnit(q, 'm3/h'), rasFlow_m3h: withUnit(qr, 'm3/h'), wasFlow_m3h: withUnit(qw, 'm3/h'), mlss_gL: withUnit(x, 'g/L') };
   let sp: ReturnType<typeof statePoint> | null = null;
   if (ins.every((f) => f.value !== null) && ves.value !== null && q.value! >= qw.value!) {

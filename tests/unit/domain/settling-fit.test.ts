@@ -89,6 +89,6 @@ describe('computeBalance: the state point uses the fit from settling.fit_min_poi
     const d = computeBalance({ ...fixtureInputs(), settlingTests: tests(5) }, settings()).data;
     expect(d.settling.used.source).toBe('correlation');
     expect(d.settling.fit.n).toBe(5);
-    expect(d.settling.used.reasons.join(' ')).toMatch(/the fit has 5 test\(s\).*fewer than 10/);
+    expect(d.settling.used.reasons.join(' ')).toMatch(/the lab fit has 5 test\(s\).*fewer than 10/);
   });
 });

@@ -53,7 +53,7 @@ export const ClarifierStatePoint = memo(function ClarifierStatePoint({ clarifier
         <FigureRow label="Thickening margin" f={sp.thickeningMargin} percent />
         <FigureRow label="Clarification margin" f={sp.clarificationMargin} percent />
       </div>
-      <SettlingSourceLine used={sp.settling} fit={settling.fit} />
+      <SettlingSourceLine used={sp.settling} settling={settling} />
     </div>
   );
 });
