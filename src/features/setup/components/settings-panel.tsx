@@ -1,4 +1,4 @@
-import { useState, type ReactNode } from 'react';
+import { Fragment, useState, type ReactNode } from 'react';
 import { Button, ErrorNote, Panel, TextInput } from '../../../components/ui/controls.tsx';
 import { usePlantSettings, usePutSettings } from '../api/setup.ts';
 import { MainSettingsForm } from './main-settings-form.tsx';
@@ -63,7 +63,15 @@ export function SettingsPanel({ plantId, isAdmin }: { plantId: number; isAdmin: 
           {(settings.data?.settings ?? []).filter((s) => !isAdmin || !MAIN_KEYS.includes(s.key)).map((s) => (
             <tr key={s.key} data-key={s.key}>
               <td className={td}>
-                <div className="font-semibold">{s.key}</div>
+                <div className="font-semibold">
+                  {/* A long key may break after its dots and underscores (copying it gives the key unchanged). */}
+                  {s.key.split(/(?<=[._])/).map((part, i) => (
+                    <Fragment key={i}>
+                      {part}
+                      <wbr />
+                    </Fragment>
+                  ))}
+                </div>
                 <div className="text-ink-3">{s.doc}</div>
               </td>
               <td className={`${td} text-right num`}>
