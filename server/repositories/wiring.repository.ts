@@ -6,6 +6,12 @@ export type SourceRow = typeof sources.$inferSelect;
 export type NewSourceRow = typeof sources.$inferInsert;
 export type TagRow = typeof tags.$inferSelect;
 export type NewTagRow = typeof tags.$inferInsert;
+
+/** A tag's own settings as the wiring answer and the configuration document both give them. */
+export function tagSettings(t: TagRow) {
+  const { address, unit, description, scaleGain, scaleOffset, deadband, expectedPeriod_s, rangeLow, rangeHigh, samplingInterval_ms, kind, enabled } = t;
+  return { address, unit, description, scaleGain, scaleOffset, deadband, expectedPeriod_s, rangeLow, rangeHigh, samplingInterval_ms, kind, enabled };
+}
 export type MappingRow = typeof signalMap.$inferSelect;
 export type NewMappingRow = typeof signalMap.$inferInsert;
 

@@ -6,6 +6,7 @@ import type { Principal } from '../auth/principal.ts';
 import { ConflictError, ForbiddenError, NotFoundError, ValidationError } from '../http/errors.ts';
 import { zodFields } from '../http/validate.ts';
 import type { BasinGeom, ClarifierGeom, PlantModelRepository, PlantModelTx, PumpGeom } from '../repositories/plant-model.repository.ts';
+import { tagSettings } from '../repositories/wiring.repository.ts';
 import { assertScope, plantOut } from './plant-model.service.ts';
 
 /**
@@ -174,18 +175,7 @@ export function createPlantConfigService({ modelRepo: repo, clock }: PlantConfig
       tags: tagRows.map((t) => ({
         name: t.name,
         source: sourceName.get(t.sourceId)!,
-        address: t.address,
-        unit: t.unit,
-        description: t.description,
-        scaleGain: t.scaleGain,
-        scaleOffset: t.scaleOffset,
-        deadband: t.deadband,
-        expectedPeriod_s: t.expectedPeriod_s,
-        rangeLow: t.rangeLow,
-        rangeHigh: t.rangeHigh,
-        samplingInterval_ms: t.samplingInterval_ms,
-        kind: t.kind,
-        enabled: t.enabled,
+        ...tagSettings(t),
       })),
       signalMap: maps.flatMap((mp): PlantConfig['signalMap'] => {
         const signal = mp.signal as PlantConfig['signalMap'][number]['signal'];

@@ -26,7 +26,7 @@ import type { Logger } from 'pino';
 import type { Principal } from '../auth/principal.ts';
 import { ConflictError, NotFoundError, UnsupportedMediaTypeError, ValidationError } from '../http/errors.ts';
 import { zodFields } from '../http/validate.ts';
-import { uniqueViolation, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow, type WiringRepository } from '../repositories/wiring.repository.ts';
+import { tagSettings, uniqueViolation, type MappingRow, type NewTagRow, type SourceRow, type TagRow, type TargetRow, type WiringRepository } from '../repositories/wiring.repository.ts';
 import type { Actor, AuditLog } from './audit.service.ts';
 import { csvHeaderProblem, parseCsvUpload } from './csv.service.ts';
 import type { OpcuaBrowseService } from './opcua-browse.service.ts';
@@ -137,19 +137,8 @@ export function createWiringService({ wiringRepo: repo, plantAccess, audit, log,
       id: t.id,
       plantId: t.plantId,
       name: t.name,
-      description: t.description,
       source: { id: t.sourceId, name: source.name, kind: source.kind },
-      address: t.address,
-      unit: t.unit,
-      scaleGain: t.scaleGain,
-      scaleOffset: t.scaleOffset,
-      deadband: t.deadband,
-      expectedPeriod_s: t.expectedPeriod_s,
-      rangeLow: t.rangeLow,
-      rangeHigh: t.rangeHigh,
-      samplingInterval_ms: t.samplingInterval_ms,
-      kind: t.kind,
-      enabled: t.enabled,
+      ...tagSettings(t),
       signals: maps.filter((m) => m.tagId === t.id).map((m) => mappingOut(m, targets)),
       createdAt: t.createdAt.toISOString(),
     };
