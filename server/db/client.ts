@@ -8,6 +8,8 @@ import { PgListener } from './pg-listener.ts';
 import * as schema from './schema/index.ts';
 
 export type Db = NodePgDatabase<typeof schema>;
+/** The database handle or an open transaction (what `db.transaction` hands its callback). */
+export type DbOrTx = Db | Parameters<Parameters<Db['transaction']>[0]>[0];
 
 export interface Database {
   pool: pg.Pool;

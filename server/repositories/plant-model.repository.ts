@@ -1,12 +1,10 @@
 import { and, asc, eq, inArray, sql } from 'drizzle-orm';
 import type { Actor } from '../services/audit.service.ts';
-import type { Db } from '../db/client.ts';
+import type { DbOrTx } from '../db/client.ts';
 import { auditLog, basins, basinVersions, clarifiers, clarifierVersions, plants, pumps, pumpVersions, settings, signalMap, sources, tags, trains } from '../db/schema/index.ts';
 import { versionAt } from '../../shared/domain/geometry-versions.ts';
+import { sourceTagWrites } from './wiring.repository.ts';
 
-/** The database handle or an open transaction: every function here works on either. */
-type Tx = Parameters<Parameters<Db['transaction']>[0]>[0];
-export type DbOrTx = Db | Tx;
 
 export type PlantRow = typeof plants.$inferSelect;
 export type NewPlantRow = typeof plants.$inferInsert;
@@ -246,28 +244,8 @@ function coreRepository(db: DbOrTx) {
     sources(plantId: number): Promise<SourceRow[]> {
       return db.select().from(sources).where(eq(sources.plantId, plantId)).orderBy(asc(sources.name));
     },
-    async insertSource(row: typeof sources.$inferInsert): Promise<SourceRow> {
-      const [r] = await db.insert(sources).values(row).returning();
-      return r!;
-    },
-    async updateSource(id: number, patch: Partial<typeof sources.$inferInsert>) {
-      await db.update(sources).set(patch).where(eq(sources.id, id));
-    },
-    async deleteSource(id: number) {
-      await db.delete(sources).where(eq(sources.id, id));
-    },
     tags(plantId: number): Promise<TagRow[]> {
       return db.select().from(tags).where(eq(tags.plantId, plantId)).orderBy(asc(tags.name));
-    },
-    async insertTag(row: typeof tags.$inferInsert): Promise<TagRow> {
-      const [r] = await db.insert(tags).values(row).returning();
-      return r!;
-    },
-    async updateTag(id: number, patch: Partial<typeof tags.$inferInsert>) {
-      await db.update(tags).set(patch).where(eq(tags.id, id));
-    },
-    async deleteTag(id: number) {
-      await db.delete(tags).where(eq(tags.id, id));
     },
     mappings(plantId: number): Promise<MappingRow[]> {
       return db.select().from(signalMap).where(eq(signalMap.plantId, plantId)).orderBy(asc(signalMap.signal));
@@ -275,9 +253,8 @@ function coreRepository(db: DbOrTx) {
     async putMapping(row: typeof signalMap.$inferInsert) {
       await db.insert(signalMap).values(row).onConflictDoUpdate({ target: [signalMap.plantId, signalMap.signal, signalMap.targetType, signalMap.targetId], set: { tagId: row.tagId } });
     },
-    async deleteMapping(id: number) {
-      await db.delete(signalMap).where(eq(signalMap.id, id));
-    },
+    // Source, tag and mapping rows one at a time: the same statements as the wiring API's.
+    ...sourceTagWrites(db),
   };
   return repo;
 }

@@ -1,5 +1,5 @@
 import { and, asc, count, eq, gte, inArray, sql } from 'drizzle-orm';
-import type { Db } from '../db/client.ts';
+import type { Db, DbOrTx } from '../db/client.ts';
 import { basins, clarifiers, deadLetters, plants, pumps, signalMap, sources, tags, trains } from '../db/schema/index.ts';
 
 export type SourceRow = typeof sources.$inferSelect;
@@ -35,9 +35,44 @@ export interface TargetRow {
   code: string;
 }
 
-/** Sources, tags, signal map and dead-letter counts: the only module that touches those tables. */
+/**
+ * Source, tag and mapping rows written one at a time, on the database or inside a transaction:
+ * the wiring API's edits and the configuration document's import (plant-model.repository.ts).
+ */
+export function sourceTagWrites(db: DbOrTx) {
+  return {
+    async insertSource(row: NewSourceRow): Promise<SourceRow> {
+      const [r] = await db.insert(sources).values(row).returning();
+      return r!;
+    },
+    async updateSource(id: number, patch: Partial<NewSourceRow>): Promise<SourceRow | undefined> {
+      const [r] = await db.update(sources).set(patch).where(eq(sources.id, id)).returning();
+      return r;
+    },
+    async deleteSource(id: number): Promise<boolean> {
+      return (await db.delete(sources).where(eq(sources.id, id)).returning({ id: sources.id })).length > 0;
+    },
+    async insertTag(row: NewTagRow): Promise<TagRow> {
+      const [r] = await db.insert(tags).values(row).returning();
+      return r!;
+    },
+    async updateTag(id: number, patch: Partial<NewTagRow>): Promise<TagRow | undefined> {
+      const [r] = await db.update(tags).set(patch).where(eq(tags.id, id)).returning();
+      return r;
+    },
+    async deleteTag(id: number): Promise<boolean> {
+      return (await db.delete(tags).where(eq(tags.id, id)).returning({ id: tags.id })).length > 0;
+    },
+    async deleteMapping(id: number): Promise<boolean> {
+      return (await db.delete(signalMap).where(eq(signalMap.id, id)).returning({ id: signalMap.id })).length > 0;
+    },
+  };
+}
+
+/** Sources, tags, signal map and dead-letter counts of the wiring API. */
 export function wiringRepository(db: Db) {
   return {
+    ...sourceTagWrites(db),
     listSources(plantId: number) {
       return db
         .select({ source: sources, tags: tagCount })
@@ -55,17 +90,6 @@ export function wiringRepository(db: Db) {
     async sourceByName(plantId: number, name: string) {
       const [r] = await db.select().from(sources).where(and(eq(sources.plantId, plantId), eq(sources.name, name)));
       return r;
-    },
-    async insertSource(row: NewSourceRow): Promise<SourceRow> {
-      const [r] = await db.insert(sources).values(row).returning();
-      return r!;
-    },
-    async updateSource(id: number, patch: Partial<NewSourceRow>): Promise<SourceRow | undefined> {
-      const [r] = await db.update(sources).set(patch).where(eq(sources.id, id)).returning();
-      return r;
-    },
-    async deleteSource(id: number): Promise<boolean> {
-      return (await db.delete(sources).where(eq(sources.id, id)).returning({ id: sources.id })).length > 0;
     },
 
     listTags(plantId: number) {
@@ -87,17 +111,6 @@ export function wiringRepository(db: Db) {
       if (!sourceIds.length) return new Set();
       const rows = await db.select({ s: tags.sourceId, a: tags.address }).from(tags).where(inArray(tags.sourceId, sourceIds));
       return new Set(rows.map((r) => `${r.s}\u0000${r.a}`));
-    },
-    async insertTag(row: NewTagRow): Promise<TagRow> {
-      const [r] = await db.insert(tags).values(row).returning();
-      return r!;
-    },
-    async updateTag(id: number, patch: Partial<NewTagRow>): Promise<TagRow | undefined> {
-      const [r] = await db.update(tags).set(patch).where(eq(tags.id, id)).returning();
-      return r;
-    },
-    async deleteTag(id: number): Promise<boolean> {
-      return (await db.delete(tags).where(eq(tags.id, id)).returning({ id: tags.id })).length > 0;
     },
 
     mappings(plantId: number) {
@@ -122,9 +135,6 @@ export function wiringRepository(db: Db) {
         const [row] = await tx.insert(signalMap).values(m).returning();
         return { row: row!, replacedTagId: null };
       });
-    },
-    async deleteMapping(id: number): Promise<boolean> {
-      return (await db.delete(signalMap).where(eq(signalMap.id, id)).returning({ id: signalMap.id })).length > 0;
     },
 
     /** The plant and its basins, clarifiers and pumps (the targets a signal can name). */
