@@ -3,7 +3,7 @@ import { decodePayload, looksLikeBatch, payloadDecoder } from '../pipeline/decod
 import { isSample } from '../pipeline/quality.ts';
 import type { TagSet } from '../pipeline/tag-set.ts';
 import { TopicMap } from '../pipeline/topic-match.ts';
-import { deadLetter, type DeadLetter, type Sample } from '../pipeline/types.ts';
+import { deadLetter, keyByDelivery, mqttDelivery, type DeadLetter, type Sample } from '../pipeline/types.ts';
 import { Discovery } from './discovery.ts';
 import { SparkplugState, type SparkplugResult } from './sparkplug.ts';
 
@@ -65,7 +65,18 @@ export class MqttMessageHandler {
     }
   }
 
+  /**
+   * Its dead letters carry the message's delivery identity (topic and a digest of its bytes), so
+   * the same message delivered again — after a lost PUBACK, by a broker that restored its queue,
+   * or published again — is counted on the stored letter, not stored twice.
+   */
   handle(topic: string, payload: Buffer, receivedAt: number): HandledMessage {
+    const out = this.decode(topic, payload, receivedAt);
+    if (out.deadLetters.length) keyByDelivery(out.deadLetters, mqttDelivery(topic, payload));
+    return out;
+  }
+
+  private decode(topic: string, payload: Buffer, receivedAt: number): HandledMessage {
     const out: HandledMessage = { samples: [], deadLetters: [], unmapped: 0, suppressed: 0 };
     const decoder = payloadDecoder(topic, this.opts.payload);
     if (decoder === 'sparkplugB') return this.handleSparkplug(topic, payload, receivedAt, out);

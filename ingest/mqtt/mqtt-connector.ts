@@ -57,8 +57,10 @@ export class MqttConnector implements Connector {
   /**
    * Messages whose rows were committed after their connection had closed, so their PUBACK could
    * not be sent: the broker will deliver them again (MQTT 3.1.1 §4.4, MQTT 5.0 §4.4; aedes does
-   * not set the DUP flag on it). Such a redelivery is acknowledged without writing it twice —
-   * samples would be absorbed by the primary key, dead letters would not.
+   * not set the DUP flag on it). Such a redelivery on the same process and packet identifier is
+   * acknowledged without writing it again. Any other (a fresh process after a kill, a broker
+   * that restored its queue under new packet identifiers) is written again: its samples are
+   * absorbed by the primary key, its dead letters by their delivery key (counted as seen again).
    */
   private committedUnacked = new Map<number, string>();
   private state: ConnectionState = 'connecting';

@@ -19,7 +19,7 @@ import type { Logger } from 'pino';
 import { sourceStatusBase, type Connector, type ConnectorStatus, type ConnectionState, type SourceConfig } from '../connector.ts';
 import { isSample } from '../pipeline/quality.ts';
 import { TagSet } from '../pipeline/tag-set.ts';
-import { deadLetter, type TagConfig } from '../pipeline/types.ts';
+import { deadLetter, opcuaDelivery, type TagConfig } from '../pipeline/types.ts';
 import type { BatchWriter } from '../sink/batch-writer.ts';
 import { clientIdentity, createClient, parseOpcuaOptions, userIdentity } from './opcua-client.ts';
 import type { OpcuaSourceOptions } from './opcua-options.ts';
@@ -251,13 +251,16 @@ export class OpcuaConnector implements Connector {
     }
     const grade = gradeOfStatusCode(dv.statusCode.value);
     const ts = (dv.sourceTimestamp ?? dv.serverTimestamp)?.getTime() ?? now;
+    // A dead letter's identity: the same value notified again (a resent notification, the
+    // history read-back after a reconnect or a takeover) is counted on the stored letter.
+    const delivery = () => opcuaDelivery(proc.tag.address, ts, dv.statusCode.value);
     let raw: number | null = null;
     if (grade !== 'bad') {
       const v = dv.value;
       const n = numericValue(DataType[v.dataType] ?? String(v.dataType), v.value, v.arrayType !== undefined && v.arrayType !== 0);
       if (typeof n !== 'number') {
         this.counters.deadLetters++;
-        this.writer.enqueue([], [deadLetter(this.source.id, proc.tag.address, `${dv.toString().slice(0, 2000)}`, n.error, now)]);
+        this.writer.enqueue([], [deadLetter(this.source.id, proc.tag.address, `${dv.toString().slice(0, 2000)}`, n.error, now, delivery())]);
         return;
       }
       raw = n;
@@ -270,7 +273,7 @@ export class OpcuaConnector implements Connector {
       this.writer.enqueue([r], []);
     } else {
       this.counters.deadLetters++;
-      this.writer.enqueue([], [deadLetter(this.source.id, proc.tag.address, dv.toString().slice(0, 2000), r.reason, now)]);
+      this.writer.enqueue([], [deadLetter(this.source.id, proc.tag.address, dv.toString().slice(0, 2000), r.reason, now, delivery())]);
     }
   }
 

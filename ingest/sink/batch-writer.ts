@@ -1,6 +1,6 @@
 import type { Logger } from 'pino';
 import { DEAD_LETTER_REASON_MAX, pgText } from '../pipeline/pg-text.ts';
-import { DEAD_LETTER_PAYLOAD_MAX, type DeadLetter, type Sample } from '../pipeline/types.ts';
+import { DEAD_LETTER_PAYLOAD_MAX, deliveryKey, type DeadLetter, type Sample } from '../pipeline/types.ts';
 import { isPermanentRowError, isTransientDbError, type SampleStore } from './sample-store.ts';
 import type { Spool, SpoolRecord, SpoolStatus } from './spool.ts';
 
@@ -10,6 +10,8 @@ export type Ack = () => void;
 export interface WriterStats {
   committedSamples: number;
   committedDeadLetters: number;
+  /** Arrivals of a dead letter already stored (a redelivered or republished bad message), counted on its row. */
+  repeatedDeadLetters: number;
   duplicateSamples: number;
   spooledSamples: number;
   replayedSamples: number;
@@ -99,6 +101,7 @@ export class BatchWriter {
   readonly stats: WriterStats = {
     committedSamples: 0,
     committedDeadLetters: 0,
+    repeatedDeadLetters: 0,
     duplicateSamples: 0,
     spooledSamples: 0,
     replayedSamples: 0,
@@ -298,6 +301,7 @@ export class BatchWriter {
         this.stats.committedSamples += r.inserted;
         this.stats.duplicateSamples += r.duplicates;
         this.stats.committedDeadLetters += r.deadLetters;
+        this.stats.repeatedDeadLetters += r.deadLetterRepeats;
         if (r.staged) this.stats.stagedFlushes++;
         this.onCommit?.(r.inserted);
         return;
@@ -376,6 +380,9 @@ export class BatchWriter {
       payload: pgText(payload, DEAD_LETTER_PAYLOAD_MAX),
       payloadBytes: Buffer.byteLength(payload),
       reason: pgText(s ? `sample refused by the database (${why})` : `dead letter refused by the database (${why}); its reason: ${d?.reason ?? ''}`, DEAD_LETTER_REASON_MAX),
+      // The same sample (its primary key and value) or the same letter refused again — a
+      // redelivery, a spool replay — is that row seen again.
+      key: s ? deliveryKey('refused sample', s.tagId, String(s.ts), String(s.value), s.quality) : deliveryKey('refused letter', d?.key ?? payload),
     };
     if (s) this.stats.refusedSamples++;
     else this.stats.refusedDeadLetters++;

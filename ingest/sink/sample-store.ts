@@ -11,7 +11,10 @@ import { aggregate, latestPerTag, mergeInto, type RollupRow } from './rollup.ts'
 export interface WriteResult {
   inserted: number;
   duplicates: number;
+  /** Dead letters stored as new rows. */
   deadLetters: number;
+  /** Arrivals of a dead letter already stored (same delivery key), counted on its row. */
+  deadLetterRepeats: number;
   /** True when the fast path hit a duplicate key and the batch went through the staging table. */
   staged: boolean;
 }
@@ -233,8 +236,8 @@ export class SampleStore {
   /**
    * One batch in one transaction. `replay`: the batch comes from the spool, and may have been
    * committed already by a run that was killed before it could delete the spool file; its
-   * samples are absorbed by the primary key, and its dead letters are skipped when an identical
-   * row (same receive time to the millisecond, source, address, payload and reason) is stored.
+   * samples are absorbed by the primary key, and its dead letters by their delivery key without
+   * being counted again (writeDeadLetters).
    */
   async write(batch: readonly Sample[], deadLetters: readonly DeadLetter[], opts: { replay?: boolean } = {}): Promise<WriteResult> {
     const samples = byKey(batch);
@@ -278,39 +281,73 @@ export class SampleStore {
           values: [latest.map((s) => s.tagId), latest.map((s) => s.ts), latest.map((s) => s.value), latest.map((s) => s.quality)].map(pgNumberArray),
         });
       }
-      let deadLettersInserted = deadLetters.length;
-      if (deadLetters.length) {
-        const r = await c.query({
-          name: opts.replay ? 'ingest_dead_letters_replay' : 'ingest_dead_letters',
-          // On replay the NOT EXISTS sees the table as it was before this statement, so identical
-          // dead letters within the batch itself (two equal bad items of one message) all go in.
-          text: opts.replay
-            ? `INSERT INTO dead_letters (ts, source_id, address, payload, payload_bytes, reason)
-            SELECT * FROM unnest($1::timestamptz[], $2::int[], $3::text[], $4::text[], $5::int[], $6::text[]) AS u(ts, source_id, address, payload, payload_bytes, reason)
-            WHERE NOT EXISTS (SELECT 1 FROM dead_letters d WHERE d.ts = u.ts AND d.source_id IS NOT DISTINCT FROM u.source_id AND d.address IS NOT DISTINCT FROM u.address
-              AND d.payload IS NOT DISTINCT FROM u.payload AND d.reason = u.reason)`
-            : `INSERT INTO dead_letters (ts, source_id, address, payload, payload_bytes, reason)
-            SELECT * FROM unnest($1::timestamptz[], $2::int[], $3::text[], $4::text[], $5::int[], $6::text[])`,
-          // deadLetter() already cleans its text; this is the last line before PostgreSQL, for
-          // dead letters made anywhere else (a spool written by an older version, the writer's own).
-          values: [
-            deadLetters.map((d) => new Date(d.ts)),
-            deadLetters.map((d) => d.sourceId),
-            deadLetters.map((d) => pgTextOrNull(d.address, DEAD_LETTER_ADDRESS_MAX)),
-            deadLetters.map((d) => pgText(d.payload, DEAD_LETTER_PAYLOAD_MAX)),
-            deadLetters.map((d) => d.payloadBytes),
-            deadLetters.map((d) => pgText(d.reason, DEAD_LETTER_REASON_MAX)),
-          ],
-        });
-        deadLettersInserted = r.rowCount ?? deadLetters.length;
-      }
+      const letters = deadLetters.length ? await this.writeDeadLetters(c, deadLetters, opts.replay === true) : { fresh: 0, repeats: 0 };
       await c.query('COMMIT');
-      return { inserted: inserted.length, duplicates: samples.length - inserted.length, deadLetters: deadLettersInserted, staged };
+      return { inserted: inserted.length, duplicates: samples.length - inserted.length, deadLetters: letters.fresh, deadLetterRepeats: letters.repeats, staged };
     } catch (err) {
       // Whatever failed, the transaction is not committed; a fresh connection avoids half states.
       this.reset();
       throw err;
     }
+  }
+
+  /**
+   * Dead letters by delivery key (DeadLetter.key): a letter whose key is stored already is one
+   * more arrival of it — `times_seen` counts up and `last_seen_at` moves on — not a second row.
+   * Letters of one key within the batch are merged first (ON CONFLICT DO UPDATE cannot touch a
+   * row twice in one statement, SQLSTATE 21000; PostgreSQL documentation, "INSERT", ON CONFLICT
+   * clause) and go in key order, so two writer connections that share keys take the index locks
+   * in the same order (PostgreSQL documentation, "Deadlocks").
+   *
+   * `replay`: the batch may have been committed by a run killed before it deleted its spool
+   * file. An arrival already counted has the stored row's first or latest receive time
+   * (millisecond receive times, unique per arrival of a key in practice), so it is not counted
+   * again.
+   */
+  private async writeDeadLetters(c: pg.Client, deadLetters: readonly DeadLetter[], replay: boolean): Promise<{ fresh: number; repeats: number }> {
+    const groups = new Map<string, { d: DeadLetter; n: number; last: number }>();
+    for (const d of deadLetters) {
+      const g = groups.get(d.key);
+      if (!g) groups.set(d.key, { d, n: 1, last: d.ts });
+      else {
+        g.n++;
+        if (d.ts < g.d.ts) g.d = d;
+        g.last = Math.max(g.last, d.ts);
+      }
+    }
+    const rows = [...groups.values()].sort((a, b) => (a.d.key < b.d.key ? -1 : a.d.key > b.d.key ? 1 : 0));
+    const r = await c.query<{ delivery_key: string; times_seen: number }>({
+      name: replay ? 'ingest_dead_letters_replay' : 'ingest_dead_letters',
+      text: `INSERT INTO dead_letters AS d (ts, last_seen_at, times_seen, source_id, address, payload, payload_bytes, reason, delivery_key)
+        SELECT * FROM unnest($1::timestamptz[], $2::timestamptz[], $3::int[], $4::int[], $5::text[], $6::text[], $7::int[], $8::text[], $9::text[]) ORDER BY 9
+        ON CONFLICT (delivery_key) DO UPDATE SET times_seen = d.times_seen + excluded.times_seen, last_seen_at = greatest(coalesce(d.last_seen_at, d.ts), excluded.last_seen_at)
+        ${replay ? 'WHERE excluded.ts <> d.ts AND excluded.last_seen_at IS DISTINCT FROM d.last_seen_at' : ''}
+        RETURNING delivery_key, times_seen`,
+      // deadLetter() already cleans its text; this is the last line before PostgreSQL, for
+      // dead letters made anywhere else (a spool written by an older version, the writer's own).
+      values: [
+        rows.map((g) => new Date(g.d.ts)),
+        rows.map((g) => new Date(g.last)),
+        rows.map((g) => g.n),
+        rows.map((g) => g.d.sourceId),
+        rows.map((g) => pgTextOrNull(g.d.address, DEAD_LETTER_ADDRESS_MAX)),
+        rows.map((g) => pgText(g.d.payload, DEAD_LETTER_PAYLOAD_MAX)),
+        rows.map((g) => g.d.payloadBytes),
+        rows.map((g) => pgText(g.d.reason, DEAD_LETTER_REASON_MAX)),
+        rows.map((g) => g.d.key),
+      ],
+    });
+    let fresh = 0;
+    let repeats = 0;
+    for (const x of r.rows) {
+      const n = groups.get(x.delivery_key)?.n ?? 0;
+      // A new row holds exactly this batch's arrivals; an existing one had at least one before.
+      if (x.times_seen === n) {
+        fresh++;
+        repeats += n - 1;
+      } else repeats += n;
+    }
+    return { fresh, repeats };
   }
 
   private async copy(c: pg.Client, table: string, samples: readonly Sample[]): Promise<void> {

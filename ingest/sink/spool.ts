@@ -2,7 +2,7 @@ import fs from 'node:fs';
 import fsp from 'node:fs/promises';
 import path from 'node:path';
 import zlib from 'node:zlib';
-import type { DeadLetter, Sample } from '../pipeline/types.ts';
+import { receiptKey, type DeadLetter, type Sample } from '../pipeline/types.ts';
 
 /** One spooled batch, as it will be replayed. */
 export interface SpoolRecord {
@@ -344,12 +344,13 @@ function encodeRecord(rec: SpoolRecord): Buffer {
 }
 
 function decodeBody(body: Buffer): SpoolRecord {
-  const j = JSON.parse(body.toString('utf8')) as { s: (number | null)[]; d: DeadLetter[] };
+  const j = JSON.parse(body.toString('utf8')) as { s: (number | null)[]; d: (Omit<DeadLetter, 'key'> & { key?: string })[] };
   const samples: Sample[] = [];
   for (let i = 0; i + 3 < j.s.length; i += 4) {
     samples.push({ tagId: j.s[i] as number, ts: j.s[i + 1] as number, value: j.s[i + 2] as number | null, quality: j.s[i + 3] as number });
   }
-  return { samples, deadLetters: j.d };
+  // A record written before dead letters had a delivery key is identified by its receipt.
+  return { samples, deadLetters: j.d.map((d) => ({ ...d, key: typeof d.key === 'string' ? d.key : receiptKey(d) })) };
 }
 
 async function readExactly(fh: fsp.FileHandle, len: number, pos: number): Promise<Buffer> {

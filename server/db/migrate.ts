@@ -38,7 +38,7 @@ export const INGEST_TABLE_GRANTS: Record<string, string> = {
   rollup_1m: 'SELECT, INSERT, UPDATE',
   rollup_1h: 'SELECT, INSERT, UPDATE',
   tag_latest: 'SELECT, INSERT, UPDATE',
-  dead_letters: 'SELECT, INSERT',
+  dead_letters: 'SELECT, INSERT, UPDATE',
   ingest_workers: 'SELECT, INSERT, UPDATE, DELETE',
   mqtt_discovery: 'SELECT, INSERT, UPDATE, DELETE',
   source_leases: 'SELECT, INSERT, UPDATE, DELETE',

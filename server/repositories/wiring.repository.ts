@@ -1,4 +1,4 @@
-import { and, asc, count, eq, gte, inArray, sql } from 'drizzle-orm';
+import { and, asc, count, eq, inArray, sql } from 'drizzle-orm';
 import type { Db, DbOrTx } from '../db/client.ts';
 import { basins, clarifiers, deadLetters, plants, pumps, signalMap, sources, tags, trains } from '../db/schema/index.ts';
 
@@ -180,14 +180,22 @@ export function wiringRepository(db: Db) {
       const rows = await db.select({ id: sources.id, plantId: sources.plantId }).from(sources).where(inArray(sources.id, ids));
       return new Map(rows.map((r) => [r.id, r.plantId]));
     },
-    /** Dead letters in the last hour and in total; `plantIds` limits them to those plants' sources. */
-    async deadLetterCounts(since: Date, plantIds: number[] | null): Promise<{ lastHour: number; total: number }> {
+    /**
+     * Dead letters (rows: one per delivery identity) seen in the last hour — first or again — and
+     * in total, and `repeats`: arrivals beyond each row's first (a redelivered or republished bad
+     * message). `plantIds` limits them to those plants' sources.
+     */
+    async deadLetterCounts(since: Date, plantIds: number[] | null): Promise<{ lastHour: number; total: number; repeats: number }> {
       const scope = plantIds ? inArray(deadLetters.sourceId, db.select({ id: sources.id }).from(sources).where(inArray(sources.plantId, plantIds))) : undefined;
       const [r] = await db
-        .select({ total: count(), lastHour: sql<number>`count(*) FILTER (WHERE ${gte(deadLetters.ts, since)})::int` })
+        .select({
+          total: count(),
+          lastHour: sql<number>`count(*) FILTER (WHERE coalesce(${deadLetters.lastSeenAt}, ${deadLetters.ts}) >= ${since})::int`,
+          repeats: sql<number>`coalesce(sum(${deadLetters.timesSeen} - 1), 0)::int`,
+        })
         .from(deadLetters)
         .where(scope);
-      return { lastHour: r?.lastHour ?? 0, total: r?.total ?? 0 };
+      return { lastHour: r?.lastHour ?? 0, total: r?.total ?? 0, repeats: r?.repeats ?? 0 };
     },
   };
 }

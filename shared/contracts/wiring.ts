@@ -519,7 +519,13 @@ export const ingestStatusOut = z.object({
   writer: z.record(z.string(), z.unknown()).nullable().meta({ description: 'writer counters of the worker with the latest heartbeat' }),
   loadError: z.string().nullable(),
   sources: z.array(connectorStatus).meta({ description: 'connection state per source, from every running worker (the last worker when none runs)' }),
-  deadLetters: z.object({ lastHour: z.number().int(), total: z.number().int() }).meta({ description: 'rows in dead_letters (undecodable or unmapped messages)' }),
+  deadLetters: z
+    .object({
+      lastHour: z.number().int().meta({ description: 'dead letters that arrived (first or again) in the last hour' }),
+      total: z.number().int().meta({ description: 'dead letters stored: one per bad message (its source, address, reason and payload digest), however often it arrived' }),
+      repeats: z.number().int().meta({ description: 'arrivals of a dead letter already stored (a bad message the broker delivered again, or published again), counted on its row' }),
+    })
+    .meta({ description: 'rows in dead_letters (undecodable or unmapped messages)' }),
   workers: z.array(ingestWorkerOut).meta({ description: `running workers, and those stopped or silent for less than ${INGEST_WORKER_SHOWN_PERIODS} heartbeat periods (shown stale), latest heartbeat first` }),
 });
 export type IngestStatusOut = z.infer<typeof ingestStatusOut>;

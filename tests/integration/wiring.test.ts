@@ -387,7 +387,9 @@ describe('wiring API', () => {
     expect(missing.body).toMatchObject({ running: false, sources: [], heartbeatAt: null, workers: [] });
     expect(missing.body.reason).toMatch(/no ingest worker has written a heartbeat/);
 
+    // A row first seen 3 h ago and seen again 2 more times, the latest 10 min ago, counts in the last hour.
     await q(`INSERT INTO dead_letters (ts, source_id, address, payload, reason) VALUES (now() - interval '2 hours', NULL, 'a', 'x', 'old'), (now(), NULL, 'a', 'y', 'new'), (now(), NULL, 'b', 'z', 'new')`);
+    await q(`INSERT INTO dead_letters (ts, last_seen_at, times_seen, source_id, address, payload, reason, delivery_key) VALUES (now() - interval '3 hours', now() - interval '10 minutes', 3, NULL, 'a', 'v', 'again', 'k1')`);
     const status = {
       samplesPerSec: 180,
       lagMs: 35,
@@ -405,7 +407,7 @@ describe('wiring API', () => {
       );
     await worker('w1', 1);
     const fresh = ingestStatusOut.parse((await analyst.get('/api/v1/ingest/status')).body);
-    expect(fresh).toMatchObject({ running: true, pid: 4242, samplesPerSec: 180, lagMs: 35, spool: { bytes: 2048, files: 1 }, deadLetters: { lastHour: 2, total: 3 } });
+    expect(fresh).toMatchObject({ running: true, pid: 4242, samplesPerSec: 180, lagMs: 35, spool: { bytes: 2048, files: 1 }, deadLetters: { lastHour: 3, total: 4, repeats: 2 } });
     expect(fresh.reason).toBeUndefined();
     expect(fresh.sources[0]).toMatchObject({ sourceId: 7, state: 'connected', reconnects: 1 });
     expect(fresh.workers).toEqual([expect.objectContaining({ id: 'w1', host: 'ingest-a', running: true, heartbeat_ms: 2000, sourceIds: [7], sources: 1, messages: 5, samples: 5 })]);
@@ -444,8 +446,8 @@ describe('wiring API', () => {
     expect(made.status).toBe(201);
     const bearer = { Authorization: `Bearer ${made.body.token}` };
     const scoped = await request(h.app).get('/api/v1/ingest/status').set(bearer);
-    expect(scoped.body).toMatchObject({ running: true, sources: [], deadLetters: { lastHour: 0, total: 0 } });
-    expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ sources: [expect.objectContaining({ sourceId: ours })], deadLetters: { lastHour: 3, total: 4 } });
+    expect(scoped.body).toMatchObject({ running: true, sources: [], deadLetters: { lastHour: 0, total: 0, repeats: 0 } });
+    expect((await analyst.get('/api/v1/ingest/status')).body).toMatchObject({ sources: [expect.objectContaining({ sourceId: ours })], deadLetters: { lastHour: 4, total: 5, repeats: 2 } });
     expect((await request(h.app).get(`/api/v1/sources/${ours}`).set(bearer)).status).toBe(403);
     expect((await request(h.app).patch(`/api/v1/sources/${ours}`).set(bearer).send({ enabled: false })).status).toBe(403);
     expect((await request(h.app).get(`/api/v1/plants/${plant}/tags/config`).set(bearer)).status).toBe(403);

@@ -76,17 +76,29 @@ export const signalMap = pgTable(
   ],
 );
 
-/** Messages the ingest pipeline could not decode or map, with the reason (nothing is dropped silently). */
+/**
+ * Messages the ingest pipeline could not decode or map, with the reason (nothing is dropped
+ * silently). One row per delivery identity (ingest/pipeline/types.ts deliveryKey): the same bad
+ * message arriving again — redelivered by the broker after a lost PUBACK, or published again —
+ * counts up `times_seen` on its row instead of adding one.
+ */
 export const deadLetters = pgTable(
   'dead_letters',
   {
     id: serial('id').primaryKey(),
+    /** First arrival. */
     ts: timestamp('ts', { withTimezone: true }).notNull().defaultNow(),
     sourceId: integer('source_id'),
     address: text('address'),
     payload: text('payload'),
     payloadBytes: integer('payload_bytes').notNull().default(0),
     reason: text('reason').notNull(),
+    /** Hex SHA-256 of the delivery identity (source, address, reason and the message's digest, or an OPC UA node, source timestamp and status); null on rows stored before it existed. */
+    deliveryKey: text('delivery_key'),
+    /** Arrivals of this delivery, the first included. */
+    timesSeen: integer('times_seen').notNull().default(1),
+    /** Latest arrival; null when seen once (then it is `ts`). */
+    lastSeenAt: timestamp('last_seen_at', { withTimezone: true }),
   },
-  (t) => [index('dead_letters_ts_idx').on(t.ts)],
+  (t) => [index('dead_letters_ts_idx').on(t.ts), uniqueIndex('dead_letters_delivery_key_uq').on(t.deliveryKey)],
 );

@@ -283,6 +283,12 @@ describe('MQTT → PostgreSQL', () => {
       }
     }
     const deadExpected = bad.length - unknown;
+    // One dead letter per distinct bad message (topic and payload; its reason follows from them),
+    // seen as often as it was published: 10 of them (cases 0–7 and 9, case 5 twice).
+    const distinctBad = new Set(bad.filter(([topic]) => !topic.startsWith('junk/')).map(([topic, p]) => `${topic}\u0000${p}`)).size;
+    expect(distinctBad).toBe(10);
+    const seen = () => scalar(pool, `SELECT coalesce(sum(times_seen), 0) FROM dead_letters`);
+    const seenBefore = await seen();
     const t0 = Date.UTC(2026, 0, 13);
     const good = 2_000;
     let g = 0;
@@ -294,11 +300,12 @@ describe('MQTT → PostgreSQL', () => {
       await Promise.all(ps);
     }
     expect(g).toBe(good);
-    await waitFor('dead letters', () => scalar(pool, `SELECT count(*) FROM dead_letters`), (n) => n >= dlBefore + deadExpected, 30_000);
+    await waitFor('dead letters', seen, (n) => n >= seenBefore + deadExpected, 30_000);
     const range = [tagIds.slice(0, TAGS), new Date(t0), new Date(t0 + 86_400_000)];
     await waitFor('good rows', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range), (n) => n >= good);
     await drained(broker, ingestClientId(), svc, 30_000);
-    expect(await scalar(pool, `SELECT count(*) FROM dead_letters`)).toBe(dlBefore + deadExpected);
+    expect(await seen()).toBe(seenBefore + deadExpected);
+    expect(await scalar(pool, `SELECT count(*) FROM dead_letters`)).toBe(dlBefore + distinctBad);
     expect(await scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range)).toBe(good);
     const after = svc.status().sources[0]!;
     expect(after.unmapped - before.unmapped).toBe(unknown);

@@ -52,7 +52,7 @@ describe('poison rows against real PostgreSQL', () => {
     const dls: DeadLetter[] = [
       deadLetter(1, 'p/tag0', payload, reason),
       // made by hand, as a spool written by an older version holds it: the store cleans it too
-      { ts: t0, sourceId: 1, address: 'p/\u0000', payload: '\u0000', payloadBytes: 1, reason: `raw ${reason} \uD800` },
+      { ts: t0, sourceId: 1, address: 'p/\u0000', payload: '\u0000', payloadBytes: 1, reason: `raw ${reason} \uD800`, key: 'made by hand' },
     ];
     let acks = 0;
     writer.enqueue(batch, dls, () => acks++);
@@ -78,7 +78,7 @@ describe('poison rows against real PostgreSQL', () => {
     expect(spool.isEmpty).toBe(true);
   });
 
-  it('MQTT: good messages around a NUL-carrying one every few messages are all stored; each poison message is one dead letter; nothing spooled or quarantined', async () => {
+  it('MQTT: good messages around a NUL-carrying one every few messages are all stored; the poison payload, sent 20 times, is one dead letter seen 20 times; nothing spooled or quarantined', async () => {
     const t = await createTestDatabase();
     cleanups.push(() => t.drop());
     const pool = new pg.Pool({ connectionString: t.url, max: 2 });
@@ -108,10 +108,13 @@ describe('poison rows against real PostgreSQL', () => {
     }
     const range = [tagIds, new Date(t0), new Date(t0 + 86_400_000)];
     await waitFor('all stored', () => scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range), (n) => n >= N, 30_000);
-    await waitFor('all dead letters', () => scalar(pool, `SELECT count(*) FROM dead_letters`), (n) => n >= POISON, 10_000);
+    // The same bad payload on the same topic is one dead letter, seen as often as it came: every
+    // poison message goes to n/tag0 (i mod 10 for i = 0, 200, 400, …), so one row seen 20 times.
+    await waitFor('all dead letters', () => scalar(pool, `SELECT coalesce(sum(times_seen), 0) FROM dead_letters`), (n) => n >= POISON, 10_000);
     expect(await scalar(pool, `SELECT count(*) FROM samples WHERE tag_id = ANY($1) AND ts >= $2 AND ts < $3`, range)).toBe(N);
-    expect(await scalar(pool, `SELECT count(*) FROM dead_letters WHERE reason LIKE 'invalid JSON:%' AND strpos(reason, '\\0') > 0`)).toBe(POISON);
-    expect(await scalar(pool, `SELECT count(*) FROM dead_letters`)).toBe(POISON);
+    expect(await scalar(pool, `SELECT sum(times_seen) FROM dead_letters WHERE reason LIKE 'invalid JSON:%' AND strpos(reason, '\\0') > 0`)).toBe(POISON);
+    expect(await scalar(pool, `SELECT sum(times_seen) FROM dead_letters`)).toBe(POISON);
+    expect(await scalar(pool, `SELECT count(*) FROM dead_letters`)).toBe(1);
     expect(svc.writer.stats.spooledSamples).toBe(0);
     expect(fs.existsSync(path.join(dataDir, 'spool', 'rejected'))).toBe(false);
     expect(svc.status().spool).toMatchObject({ files: 0, bytes: 0, pendingBytes: 0, unreadable: [], capReached: false });

@@ -29,7 +29,7 @@ class RefusingStore {
     }
     this.samples.push(...samples);
     this.deadLetters.push(...deadLetters);
-    return { inserted: samples.length, duplicates: 0, deadLetters: deadLetters.length, staged: false };
+    return { inserted: samples.length, duplicates: 0, deadLetters: deadLetters.length, deadLetterRepeats: 0, staged: false };
   }
 }
 /** 4713-11-24 BC 00:00 UTC, the lowest timestamptz (Julian day 0), in epoch ms. */
@@ -85,7 +85,7 @@ describe('BatchWriter: a bad row never costs its neighbours', () => {
 
   it('a dead letter carrying NUL made by hand (not through deadLetter()) is stored in plain form; the batch is committed', async () => {
     const { dir, store, writer } = await setup();
-    const nul: DeadLetter = { ts: 1, sourceId: 3, address: 'plant/x', payload: '{"v":tru\u0000}', payloadBytes: 10, reason: 'invalid JSON: Unexpected token \'\u0000\'' };
+    const nul: DeadLetter = { ts: 1, sourceId: 3, address: 'plant/x', payload: '{"v":tru\u0000}', payloadBytes: 10, reason: 'invalid JSON: Unexpected token \'\u0000\'', key: 'made by hand' };
     writer.enqueue(good(1_000), [nul], () => {});
     await writer.flush();
     expect(store.samples).toHaveLength(1_000);

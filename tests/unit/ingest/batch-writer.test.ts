@@ -21,7 +21,7 @@ class FakeStore {
     if (fail) throw fail;
     this.committed.push(samples.map((s) => s.value!));
     commitLog.push(first);
-    return { inserted: samples.length, duplicates: 0, deadLetters: 0, staged: false };
+    return { inserted: samples.length, duplicates: 0, deadLetters: 0, deadLetterRepeats: 0, staged: false };
   }
 }
 

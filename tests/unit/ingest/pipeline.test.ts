@@ -162,7 +162,7 @@ describe('spool', () => {
     const dir = fs.mkdtempSync(path.join(os.tmpdir(), 'spool-'));
     const s = await Spool.open(dir);
     await s.append({ samples: [{ tagId: 1, ts: 1, value: 1.5, quality: 0 }], deadLetters: [] });
-    await s.append({ samples: [{ tagId: 1, ts: 2, value: null, quality: 2 }], deadLetters: [{ ts: 3, sourceId: 1, address: 'a', payload: 'x', payloadBytes: 1, reason: 'r' }] });
+    await s.append({ samples: [{ tagId: 1, ts: 2, value: null, quality: 2 }], deadLetters: [{ ts: 3, sourceId: 1, address: 'a', payload: 'x', payloadBytes: 1, reason: 'r', key: 'k3' }] });
     await s.close();
     const file = path.join(dir, fs.readdirSync(dir)[0]!);
     fs.appendFileSync(file, Buffer.from([200, 0, 0, 0, 1, 2, 3])); // a record cut short by a crash

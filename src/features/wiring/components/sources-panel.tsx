@@ -1,6 +1,6 @@
 import { useState } from 'react';
 import { useForm, useWatch } from 'react-hook-form';
-import { OPCUA_SECURITY_MODES, OPCUA_SECURITY_POLICIES, sourceCreate, sparkplugStatus, type ConnectionTestOut, type IngestWorkerOut, type MqttPayloadFormat, type SourceCreate, type SourceKind } from '../../../../shared/contracts/wiring.ts';
+import { OPCUA_SECURITY_MODES, OPCUA_SECURITY_POLICIES, sourceCreate, sparkplugStatus, type ConnectionTestOut, type IngestStatusOut, type IngestWorkerOut, type MqttPayloadFormat, type SourceCreate, type SourceKind } from '../../../../shared/contracts/wiring.ts';
 import { Button, ErrorNote, Field, FormProblem, Panel, Select, TextInput } from '../../../components/ui/controls.tsx';
 import { applyServerErrors, contractResolver, fieldError } from '../../../lib/form.ts';
 import { formatAge, formatUtc } from '../../../lib/format.ts';
@@ -89,9 +89,26 @@ export function SourcesPanel({ plantId, selected, onSelect }: { plantId: number;
         </tbody>
       </table>
       {status.data?.loadError ? <p className="text-alarm-1 mt-1">Ingest could not load the wiring: {status.data.loadError}</p> : null}
+      <DeadLetterNote counts={status.data?.deadLetters} />
       <WorkersTable workers={status.data?.workers ?? []} />
       <NewSourceForm plantId={plantId} />
     </Panel>
+  );
+}
+
+/** Messages ingest could not use: one per bad message however often it arrived, with how many arrived again (a broker redelivery or the same message published again). */
+function DeadLetterNote({ counts }: { counts: IngestStatusOut['deadLetters'] | undefined }) {
+  if (!counts?.total) return null;
+  return (
+    <p className="text-ink-2 mt-1" data-testid="dead-letters">
+      Dead letters: <span className="num">{counts.lastHour.toLocaleString('en-US')}</span> in the last hour, <span className="num">{counts.total.toLocaleString('en-US')}</span> in total
+      {counts.repeats ? (
+        <span className="text-ink-3">
+          {' '}
+          · <span className="num">{counts.repeats.toLocaleString('en-US')}</span> arrived again and counted on their first
+        </span>
+      ) : null}
+    </p>
   );
 }
 
