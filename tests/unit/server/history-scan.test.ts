@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { LineScanner, type ScanTag } from '../../../server/jobs/history-scan.ts';
+import { LineScanner, readValue, type ScanTag } from '../../../server/jobs/history-scan.ts';
+import { mulberry32 } from '../domain/prng.ts';
 
 /** FIT-101 in m³/h (range 0–5000); `AIT-111 [mg/L]` converted to g/L (× 0.001, range 0–10); anything else unknown. */
 function resolve(text: string): ScanTag | string {
@@ -70,5 +71,16 @@ describe('LineScanner (the SQL path of the historian import picks its files and 
     expect(q('32768')).toBe(false);
     expect(q('gOOd')).toBe(false);
     expect(q('-1')).toBe(false);
+  });
+
+  it('reads values as Number() does, to the bit (the fast decimal path and its fallback)', () => {
+    const rnd = mulberry32(7);
+    const texts = ['0', '-0', '+.5', '5.', '.', '-', '1.2.3', '1e5', '-1.5E-3', '4999.99999999999', '5000.000000000001', '123456789012345', '1234567890123456', '0.1', '0.3', '9007199254740993'];
+    for (let k = 0; k < 20_000; k++) {
+      const int = String(Math.floor(rnd() * 10 ** Math.floor(rnd() * 12)));
+      const frac = String(Math.floor(rnd() * 10 ** Math.floor(rnd() * 10))).padStart(Math.floor(rnd() * 6), '0');
+      texts.push(`${rnd() < 0.3 ? '-' : ''}${int}${rnd() < 0.8 ? `.${frac}` : ''}`);
+    }
+    for (const t of texts) expect(Object.is(readValue(Buffer.from(t), 0, t.length), Number(t)), t).toBe(true);
   });
 });
