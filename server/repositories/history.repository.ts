@@ -187,6 +187,8 @@ async function pipeCopy(from: Conn, select: string, to: Conn, into: string): Pro
     await outEnded;
     return inn.rowCount;
   } catch (err) {
+    // A late write to the failed COPY in must not surface as an unhandled error.
+    inn.on('error', () => {});
     out.unpipe(inn);
     out.resume();
     await outEnded.catch(() => {});
