@@ -10,7 +10,7 @@ import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import type { BalanceEngineInputs, LayoutIn, SeriesPoint, SignalReading, SviReading } from '../../shared/domain/balance/inputs.ts';
 import type { Sample } from '../../ingest/pipeline/types.ts';
 import { repositories, services, type AppContext } from '../app-context.ts';
-import { SqlPathRefused, type HistoryRepository, type MinuteRow, type SqlTagEntry, type TagWindow } from '../repositories/history.repository.ts';
+import { SqlPathRefused, type HistoryRepository, type MinuteRow, type TagWindow } from '../repositories/history.repository.ts';
 import { queueBackend, type ClosableWorker, type SchedulingQueue } from './balance-engine.ts';
 import { enqueueHistoryJob, registerHistoryQueue, type HistoryQueue } from './history-queue.ts';
 import { RowChecker } from './history-rows.ts';
@@ -63,13 +63,16 @@ function firstRecords(file: string, delimiter: string): string[][] | null {
 const OFFSET_AT_END = /(?:Z|[+-]\d\d:\d\d)$/;
 
 /**
- * The SQL path (long layout, ISO 8601 timestamps): the file's bytes go to PostgreSQL's COPY as
- * they are, which parses the CSV in C, and one INSERT … SELECT checks and converts every line
- * (HistoryRepository.sqlImport), where the csv-parse path spends about half its time parsing in
- * this one thread. Only strict forms pass it (see the repository); a file with anything else, an
- * error included, is refused with nothing stored, and the caller runs the csv-parse path over it,
- * so the line checks of history-rows.ts stay the one reference for what is accepted and which
+ * The SQL path (long layout, ISO 8601 timestamps): LineScanner checks each line of the file in
+ * its strict forms and rewrites it as a typed COPY row (tag id, the timestamp's text, the value,
+ * the quality code); PostgreSQL's COPY parses timestamps and values in C, where the csv-parse path
+ * spends about half its time parsing in this one thread, and the move into `samples` follows
+ * (HistoryRepository.sqlImport). A file with any line outside the strict forms, an error
+ * included, is refused with nothing stored, and the caller runs the csv-parse path over it, so
+ * the line checks of history-rows.ts stay the one reference for what is accepted and which
  * lines are reported. Returns true when stored (or checked), else the reason it was refused.
+ * Progress: the COPY (reading the file) is the first 40 %, the minute buckets, the move in
+ * steps and the rollups the rest, written between the move's statements.
  */
 async function runSqlImport(ctx: AppContext, repo: HistoryRepository, jobId: number, plantId: number, o: ImportOptions, checker: RowChecker, report: (p: number) => void): Promise<true | string> {
   if (o.tsFormat !== 'iso' || o.layout === 'wide') return 'not the long layout with ISO 8601 timestamps';
@@ -79,68 +82,60 @@ async function runSqlImport(ctx: AppContext, repo: HistoryRepository, jobId: num
   const localIsUtc = o.timezone === 'UTC' || o.timezone === 'Etc/UTC';
   if (!localIsUtc && !OFFSET_AT_END.test(head[1]![1] ?? '')) return 'local times in a time zone other than UTC';
   const began = performance.now();
-  const scanner = new LineScanner(o.delimiter.charCodeAt(0), head[0]!.length === 4 ? 4 : 3, localIsUtc);
+  const resolve = (text: string) => {
+    const c = checker.column(text);
+    return typeof c === 'string' ? c : { tagId: c.tag.id, factor: c.factor, rangeLow: c.tag.rangeLow, rangeHigh: c.tag.rangeHigh };
+  };
+  const scanner = new LineScanner(o.delimiter.charCodeAt(0), head[0]!.length === 4 ? 4 : 3, localIsUtc, resolve);
+  const COPY_SHARE = 0.4;
   let bytesRead = 0;
   let lastReport = 0;
-  // The last progress write, awaited before the next phase so none lands after the job's end.
+  // The last progress write, awaited before the next one and before the job's end, so none lands after it.
   let written: Promise<unknown> = Promise.resolve();
-  // An async generator (not .pipe) so a read error reaches COPY's pipeline and ends the job.
+  const write = (p: number, rows: number) => {
+    report(p);
+    written = written.then(() => repo.progress(jobId, { progress: p, rows, rejected: 0 })).catch(() => {});
+    return written;
+  };
+  // An async generator (not .pipe) so a read error, or the first irregular line, reaches COPY's
+  // pipeline and ends it: a file the SQL path leaves is not read to its end first.
   const source = Readable.from(
     (async function* () {
       for await (const chunk of fs.createReadStream(o.file, { highWaterMark: 1 << 16 }) as AsyncIterable<Buffer>) {
-        scanner.push(chunk);
+        const rows = scanner.push(chunk);
+        if (scanner.irregular) throw new SqlPathRefused(scanner.irregular);
         bytesRead += chunk.length;
         const now = Date.now();
         if (now - lastReport >= PROGRESS_EVERY_MS) {
           lastReport = now;
-          // Copying is about a third of the SQL path's time; the insert with its rollups the rest.
-          const p = 0.3 * (o.bytes > 0 ? Math.min(1, bytesRead / o.bytes) : 0);
-          report(p);
-          written = repo.progress(jobId, { progress: p, rows: scanner.lines, rejected: 0 }).catch(() => {});
+          void write(COPY_SHARE * (o.bytes > 0 ? Math.min(1, bytesRead / o.bytes) : 0), scanner.lines);
         }
-        yield chunk;
+        if (rows.length) yield rows;
       }
-      scanner.end();
+      const rows = scanner.end();
+      if (scanner.irregular) throw new SqlPathRefused(scanner.irregular);
+      if (rows.length) yield rows;
     })(),
     { objectMode: false },
   );
   try {
     const r = await repo.sqlImport({
       source,
-      delimiter: o.delimiter as ',' | ';' | '\t',
-      withQuality: head[0]!.length === 4,
       dryRun: o.dryRun,
-      plan: async (copied) => {
+      copied: (copied) => {
         if (copied === 0) throw new SqlPathRefused('no data lines');
-        if (scanner.irregular) throw new SqlPathRefused(scanner.irregular);
-        if (scanner.lines !== copied) throw new SqlPathRefused(`${scanner.lines} lines scanned, ${copied} records copied (a line break inside quotes)`);
-        const tags: SqlTagEntry[] = [];
-        const days = new Set<number>();
-        const dayRange = new Map<number, [number, number]>();
-        for (const [text, dates] of scanner.tags) {
-          const c = checker.column(text);
-          if (typeof c === 'string') throw new SqlPathRefused(c);
-          tags.push({ text, tagId: c.tag.id, factor: c.factor, rangeLow: c.tag.rangeLow, rangeHigh: c.tag.rangeHigh });
-          for (const d of dates) {
-            const day = Date.parse(`${d}T00:00:00Z`) / DAY_MS;
-            if (!Number.isInteger(day)) throw new SqlPathRefused(`"${d}" is not a date`);
-            days.add(day);
-            const w = dayRange.get(c.tag.id);
-            if (!w) dayRange.set(c.tag.id, [day, day]);
-            else dayRange.set(c.tag.id, [Math.min(w[0], day), Math.max(w[1], day)]);
-          }
-        }
-        report(0.3);
-        await written;
-        await repo.progress(jobId, { progress: 0.3, rows: copied, rejected: 0 });
-        return { tags, days: [...days], dayRange, offsets: scanner.offsets };
+        if (scanner.lines !== copied) throw new SqlPathRefused(`${scanner.lines} lines scanned, ${copied} rows copied`);
+      },
+      progress: async (share) => {
+        await write(COPY_SHARE + (1 - COPY_SHARE) * share, scanner.lines);
       },
     });
-    const windows = r.windows;
+    await written;
     const timing = { path: 'sql', ...r.timing, totalSec: Math.round((performance.now() - began) / 100) / 10 };
-    await finishImport(ctx, repo, jobId, plantId, o, r.rows, r.inserted, windows, timing);
+    await finishImport(ctx, repo, jobId, plantId, o, r.rows, r.inserted, r.windows, timing);
     return true;
   } catch (err) {
+    await written;
     if (err instanceof SqlPathRefused) return err.message;
     throw err;
   }

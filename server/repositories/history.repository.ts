@@ -1,8 +1,7 @@
 import type { Readable, Writable } from 'node:stream';
 import { pipeline } from 'node:stream/promises';
 import type pg from 'pg';
-import { from as copyFrom } from 'pg-copy-streams';
-import { QUALITY_FLAG, QUALITY_GRADE } from '../../shared/contracts/sample-quality.ts';
+import { from as copyFrom, to as copyTo } from 'pg-copy-streams';
 import type { Balance } from '../../shared/contracts/balance.ts';
 import type { HistoryRowError } from '../../shared/contracts/history.ts';
 import type { SeriesPoint } from '../../shared/domain/balance/inputs.ts';
@@ -44,9 +43,12 @@ export interface MinuteRow extends SeriesPoint {
 }
 
 const HOUR_MS = 3_600_000;
-const DAY_MS = 86_400_000;
 /** Origin of date_bin's buckets: a UTC midnight, so minutes, hours and days are UTC ones. */
 const BIN_ORIGIN = `timestamptz '2000-01-01 00:00:00+00'`;
+/** The SQL path's move into `samples` goes in about this many statements (progress between them)… */
+const MOVE_STEPS = 20;
+/** …of at least this many pages of the staging table (8 KiB each, about 150 rows). */
+const MOVE_MIN_PAGES = 64;
 
 function jobRow(x: Record<string, unknown>): HistoryJobRow {
   return {
@@ -76,38 +78,14 @@ const ROLLUP_SET = `min = excluded.min, max = excluded.max, sum = excluded.sum, 
 
 type Conn = pg.PoolClient;
 
-/** A tag as the file names it (long layout: the tag field, which may carry a `[unit]`), resolved by the line checks. */
-export interface SqlTagEntry {
-  text: string;
-  tagId: number;
-  factor: number;
-  rangeLow: number | null;
-  rangeHigh: number | null;
-}
-
-export interface SqlPlan {
-  /** Every tag field text of the file, resolved. */
-  tags: readonly SqlTagEntry[];
-  /** UTC days (epoch day numbers) the file's timestamps name; a missed one is repaired after the insert. */
-  days: readonly number[];
-  /** Per tag id, the first and last day the file names [epoch days]. */
-  dayRange: ReadonlyMap<number, [number, number]>;
-  /** Some timestamp has a ±HH:MM offset (its UTC day may differ from the day it names). */
-  offsets: boolean;
-}
-
 export interface SqlImportInput {
-  /** The file's bytes, header line included (COPY skips it). */
+  /** COPY text rows (tag_id, ts, value, quality) of the checked lines, from LineScanner (server/jobs/history-scan.ts). */
   source: Readable;
-  delimiter: ',' | ';' | '\t';
-  /** The header has the quality column. */
-  withQuality: boolean;
   dryRun: boolean;
-  /**
-   * Called once COPY has the whole file, with the rows it took: the tag map and the days, or a
-   * SqlPathRefused thrown.
-   */
-  plan: (copied: number) => Promise<SqlPlan>;
+  /** Called once COPY has every row, with the rows it took: throws SqlPathRefused to refuse the file. */
+  copied: (rows: number) => void | Promise<void>;
+  /** The share (0–1) of the work after the COPY that is done, reported between its statements. */
+  progress: (share: number) => Promise<void>;
 }
 
 export interface SqlImportResult {
@@ -115,7 +93,7 @@ export interface SqlImportResult {
   /** Rows inserted into samples (null for a dry run). */
   inserted: number | null;
   windows: TagWindow[];
-  timing: { copySec: number; insertSec: number; rollupSec: number };
+  timing: { copySec: number; minutesSec: number; insertSec: number; rollupSec: number; moveSteps: number; conflicts: 'none' | 'overlap' | 'duplicate' };
 }
 
 /**
@@ -131,61 +109,16 @@ function isDataError(err: unknown): boolean {
   return typeof code === 'string' && (code.startsWith('22') || code.startsWith('23'));
 }
 
-/*
- * The SQL path's conversion. Its text forms are checked before (server/jobs/history-scan.ts,
- * LineScanner): PostgreSQL's input functions are more lenient than the line checks, and a
- * regular expression or character-set test per field here cost more than the insert itself.
- * What is left here: the quality words and codes, the empty value, a finite value, and a field
- * out of range, which the input functions refuse (a data error, which refuses the file for this
- * path). tests/integration/history-sql-path.test.ts checks scan and conversion together against
- * the line checks (RowChecker).
- * - quality: good/uncertain/bad in lower, Title or UPPER case, or a code of up to five digits
- *   that fits int2 (int2 input refuses more);
- * - value: float8 input (strtod, correctly rounded, as JavaScript's Number()), finite (float8
- *   input takes NaN and Infinity, the line checks refuse them); empty only with quality bad.
- */
-function qualityExpr(withQuality: boolean): string {
-  if (!withQuality) return `${QUALITY_GRADE.good}`;
-  const uncertain = QUALITY_GRADE.uncertain | QUALITY_FLAG.sourceStatus;
-  const bad = QUALITY_GRADE.bad | QUALITY_FLAG.sourceStatus;
-  return `CASE WHEN r.quality IS NULL OR r.quality IN ('', 'good', 'Good', 'GOOD') THEN ${QUALITY_GRADE.good}
-               WHEN r.quality IN ('bad', 'Bad', 'BAD') THEN ${bad}
-               WHEN r.quality IN ('uncertain', 'Uncertain', 'UNCERTAIN') THEN ${uncertain}
-               WHEN r.quality NOT LIKE '%-%' AND r.quality NOT LIKE '%+%' AND r.quality NOT LIKE '% %' AND length(r.quality) <= 5 THEN r.quality::int2
-               ELSE ('quality ' || r.quality)::int2 END`;
-}
-
-const VALUE_EXPR = `CASE WHEN r.value <> '' THEN r.value::float8 * m.factor
-               WHEN coalesce(r.value, '') = '' AND (q.q & 3) = ${QUALITY_GRADE.bad} THEN NULL
-               ELSE ('value ' || coalesce(r.value, ''))::float8 END`;
-
 /**
- * The rows of `history_raw` as samples: tag id (null for a tag field outside the map $1…$5),
- * time, value in the tag's unit, quality with the range flag (as RowChecker does); a line
- * PostgreSQL or these guards refuse raises a data error. Timestamps without an offset are read
- * in the session's zone, which sqlImport sets to UTC. Exported for the equivalence test.
+ * The minute rollups of each tag's window rebuilt from `samples` over whole hours, then the hour
+ * rollups and tag_latest (finishRollups); inside the caller's transaction. A sample without a
+ * value or graded bad is left out, as ingest does (ingest/sink/rollup.ts). Buckets are date_bin's
+ * UTC minutes and hours (plain arithmetic on the timestamp, where date_trunc converts each one to
+ * the session's zone), and a bucket's `last` is read back by its newest time through the primary
+ * key: one lookup per bucket instead of an array built per sample (0.9 s against 1.7 s for a
+ * million samples, measured with the bench's data).
  */
-export function sqlSamplesSelect(a: { withQuality: boolean }): string {
-  return `SELECT x.tag_id, x.ts,
-                 CASE WHEN x.v IS NULL OR (x.v > '-Infinity'::float8 AND x.v < 'Infinity'::float8) THEN x.v ELSE ('value ' || x.v::text)::float8 END,
-                 CASE WHEN x.v < x.lo OR x.v > x.hi THEN ((x.q & ~3) | ${QUALITY_FLAG.outOfRange} | greatest(x.q & 3, ${QUALITY_GRADE.uncertain}))::int2 ELSE x.q::int2 END
-            FROM (SELECT m.tag_id, r.ts::timestamptz AS ts, ${VALUE_EXPR} AS v, q.q, m.lo, m.hi
-                    FROM history_raw r
-                    LEFT JOIN unnest($1::text[], $2::int[], $3::float8[], $4::float8[], $5::float8[]) AS m(text, tag_id, factor, lo, hi) ON m.text = r.tag
-                    CROSS JOIN LATERAL (SELECT ${qualityExpr(a.withQuality)} AS q) q) x`;
-}
-
-/**
- * The minute rollups of each tag's window rebuilt from `samples` over whole hours, the hour
- * rollups from those minutes, and tag_latest where the window holds a newer sample; inside the
- * caller's transaction. A sample without a value or graded bad is left out, as ingest does
- * (ingest/sink/rollup.ts). Buckets are date_bin's UTC minutes and hours (plain arithmetic on
- * the timestamp, where date_trunc converts each one to the session's zone), and a bucket's
- * `last` is read back by its newest time through the primary key: one lookup per bucket
- * instead of an array built per sample (0.9 s against 1.7 s for a million samples, measured
- * with the bench's data).
- */
-async function rebuildRollups(c: Conn, windows: readonly TagWindow[]): Promise<void> {
+async function rebuildRollups(c: Conn, windows: readonly TagWindow[], progress: (share: number) => Promise<void> = async () => {}): Promise<void> {
   const w = hourWindows(windows);
   await c.query(
     `WITH a AS (
@@ -201,6 +134,100 @@ async function rebuildRollups(c: Conn, windows: readonly TagWindow[]): Promise<v
      ON CONFLICT (tag_id, bucket) DO UPDATE SET ${ROLLUP_SET}`,
     w,
   );
+  await progress(0.6);
+  await finishRollups(c, windows, progress);
+}
+
+/** What a minute rollup takes of a sample: a value, not graded bad (as ingest/sink/rollup.ts). */
+const ROLLUP_ROW = `value IS NOT NULL AND (quality & 3) < 2`;
+
+/**
+ * The staged file's minute buckets per tag (temporary `history_minutes`, one pass over the
+ * staging table): the rollup figures of the samples a rollup takes, and each bucket's first and
+ * last time of any sample, which give the tags' windows and the UTC days of the file.
+ */
+async function stageMinutes(c: Conn): Promise<void> {
+  await c.query(
+    `CREATE TEMP TABLE history_minutes AS
+     SELECT tag_id, date_bin('1 minute', ts, ${BIN_ORIGIN}) AS bucket, min(ts) AS first_ts, max(ts) AS last_any,
+            min(value) FILTER (WHERE ${ROLLUP_ROW}) AS min, max(value) FILTER (WHERE ${ROLLUP_ROW}) AS max,
+            sum(value) FILTER (WHERE ${ROLLUP_ROW}) AS sum, count(*) FILTER (WHERE ${ROLLUP_ROW}) AS count,
+            max(ts) FILTER (WHERE ${ROLLUP_ROW}) AS last_ts,
+            ((bit_or(quality) FILTER (WHERE ${ROLLUP_ROW}) & ~3) | max(quality & 3) FILTER (WHERE ${ROLLUP_ROW}))::int2 AS quality
+       FROM history_rows GROUP BY 1, 2`,
+  );
+  await c.query('ANALYZE history_minutes');
+}
+
+/**
+ * Rows of `select` on connection `from` into `into` on connection `to` by a binary COPY out and
+ * in (PostgreSQL's COPY FROM inserts in batches, one WAL record per page, where INSERT … SELECT
+ * writes one per row: in the bench, the COPY of the staged rows into `samples` took about 0.6 of
+ * the time of INSERT … SELECT, both measured in the same run). When the COPY in fails (a key
+ * already there), the COPY out is read to its end, so `from` stays usable. Returns the rows copied in.
+ */
+async function pipeCopy(from: Conn, select: string, to: Conn, into: string): Promise<number> {
+  const out: Readable = from.query(copyTo(`COPY (${select}) TO STDOUT (FORMAT binary)`));
+  const inn = to.query(copyFrom(`COPY ${into} FROM STDIN (FORMAT binary)`));
+  const outEnded = new Promise<void>((resolve, reject) => {
+    out.once('end', resolve);
+    out.once('error', reject);
+  });
+  try {
+    await new Promise<void>((resolve, reject) => {
+      inn.once('finish', resolve);
+      inn.once('error', reject);
+      // The staging side failed: end the COPY in with its error (CopyFail), so `to` is usable too.
+      out.once('error', (err) => {
+        inn.destroy(err);
+        reject(err);
+      });
+      out.pipe(inn);
+    });
+    await outEnded;
+    return inn.rowCount;
+  } catch (err) {
+    // A late write to the failed COPY in must not surface as an unhandled error.
+    inn.on('error', () => {});
+    out.unpipe(inn);
+    out.resume();
+    await outEnded.catch(() => {});
+    throw err;
+  }
+}
+
+/**
+ * The minute rollups of a file whose tags had no sample in their windows' hours before the
+ * insert: then every sample of those hours is one of the file's, and its minute buckets
+ * (stageMinutes, on the staging connection `stage`) are the rollups, with no second pass over
+ * `samples`; `last` is the staged value at the bucket's newest time. They go to the move's
+ * connection `c` by COPY and into rollup_1m there; then the hour rollups and tag_latest (finishRollups).
+ */
+async function rollupsFromStage(stage: Conn, c: Conn, windows: readonly TagWindow[], progress: (share: number) => Promise<void>): Promise<void> {
+  await c.query(
+    `CREATE TEMP TABLE history_minutes_in (tag_id integer, bucket timestamptz, min double precision, max double precision, sum double precision, count bigint, last double precision, last_ts timestamptz, quality smallint) ON COMMIT DROP`,
+  );
+  await pipeCopy(
+    stage,
+    `SELECT m.tag_id, m.bucket, m.min, m.max, m.sum, m.count, s.value, m.last_ts, m.quality
+       FROM history_minutes m JOIN history_rows s ON s.tag_id = m.tag_id AND s.ts = m.last_ts
+      WHERE m.count > 0`,
+    c,
+    'history_minutes_in (tag_id, bucket, min, max, sum, count, last, last_ts, quality)',
+  );
+  await progress(0.4);
+  await c.query(
+    `INSERT INTO rollup_1m AS r (tag_id, bucket, min, max, sum, count, last, last_ts, quality)
+     SELECT tag_id, bucket, min, max, sum, count, last, last_ts, quality FROM history_minutes_in
+     ON CONFLICT (tag_id, bucket) DO UPDATE SET ${ROLLUP_SET}`,
+  );
+  await progress(0.6);
+  await finishRollups(c, windows, progress);
+}
+
+/** The hour rollups of the windows from their minute rollups, and tag_latest where the window holds a newer sample. */
+async function finishRollups(c: Conn, windows: readonly TagWindow[], progress: (share: number) => Promise<void>): Promise<void> {
+  const w = hourWindows(windows);
   // last: the value of the newest minute, as max over (epoch, value) pairs (arrays compare element by element).
   await c.query(
     `INSERT INTO rollup_1h AS r (tag_id, bucket, min, max, sum, count, last, last_ts, quality)
@@ -213,6 +240,7 @@ async function rebuildRollups(c: Conn, windows: readonly TagWindow[]): Promise<v
      ON CONFLICT (tag_id, bucket) DO UPDATE SET ${ROLLUP_SET}`,
     w,
   );
+  await progress(0.9);
   await c.query(
     `INSERT INTO tag_latest AS l (tag_id, ts, value, quality, received_at)
      SELECT s.tag_id, s.ts, s.value, s.quality, now()
@@ -383,27 +411,37 @@ export function historyRepository(database: Database) {
     },
 
     /**
-     * The SQL path of a long-layout import: PostgreSQL parses the file (COPY … FORMAT csv into a
-     * text-typed temporary table, in file order), and one INSERT … SELECT converts, checks and
-     * stores it in a transaction with the day partitions, the rollups and tag_latest; a dry run
-     * only converts. Refused (SqlPathRefused, nothing stored) at the first line outside the strict
-     * forms above: the caller then runs the csv-parse path, whose line checks are the reference
-     * for what is accepted and which lines to fix.
+     * The SQL path of a long-layout import. Staging: PostgreSQL's COPY lands the rows LineScanner
+     * checked and typed (server/jobs/history-scan.ts) in a temporary table, and one pass over it
+     * gives the minute buckets of the file (stageMinutes), its tags' windows and its UTC days. A
+     * dry run stops there. The move, one transaction on a second connection: the day partitions,
+     * then the staged rows into `samples` by binary COPY (pipeCopy) in steps of the staging
+     * table's pages (the job's progress moves between them), then the rollups and tag_latest. A
+     * tag with a sample already in its window's hours (a file stored before, or ingest's) makes
+     * each step go through ON CONFLICT DO NOTHING and the rollups be rebuilt from `samples`;
+     * otherwise COPY inserts (no speculative insertion per row) and the rollups are the file's own
+     * buckets. A key twice in the file takes the first form too. Refused (SqlPathRefused, nothing
+     * stored) when PostgreSQL's input functions refuse a line: the caller then runs the csv-parse
+     * path, whose line checks are the reference for what is accepted and which lines to fix.
      */
     async sqlImport(a: SqlImportInput): Promise<SqlImportResult> {
+      // The staging connection, and the move's (opened after the staging).
       const c = await pool.connect();
+      let m: Conn | null = null;
       const sec = (t: number) => Math.round((performance.now() - t) / 100) / 10;
       try {
         // A background job: the API pool's statement_timeout bounds requests, not a file of millions of lines.
         await c.query('SET statement_timeout = 0');
         await c.query(`SET timezone = 'UTC'`);
+        // The file's minute buckets (a few hundred thousand for ten million rows) hashed in memory
+        // rather than sorted on disk; this one connection, which is closed after the job.
+        await c.query(`SET work_mem = '64MB'`);
         // Temporary: private to this connection, never WAL-logged, gone with the connection whatever happens.
-        await c.query(`CREATE TEMP TABLE history_raw (tag text, ts text, value text, quality text)`);
-        const delim = a.delimiter === '\t' ? `E'\\t'` : `'${a.delimiter}'`;
+        await c.query(`CREATE TEMP TABLE history_rows (tag_id integer NOT NULL, ts timestamptz NOT NULL, value double precision, quality smallint NOT NULL)`);
         let t = performance.now();
         let rows: number;
         try {
-          const copy = c.query(copyFrom(`COPY history_raw (tag, ts, value${a.withQuality ? ', quality' : ''}) FROM STDIN (FORMAT csv, HEADER true, DELIMITER ${delim})`));
+          const copy = c.query(copyFrom(`COPY history_rows (tag_id, ts, value, quality) FROM STDIN`));
           await pipeline(a.source, copy);
           rows = copy.rowCount;
         } catch (err) {
@@ -411,61 +449,83 @@ export function historyRepository(database: Database) {
           throw err;
         }
         const copySec = sec(t);
-        const plan = await a.plan(rows);
-        const m = [plan.tags.map((x) => x.text), plan.tags.map((x) => x.tagId), plan.tags.map((x) => x.factor), plan.tags.map((x) => x.rangeLow), plan.tags.map((x) => x.rangeHigh)];
-        if (a.dryRun) {
-          t = performance.now();
+        await a.copied(rows);
+        t = performance.now();
+        await stageMinutes(c);
+        const win = await c.query(
+          `SELECT tag_id, (extract(epoch FROM min(first_ts)) * 1000)::float8 AS lo, (extract(epoch FROM max(last_any)) * 1000)::float8 AS hi FROM history_minutes GROUP BY tag_id ORDER BY tag_id`,
+        );
+        const windows: TagWindow[] = win.rows.map((x) => ({ tagId: x.tag_id, from_ms: x.lo, to_ms: x.hi }));
+        const days = (await c.query(`SELECT DISTINCT date_bin('1 day', bucket, ${BIN_ORIGIN}) AS d FROM history_minutes ORDER BY 1`)).rows.map((x) => x.d as Date);
+        const minutesSec = sec(t);
+        await a.progress(0.1);
+        if (a.dryRun) return { rows, inserted: null, windows, timing: { copySec, minutesSec, insertSec: 0, rollupSec: 0, moveSteps: 0, conflicts: 'none' } };
+
+        // The move: one transaction on a connection of its own, fed from the staging table by COPY.
+        m = await pool.connect();
+        await m.query('SET statement_timeout = 0');
+        await m.query(`SET timezone = 'UTC'`);
+        await m.query(`SET work_mem = '64MB'`);
+        await m.query('BEGIN');
+        for (const d of days) await m.query('SELECT flocstream_ensure_day_partition($1)', [d]);
+        t = performance.now();
+        const overlap = await m.query(
+          `SELECT w.tag_id FROM unnest($1::int[], $2::timestamptz[], $3::timestamptz[]) AS w(tag_id, lo, hi)
+            WHERE EXISTS (SELECT 1 FROM samples s WHERE s.tag_id = w.tag_id AND s.ts >= w.lo AND s.ts < w.hi)`,
+          hourWindows(windows),
+        );
+        let conflicts: SqlImportResult['timing']['conflicts'] = overlap.rows.length ? 'overlap' : 'none';
+        const pages = Number((await c.query(`SELECT pg_relation_size('history_rows') / current_setting('block_size')::int AS n`)).rows[0].n);
+        // Steps of whole pages by ctid (a TID range scan reads only those pages): the progress
+        // moves between them, each a statement of the same transaction.
+        const step = Math.max(MOVE_MIN_PAGES, Math.ceil(pages / MOVE_STEPS));
+        const ranges: string[] = [];
+        for (let p = 0; p === 0 || p < pages; p += step) ranges.push(p + step >= pages ? `ctid >= '(${p},0)'::tid` : `ctid >= '(${p},0)'::tid AND ctid < '(${p + step},0)'::tid`);
+        const staged = (range: string) => `SELECT tag_id, ts, value, quality FROM history_rows WHERE ${range}`;
+        const mc = m;
+        const stepDone = (i: number) => a.progress(0.1 + (0.7 * (i + 1)) / ranges.length);
+        let inserted = 0;
+        if (conflicts === 'none') {
+          await mc.query('SAVEPOINT plain');
           try {
-            const r = await c.query(`SELECT tag_id, (extract(epoch FROM min(ts)) * 1000)::float8 AS lo, (extract(epoch FROM max(ts)) * 1000)::float8 AS hi, count(v) FILTER (WHERE v IS NULL) FROM (${sqlSamplesSelect(a)}) s (tag_id, ts, v, q) GROUP BY tag_id`, m);
-            if (r.rows.some((x) => x.tag_id === null)) throw new SqlPathRefused('a tag field outside the map');
-            return { rows, inserted: null, windows: r.rows.map((x) => ({ tagId: x.tag_id, from_ms: x.lo, to_ms: x.hi })), timing: { copySec, insertSec: sec(t), rollupSec: 0 } };
+            for (const [i, range] of ranges.entries()) {
+              inserted += await pipeCopy(c, staged(range), mc, 'samples (tag_id, ts, value, quality)');
+              await stepDone(i);
+            }
           } catch (err) {
-            if (isDataError(err)) throw new SqlPathRefused(`check: ${(err as Error).message}`);
-            throw err;
+            // A key twice in the file: the form below, which keeps the first of them.
+            if ((err as { code?: string }).code !== '23505') throw err;
+            await mc.query('ROLLBACK TO SAVEPOINT plain');
+            conflicts = 'duplicate';
+            inserted = 0;
           }
         }
-        await c.query('BEGIN');
-        for (const d of [...plan.days].sort((x, y) => x - y)) await c.query('SELECT flocstream_ensure_day_partition($1)', [new Date(d * DAY_MS)]);
-        t = performance.now();
-        let inserted: number;
-        try {
-          // Plain first: a file new to `samples` (the common case) skips ON CONFLICT's speculative
-          // insertion; a key already there (a file stored before, or ingest's) takes the second form.
-          await c.query('SAVEPOINT plain');
-          inserted = (await c.query(`INSERT INTO samples (tag_id, ts, value, quality) ${sqlSamplesSelect(a)}`, m)).rowCount ?? 0;
-          if (inserted !== rows) throw new SqlPathRefused(`${inserted} of ${rows} rows inserted`);
-        } catch (err) {
-          if ((err as { code?: string }).code !== '23505') throw err;
-          await c.query('ROLLBACK TO SAVEPOINT plain');
-          inserted = (await c.query(`INSERT INTO samples (tag_id, ts, value, quality) ${sqlSamplesSelect(a)} ON CONFLICT (tag_id, ts) DO NOTHING`, m)).rowCount ?? 0;
+        if (conflicts !== 'none') {
+          await mc.query(`CREATE TEMP TABLE history_rows_in (tag_id integer, ts timestamptz, value double precision, quality smallint) ON COMMIT DROP`);
+          for (const [i, range] of ranges.entries()) {
+            await pipeCopy(c, staged(range), mc, 'history_rows_in (tag_id, ts, value, quality)');
+            inserted += (await mc.query(`INSERT INTO samples (tag_id, ts, value, quality) SELECT tag_id, ts, value, quality FROM history_rows_in ON CONFLICT (tag_id, ts) DO NOTHING`)).rowCount ?? 0;
+            await mc.query('TRUNCATE history_rows_in');
+            await stepDone(i);
+          }
         }
         const insertSec = sec(t);
         t = performance.now();
-        // A row whose UTC day the scan did not name (an offset across midnight) went to the
-        // default partition: give its day a partition (which moves the rows there).
-        const stray = await c.query(`SELECT DISTINCT date_bin('1 day', ts, ${BIN_ORIGIN}) AS d FROM ONLY samples_default`);
-        for (const x of stray.rows) await c.query('SELECT flocstream_ensure_day_partition($1)', [x.d]);
-        // Each tag's window: its first and last sample in the days the file names (one day more
-        // each side when a timestamp has an offset), read from the primary key's ends.
-        const pad = plan.offsets ? 1 : 0;
-        const windows: TagWindow[] = [];
-        for (const [tagId, [d0, d1]] of plan.dayRange) {
-          const w = await c.query(
-            `SELECT (extract(epoch FROM min(ts)) * 1000)::float8 AS lo, (extract(epoch FROM max(ts)) * 1000)::float8 AS hi FROM samples WHERE tag_id = $1 AND ts >= $2 AND ts < $3`,
-            [tagId, new Date((d0 - pad) * DAY_MS), new Date((d1 + 1 + pad) * DAY_MS)],
-          );
-          if (w.rows[0]?.lo != null) windows.push({ tagId, from_ms: w.rows[0].lo, to_ms: w.rows[0].hi });
+        const rollupProgress = (share: number) => a.progress(0.8 + 0.2 * share);
+        if (inserted > 0 && windows.length) {
+          if (conflicts === 'none') await rollupsFromStage(c, mc, windows, rollupProgress);
+          else await rebuildRollups(mc, windows, rollupProgress);
         }
-        if (inserted > 0 && windows.length) await rebuildRollups(c, windows);
-        await c.query('COMMIT');
-        return { rows, inserted, windows, timing: { copySec, insertSec, rollupSec: sec(t) } };
+        await mc.query('COMMIT');
+        return { rows, inserted, windows, timing: { copySec, minutesSec, insertSec, rollupSec: sec(t), moveSteps: ranges.length, conflicts } };
       } catch (err) {
-        await c.query('ROLLBACK').catch(() => {});
+        await m?.query('ROLLBACK').catch(() => {});
         if (isDataError(err) && !(err instanceof SqlPathRefused)) throw new SqlPathRefused((err as Error).message);
         throw err;
       } finally {
-        // The temporary table and the session settings go with the connection.
+        // The temporary tables and the session settings go with the connections.
         c.release(true);
+        m?.release(true);
       }
     },
     /** Minute buckets of the tags in [from, to] (bucket time), in time order per tag. */

@@ -45,11 +45,11 @@ const results: Record<string, number | string> = {};
 const notes: string[] = [];
 const say = (m: string) => console.log(`[bench:backfill] ${m}`);
 
-/** The job's timing entries as text: seconds as `name N s`, the path taken as `path name`. */
+/** The job's timing entries as text: seconds (`…Sec`) as `name N s`, the rest (path taken, steps, conflicts) as `name value`. */
 function phaseText(timing: Record<string, unknown>): string {
   return Object.entries(timing)
     .filter(([, v]) => v !== null && v !== undefined)
-    .map(([k, v]) => (typeof v === 'number' ? `${k} ${v} s` : `${k} ${String(v)}`))
+    .map(([k, v]) => (typeof v === 'number' && k.endsWith('Sec') ? `${k} ${v} s` : `${k} ${String(v)}`))
     .join(', ');
 }
 

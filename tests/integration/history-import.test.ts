@@ -92,6 +92,12 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     expect(slow.length, JSON.stringify(slow)).toBeLessThanOrEqual(Math.floor(health.length / 10));
     expect(Math.max(...health.map((x) => x.ms))).toBeLessThan(1000);
     expect(await count(names)).toBe(1_000_000);
+    // The bar moves through the whole job, not from the end of the copy straight to done: the move
+    // into samples goes in steps of the staging table with the progress written between them
+    // (server/repositories/history.repository.ts sqlImport), read here between the probes.
+    const seen = health.map((x) => x.progress);
+    expect(seen, JSON.stringify(seen)).toEqual([...seen].sort((a, b) => a - b));
+    expect(new Set(seen.filter((p) => p > 0.4 && p < 1)).size, JSON.stringify(seen)).toBeGreaterThanOrEqual(3);
 
     const r = await h.ctx.db.pool.query(`SELECT tag_id, bucket, sum, count FROM rollup_1h WHERE tag_id = ANY($1::int[])`, [names.map((n) => tagIds[n])]);
     expect(r.rows).toHaveLength(perHour.size);
@@ -208,10 +214,11 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     const first = await finished((await upload(rows.join('\n')).expect(202)).body.jobId);
     expect(first).toMatchObject({ state: 'done', rows: 40, inserted: 40, from: new Date(t0).toISOString(), to: new Date(t0 + 39 * 60_000).toISOString() });
     expect(await path(first.id)).toBe('sql');
-    // Every key is there already: the plain insert fails on the primary key and the file goes again with ON CONFLICT DO NOTHING.
+    // Every key is there already: the tag's window holds samples, so the move takes ON CONFLICT DO NOTHING.
     const again = await finished((await upload(rows.join('\n')).expect(202)).body.jobId);
     expect(again).toMatchObject({ state: 'done', inserted: 0, recomputeJobId: null });
     expect(await path(again.id)).toBe('sql');
+    expect((await h.ctx.db.pool.query(`SELECT result->'timing'->>'conflicts' AS c FROM history_jobs WHERE id = $1`, [again.id])).rows[0].c).toBe('overlap');
     // A quoted tag field: the SQL path leaves the file to csv-parse, which stores the new rows.
     const quoted = ['tag,ts,value,quality', ...Array.from({ length: 40 }, (_, i) => `"XT-912",${new Date(t0 + (40 + i) * 60_000).toISOString()},${i / 4},good`)];
     const third = await finished((await upload(quoted.join('\n')).expect(202)).body.jobId);
@@ -222,6 +229,21 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     // Each file's values 0, 0.25, …, 9.75: 40 × 39 / 8 = 195 per file.
     expect(Number(sum.rows[0].n)).toBe(80);
     expect(Number(sum.rows[0].s)).toBe(390);
+  }, 60_000);
+
+  it('the SQL path: a key twice in one file is stored once and its rollups come from samples', async () => {
+    const t0 = Date.UTC(2026, 7, 3);
+    // Line 13 repeats the time of line 12 with another value: ON CONFLICT keeps the first (10 / 4 = 2.5).
+    const rows = ['tag,ts,value', ...Array.from({ length: 30 }, (_, i) => `XT-912,${new Date(t0 + i * 60_000).toISOString()},${i / 4}`)];
+    rows.splice(12, 0, `XT-912,${new Date(t0 + 10 * 60_000).toISOString()},100`);
+    const j = await finished((await upload(rows.join('\n')).expect(202)).body.jobId);
+    expect(j).toMatchObject({ state: 'done', rows: 31, inserted: 30 });
+    const timing = (await h.ctx.db.pool.query(`SELECT result->'timing' AS t FROM history_jobs WHERE id = $1`, [j.id])).rows[0].t;
+    expect(timing).toMatchObject({ path: 'sql', conflicts: 'duplicate' });
+    const sum = await h.ctx.db.pool.query(`SELECT sum(sum) AS s, sum(count) AS n FROM rollup_1m WHERE tag_id = $1 AND bucket >= $2 AND bucket < $3`, [tagIds['XT-912'], new Date(t0), new Date(t0 + 30 * 60_000)]);
+    // 0, 0.25, …, 7.25: 30 × 29 / 8 = 108.75.
+    expect(Number(sum.rows[0].n)).toBe(30);
+    expect(Number(sum.rows[0].s)).toBe(108.75);
   }, 60_000);
 
   it('the same file twice stores each row once; a stated format and time zone are applied', async () => {
