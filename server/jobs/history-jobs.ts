@@ -9,7 +9,7 @@ import type { EffectiveSettings } from '../../shared/contracts/settings.ts';
 import { computeBalance } from '../../shared/domain/balance/assemble.ts';
 import type { BalanceEngineInputs, LayoutIn, SeriesPoint, SignalReading, SviReading } from '../../shared/domain/balance/inputs.ts';
 import type { Sample } from '../../ingest/pipeline/types.ts';
-import { repositories, services, type AppContext } from '../app-context.ts';
+import { repositories, services, systemClock, type AppContext } from '../app-context.ts';
 import { SqlPathRefused, type HistoryRepository, type MinuteRow, type TagWindow } from '../repositories/history.repository.ts';
 import { queueBackend, type ClosableWorker, type SchedulingQueue } from './balance-engine.ts';
 import { enqueueHistoryJob, registerHistoryQueue, type HistoryQueue } from './history-queue.ts';
@@ -357,16 +357,23 @@ export async function runRecompute(ctx: AppContext, repo: HistoryRepository, job
     const to = Date.parse(o.to);
     // The first time with a complete minute of the window behind it, on the step's grid.
     const t0 = Math.ceil((from + MINUTE_MS) / step) * step;
+    // The last time is the window's end, never later and never past now: a grid time after the
+    // last imported sample would be a balance of data the import did not bring (and, for the
+    // demo's history that ends at its start, a "latest" balance from the future that hid the
+    // live ones until the clock caught up with it).
+    const end = Math.min(to, systemClock());
     const window_ms = lookback_ms(s);
+    // Recomputed rows of an earlier run up to a step past the end are replaced (an earlier
+    // version wrote one grid time past it).
     await repo.deleteRecomputed(job.plantId, new Date(t0), new Date(to + step));
-    const live = await repo.liveBalanceTimes(job.plantId, new Date(t0 - step), new Date(to + step));
-    const total = Math.max(1, Math.floor((to + step - t0) / step));
+    const live = await repo.liveBalanceTimes(job.plantId, new Date(t0 - step), new Date(end + 1));
+    const total = Math.max(1, Math.floor((end - t0) / step) + 1);
     let done = 0;
     let li = 0;
     let pending: Balance[] = [];
     let lastReport = 0;
-    for (let c0 = t0; c0 <= to + step - 1; c0 += DAY_MS) {
-      const c1 = Math.min(c0 + DAY_MS, to + step);
+    for (let c0 = t0; c0 <= end; c0 += DAY_MS) {
+      const c1 = Math.min(c0 + DAY_MS, end + 1);
       const minutes = await repo.minutes(tagIds, new Date(c0 - window_ms - MINUTE_MS), new Date(c1));
       const [first, last] = await Promise.all([layoutAt(c0), layoutAt(c1 - 1)]);
       const steady = JSON.stringify(first) === JSON.stringify(last);

@@ -170,6 +170,22 @@ describe('historian import (POST /plants/:id/history, GET /jobs/:id)', () => {
     expect(Number((await h.ctx.db.pool.query('SELECT count(*) AS n FROM notifications')).rows[0].n)).toBe(0);
   }, 300_000);
 
+  it('the recompute stops at the last time of the file: no balance of a time the file does not reach', async () => {
+    // Two hours of one tag ending 20 minutes past an hour, well in the past: the hourly grid's
+    // next time after the end (40 minutes later) would hold data the file did not bring, so no
+    // recomputed balance is there; the last one is the hour before the end.
+    const end = Math.floor((Date.now() - 30 * HOUR) / HOUR) * HOUR + 20 * MIN;
+    const start = end - 2 * HOUR;
+    const lines = ['tag,ts,value'];
+    for (let t = start; t <= end; t += MIN) lines.push(`FIT-111,${new Date(t).toISOString()},800`);
+    const j = await finished((await upload(lines.join('\n'), '?balanceStep_s=3600').expect(202)).body.jobId);
+    expect(j).toMatchObject({ state: 'done', rows: lines.length - 1 });
+    await finished(j.recomputeJobId!);
+    const r = await h.ctx.db.pool.query<{ last: Date }>(`SELECT max(ts) AS last FROM balances WHERE plant_id = $1 AND recomputed AND ts > $2 AND ts <= $3`, [plantId, new Date(start), new Date(end + HOUR)]);
+    console.log('DEBUG', new Date(start).toISOString(), new Date(end).toISOString(), JSON.stringify((await h.ctx.db.pool.query(`SELECT ts, recomputed, inputs IS NULL AS noinp FROM balances WHERE plant_id = $1 AND ts > $2 AND ts < $3 ORDER BY ts`, [plantId, new Date(start - 3 * HOUR), new Date(end + 3 * HOUR)])).rows), JSON.stringify((await h.ctx.db.pool.query(`SELECT id, kind, state, options, result FROM history_jobs ORDER BY id`)).rows));
+    expect(r.rows[0]!.last.getTime()).toBe(end - 20 * MIN);
+  });
+
   it('a file with three bad lines stores nothing and names those lines; a dry run stores nothing either', async () => {
     const t0 = Date.UTC(2026, 5, 1);
     const rows = ['tag,ts,value'];
