@@ -1,3 +1,4 @@
+import { setPriority } from 'node:os';
 import { parentPort } from 'node:worker_threads';
 import { isDomainValidationError } from '../../shared/domain/errors.ts';
 import { offThreadCalcs, type CalcTask } from './calc-tasks.ts';
@@ -9,6 +10,16 @@ import { offThreadCalcs, type CalcTask } from './calc-tasks.ts';
  */
 const port = parentPort;
 if (!port) throw new Error('calc.worker.ts runs as a worker thread only');
+
+// The lowest CPU priority for this thread alone: on Linux the nice value belongs to the thread
+// (setpriority(2), NOTES), and os.setPriority without a pid sets the caller's. A solver that
+// runs to its budget then never keeps the API's request thread waiting for a core. Where the
+// platform does not allow it the worker runs at normal priority.
+try {
+  setPriority(19);
+} catch {
+  // not permitted here: normal priority
+}
 
 port.on('message', ({ id, task }: { id: number; task: CalcTask }) => {
   try {

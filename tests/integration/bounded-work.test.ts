@@ -12,9 +12,8 @@ import { seedFixturePlant } from './balance-fixture.ts';
  * Issue 15: no input from any role may stall the API. The worst inputs known run at once —
  * several settler requests with zero flows and 100 layers (13.8 s of blocked event loop before
  * the worker pool), a history over 25 years, a 40 000-column CSV header — while the test probes
- * `/api/health` one request after another. Probes must answer within 200 ms (the median, and all
- * but one in ten; none over a second: a correctness check that the event loop stays free, not a
- * benchmark).
+ * `/api/health` one request after another. Every probe must answer within 200 ms (a correctness
+ * check that the event loop stays free, not a benchmark).
  * The API runs in a process of its own (tests/helpers/api-child.ts), so the probes measure its
  * event loop and not this test's.
  */
@@ -93,15 +92,13 @@ describe('bounded work: the API stays responsive while the worst inputs run', ()
 
     // The settlers ran about a second each in turn, so there were many probes; each answered in time.
     expect(probes.length).toBeGreaterThan(10);
-    // On a 2-core machine shared with the rest of the suite (Chromium, other servers), the OS may
-    // not schedule the API for a moment even when its event loop is free; one probe in ten may
-    // then pass 200 ms, none a second. A blocked loop (the settler held it 13.8 s before it was
-    // bounded) fails every probe of its span, and the median, which must stay under 200 ms too.
+    // Every probe under 200 ms: the settlers run in worker threads at the lowest CPU priority
+    // (server/workers/calc.worker.ts), the history and the CSV are bounded, so nothing holds the
+    // request thread or takes its core. A blocked loop (the settler held it 13.8 s before it was
+    // bounded) fails every probe of its span.
     const seen = `health probes (ms): ${probes.map((p) => p.toFixed(0)).join(' ')}`;
-    const sorted = [...probes].sort((a, b) => a - b);
-    expect(sorted[Math.floor(sorted.length / 2)]!, seen).toBeLessThan(200);
-    expect(probes.filter((p) => p >= 200).length, seen).toBeLessThanOrEqual(Math.floor(probes.length / 10));
-    expect(Math.max(...probes), seen).toBeLessThan(1000);
+    console.log(`slowest health probe ${Math.max(...probes).toFixed(0)} ms of ${probes.length}`);
+    expect(Math.max(...probes), seen).toBeLessThan(200);
   });
 
   it('more settler requests than workers and queue: the rest are refused at once with 429 and Retry-After, never queued without bound', async () => {
