@@ -26,6 +26,10 @@ export interface ResolutionChoice {
  */
 export const MIN_POINTS = MAX_POINTS / 4;
 
+const DAY_S = 86_400;
+/** Bucket widths [s] that divide a day, for steps the service picks itself (whole days beyond). */
+const DAY_DIVIDING_STEPS_S = [1, 2, 3, 4, 5, 6, 10, 12, 15, 20, 30, 60, 120, 180, 240, 300, 360, 600, 720, 900, 1200, 1800, 3600, 7200, 10_800, 14_400, 21_600, 28_800, 43_200, DAY_S];
+
 /**
  * Which table answers a history query, and with which bucket width, so that at most ~2000
  * points come back (DESIGN §5). Pure.
@@ -47,10 +51,6 @@ export const MIN_POINTS = MAX_POINTS / 4;
  *
  * `rawCount` is the counted number of raw samples, capped at MAX_POINTS + 1.
  */
-const DAY_S = 86_400;
-/** Bucket widths [s] that divide a day, for steps the service picks itself (whole days beyond). */
-const DAY_DIVIDING_STEPS_S = [1, 2, 3, 4, 5, 6, 10, 12, 15, 20, 30, 60, 120, 180, 240, 300, 360, 600, 720, 900, 1200, 1800, 3600, 7200, 10_800, 14_400, 21_600, 28_800, 43_200, DAY_S];
-
 export function chooseResolution(span_ms: number, expectedPeriod_s: number, requestedStep_s: number | undefined, rawCount: number): ResolutionChoice {
   const span_s = span_ms / 1000;
   const expected = span_s / Math.max(expectedPeriod_s, 1e-3);
