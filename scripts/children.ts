@@ -111,6 +111,8 @@ export interface SupervisedChild {
   /** The process running now (a new one after each restart). */
   readonly proc: ChildProcess;
   readonly restarts: number;
+  /** No restart from now on (a pending one is cancelled); the running process is left to end. */
+  halt(): void;
   stop(): Promise<void>;
 }
 
@@ -178,9 +180,12 @@ export function superviseTs(
     get restarts() {
       return restarts;
     },
-    async stop() {
+    halt() {
       stopping = true;
       if (timer) clearTimeout(timer);
+    },
+    async stop() {
+      this.halt();
       await current.stop();
     },
   };

@@ -51,6 +51,7 @@ export function runLauncher(tag: string, main: (l: Launcher) => Promise<void>): 
   const say = (m: string) => console.log(`[${tag}] ${m}`);
   const steps: Array<() => Promise<void> | void> = [];
   const exitHandlers: Array<(e: ChildExit) => Promise<void> | void> = [];
+  const supervisedChildren: SupervisedChild[] = [];
   let stopping = false;
   const l: Launcher = {
     say,
@@ -62,6 +63,9 @@ export function runLauncher(tag: string, main: (l: Launcher) => Promise<void>): 
       if (stopping) return;
       stopping = true;
       say(`${why}: stopping…`);
+      // A terminal's Ctrl-C reaches the children as well: each exit from now on is the stop, not a
+      // crash to restart, print and alarm, though the child's own stop step comes later in the list.
+      for (const c of supervisedChildren) c.halt();
       for (const s of steps.reverse()) {
         try {
           await s();
@@ -105,6 +109,7 @@ export function runLauncher(tag: string, main: (l: Launcher) => Promise<void>): 
         },
         nodeArgs,
       );
+      supervisedChildren.push(c);
       steps.push(() => c.stop());
       return c;
     },
