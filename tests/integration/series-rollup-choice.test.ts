@@ -134,6 +134,41 @@ describe('history from rollup_1h for long windows', () => {
     }
   });
 
+  it('the packed bucket answer holds the same doubles as a plain row query (every table, with and without last)', async () => {
+    // PostgreSQL ≥ 12 prints float8 as the shortest text that reads back to the same double
+    // (extra_float_digits = 1, the default; PostgreSQL documentation, "Floating-Point Types"), so
+    // the rows below parse to the computed doubles and the packed form must equal them exactly.
+    const repo = seriesRepository(h.ctx.db.pool);
+    const cases = [
+      { source: '1h' as const, table: 'rollup_1h', tag: f.mlss, lo: T0 - 30 * D, hi: T0, step: 21_600 },
+      { source: '1m' as const, table: 'rollup_1m', tag: f.mlss, lo: T0 - 2 * D, hi: T0, step: 3600 },
+    ];
+    for (const c of cases) {
+      for (const withLast of [false, true]) {
+        const got = await repo.buckets(c.source, c.tag, new Date(c.lo), new Date(c.hi), c.step, 5000, withLast);
+        const plain = await h.ctx.db.pool.query(
+          `SELECT (extract(epoch FROM date_bin(make_interval(secs => $4::float8), bucket, timestamptz 'epoch')) * 1000)::float8 AS ms,
+                  sum(sum) / sum(count) AS mean, min(min) AS min, max(max) AS max, sum(count)::float8 AS count,
+                  (array_agg(last ORDER BY last_ts DESC))[1] AS last, (bit_or(quality & ~3) | max(quality & 3))::int AS quality
+           FROM ${c.table} WHERE tag_id = $1 AND bucket >= $2 AND bucket < $3 GROUP BY 1 ORDER BY 1`,
+          [c.tag, new Date(c.lo), new Date(c.hi), c.step],
+        );
+        expect(got.length).toBeGreaterThan(40);
+        expect(got).toEqual(plain.rows.map((r) => [iso(r.ms), r.ms, r.mean, r.min, r.max, r.count, withLast ? r.last : null, r.quality]));
+      }
+    }
+    // Raw samples bucketed by the minute (the packed form's third table); the codes tag has NULL and Bad samples, left out.
+    const raw = await repo.buckets('raw', f.codes, new Date(T0 - H), new Date(T0), 60, 5000, true);
+    const plainRaw = await h.ctx.db.pool.query(
+      `SELECT count(*)::float8 AS count, min(value) AS min, max(value) AS max FROM samples WHERE tag_id = $1 AND value IS NOT NULL AND (quality & 3) < 2`,
+      [f.codes],
+    );
+    expect(raw).toHaveLength(3);
+    expect(raw.reduce((n, r) => n + r[5], 0)).toBe(plainRaw.rows[0].count);
+    expect(Math.min(...raw.map((r) => r[3]))).toBe(plainRaw.rows[0].min);
+    expect(Math.max(...raw.map((r) => r[4]))).toBe(plainRaw.rows[0].max);
+  });
+
   it('pages of a 1 h answer join to the whole answer', async () => {
     const q = { from: iso(T0 - 30 * D), to: iso(T0) };
     const whole = samplesResponse.parse((await samples(q)).body).points;
