@@ -51,10 +51,11 @@ export function SourcesPanel({ plantId, selected, onSelect }: { plantId: number;
                   {!s.enabled ? <span className="ml-1 text-ink-3">(disabled)</span> : null}
                 </td>
                 <td className={td}>{s.kind === 'opcua' ? 'OPC UA' : 'MQTT'}</td>
-                <td className={`${td} num break-all`}>
-                  {s.url}
-                  {s.username ? <span className="text-ink-3"> as {s.username}</span> : null}
-                  {s.hasSecret ? <span className="text-ink-3"> · password stored</span> : null}
+                <td className={`${td} num`}>
+                  {/* A long URL may break anywhere; the notes after it only between words. */}
+                  <span className="break-all">{s.url}</span>
+                  {s.username ? <span className="text-ink-3 break-words"> as {s.username}</span> : null}
+                  {s.hasSecret ? <span className="text-ink-3 whitespace-nowrap"> · password stored</span> : null}
                 </td>
                 <td className={`${td} num text-right`}>{s.tags}</td>
                 <td className={td} data-testid="source-ingest">
