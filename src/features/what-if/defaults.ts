@@ -1,12 +1,12 @@
 import type { FormValues } from './hooks/use-calc-form.ts';
 
 /**
- * Pre-filled inputs: plausible values for Flocstream's invented demo plant, Kestrel Bend
- * (influent 1 500 m³/h, RAS 900 m³/h, MLSS 3.2 g/L, SVI 120 mL/g, aeration 12 000 m³,
- * two clarifiers of 700 m², 4 m deep). They are examples to edit, not plant data; once the
- * live balance exists these forms will pre-fill from the plant instead.
+ * Pre-filled inputs: plausible values of an invented plant (influent 1 500 m³/h, RAS 900 m³/h,
+ * MLSS 3.2 g/L, SVI 120 mL/g, aeration 12 000 m³, two clarifiers of 700 m², 4 m deep). They
+ * are examples to edit, not plant data; "Fill from live plant" (../api/live-prefill.ts) takes
+ * the plant's flows, concentrations, masses and geometry from its latest balance.
  */
-export const KESTREL_BEND = {
+export const EXAMPLE_INPUTS = {
   storm: {
     influentFlow_m3h: '1500',
     rasFlow_m3h: '900',

@@ -3,12 +3,13 @@ import { Button, FormProblem, Panel } from '../../../components/ui/controls.tsx'
 import { applyServerErrors } from '../../../lib/form.ts';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { useSettlerCalc } from '../api/settler.ts';
-import { KESTREL_BEND } from '../defaults.ts';
+import { EXAMPLE_INPUTS } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
 import { NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { useLiveFill } from './live-fill.tsx';
 import { SettlerProfile } from './settler-profile.tsx';
 
-const FIELDS: { key: keyof typeof KESTREL_BEND.settler; label: string; unit: string }[] = [
+const FIELDS: { key: keyof typeof EXAMPLE_INPUTS.settler; label: string; unit: string }[] = [
   { key: 'feedFlow_m3h', label: 'Feed flow', unit: 'm³/h' },
   { key: 'feedTss_gL', label: 'Feed TSS', unit: 'g/L' },
   { key: 'underflowFlow_m3h', label: 'Underflow', unit: 'm³/h' },
@@ -22,8 +23,9 @@ const FIELDS: { key: keyof typeof KESTREL_BEND.settler; label: string; unit: str
 const XT_gL = 3;
 
 export function SettlerPanel() {
-  const form = useCalcForm(settlerRequest, KESTREL_BEND.settler);
+  const form = useCalcForm(settlerRequest, EXAMPLE_INPUTS.settler);
   const calc = useSettlerCalc();
+  const live = useLiveFill('settler', form.form);
   const submit = form.onSubmit(
     (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
     () => calc.reset(),
@@ -41,11 +43,13 @@ export function SettlerPanel() {
           ))}
         </div>
         <p className="text-[11px] text-ink-3 mt-1">Feed = Q + Q_R, underflow = Q_R + Q_W; area of all clarifiers in service; feed layer counted from the top. Takács double-exponential settling with the BSM1 parameters (Takács et al. 1991; Alex et al. 2008); steady state.</p>
-        <div className="mt-1.5">
+        <div className="mt-1.5 flex items-center gap-2">
           <Button kind="primary" type="submit" disabled={calc.isPending}>
             {calc.isPending ? 'Solving…' : 'Calculate profile'}
           </Button>
+          {live.button}
         </div>
+        {live.note}
       </form>
       {general}
       {r && sent ? (

@@ -2,11 +2,12 @@ import { srtRequest } from '../../../../shared/contracts/calc.ts';
 import { Button, FormProblem, Panel } from '../../../components/ui/controls.tsx';
 import { applyServerErrors } from '../../../lib/form.ts';
 import { useSrtCalc } from '../api/srt.ts';
-import { KESTREL_BEND } from '../defaults.ts';
+import { EXAMPLE_INPUTS } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
 import { Caution, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { useLiveFill } from './live-fill.tsx';
 
-const FIELDS: { key: keyof typeof KESTREL_BEND.srt; label: string; unit: string; hint?: string }[] = [
+const FIELDS: { key: keyof typeof EXAMPLE_INPUTS.srt; label: string; unit: string; hint?: string }[] = [
   { key: 'aerationMass_kg', label: 'Aeration mass', unit: 'kg' },
   { key: 'clarifierMass_kg', label: 'Clarifier mass', unit: 'kg' },
   { key: 'wasFlow_m3h', label: 'WAS flow', unit: 'm³/h' },
@@ -17,8 +18,9 @@ const FIELDS: { key: keyof typeof KESTREL_BEND.srt; label: string; unit: string;
 ];
 
 export function SrtPanel() {
-  const form = useCalcForm(srtRequest, KESTREL_BEND.srt);
+  const form = useCalcForm(srtRequest, EXAMPLE_INPUTS.srt);
   const calc = useSrtCalc();
+  const live = useLiveFill('srt', form.form);
   const submit = form.onSubmit(
     (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
     () => calc.reset(),
@@ -34,11 +36,13 @@ export function SrtPanel() {
             <NumField key={f.key} field={form.form.register(f.key)} label={f.label} unit={f.unit} hint={f.hint} width="w-24" error={fe(f.key)} />
           ))}
         </div>
-        <div className="mt-2">
+        <div className="mt-2 flex items-center gap-2">
           <Button kind="primary" type="submit" disabled={calc.isPending}>
             Calculate SRT
           </Button>
+          {live.button}
         </div>
+        {live.note}
       </form>
       {general}
       {r ? (

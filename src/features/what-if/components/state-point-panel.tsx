@@ -5,9 +5,10 @@ import { Button, Field, FormProblem, Panel, Select } from '../../../components/u
 import { applyServerErrors } from '../../../lib/form.ts';
 import { SectionBoundary } from '../../../components/ui/section-boundary.tsx';
 import { useStatePointCalc } from '../api/state-point.ts';
-import { KESTREL_BEND } from '../defaults.ts';
+import { EXAMPLE_INPUTS } from '../defaults.ts';
 import { useCalcForm, type FormValues } from '../hooks/use-calc-form.ts';
 import { Caution, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { useLiveFill } from './live-fill.tsx';
 import { CORRELATION_LABEL, StatePointDiagram } from './state-point-diagram.tsx';
 
 const GIVEN = 'given';
@@ -19,7 +20,7 @@ function sendChosenSettling(values: FormValues): (key: string) => boolean {
 }
 
 export function StatePointPanel() {
-  const form = useCalcForm(statePointRequest, KESTREL_BEND.statePoint, { textKeys: ['settling.correlation'], include: sendChosenSettling });
+  const form = useCalcForm(statePointRequest, EXAMPLE_INPUTS.statePoint, { textKeys: ['settling.correlation'], include: sendChosenSettling });
   const calc = useStatePointCalc();
   const submit = form.onSubmit(
     (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
@@ -30,6 +31,8 @@ export function StatePointPanel() {
   const corr = useWatch({ control: form.form.control, name: 'settling.correlation' }) as SettlingCorrelationId | typeof GIVEN;
   const source = corr === GIVEN ? GIVEN : 'correlation';
   const indexName = corr !== GIVEN ? CORRELATION_INDEX[corr] : 'SVI';
+  // The plant's settleability is an SVI or DSVI: it does not fill an SSVI3.5 field.
+  const live = useLiveFill('statePoint', form.form, { keep: indexName === 'SSVI' ? ['settling.svi_mLg'] : [] });
   const num = (key: string, label: string, unit: string, hint?: string) => <NumField key={key} field={form.form.register(key)} label={label} unit={unit} hint={hint} error={fe(key)} />;
   const r = calc.data;
   const sent = calc.variables;
@@ -64,11 +67,13 @@ export function StatePointPanel() {
             num('settling.svi_mLg', indexName === 'SSVI' ? 'SSVI3.5' : 'SVI', 'mL/g')
           )}
         </div>
-        <div className="mt-2">
+        <div className="mt-2 flex items-center gap-2">
           <Button kind="primary" type="submit" disabled={calc.isPending}>
             Calculate state point
           </Button>
+          {live.button}
         </div>
+        {live.note}
       </form>
       {general}
       {r ? (

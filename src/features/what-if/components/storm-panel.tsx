@@ -1,14 +1,13 @@
 import { stormRequest, type StormResponse } from '../../../../shared/contracts/calc.ts';
 import { Button, FormProblem, Panel } from '../../../components/ui/controls.tsx';
 import { applyServerErrors } from '../../../lib/form.ts';
-import { useCurrentPlant } from '../../plant/api/plants.ts';
-import { useStormPrefill } from '../api/live-prefill.ts';
 import { useStormCalc } from '../api/storm.ts';
-import { KESTREL_BEND } from '../defaults.ts';
+import { EXAMPLE_INPUTS } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
 import { Caution, fmt, NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
+import { useLiveFill } from './live-fill.tsx';
 
-const FIELDS: { key: keyof typeof KESTREL_BEND.storm; label: string; unit: string; hint?: string }[] = [
+const FIELDS: { key: keyof typeof EXAMPLE_INPUTS.storm; label: string; unit: string; hint?: string }[] = [
   { key: 'influentFlow_m3h', label: 'Influent flow now', unit: 'm³/h' },
   { key: 'stormFlow_m3h', label: 'Storm influent flow', unit: 'm³/h' },
   { key: 'rasFlow_m3h', label: 'RAS flow (held)', unit: 'm³/h' },
@@ -52,14 +51,9 @@ function StormChecks({ checks }: { checks: StormResponse['checks'] }) {
 }
 
 export function StormPanel() {
-  const form = useCalcForm(stormRequest, KESTREL_BEND.storm);
+  const form = useCalcForm(stormRequest, EXAMPLE_INPUTS.storm);
   const calc = useStormCalc();
-  const { plantId } = useCurrentPlant();
-  const prefill = useStormPrefill();
-  const fillFromPlant = () => {
-    if (plantId === null) return;
-    prefill.mutate(plantId, { onSuccess: (p) => Object.entries(p.values).forEach(([k, v]) => form.form.setValue(k, v, { shouldDirty: true })) });
-  };
+  const live = useLiveFill('storm', form.form);
   const submit = form.onSubmit(
     (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
     () => calc.reset(),
@@ -79,18 +73,10 @@ export function StormPanel() {
           <Button kind="primary" type="submit" disabled={calc.isPending}>
             Calculate storm
           </Button>
-          <Button onClick={fillFromPlant} disabled={plantId === null || prefill.isPending}>
-            Fill from live plant
-          </Button>
+          {live.button}
           <span className="text-[11px] text-ink-3">Return flow held at its present value during the storm.</span>
         </div>
-        {prefill.error ? <p role="alert" className="mt-1 text-[12px] text-alarm-1">Could not fill from the plant: {prefill.error.message}</p> : null}
-        {prefill.data ? (
-          <p role="status" className="mt-1 text-[11px] text-ink-3" data-testid="storm-prefill">
-            Filled from the balance of {prefill.data.balanceTs.slice(0, 19).replace('T', ' ')}Z{prefill.data.estimated ? ' (balance partly estimated)' : ''}
-            {prefill.data.missing.length ? `; not available, left as they were: ${prefill.data.missing.join(', ')}` : ''}.
-          </p>
-        ) : null}
+        {live.note}
       </form>
       {general}
       {r ? (

@@ -2,12 +2,12 @@ import { sviRequest } from '../../../../shared/contracts/calc.ts';
 import { Button, Field, FormProblem, Panel, Select } from '../../../components/ui/controls.tsx';
 import { applyServerErrors } from '../../../lib/form.ts';
 import { useSviCalc } from '../api/svi.ts';
-import { KESTREL_BEND } from '../defaults.ts';
+import { EXAMPLE_INPUTS } from '../defaults.ts';
 import { useCalcForm } from '../hooks/use-calc-form.ts';
 import { NumField, QualityLine, Readouts, ResultHeader } from './calc-parts.tsx';
 
 export function SviPanel() {
-  const form = useCalcForm(sviRequest, KESTREL_BEND.svi, { textKeys: ['kind'] });
+  const form = useCalcForm(sviRequest, EXAMPLE_INPUTS.svi, { textKeys: ['kind'] });
   const calc = useSviCalc();
   const submit = form.onSubmit(
     (body) => calc.mutate(body, { onError: (e) => applyServerErrors(e, form.form) }),
@@ -16,7 +16,7 @@ export function SviPanel() {
   const fe = form.error;
   const general = <FormProblem error={calc.error} root={form.form.formState.errors.root?.server?.message} />;
   const r = calc.data;
-  const num = (key: keyof typeof KESTREL_BEND.svi, label: string, unit: string, hint?: string) => (
+  const num = (key: keyof typeof EXAMPLE_INPUTS.svi, label: string, unit: string, hint?: string) => (
     <NumField field={form.form.register(key)} label={label} unit={unit} hint={hint} width="w-20" error={fe(key)} />
   );
   return (

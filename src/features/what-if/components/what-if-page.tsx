@@ -15,7 +15,7 @@ export default function WhatIfPage() {
       <header className="flex items-baseline gap-3 px-0.5">
         <h1 className="text-[15px] font-semibold">What-if calculators</h1>
         <p className="text-[12px] text-ink-3">
-          Pre-filled with example values for the demo plant Kestrel Bend — edit them freely, or take the storm inputs from the live balance with “Fill from live plant”.
+          Pre-filled with example values of an invented plant, not yours — edit them freely, or take the plant's inputs from its latest balance with “Fill from live plant”.
         </p>
       </header>
       <div className="grid grid-cols-12 gap-2 items-start">
