@@ -197,6 +197,18 @@ describe('analyst in Debian Chromium: token + CSV, trends, 10 000-row signals ta
     await expect.poll(async () => Number(await lanes.nth(1).getAttribute('data-points'))).toBeGreaterThan(100);
     await shot(page, 'analyst-trends-7d');
     expect(await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth)).toBeLessThanOrEqual(0);
+
+    // Away to the board and back through the menu: the same pens and week come back.
+    const view = new URL(page.url()).search;
+    await page.getByRole('link', { name: 'Board', exact: true }).click();
+    await page.getByRole('heading', { name: 'Plant board' }).waitFor();
+    await page.getByRole('link', { name: 'Trends', exact: true }).click();
+    await expect.poll(() => new URL(page.url()).search).toBe(view);
+    await expect.poll(() => lanes.count()).toBe(2);
+    expect(await page.getByRole('button', { name: '7 d' }).getAttribute('aria-pressed')).toBe('true');
+    // A link that names its pens wins over the remembered view.
+    await page.goto(`${page.url().split('/trends')[0]}/trends?tags=${mlss}`);
+    await expect.poll(() => lanes.count()).toBe(1);
     expect(errors).toEqual([]);
     await ctx.close();
   });

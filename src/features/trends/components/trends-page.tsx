@@ -79,6 +79,30 @@ function useTrendWindow() {
   };
 }
 
+/**
+ * The last view of each plant (pens and window: the page's query string) is kept in this
+ * browser. Opening Trends with no pens in the URL brings it back; a URL with pens (a bookmark,
+ * a link from Signals) wins. Switching plant shows that plant's own last view, since tag ids
+ * belong to one plant.
+ */
+function useRememberedView(plantId: number) {
+  const [sp, setSp] = useSearchParams();
+  const key = `flocstream.trends.${plantId}`;
+  const shown = useRef<number | null>(null);
+  useEffect(() => {
+    if (shown.current === plantId) return;
+    const first = shown.current === null;
+    shown.current = plantId;
+    if (first && sp.has('tags')) return;
+    const saved = localStorage.getItem(key);
+    if (!first || saved !== null) setSp(new URLSearchParams(saved ?? ''), { replace: true });
+    // Only a change of plant restores (not a change of the URL, which is saved below).
+  }, [plantId, key, sp, setSp]);
+  useEffect(() => {
+    if (shown.current === plantId) localStorage.setItem(key, sp.toString());
+  }, [sp, key, plantId]);
+}
+
 export default function TrendsPage() {
   const { plantId, plants, setPlantId } = useCurrentPlant();
   return (
@@ -93,6 +117,7 @@ export default function TrendsPage() {
 }
 
 function TrendView({ plantId }: { plantId: number }) {
+  useRememberedView(plantId);
   const w = useTrendWindow();
   const tags = useTags(plantId);
   const byId = useMemo(() => new Map((tags.data?.tags ?? []).map((t) => [t.id, t])), [tags.data]);
