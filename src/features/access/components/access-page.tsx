@@ -176,6 +176,12 @@ export default function AccessPage() {
   if (!me.data) return null;
   return (
     <div className="grid gap-2 max-w-[1200px]">
+      <header className="flex items-baseline gap-3 px-0.5 h-8">
+        <h1 className="text-[15px] font-semibold">Access</h1>
+        <span className="text-[12px] text-ink-3">
+          {me.data.role === 'admin' ? 'API tokens for scripts and reports, and who may sign in with which role.' : 'API tokens for scripts and reports; a token never has more rights than your role.'}
+        </span>
+      </header>
       <SectionBoundary name="Tokens">
         <TokensPanel myRole={me.data.role} />
       </SectionBoundary>
