@@ -13,8 +13,8 @@ import type pg from 'pg';
  * Measured (tests/bench/api.bench.ts): grouping 30 days of rollup_1m (43 200 rows) sorts on the
  * bucket expression, which spills to disk under the default 4 MB work_mem; the bucket queries
  * on samples and rollup_1m therefore run in a read-only transaction with `SET LOCAL work_mem`
- * (never leaking into the pooled session). The bucket's `last` needs an ordered aggregate per bucket, the costliest part
- * of the query, so it is computed only when asked for (agg=last).
+ * (never leaking into the pooled session). The bucket's `last` needs an ordered aggregate per
+ * bucket, the costliest part of the query, so it is computed only when asked for (agg=last).
  */
 /**
  * Raw rows come back as one JSON array built by PostgreSQL (`json_agg` of positional arrays, the
@@ -87,8 +87,8 @@ export function unpackBuckets(n: number, buf: Buffer | null, withLast: boolean):
   const bytes = buf?.length ?? 0;
   if (bytes !== n * width) throw new Error(`packed buckets: ${bytes} bytes for ${n} records of ${width}`);
   const rows: BucketRow[] = new Array(n);
+  const b = buf ?? Buffer.alloc(0);
   for (let i = 0, o = 0; i < n; i++, o += width) {
-    const b = buf!;
     const ms = b.readDoubleBE(o);
     rows[i] = [new Date(ms).toISOString(), ms, b.readDoubleBE(o + 8), b.readDoubleBE(o + 16), b.readDoubleBE(o + 24), b.readDoubleBE(o + 32), withLast ? b.readDoubleBE(o + 48) : null, b.readDoubleBE(o + 40)];
   }
