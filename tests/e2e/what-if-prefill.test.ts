@@ -35,46 +35,40 @@ describe('what-if pre-filled from the live plant', () => {
     const page = await suite.browser.newPage({ viewport: { width: 1280, height: 900 } });
     const errors = watchConsole(page);
     await signIn(page, `${suite.env.server.url}/what-if`, E2E_ADMIN, /\/what-if$/);
-    const storm = page.getByRole('region', { name: 'Storm projection' });
-    await storm.getByRole('button', { name: 'Fill from live plant' }).click();
-    await storm.getByTestId('storm-prefill').waitFor();
-    const val = (name: string) => storm.locator(`input[name="${name}"]`).inputValue();
-    expect(await val('influentFlow_m3h')).toBe('3100');
-    expect(await val('rasFlow_m3h')).toBe('1690');
-    expect(await val('mlss_gL')).toBe('3.1'); // volume-weighted mean of 3.0 and 3.2 over equal basins
-    expect(await val('svi_mLg')).toBe('150');
-    expect(await val('aerationVolume_m3')).toBe('12000');
-    expect(await val('clarifierArea_m2')).toBe('3000'); // 2 × 1 500 m² in service
-    expect(await val('stormFlow_m3h')).toBe('6200');
-    expect(await val('clarifierMass_kg')).toBe('9000');
-    await storm.getByRole('button', { name: 'Calculate storm' }).click();
-    await storm.getByTestId('storm-result').waitFor();
-
-    const sp = page.getByRole('region', { name: 'State point analysis' });
-    await sp.getByRole('button', { name: 'Fill from live plant' }).click();
-    await sp.getByTestId('statePoint-prefill').waitFor();
-    const spVal = (name: string) => sp.locator(`input[name="${name}"]`).inputValue();
-    expect([await spVal('influentFlow_m3h'), await spVal('rasFlow_m3h'), await spVal('wasFlow_m3h'), await spVal('mlss_gL'), await spVal('clarifierArea_m2'), await spVal('settling.svi_mLg')]).toEqual(['3100', '1690', '22', '3.1', '3000', '150']);
-    await sp.getByRole('button', { name: 'Calculate state point' }).click();
-    await sp.getByTestId('state-point-result').waitFor();
-
-    const srt = page.getByRole('region', { name: 'Sludge age (SRT)' });
-    await srt.getByRole('button', { name: 'Fill from live plant' }).click();
-    await srt.getByTestId('srt-prefill').waitFor();
-    const srtVal = (name: string) => srt.locator(`input[name="${name}"]`).inputValue();
+    /** Fills one calculator from the plant, reads the named inputs, then calculates it. */
+    const fillAndCalculate = async (region: string, kind: string, names: string[], calculate: string, result: string) => {
+      const panel = page.getByRole('region', { name: region });
+      await panel.getByRole('button', { name: 'Fill from live plant' }).click();
+      await panel.getByTestId(`${kind}-prefill`).waitFor();
+      const values: Record<string, string> = {};
+      for (const n of names) values[n] = await panel.locator(`input[name="${n}"]`).inputValue();
+      await panel.getByRole('button', { name: calculate }).click();
+      await panel.getByTestId(result).waitFor();
+      return values;
+    };
+    expect(
+      await fillAndCalculate('Storm projection', 'storm', ['influentFlow_m3h', 'rasFlow_m3h', 'mlss_gL', 'svi_mLg', 'aerationVolume_m3', 'clarifierArea_m2', 'stormFlow_m3h', 'clarifierMass_kg'], 'Calculate storm', 'storm-result'),
+    ).toEqual({
+      influentFlow_m3h: '3100',
+      rasFlow_m3h: '1690',
+      mlss_gL: '3.1', // volume-weighted mean of 3.0 and 3.2 over equal basins
+      svi_mLg: '150',
+      aerationVolume_m3: '12000',
+      clarifierArea_m2: '3000', // 2 × 1 500 m² in service
+      stormFlow_m3h: '6200',
+      clarifierMass_kg: '9000',
+    });
+    expect(
+      await fillAndCalculate('State point analysis', 'statePoint', ['influentFlow_m3h', 'rasFlow_m3h', 'wasFlow_m3h', 'mlss_gL', 'clarifierArea_m2', 'settling.svi_mLg'], 'Calculate state point', 'state-point-result'),
+    ).toEqual({ influentFlow_m3h: '3100', rasFlow_m3h: '1690', wasFlow_m3h: '22', mlss_gL: '3.1', clarifierArea_m2: '3000', 'settling.svi_mLg': '150' });
     // WAS and effluent TSS: area-weighted means; effluent flow 3 100 − 22 m³/h.
-    expect([await srtVal('aerationMass_kg'), await srtVal('clarifierMass_kg'), await srtVal('wasFlow_m3h'), await srtVal('wasTss_gL'), await srtVal('effluentFlow_m3h'), await srtVal('effluentTss_gL'), await srtVal('targetSrt_d')]).toEqual(['37200', '9000', '22', '8', '3078', '0.01', '14']);
-    await srt.getByRole('button', { name: 'Calculate SRT' }).click();
-    await srt.getByTestId('srt-result').waitFor();
-
-    const settler = page.getByRole('region', { name: 'Layered settler' });
-    await settler.getByRole('button', { name: 'Fill from live plant' }).click();
-    await settler.getByTestId('settler-prefill').waitFor();
-    const stVal = (name: string) => settler.locator(`input[name="${name}"]`).inputValue();
+    expect(
+      await fillAndCalculate('Sludge age (SRT)', 'srt', ['aerationMass_kg', 'clarifierMass_kg', 'wasFlow_m3h', 'wasTss_gL', 'effluentFlow_m3h', 'effluentTss_gL', 'targetSrt_d'], 'Calculate SRT', 'srt-result'),
+    ).toEqual({ aerationMass_kg: '37200', clarifierMass_kg: '9000', wasFlow_m3h: '22', wasTss_gL: '8', effluentFlow_m3h: '3078', effluentTss_gL: '0.01', targetSrt_d: '14' });
     // Feed 3 100 + 1 690, underflow 1 690 + 22; layers and feed layer stay as they were.
-    expect([await stVal('feedFlow_m3h'), await stVal('feedTss_gL'), await stVal('underflowFlow_m3h'), await stVal('area_m2'), await stVal('depth_m'), await stVal('layers'), await stVal('feedLayer')]).toEqual(['4790', '3.1', '1712', '3000', '4.5', '10', '5']);
-    await settler.getByRole('button', { name: 'Calculate profile' }).click();
-    await settler.getByTestId('settler-result').waitFor();
+    expect(
+      await fillAndCalculate('Layered settler', 'settler', ['feedFlow_m3h', 'feedTss_gL', 'underflowFlow_m3h', 'area_m2', 'depth_m', 'layers', 'feedLayer'], 'Calculate profile', 'settler-result'),
+    ).toEqual({ feedFlow_m3h: '4790', feedTss_gL: '3.1', underflowFlow_m3h: '1712', area_m2: '3000', depth_m: '4.5', layers: '10', feedLayer: '5' });
     await shot(page, 'what-if-prefilled');
     // The 401 of /auth/me before signing in is expected and handled; nothing else may appear.
     expect(errors.filter((e) => !/status of 401/.test(e))).toEqual([]);
