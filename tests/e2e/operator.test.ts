@@ -113,6 +113,22 @@ describe('operator on shift in Debian Chromium', () => {
     expect(await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth)).toBeLessThanOrEqual(0);
     await page.setViewportSize({ width: 1920, height: 1080 });
 
+    // "Trend inputs" on train 1 opens its own mapped signals (at most 8), the sludge blanket first.
+    const mapped = await env.server.ctx.db.pool.query<{ tag_id: number; signal: string }>(
+      `SELECT sm.tag_id, sm.signal FROM signal_map sm JOIN trains t ON t.plant_id = sm.plant_id AND t.code = 't1'
+       WHERE (sm.target_type = 'basin' AND sm.target_id IN (SELECT id FROM basins WHERE train_id = t.id))
+          OR (sm.target_type = 'clarifier' AND sm.target_id IN (SELECT id FROM clarifiers WHERE train_id = t.id))
+          OR (sm.target_type = 'pump' AND sm.target_id IN (SELECT id FROM pumps WHERE train_id = t.id))`,
+    );
+    await page.getByTestId('train-t1').getByRole('link', { name: 'Trend inputs' }).click();
+    const lanes = page.getByTestId('trend-lane');
+    await expect.poll(() => lanes.count()).toBe(Math.min(8, mapped.rows.length));
+    const laneTags = await lanes.evaluateAll((ls) => ls.map((l) => Number(l.getAttribute('data-tag-id'))));
+    expect(laneTags.every((id) => mapped.rows.some((r) => r.tag_id === id))).toBe(true);
+    expect(laneTags[0]).toBe(mapped.rows.find((r) => r.signal === 'clarifier.blanketLevel')!.tag_id);
+    expect(await page.getByRole('button', { name: '24 h' }).getAttribute('aria-pressed')).toBe('true');
+    await shot(page, 'trend-inputs-t1');
+
     // Alarms: clarifier 2's blanket is above its limit; the operator acknowledges it.
     await page.getByRole('navigation', { name: 'Main' }).getByRole('link', { name: 'Alarms' }).click();
     const active = page.getByTestId('active-alarms');

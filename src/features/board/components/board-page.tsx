@@ -7,6 +7,7 @@ import { useCurrentPlant, usePlantLayout } from '../../plant/api/plants.ts';
 import { UnitSystemContext } from '../unit-display.ts';
 import { useAlarms } from '../../alarms/api/alarms.ts';
 import { useBalanceLive } from '../api/balance-live.ts';
+import { trainTrendTags } from '../figures.ts';
 import { AlarmIndex, alarmKey } from '../hooks/alarm-index.ts';
 import { BalanceClock, useBalanceAge } from '../hooks/balance-clock.ts';
 import { useLiveBalance } from '../hooks/use-live-balance.ts';
@@ -31,6 +32,16 @@ export default function BoardPage() {
   const computedAt = live.data && b ? live.data.receivedAt - (live.data.age_s ?? 0) * 1000 : null;
 
   const trainNames = useMemo(() => new Map((layout.data?.trains ?? []).map((t) => [t.code, t.name])), [layout.data]);
+  const signals = b?.inputs.signals;
+  // "Trend inputs" of each train: its mapped tags over the last 24 h on the Trends view.
+  const trendLinks = useMemo(() => {
+    const m = new Map<string, string>();
+    for (const t of layout.data?.trains ?? []) {
+      const ids = trainTrendTags(t, signals ?? []);
+      if (ids.length) m.set(t.code, `/trends?tags=${ids.join(',')}&range=24h`);
+    }
+    return m;
+  }, [layout.data, signals]);
   const perTrain = useMemo(() => {
     const m = new Map<string, { basins: NonNullable<typeof data>['basins']; clarifiers: NonNullable<typeof data>['clarifiers'] }>();
     for (const t of data?.trains ?? []) m.set(t.code, { basins: (data?.basins ?? []).filter((x) => x.train === t.code), clarifiers: (data?.clarifiers ?? []).filter((x) => x.train === t.code) });
@@ -98,6 +109,7 @@ export default function BoardPage() {
                     clarifiers={perTrain.get(t.code)?.clarifiers ?? []}
                     peakFlowSource={data.storm.source === 'plant' ? 'plant peak' : data.storm.source === 'setting' ? 'setting' : 'not set'}
                     settling={data.settling}
+                    trendLink={trendLinks.get(t.code) ?? null}
                   />
                 </SectionBoundary>
               ))}

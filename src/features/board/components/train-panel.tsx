@@ -1,4 +1,5 @@
 import { memo, type ReactNode } from 'react';
+import { Link } from 'react-router';
 import type { BalanceData } from '../../../../shared/contracts/balance.ts';
 import { sumFigures, withUnit } from '../../../../shared/domain/quality.ts';
 import { FigureValue } from '../../../components/ui/figure.tsx';
@@ -29,14 +30,23 @@ function Group({ title, children, testid }: { title: string; children: ReactNode
  * flows, the blankets, the RAS margins and the storm projection at the plant's peak flow. Memoised:
  * with structural sharing an unchanged train keeps its props and skips the re-render.
  */
-type TrainPanelProps = { train: Train; name: string; basins: Basin[]; clarifiers: Clarifier[]; peakFlowSource: string; settling: BalanceData['settling'] };
+type TrainPanelProps = {
+  train: Train;
+  name: string;
+  basins: Basin[];
+  clarifiers: Clarifier[];
+  peakFlowSource: string;
+  settling: BalanceData['settling'];
+  /** The Trends view with this train's mapped signals; null when none is mapped. */
+  trendLink: string | null;
+};
 
 /** Basins and clarifiers arrive as freshly filtered arrays; their elements keep identity under structural sharing, so compare element-wise. */
 const sameItems = <T,>(a: T[], b: T[]) => a.length === b.length && a.every((x, i) => x === b[i]);
 const samePanel = (p: TrainPanelProps, q: TrainPanelProps) =>
-  p.train === q.train && p.name === q.name && p.peakFlowSource === q.peakFlowSource && p.settling === q.settling && sameItems(p.basins, q.basins) && sameItems(p.clarifiers, q.clarifiers);
+  p.train === q.train && p.name === q.name && p.peakFlowSource === q.peakFlowSource && p.settling === q.settling && p.trendLink === q.trendLink && sameItems(p.basins, q.basins) && sameItems(p.clarifiers, q.clarifiers);
 
-export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarifiers, peakFlowSource, settling }: TrainPanelProps) {
+export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarifiers, peakFlowSource, settling, trendLink }: TrainPanelProps) {
   const inService = clarifiers.filter((c) => c.sideWaterDepth_m > 0);
   const depth_m = inService.length ? Math.min(...inService.map((c) => c.sideWaterDepth_m)) : null;
   const basinMass = withUnit(sumFigures(basins.map((b) => b.mass_kg), 'basins'), 'kg');
@@ -56,6 +66,14 @@ export const TrainPanel = memo(function TrainPanel({ train, name, basins, clarif
         </h2>
         <span className="text-[11px] text-ink-3">
           {basins.length} basin{basins.length === 1 ? '' : 's'} · {clarifiers.length} clarifier{clarifiers.length === 1 ? '' : 's'}
+          {trendLink ? (
+            <>
+              {' · '}
+              <Link to={trendLink} className="text-ink-2 underline-offset-2 hover:underline" title="This train's mapped signals on the Trends view, last 24 h">
+                Trend inputs
+              </Link>
+            </>
+          ) : null}
         </span>
       </header>
       <div className="p-2 grid grid-cols-[minmax(300px,1fr)_minmax(330px,1fr)] gap-x-4">
