@@ -10,6 +10,7 @@ import { PlantPicker } from '../../signals/components/plant-picker.tsx';
 import { usePenSamples } from '../api/samples.ts';
 import { download, svgToPng, trendCsv } from '../export.ts';
 import { useWidth } from '../hooks/use-width.ts';
+import { MAX_PENS } from '../pens.ts';
 import { TrendChart, type ChartPen } from './trend-chart.tsx';
 
 const H = 3_600_000;
@@ -21,7 +22,6 @@ const PRESETS = [
   { key: '30d', label: '30 d', ms: 30 * 24 * H },
   { key: '1y', label: '1 y', ms: 365 * 24 * H },
 ] as const;
-const MAX_PENS = 8;
 /** Narrowest window a zoom goes to [ms]: below a minute raw samples are as fine as it gets. */
 const MIN_SPAN = 60_000;
 
